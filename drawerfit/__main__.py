@@ -1,0 +1,3 @@
+from drawerfit.cli import main
+
+main()

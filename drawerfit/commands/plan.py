@@ -1,0 +1,8 @@
+"""`drawerfit plan` (to be written)."""
+
+import click
+
+
+@click.group(name="plan")
+def command() -> None:
+    """(not yet available)"""

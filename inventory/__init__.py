@@ -1,0 +1,1 @@
+"""The parts domain and the store: values, parts, stock. Knows nothing of circuits."""
