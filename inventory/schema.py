@@ -1,0 +1,172 @@
+"""The store's tables as SQLAlchemy 2 typed ORM models.
+
+One ``items`` table holds every stock row (resistors, capacitors and transistor
+types; the columns that do not apply to a kind stay NULL).  Every change of a
+quantity is a :class:`Movement` inside a :class:`Batch`, so that for every item
+``qty == sum(movements.change)`` and any batch can be reversed.
+
+Units are SI throughout: ohm, farad, volt, watt, ampere, hertz; tolerances are
+fractions (0.05 for 5 %).  Times are naive UTC.
+
+Only :mod:`inventory.store` (and the Alembic revisions, which carry their own
+copy of the DDL) should import this module.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime, timezone
+
+from sqlalchemy import (
+    Boolean,
+    CheckConstraint,
+    DateTime,
+    Float,
+    ForeignKey,
+    Index,
+    Integer,
+    String,
+    Text,
+)
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
+
+__all__ = ["Base", "Item", "Batch", "Movement", "Build", "BuildItem", "Order",
+           "BATCH_KINDS", "ITEM_KINDS", "utcnow"]
+
+#: What a batch of movements was.
+BATCH_KINDS = ("import", "adjust", "build", "undo", "receive", "add", "restore")
+
+#: What an item is.
+ITEM_KINDS = ("resistor", "capacitor", "npn", "pnp")
+
+
+def utcnow() -> datetime:
+    """The current time as naive UTC (what the columns store)."""
+    return datetime.now(timezone.utc).replace(tzinfo=None, microsecond=0)
+
+
+class Base(DeclarativeBase):
+    """Declarative base of every drawerfit table."""
+
+
+class Item(Base):
+    """One stock row: a value and rating of resistor or capacitor, or one transistor type."""
+
+    __tablename__ = "items"
+    __table_args__ = (
+        CheckConstraint("qty >= 0", name="ck_items_qty_nonnegative"),
+        CheckConstraint("min_qty >= 0", name="ck_items_min_qty_nonnegative"),
+        Index("ix_items_kind_value", "kind", "value"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    kind: Mapped[str] = mapped_column(String(16))
+    #: Ohm or farad; NULL for transistors.
+    value: Mapped[float | None] = mapped_column(Float)
+    #: The owner's label of a transistor type (unique); NULL for resistors and capacitors.
+    label: Mapped[str | None] = mapped_column(String(200), unique=True)
+    qty: Mapped[int] = mapped_column(Integer, default=0)
+    min_qty: Mapped[int] = mapped_column(Integer, default=0)
+    location: Mapped[str] = mapped_column(String(200), default="")
+    tolerance: Mapped[float | None] = mapped_column(Float)
+    #: Resistor power rating, W.
+    power: Mapped[float | None] = mapped_column(Float)
+    #: Capacitor voltage rating, V.
+    voltage: Mapped[float | None] = mapped_column(Float)
+    dielectric: Mapped[str | None] = mapped_column(String(40))
+    hfe_min: Mapped[float | None] = mapped_column(Float)
+    hfe_max: Mapped[float | None] = mapped_column(Float)
+    hfe_typ: Mapped[float | None] = mapped_column(Float)
+    vbe: Mapped[float | None] = mapped_column(Float)
+    ic_ref: Mapped[float | None] = mapped_column(Float)
+    vaf: Mapped[float | None] = mapped_column(Float)
+    vce_sat: Mapped[float | None] = mapped_column(Float)
+    vceo: Mapped[float | None] = mapped_column(Float)
+    ic_max: Mapped[float | None] = mapped_column(Float)
+    pd: Mapped[float | None] = mapped_column(Float)
+    ft: Mapped[float | None] = mapped_column(Float)
+    cob: Mapped[float | None] = mapped_column(Float)
+    created: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+
+
+class Batch(Base):
+    """One user action that moved stock (an import, an adjustment, a build, an undo …)."""
+
+    __tablename__ = "batches"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    when: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+    kind: Mapped[str] = mapped_column(String(16))
+    note: Mapped[str] = mapped_column(Text, default="")
+    #: The undo batch that reversed this one, if any.
+    undone_by: Mapped[int | None] = mapped_column(ForeignKey("batches.id"))
+
+    movements: Mapped[list[Movement]] = relationship(
+        back_populates="batch", order_by="Movement.id")
+
+
+class Movement(Base):
+    """A change of one item's quantity, inside a batch."""
+
+    __tablename__ = "movements"
+    __table_args__ = (Index("ix_movements_item", "item_id"),
+                      Index("ix_movements_batch", "batch_id"))
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    batch_id: Mapped[int] = mapped_column(ForeignKey("batches.id"))
+    item_id: Mapped[int] = mapped_column(ForeignKey("items.id"))
+    change: Mapped[int] = mapped_column(Integer)
+    reason: Mapped[str] = mapped_column(Text, default="")
+    when: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+
+    batch: Mapped[Batch] = relationship(back_populates="movements")
+    item: Mapped[Item] = relationship()
+
+
+class Build(Base):
+    """Copies of one design taken out of stock."""
+
+    __tablename__ = "builds"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    request: Mapped[str] = mapped_column(String(400))
+    copies: Mapped[int] = mapped_column(Integer)
+    created: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+    #: The design as JSON text (the dict the designer printed).
+    design: Mapped[str] = mapped_column(Text, default="{}")
+    undone: Mapped[bool] = mapped_column(Boolean, default=False)
+    #: The batch whose movements took the pieces.
+    batch_id: Mapped[int] = mapped_column(ForeignKey("batches.id"))
+
+    items: Mapped[list[BuildItem]] = relationship(order_by="BuildItem.item_id")
+
+
+class BuildItem(Base):
+    """Pieces of one item used by a build (all copies together)."""
+
+    __tablename__ = "build_items"
+
+    build_id: Mapped[int] = mapped_column(ForeignKey("builds.id"), primary_key=True)
+    item_id: Mapped[int] = mapped_column(ForeignKey("items.id"), primary_key=True)
+    qty: Mapped[int] = mapped_column(Integer)
+
+
+class Order(Base):
+    """Parts ordered and awaiting arrival (recorded with a plan's commit)."""
+
+    __tablename__ = "orders"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    created: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+    kind: Mapped[str] = mapped_column(String(16))
+    value: Mapped[float | None] = mapped_column(Float)
+    label: Mapped[str | None] = mapped_column(String(200))
+    qty: Mapped[int] = mapped_column(Integer)
+    tolerance: Mapped[float | None] = mapped_column(Float)
+    power: Mapped[float | None] = mapped_column(Float)
+    voltage: Mapped[float | None] = mapped_column(Float)
+    dielectric: Mapped[str | None] = mapped_column(String(40))
+    received: Mapped[bool] = mapped_column(Boolean, default=False)
+    #: The receive batch that booked it, if received.
+    received_batch_id: Mapped[int | None] = mapped_column(ForeignKey("batches.id"))
+    #: The batch of the commit that ordered it.
+    batch_id: Mapped[int | None] = mapped_column(ForeignKey("batches.id"))
