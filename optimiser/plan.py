@@ -594,6 +594,7 @@ class Allocation:
     design: Design
     pieces: dict[int, int] = field(default_factory=dict)
     bought: dict[int, int] = field(default_factory=dict)
+    candidate: int = -1          # index of the design among its build's candidates
 
     def to_json(self) -> dict:
         return {"copies": self.copies, "design": self.design.to_json()}
@@ -681,8 +682,8 @@ def _piece_for(row: Row, count: int) -> Piece:
 
 
 def _split_column(design: Design, copies: int, queues: dict[int, list[list[int]]],
-                  demand_order: list[tuple[str | None, int, int]], rows: dict[int, Row]
-                  ) -> list[Allocation]:
+                  demand_order: list[tuple[str | None, int, int]], rows: dict[int, Row],
+                  candidate: int = -1) -> list[Allocation]:
     """Give each copy its rows from the class queues; group copies that match."""
     groups: dict[tuple, list] = {}
     for _ in range(copies):
@@ -725,7 +726,8 @@ def _split_column(design: Design, copies: int, queues: dict[int, list[list[int]]
             pick: RolePick = design.parts[role]
             new_parts[role] = replace(pick, pieces=tuple(_piece_for(rows[s], k)
                                                           for s, k in merged.items()))
-        out.append(Allocation(n, replace(design, parts=new_parts), dict(pieces), dict(bought)))
+        out.append(Allocation(n, replace(design, parts=new_parts), dict(pieces), dict(bought),
+                              candidate))
     return out
 
 
@@ -749,10 +751,40 @@ def _demand_order(design: Design, rows: dict[int, Row], catalogue: Catalogue
     return order
 
 
+def prefer_stock(model: PlanModel, solution: Solution) -> Solution:
+    """Move pieces from bought packs to stock rows that still have room.
+
+    Any optimal plan stays optimal (the packs and the designs do not change);
+    this only keeps the drawer's own pieces in use first, so that what is left
+    over is new stock, not old.
+    """
+    rows = model.rows
+    room = {s: r.qty for s, r in rows.items() if not r.virtual}
+    for (_r, s), k in solution.flow.items():
+        if s in room:
+            room[s] -= k
+    flow = dict(solution.flow)
+    for (r, s), k in sorted(solution.flow.items()):
+        if not rows[s].virtual:
+            continue
+        for s2 in sorted(room):
+            if k == 0:
+                break
+            if room[s2] > 0 and (r, s2) in model.flow:
+                moved = min(k, room[s2])
+                room[s2] -= moved
+                k -= moved
+                flow[(r, s2)] = flow.get((r, s2), 0) + moved
+                flow[(r, s)] -= moved
+    flow = {key: n for key, n in flow.items() if n > 0}
+    return replace(solution, flow=flow)
+
+
 def assemble(model: PlanModel, solution: Solution, report: SolverReport) -> Plan:
     """Turn a solution into builds (one allocation per group of matching copies),
     purchases and the total cost."""
     rows, cat = model.rows, model.catalogue
+    solution = prefer_stock(model, solution)
     # queues of pieces per class, in the order stock → other stock → bought
     queues: dict[int, list[list[int]]] = defaultdict(list)
     for (r, s), k in sorted(solution.flow.items(),
@@ -767,7 +799,7 @@ def assemble(model: PlanModel, solution: Solution, report: SolverReport) -> Plan
                 continue
             d = it.candidates[j]
             bp.allocations.extend(
-                _split_column(d, n, queues, _demand_order(d, rows, cat), rows))
+                _split_column(d, n, queues, _demand_order(d, rows, cat), rows, j))
         builds.append(bp)
     used: dict[int, int] = defaultdict(int)
     for (_r, s), k in solution.flow.items():
@@ -829,8 +861,10 @@ def diagnose(items: Sequence[PlanItem], rows: dict[int, Row], catalogue: Catalog
     sol = read_solution(model, report)
     short_rows = set(sol.slack)
     if not short_rows:
-        return out + [Shortfall(n, "the solver found no plan although the stock suffices "
-                                f"(status {report.status})") for n in names]
+        if out:        # the builds with candidates fit; those without are the reason
+            return out
+        return [Shortfall(n, "the solver found no plan although the stock suffices "
+                          f"(status {report.status})") for n in names]
     # per pool: pieces in the short rows and pieces the plan takes from them
     # (every stock row of a short pool that the plan draws on counts)
     short_pools = {rows[s].pool for s in short_rows}
