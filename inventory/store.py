@@ -39,7 +39,7 @@ from sqlalchemy.orm import Session, sessionmaker
 from inventory import tabular
 from inventory.errors import DrawerfitError, InputError, StockShortage, StoreError
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
-from inventory.schema import Base, Batch, Build, BuildItem, Item, Movement, Order, utcnow
+from inventory.schema import Base, Batch, Build, BuildItem, Item, Movement, Order
 
 __all__ = ["open_store", "Store", "default_store_path", "describe", "head_revision",
            "MIGRATIONS_DIR"]

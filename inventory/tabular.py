@@ -46,6 +46,7 @@ __all__ = [
     "neutralise_cell",
     "merge_rows",
     "part_cells",
+    "part_from_cells",
 ]
 
 #: Every column of the stock file, in the order ``stock export`` writes them.
@@ -361,6 +362,22 @@ def _row_part(cells: dict[str, str], has_min_qty: bool):
                       dielectric=dielectric, location=location), min_qty, problems)
 
 
+def part_from_cells(cells: dict[str, str]):
+    """One part from column -> text, checked exactly like a stock-file row.
+
+    Returns ``(part, min_qty)``; raises InputError (field = the column) or
+    InputErrors listing every problem.
+    """
+    cells = {k.lower(): ("" if v is None else str(v)) for k, v in cells.items()}
+    unknown = sorted(set(cells) - set(COLUMNS))
+    if unknown:
+        raise InputError(f"unknown column {unknown[0]!r}")
+    part, min_qty, problems = _row_part(cells, "min_qty" in cells)
+    if problems:
+        raise problems[0] if len(problems) == 1 else InputErrors(problems)
+    return part, min_qty
+
+
 def read_stock_csv(path: str | Path, *, ignore_columns: Sequence[str] = ()) -> list[StockRow]:
     """Read and check a stock file.
 
@@ -391,7 +408,7 @@ def read_stock_csv(path: str | Path, *, ignore_columns: Sequence[str] = ()) -> l
     errors: list[InputError] = []
     seen: set[str] = set()
     ignore = {c.lower() for c in ignore_columns}
-    for raw, name in zip(header, names):
+    for raw, name in zip(header, names, strict=True):
         if not name:
             errors.append(InputError("a column has no name in the header", file=file, line=1))
         elif name in seen:
@@ -564,7 +581,7 @@ def write_stock_csv(path: str | Path, parts: Iterable, *,
     records = [part_cells(p) for p in parts]
     columns = list(COLUMNS)
     if extra:
-        for rec, more in zip(records, extra):
+        for rec, more in zip(records, extra, strict=True):
             rec.update(more)
             for k in more:
                 if k not in columns:
