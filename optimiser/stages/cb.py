@@ -1,0 +1,50 @@
+"""Common-base stage: divider bias with the base held at AC ground by C_B, RE from
+emitter to ground, RC to the supply; input at the emitter through C_IN, output from
+the collector through C_OUT.
+
+Nodes: b (base), e (emitter), c (collector).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..stage import StageBatch
+from .common import GROUND, Element, Network, par_thevenin
+
+__all__ = ["network", "quasi_static", "capacitors", "OUTPUT"]
+
+OUTPUT = "collector"
+
+
+def network(batch: StageBatch) -> Network:
+    els = (
+        Element("R", "R1", "b", GROUND, batch.R1),
+        Element("R", "R2", "b", GROUND, batch.R2),
+        Element("C", "C_B", "b", GROUND, batch.C_B),
+        Element("R", "RE", "e", GROUND, batch.RE + batch.RE_BYP),
+        Element("R", "RC", "c", GROUND, batch.RC),
+    )
+    return Network(("b", "e", "c"), els, "b", "e", "c", "e", "c",
+                   c_in=batch.C_IN, c_out=batch.C_OUT)
+
+
+def quasi_static(batch: StageBatch, supply_v, source_ohm, load_ohm, op, emf):
+    col = lambda a: np.asarray(a, dtype=float)[:, None]  # noqa: E731
+    held = col(batch.C_B > 0)
+    vb_div, rb_div = par_thevenin([(supply_v, col(batch.R1)), (0.0, col(batch.R2))])
+    vb = np.where(held, col(op.vb), vb_div) + 0.0 * emf
+    rb = np.where(held, 0.0, rb_div) + 0.0 * emf
+    ve, re = par_thevenin([(0.0, col(batch.RE + batch.RE_BYP)), (col(op.ve) + emf, source_ohm)])
+    vc, rc = par_thevenin([(supply_v, col(batch.RC)),
+                           (col(op.vc), np.inf if load_ohm is None else load_ohm)])
+    v0 = col(op.vc)
+    return (vb, rb, ve, re, vc, rc), (lambda vb_, ve_, vc_: vc_ - v0)
+
+
+def capacitors(batch: StageBatch, op):
+    return {
+        "C_IN": (op.ve, "emitter", "source"),
+        "C_OUT": (op.vc, "collector", "load"),
+        "C_B": (op.vb, "base", "ground"),
+    }

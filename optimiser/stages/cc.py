@@ -1,0 +1,47 @@
+"""Common-collector stage (emitter follower): divider bias, RE from emitter to
+ground, collector to the supply directly (RC = 0) or through RC; input at the base
+through C_IN, output from the emitter through C_OUT.
+
+Nodes: b (base), e (emitter), c (collector; at AC ground when RC = 0).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..stage import StageBatch
+from .common import GROUND, Element, Network, par_thevenin
+
+__all__ = ["network", "quasi_static", "capacitors", "OUTPUT"]
+
+OUTPUT = "emitter"
+
+
+def network(batch: StageBatch) -> Network:
+    els = (
+        Element("R", "R1", "b", GROUND, batch.R1),
+        Element("R", "R2", "b", GROUND, batch.R2),
+        Element("R", "RE", "e", GROUND, batch.RE + batch.RE_BYP),
+        Element("R", "RC", "c", GROUND, batch.RC),
+    )
+    return Network(("b", "e", "c"), els, "b", "e", "c", "b", "e",
+                   c_in=batch.C_IN, c_out=batch.C_OUT)
+
+
+def quasi_static(batch: StageBatch, supply_v, source_ohm, load_ohm, op, emf):
+    col = lambda a: np.asarray(a, dtype=float)[:, None]  # noqa: E731
+    vb, rb = par_thevenin([(supply_v, col(batch.R1)), (0.0, col(batch.R2)),
+                           (col(op.vb) + emf, source_ohm)])
+    ve, re = par_thevenin([(0.0, col(batch.RE + batch.RE_BYP)),
+                           (col(op.ve), np.inf if load_ohm is None else load_ohm)])
+    vc = np.full_like(vb, supply_v)
+    rc = col(batch.RC) + 0.0 * vb
+    v0 = col(op.ve)
+    return (vb, rb, ve + 0.0 * vb, re + 0.0 * vb, vc, rc), (lambda vb_, ve_, vc_: ve_ - v0)
+
+
+def capacitors(batch: StageBatch, op):
+    return {
+        "C_IN": (op.vb, "base", "source"),
+        "C_OUT": (op.ve, "emitter", "load"),
+    }

@@ -1,0 +1,60 @@
+"""Common-emitter stage: divider bias, emitter resistance RE (unbypassed) in series
+with RE_BYP (bypassed by C_BYP), collector resistor RC; input at the base through
+C_IN, output from the collector through C_OUT.
+
+Nodes: b (base), e (emitter), x (junction of RE and RE_BYP), c (collector).
+RE = 0 joins e and x; RE_BYP = 0 puts x at ground.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..stage import StageBatch
+from .common import GROUND, Element, Network, par_thevenin
+
+__all__ = ["network", "quasi_static", "capacitors", "OUTPUT"]
+
+#: The transistor terminal the load branch hangs from.
+OUTPUT = "collector"
+
+
+def network(batch: StageBatch) -> Network:
+    """Small-signal netlist (supply at AC ground)."""
+    els = (
+        Element("R", "R1", "b", GROUND, batch.R1),
+        Element("R", "R2", "b", GROUND, batch.R2),
+        Element("R", "RC", "c", GROUND, batch.RC),
+        Element("R", "RE", "e", "x", batch.RE),
+        Element("R", "RE_BYP", "x", GROUND, batch.RE_BYP),
+        Element("C", "C_BYP", "x", GROUND, batch.C_BYP),
+    )
+    return Network(("b", "e", "x", "c"), els, "b", "e", "c", "b", "c",
+                   c_in=batch.C_IN, c_out=batch.C_OUT)
+
+
+def quasi_static(batch: StageBatch, supply_v, source_ohm, load_ohm, op, emf):
+    """Terminal Thevenins with every capacitor a DC source at its operating voltage.
+
+    ``emf`` has shape (n, k) (k phase points); returns (vb, rb, ve, re, vc, rc)
+    broadcast to (n, k) and a function giving v_load from (vb, ve, vc).
+    """
+    col = lambda a: np.asarray(a, dtype=float)[:, None]  # noqa: E731
+    vb, rb = par_thevenin([(supply_v, col(batch.R1)), (0.0, col(batch.R2)),
+                           (col(op.vb) + emf, source_ohm)])
+    held = (batch.RE_BYP > 0) & (batch.C_BYP > 0)
+    ve = np.where(held, op.vx, 0.0)[:, None]
+    re = np.where(held, batch.RE, batch.RE + batch.RE_BYP)[:, None]
+    vc, rc = par_thevenin([(supply_v, col(batch.RC)),
+                           (col(op.vc), np.inf if load_ohm is None else load_ohm)])
+    v0 = col(op.vc)
+    return (vb, rb, ve, re, vc, rc), (lambda vb_, ve_, vc_: vc_ - v0)
+
+
+def capacitors(batch: StageBatch, op) -> dict[str, tuple[np.ndarray, str, str]]:
+    """role -> (DC voltage from its first-named to its second-named side, names)."""
+    return {
+        "C_IN": (op.vb, "base", "source"),
+        "C_OUT": (op.vc, "collector", "load"),
+        "C_BYP": (op.vx, "emitter", "ground"),
+    }
