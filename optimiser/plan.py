@@ -95,6 +95,10 @@ __all__ = [
     "assemble",
     "diagnose",
     "plan_builds",
+    "prefer_stock",
+    "gather_candidates",
+    "make_plan",
+    "commit_entries",
 ]
 
 #: Solvers ``--solver`` accepts.
@@ -940,3 +944,169 @@ def plan_builds(items: Sequence[PlanItem], snapshot: StockSnapshot,
     return Plan(False, report, infeasible=why, candidates=len(model.demand),
                 stats={"variables": len(model.problem.variables()),
                        "constraints": len(model.problem.constraints)})
+
+
+# ---------------------------------------------------------------------------
+# From a build list: candidates from the search, then the programme
+# ---------------------------------------------------------------------------
+
+def _design_key(d: Design) -> tuple:
+    return (d.topology, d.transistor,
+            tuple(sorted((role, round(p.value, 12), p.joined or "",
+                          tuple((q.id, q.count, round(q.value, 12)) for q in p.pieces))
+                         for role, p in d.parts.items())))
+
+
+def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot, *,
+                      top: int = 30, search_fn: Callable | None = None
+                      ) -> tuple[list[Design], str, dict]:
+    """Candidate designs for one request: enough, and varied enough, to give the programme choices.
+
+    Three sources, merged and freed of duplicates:
+
+    1. the best ``top`` designs over the drawer as it is;
+    2. the best ``top`` over the drawer plus the purchasable values (when
+       ``augmented`` differs from ``snapshot``);
+    3. for a request open to any transistor, the best ``max(3, top // 5)`` with
+       each transistor type the drawer holds that (1) and (2) left short of
+       that many, so that a scarce type never leaves the programme without
+       alternatives.
+
+    The search runs for one copy (``builds = 1``): quantities for all copies
+    are the programme's business.
+
+    Returns
+    -------
+    (designs, note, stats)
+        ``note`` says why there are none (the nearest misses' violations).
+    """
+    if search_fn is None:
+        from optimiser.search import search as search_fn
+    from inventory.errors import InputError
+
+    one = replace(request, builds=1)
+    found: list[Design] = []
+    misses: list[Design] = []
+    runs = 0
+    t0 = time.perf_counter()
+
+    def run(req, snap, n, nmiss=0):
+        nonlocal runs
+        runs += 1
+        res = search_fn(req, snap, top=n, misses=nmiss)
+        found.extend(d for d in res.designs if d.meets_spec)
+        misses.extend(getattr(res, "nearest_misses", []) or [])
+        return res
+
+    run(one, snapshot, top, 3)
+    if augmented is not snapshot:
+        run(one, augmented, top)
+    if request.transistor == "any":
+        per = max(3, top // 5)
+        have: dict[str, int] = defaultdict(int)
+        for d in found:
+            have[d.transistor] += 1
+        for t in sorted({t.label for t in snapshot.transistors if t.qty > 0}):
+            if have[t] >= per:
+                continue
+            try:
+                run(replace(one, transistor=t), augmented, per)
+            except InputError:
+                continue               # e.g. a type that cannot serve this topology
+    seen: set[tuple] = set()
+    unique: list[Design] = []
+    for d in sorted(found, key=lambda d: (d.score if d.score is not None else math.inf)):
+        k = _design_key(d)
+        if k not in seen:
+            seen.add(k)
+            unique.append(d)
+    note = ""
+    if not unique:
+        note = "no design meets the request from this drawer"
+        if misses:
+            best = misses[0]
+            if best.violations:
+                note += "; nearest miss: " + ", ".join(best.violations[:3])
+    return unique, note, {"searches": runs, "seconds": time.perf_counter() - t0}
+
+
+def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candidates: int = 30,
+              time_limit: float | None = None, search_fn: Callable | None = None,
+              progress: Callable[[str], None] | None = None) -> Plan:
+    """Plan a build list against ``snapshot``: candidates, programme, solution.
+
+    Parameters
+    ----------
+    buildlist : optimiser.buildlist.BuildList
+    snapshot : StockSnapshot
+        The drawer as the store holds it (no virtual rows).
+    solver : {"cbc", "highs"}
+    candidates : int
+        ``top`` for each search (see :func:`gather_candidates`).
+    time_limit : float, optional
+        Seconds for the solver.
+    search_fn : callable, optional
+        Stands in for :func:`optimiser.search.search` (tests).
+    progress : callable, optional
+        Called with a short text before each request's search.
+    """
+    from optimiser.purchase import augment
+
+    augmented, catalogue = augment(snapshot, buildlist.purchase)
+    items = []
+    search_stats = []
+    for b in buildlist.builds:
+        if progress is not None:
+            progress(f"searching designs for {b.name}")
+        designs, note, st = gather_candidates(b.request, snapshot, augmented, top=candidates,
+                                              search_fn=search_fn)
+        st["candidates"] = len(designs)
+        search_stats.append({"request": b.name, **st})
+        items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note))
+    if progress is not None:
+        progress("solving the plan")
+    plan = plan_builds(items, augmented, catalogue, solver=solver, time_limit=time_limit)
+    plan.stats["search"] = search_stats
+    plan.stats["search_seconds"] = sum(s["seconds"] for s in search_stats)
+    return plan
+
+
+def commit_entries(plan: Plan) -> list[dict]:
+    """The plan as the store's ``commit_builds`` takes it: one entry per allocation.
+
+    ``pieces`` are the stock rows taken (item id → pieces, all copies); each
+    purchase is recorded as an order (awaiting arrival) with the first
+    allocation that uses it.
+    """
+    if not plan.feasible:
+        raise ValueError("an infeasible plan cannot be committed")
+    by_value = {(p.kind, round(p.value, 15)): p for p in plan.purchases}
+    placed: set[tuple] = set()
+    entries = []
+    for bp in plan.builds:
+        for a in bp.allocations:
+            orders = []
+            for pick in a.design.parts.values():
+                for piece in pick.pieces:
+                    key = (piece.kind, round(piece.value, 15))
+                    if piece.id is None and key in by_value and key not in placed:
+                        placed.add(key)
+                        p = by_value[key]
+                        orders.append({"kind": p.kind, "value": p.value, "label": p.label,
+                                       "qty": p.qty, "tolerance": p.tolerance,
+                                       "power": p.rating if p.kind == "resistor" else None,
+                                       "voltage": p.rating if p.kind == "capacitor" else None,
+                                       "dielectric": p.dielectric})
+            entries.append({"request": bp.name, "copies": a.copies,
+                            "design": a.design.to_json(), "pieces": dict(a.pieces),
+                            "orders": orders})
+    if entries:
+        # purchases no allocation names (cannot happen in an optimal plan) go with the first
+        for key, p in by_value.items():
+            if key not in placed:
+                entries[0]["orders"].append({"kind": p.kind, "value": p.value, "label": p.label,
+                                             "qty": p.qty, "tolerance": p.tolerance,
+                                             "power": p.rating if p.kind == "resistor" else None,
+                                             "voltage": p.rating if p.kind == "capacitor" else None,
+                                             "dielectric": p.dielectric})
+    return entries

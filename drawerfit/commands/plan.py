@@ -1,8 +1,91 @@
-"""`drawerfit plan` (to be written)."""
+"""`drawerfit plan BUILDLIST.toml`: several builds against one drawer, and what to order."""
+
+from __future__ import annotations
 
 import click
 
+from drawerfit.cli import pass_app
+from drawerfit.console import emit_json, err, out
+from inventory.errors import InputError, StockShortage
 
-@click.group(name="plan")
-def command() -> None:
-    """(not yet available)"""
+__all__ = ["command", "write_order"]
+
+
+def write_order(plan, path: str) -> None:
+    """Write the shopping list as a stock file (plus ``packs``, ``cost``, ``for_builds``).
+
+    ``stock receive`` books it when the parts arrive; the location is left
+    empty for the owner to fill in.
+    """
+    from inventory.parts import Capacitor, Resistor
+    from inventory.tabular import write_stock_csv
+
+    parts, extra = [], []
+    for p in plan.purchases:
+        if p.kind == "resistor":
+            parts.append(Resistor(value=p.value, qty=p.qty, tolerance=p.tolerance,
+                                  power_w=p.rating, location=""))
+        else:
+            parts.append(Capacitor(value=p.value, qty=p.qty, tolerance=p.tolerance,
+                                   voltage_v=p.rating, dielectric=p.dielectric or "ceramic",
+                                   location=""))
+        extra.append({"packs": str(p.packs), "cost": f"{p.cost:.2f}",
+                      "for_builds": str(p.used)})
+    write_stock_csv(path, parts, extra=extra)
+
+
+@click.command(name="plan")
+@click.argument("buildlist", metavar="BUILDLIST.toml", type=click.Path(dir_okay=False))
+@click.option("--json", "as_json", is_flag=True, help="Print JSON (interface.md).")
+@click.option("--solver", type=click.Choice(["cbc", "highs"]), default="cbc", show_default=True,
+              help="Mixed-integer solver: CBC (shipped with PuLP) or HiGHS (needs highspy).")
+@click.option("--order", "order_path", metavar="FILE.csv", type=click.Path(dir_okay=False),
+              help="Write the shopping list as a stock file that `stock receive` can book.")
+@click.option("--commit", is_flag=True,
+              help="Record the builds and take their pieces out of stock (one transaction); "
+                   "purchases are recorded as awaiting arrival.")
+@click.option("--candidates", type=click.IntRange(1, 500), default=30, show_default=True,
+              help="Designs the search offers per request (and per source).")
+@click.option("--time-limit", type=click.FloatRange(min=0.1), default=None, metavar="SECONDS",
+              help="Stop the solver after this long; the status then says so.")
+@pass_app
+def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | None,
+            commit: bool, candidates: int, time_limit: float | None) -> None:
+    """Plan several builds from one drawer at the least purchase cost.
+
+    BUILDLIST.toml lists [[build]] entries (a request file or table, a count,
+    identical = true/false) and an optional [purchase] table saying which
+    values may be bought and at what price.
+    """
+    from optimiser.buildlist import load_buildlist
+    from optimiser.plan import commit_entries, make_plan
+
+    blist = load_buildlist(buildlist)
+    store = app.store()
+    snapshot = store.snapshot()
+    progress = None if as_json else (lambda text: err.print(f"[dim]{text} …[/dim]"))
+    plan = make_plan(blist, snapshot, solver=solver, candidates=candidates,
+                     time_limit=time_limit, progress=progress)
+    build_ids = None
+    if commit:
+        if not plan.feasible:
+            raise InputError("nothing was recorded: the plan does not meet every build",
+                             field="--commit")
+        try:
+            build_ids = store.commit_builds(commit_entries(plan))
+        except StockShortage as exc:
+            raise InputError(f"the stock changed since planning, nothing was recorded "
+                             f"({exc.message}); run the plan again", field="--commit") from None
+    if order_path and plan.feasible:
+        write_order(plan, order_path)
+    if as_json:
+        data = plan.to_json()
+        if build_ids is not None:
+            data["build_ids"] = build_ids
+        emit_json(data)
+    else:
+        from drawerfit.render.plan import print_plan
+        print_plan(out, plan, build_ids=build_ids)
+        if order_path and plan.feasible:
+            out.print(f"Order written to {order_path} "
+                      f"({'nothing to order' if not plan.purchases else 'book it on arrival with `drawerfit stock receive`'}).")

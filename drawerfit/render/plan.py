@@ -1,0 +1,124 @@
+"""Rich view of a plan: who gets which parts, what to order, what it costs, what the solver said.
+
+Nothing here computes: :class:`optimiser.plan.Plan` arrives complete.  Values are
+written as a technician writes them (:func:`inventory.values.format_value`,
+:func:`inventory.values.format_si`).
+"""
+
+from __future__ import annotations
+
+from rich.console import Console
+from rich.table import Table
+from rich.text import Text
+
+from inventory.values import format_si, format_value
+from optimiser.plan import Allocation, Plan
+
+__all__ = ["print_plan", "part_lines"]
+
+
+def _piece_text(p, kind: str) -> str:
+    where = p.location or "?"
+    n = f"{p.count}× " if p.count != 1 else ""
+    return f"{n}{format_value(p.value, kind)} [{where}]" if p.value else f"{n}[{where}]"
+
+
+def part_lines(alloc: Allocation) -> list[str]:
+    """One line per role: ``R1 47k  ← A3`` (several pieces joined with +)."""
+    lines = []
+    for role, pick in alloc.design.parts.items():
+        kind = pick.pieces[0].kind if pick.pieces else (
+            "capacitor" if role.startswith("C") else "resistor")
+        if kind not in ("resistor", "capacitor"):
+            continue
+        pieces = " + ".join(_piece_text(p, kind) for p in pick.pieces)
+        joined = f" ({pick.joined})" if pick.joined else ""
+        lines.append(f"{role} {pick.label}{joined} ← {pieces}")
+    return lines
+
+
+def _metric(m: dict, key: str, unit: str) -> str:
+    v = m.get(key)
+    return "—" if v is None else format_si(v, unit)
+
+
+def _figures(alloc: Allocation) -> str:
+    m = alloc.design.metrics or {}
+    gain = m.get("gain_db")
+    parts = [f"gain {gain:.1f} dB" if gain is not None else "gain —",
+             f"f_low {_metric(m, 'f_low_hz', 'Hz')}",
+             f"f_high {_metric(m, 'f_high_hz', 'Hz')}",
+             f"I_C {_metric(m, 'ic_a', 'A')}"]
+    if m.get("ic_drift_pct") is not None:
+        parts.append(f"drift {m['ic_drift_pct']:.1f} %")
+    if m.get("thd_pct") is not None:
+        parts.append(f"THD {m['thd_pct']:.2f} %")
+    if alloc.design.score is not None:
+        parts.append(f"score {alloc.design.score:.3g}")
+    return "\n".join(parts)
+
+
+def _money(x: float) -> str:
+    return f"{x:.2f}"
+
+
+def print_plan(console: Console, plan: Plan, *, build_ids: list[int] | None = None) -> None:
+    """Print the plan: allocations per request, shopping list, total, solver line."""
+    solver = plan.solver
+    status_style = "green" if solver.status == "Optimal" else "bold yellow"
+    if not plan.feasible:
+        console.print(Text("No plan meets every build from this drawer.", style="bold red"))
+        for s in plan.infeasible:
+            console.print(f"[bold]{s.request}[/bold]: {s.reason}")
+            if s.shortage:
+                t = Table(show_edge=False, box=None, padding=(0, 2))
+                for col in ("kind", "part", "in stock", "needed"):
+                    t.add_column(col, justify="right" if col in ("in stock", "needed") else "left")
+                for row in s.shortage:
+                    t.add_row(row["kind"], row["label"], str(row["have"]), str(row["need"]))
+                console.print(t)
+    else:
+        warned = False
+        for bp in plan.builds:
+            mode = "identical copies" if bp.identical else "copies may differ"
+            t = Table(title=f"{bp.name}: {bp.count} {'copy' if bp.count == 1 else 'copies'} "
+                            f"({mode})", title_justify="left", show_lines=True)
+            t.add_column("copies", justify="right")
+            t.add_column("transistor")
+            t.add_column("values ← bins")
+            t.add_column("figures")
+            for a in bp.allocations:
+                t.add_row(str(a.copies), a.design.transistor, "\n".join(part_lines(a)),
+                          _figures(a))
+            console.print(t)
+            for a in bp.allocations:
+                for w in a.design.warnings:
+                    console.print(f"  [yellow]caution[/yellow] ({bp.name}): {w}")
+                    warned = True
+        if warned:
+            console.print("  Cautions are common practice only; local codes and licensed "
+                          "practice come first.")
+        if plan.purchases:
+            t = Table(title="To order", title_justify="left")
+            for col in ("kind", "value", "rating", "packs", "pieces", "for builds", "cost"):
+                t.add_column(col, justify="left" if col in ("kind", "value", "rating")
+                             else "right")
+            for kind in ("resistor", "capacitor"):
+                for p in (q for q in plan.purchases if q.kind == kind):
+                    tol = f"{p.tolerance * 100:g} %" if p.tolerance is not None else ""
+                    rating = (format_si(p.rating, "W") if kind == "resistor"
+                              else f"{format_si(p.rating, 'V')} {p.dielectric or ''}".strip())
+                    t.add_row(kind, p.label, f"{tol} {rating}".strip(), str(p.packs), str(p.qty),
+                              str(p.used), _money(p.cost))
+            console.print(t)
+        else:
+            console.print("Nothing to order: the drawer covers every build.")
+        console.print(f"[bold]Total cost: {_money(plan.cost)}[/bold]")
+    console.print(f"Solver {solver.name}: [{status_style}]{solver.status}[/{status_style}] "
+                  f"in {solver.seconds:.2f} s, {plan.candidates} candidate designs")
+    if solver.status == "Feasible":
+        console.print("[yellow]The solver stopped before proving this plan the cheapest "
+                      "(time limit); a cheaper one may exist.[/yellow]")
+    if build_ids:
+        console.print(f"Recorded builds {', '.join(map(str, build_ids))} "
+                      f"(undo each with `drawerfit builds undo ID`).")
