@@ -42,7 +42,7 @@ NODE_WORDS = {
     "base": "the base",
     "emitter": "the emitter",
     "collector": "the collector",
-    "junction": "the RE/RE_BYP junction",
+    "junction": "the emitter side (the RE/RE_BYP junction)",
     "ground": "ground",
     "source": "the source",
     "load": "the load",
@@ -171,6 +171,8 @@ def capacitor_bias(design: Design, request: Request) -> dict[str, CapacitorBias]
     nodes = _nodes(design, request)
     out: dict[str, CapacitorBias] = {}
     for role, (a, b) in CAPACITOR_NODES.get(design.topology, {}).items():
+        if a == "junction" and "RE" not in design.parts:
+            a = "emitter"                      # fully bypassed: C_BYP sits on the emitter
         if role not in design.parts or a not in nodes:
             continue
         va, vb = nodes[a], nodes[b]
@@ -234,16 +236,20 @@ def resistor_piece_power(pick: RolePick, role_power_w: float) -> list[tuple[floa
 def transistor_power(design: Design, corners: dict | None = None) -> float | None:
     """Largest DC dissipation of the transistor (W): nominal, or at the drift corners.
 
-    ``corners`` is the engine's dict of arrays (``ic_a``, ``vce_v``; any shape);
-    at a corner the base term I_B·V_BE is left out (it is below 1 % for β ≥ 100).
+    ``corners`` is the engine's dict of arrays: ``pq_w`` when present, else
+    ``ic_a``·``vce_v`` (the base term I_B·V_BE left out; below 1 % for β ≥ 100).
     """
     p = _metric(design, "pd_q_w")
     if p is None:
         ic, vce = _metric(design, "ic_a"), _metric(design, "vce_v")
         if ic is not None and vce is not None:
             p = ic * vce
-    if corners is not None and "ic_a" in corners and "vce_v" in corners:
+    pc = None
+    if corners is not None and "pq_w" in corners:
+        pc = np.asarray(corners["pq_w"], float)
+    elif corners is not None and "ic_a" in corners and "vce_v" in corners:
         pc = np.asarray(corners["ic_a"], float) * np.asarray(corners["vce_v"], float)
+    if pc is not None:
         pc = pc[np.isfinite(pc)]
         if pc.size:
             p = max(p or 0.0, float(pc.max()))

@@ -108,7 +108,7 @@ def test_polarity_named_for_each_polarised_capacitor_and_only_those():
     pol = {c.role: c.text for c in out if c.kind == "polarity"}
     assert set(pol) == {"C_OUT", "C_BYP"}
     assert "+ toward the collector" in pol["C_OUT"]
-    assert "+ toward the RE/RE_BYP junction" in pol["C_BYP"]
+    assert "+ toward the emitter side (the RE/RE_BYP junction)" in pol["C_BYP"]
 
 
 def test_polarity_faces_the_higher_node_even_when_a_node_is_below_ground():

@@ -1,0 +1,235 @@
+"""sheet.html: one self-contained, printable page to build from.
+
+Inline CSS, images as data: URIs, no scripts and no external references.
+Every figure carries ``data-metric`` (the interface key) and ``data-value``
+(the number as the engine gave it, SI units), and each DC voltage to probe
+``data-node`` and ``data-volts``, so a script can read the page back.
+"""
+
+from __future__ import annotations
+
+import base64
+from collections.abc import Sequence
+from html import escape
+from pathlib import Path
+
+from drawerfit.sheet import fmt
+from drawerfit.sheet.spread import Probe
+from optimiser.cautions import Caution
+from optimiser.design import Design
+from optimiser.request import Request
+
+__all__ = ["FIGURES", "render_html", "data_uri"]
+
+CSS = """
+@page { size: A4; margin: 12mm; }
+* { box-sizing: border-box; }
+body { font: 10.5pt/1.35 "DejaVu Sans", Arial, sans-serif; color: #111; margin: 0 auto;
+       max-width: 190mm; padding: 6mm; }
+h1 { font-size: 15pt; margin: 0 0 2mm; }
+h2 { font-size: 11.5pt; margin: 4mm 0 1.5mm; border-bottom: 1px solid #999; }
+.sub { color: #444; margin: 0 0 3mm; }
+table { border-collapse: collapse; width: 100%; }
+th, td { border: 1px solid #bbb; padding: 1mm 2mm; text-align: left; vertical-align: top; }
+th { background: #eee; font-weight: 600; }
+td.num, th.num { text-align: right; white-space: nowrap; }
+.cols { display: flex; gap: 5mm; }
+.cols > div { flex: 1 1 0; min-width: 0; }
+img { max-width: 100%; height: auto; display: block; margin: 1mm auto; }
+img.schematic { max-height: 120mm; }
+img.plot { max-height: 80mm; }
+.probe { font-weight: 700; color: #1f4fbf; font-size: 11.5pt; }
+.tick { width: 8mm; }
+ul.cautions { margin: 0; padding-left: 5mm; }
+ul.cautions li { margin: 0.8mm 0; }
+li.caution { color: #8a1c10; }
+li.caution::marker { content: "⚠ "; }
+li.note { color: #333; }
+.meets { color: #1d6b2f; font-weight: 600; }
+.misses { color: #8a1c10; font-weight: 600; }
+section { break-inside: avoid; page-break-inside: avoid; }
+footer { margin-top: 4mm; color: #555; font-size: 8.5pt; }
+@media print { body { padding: 0; } }
+"""
+
+#: (metric key, what, unit) in the order the sheet lists them.
+FIGURES: tuple[tuple[str, str, str], ...] = (
+    ("gain", "gain at mid frequency", "V/V"),
+    ("gain_db", "gain at mid frequency", "dB"),
+    ("f_low_hz", "lower −3 dB edge", "Hz"),
+    ("f_high_hz", "upper −3 dB edge", "Hz"),
+    ("zin_ohm", "input impedance Zin", "Ω"),
+    ("zout_ohm", "output impedance Zout", "Ω"),
+    ("swing_vpk", "output swing before clipping", "V"),
+    ("thd_pct", "distortion (THD) at the input level", "%"),
+    ("ic_a", "collector current I_C", "A"),
+    ("vce_v", "V_CE", "V"),
+    ("ic_drift_pct", "I_C drift over hFE spread and temperature", "%"),
+    ("pd_q_w", "transistor dissipation", "W"),
+    ("yield_pct", "yield (Monte Carlo)", "%"),
+)
+
+
+def data_uri(data: bytes, mime: str) -> str:
+    """``data:`` URI with base64 payload."""
+    return f"data:{mime};base64," + base64.b64encode(data).decode("ascii")
+
+
+def _show(key: str, unit: str, v) -> str:
+    if v is None:
+        if key == "f_high_hz":
+            return "— (beyond range or no ft/cob)"
+        if key == "f_low_hz":
+            return "— (below range)"
+        return "—"
+    v = float(v)
+    if unit in ("%", "dB", "V/V"):
+        return f"{v:.3g} {unit}" if unit != "dB" else f"{v:.2f} dB"
+    if key == "swing_vpk":
+        return fmt.si(v, "V") + " peak"
+    return fmt.si(v, unit)
+
+
+def _req_rows(request: Request) -> list[tuple[str, str]]:
+    r = request
+    rows = [("topology", {"ce": "common emitter", "cb": "common base",
+                          "cc": "common collector (emitter follower)"}[r.topology]),
+            ("supply", fmt.si(r.supply_v, "V")),
+            ("load", fmt.si(r.load_ohm, "Ω") if r.load_ohm else "none (open)"),
+            ("source resistance", fmt.si(r.source_ohm, "Ω")),
+            ("mid frequency", fmt.si(r.mid_hz, "Hz"))]
+    if r.gain is not None:
+        rows.append(("gain target", f"{r.gain_db:.2f} dB ± {r.gain_tol_db:g} dB "
+                                    f"({r.gain:.3g} V/V)"))
+    if r.f_low_max_hz is not None:
+        rows.append(("lower edge at most", fmt.si(r.f_low_max_hz, "Hz")))
+    if r.f_high_min_hz is not None:
+        rows.append(("upper edge at least", fmt.si(r.f_high_min_hz, "Hz")))
+    if r.zin_min_ohm is not None:
+        rows.append(("Zin at least", fmt.si(r.zin_min_ohm, "Ω")))
+    if r.ic_drift_max_pct is not None:
+        rows.append(("I_C drift at most", f"{r.ic_drift_max_pct:g} %"))
+    if r.thd_max_pct is not None:
+        rows.append(("THD at most", f"{r.thd_max_pct:g} %"))
+    if r.min_yield_pct is not None:
+        rows.append(("yield at least", f"{r.min_yield_pct:g} %"))
+    t0, t1 = r.temp_c
+    rows.append(("ambient", f"{t0:g} °C" if t0 == t1 else f"{t0:g} to {t1:g} °C"))
+    rows.append(("input level", fmt.si(r.input_vpk, "V") + " peak"))
+    rows.append(("copies to build", str(r.builds)))
+    if r.mains:
+        rows.append(("supply derived from the mains", "yes"))
+    return rows
+
+
+def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], num_cols=()) -> str:
+    h = "".join(f'<th class="{"num" if i in num_cols else ""}">{escape(x)}</th>'
+                for i, x in enumerate(headers))
+    body = []
+    for row in rows:
+        cells = "".join(f'<td class="{"num" if i in num_cols else ""}">{escape(str(x))}</td>'
+                        for i, x in enumerate(row))
+        body.append(f"<tr>{cells}</tr>")
+    return f"<table><thead><tr>{h}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+
+
+def render_html(design: Design, request: Request, *, schematic_svg: bytes,
+                response_png: bytes, drift_png: bytes, route: list[dict],
+                probes: list[Probe], cautions: list[Caution], transistor=None) -> str:
+    """The page as one string."""
+    topo = {"ce": "common-emitter", "cb": "common-base", "cc": "common-collector"}
+    title = f"Build sheet: {topo.get(design.topology, design.topology)} stage with {design.transistor}"
+    sub = []
+    if design.rank is not None:
+        sub.append(f"design rank {design.rank}")
+    if design.form:
+        sub.append(design.form)
+    status = ('<span class="meets">meets the request</span>' if design.meets_spec else
+              '<span class="misses">misses the request: ' +
+              escape("; ".join(design.violations)) + "</span>")
+    sub.append(status)
+
+    req = _table(("asked", ""), _req_rows(request))
+
+    fig_rows = []
+    for key, what, unit in FIGURES:
+        if key not in design.metrics:
+            continue
+        v = design.metrics.get(key)
+        data = "" if v is None else repr(float(v))
+        fig_rows.append(f'<tr><td>{escape(what)}</td><td class="num" data-metric="{key}" '
+                        f'data-value="{escape(data)}">{escape(_show(key, unit, v))}</td></tr>')
+    figures = ('<table><thead><tr><th>figure (computed)</th><th class="num">value</th></tr>'
+               f'</thead><tbody>{"".join(fig_rows)}</tbody></table>')
+
+    probe_rows = []
+    names = {"base": "base (B)", "emitter": "emitter (E)", "collector": "collector (C)"}
+    for p in probes:
+        if p.low is not None and p.high is not None:
+            spread = f"{fmt.si(p.low, 'V')} to {fmt.si(p.high, 'V')}"
+            basis = p.basis
+        else:
+            spread, basis = "nominal", "no spread computed"
+        probe_rows.append(
+            f'<tr><td>{escape(names.get(p.node, p.node))}</td>'
+            f'<td class="num probe" data-node="{p.node}" data-volts="{p.volts:.6g}">'
+            f'{escape(fmt.si(p.volts, "V"))}</td>'
+            f'<td class="num">{escape(spread)}</td><td>{escape(basis)}</td>'
+            f'<td class="tick"></td></tr>')
+    probe_table = ('<table><thead><tr><th>node</th><th class="num">expect</th>'
+                   '<th class="num">range</th><th>range covers</th><th>✓</th></tr></thead>'
+                   f'<tbody>{"".join(probe_rows)}</tbody></table>')
+
+    route_rows = [(r["location"] or "—", r["role"], r["value"], r["kind"] +
+                   (f" ({r['dielectric']})" if r["dielectric"] else ""), r["rating"],
+                   str(r["count"]), "") for r in route]
+    route_table = _table(("bin", "role", "value", "kind", "rating", "take", "✓"), route_rows,
+                         num_cols=(5,))
+
+    items = []
+    for c in cautions:
+        who = f"<b>{escape(c.role)}</b> " if c.role and not c.text.startswith(c.role) else ""
+        items.append(f'<li class="{c.level}" data-kind="{c.kind}">{who}{escape(c.text)}</li>')
+    caution_list = f'<ul class="cautions">{"".join(items)}</ul>'
+
+    sch = data_uri(schematic_svg, "image/svg+xml")
+    resp = data_uri(response_png, "image/png")
+    drift = data_uri(drift_png, "image/png")
+    return f"""<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<title>{escape(title)}</title>
+<style>{CSS}</style>
+</head>
+<body>
+<h1>{escape(title)}</h1>
+<p class="sub">{" · ".join(sub)}</p>
+<section><h2>Cautions</h2>{caution_list}</section>
+<section><h2>Schematic</h2>
+<img class="schematic" src="{sch}" alt="schematic of the stage with role names, values and bins">
+<p class="sub">Blue figures: DC volts to ground to expect at base (B), emitter (E) and collector (C).</p>
+</section>
+<div class="cols">
+<section><h2>Parts, in picking order</h2>{route_table}</section>
+</div>
+<section><h2>DC voltages to check with a meter (to ground, no signal)</h2>{probe_table}</section>
+<div class="cols">
+<section><h2>The request</h2>{req}</section>
+<section><h2>Figures</h2>{figures}</section>
+</div>
+<section><h2>Frequency response</h2>
+<img class="plot" src="{resp}" alt="Bode magnitude and phase with band edges and targets"></section>
+<section><h2>Bias drift{" and yield" if "yield_pct" in design.metrics else ""}</h2>
+<img class="plot" src="{drift}" alt="collector current and gain at the drift corners"></section>
+<footer>All figures are computed from models and nominal data (ideal parts, data-sheet
+transistor figures, the stated tolerances); verify them on the bench before relying on the stage.</footer>
+</body>
+</html>
+"""
+
+
+def write_html(path: Path, text: str) -> Path:
+    path = Path(path)
+    path.write_text(text, encoding="utf-8")
+    return path

@@ -1,0 +1,140 @@
+"""parts.csv: one row per role (role, value, kind, rating, pieces, location).
+
+``pieces`` counts the pieces for all ``builds`` copies; ``per_copy`` for one.
+Extra columns: ``dielectric`` and ``plus`` (the node the + terminal of a
+polarised capacitor faces).
+"""
+
+from __future__ import annotations
+
+import csv
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+from drawerfit.sheet import fmt
+from inventory.parts import (
+    DEFAULT_CAPACITOR_VOLTAGE_V,
+    DEFAULT_RESISTOR_POWER_W,
+    POLARISED_DIELECTRICS,
+)
+from optimiser.design import Design
+from optimiser.request import Request
+from optimiser.stage import RESISTOR_ROLES, ROLES
+
+__all__ = ["COLUMNS", "PartRow", "part_rows", "pick_route", "location_key", "write_parts_csv"]
+
+COLUMNS = ("role", "value", "kind", "rating", "pieces", "location", "per_copy", "dielectric",
+           "plus")
+
+
+@dataclass(frozen=True)
+class PartRow:
+    role: str
+    value: str
+    kind: str
+    rating: str
+    pieces: int
+    location: str
+    per_copy: int
+    dielectric: str = ""
+    plus: str = ""
+
+
+def location_key(loc: str) -> tuple:
+    """Natural order of bin names: A2 before A10, empty last."""
+    if not loc:
+        return ((1,),)
+    parts = re.split(r"(\d+)", loc.strip().lower())
+    return ((0,),) + tuple((0, int(p)) if p.isdigit() else (1, p) for p in parts if p)
+
+
+def _role_order(design: Design) -> list[str]:
+    order = [r for r in ROLES.get(design.topology, ()) if r in design.parts]
+    return order + [r for r in design.parts if r not in order]
+
+
+def _kind(role: str) -> str:
+    return "resistor" if role in RESISTOR_ROLES else "capacitor"
+
+
+def _rating(role: str, pick) -> str:
+    kind = _kind(role)
+    vals = sorted({pc.rating for pc in pick.pieces if pc.rating})
+    if kind == "resistor":
+        vals = vals or [DEFAULT_RESISTOR_POWER_W]
+        return " / ".join(fmt.si(v, "W") for v in vals)
+    vals = vals or [DEFAULT_CAPACITOR_VOLTAGE_V]
+    return " / ".join(fmt.si(v, "V") for v in vals)
+
+
+def part_rows(design: Design, request: Request, transistor=None,
+              plus: dict[str, str] | None = None) -> list[PartRow]:
+    """The rows of parts.csv, in role order, the transistor last."""
+    plus = plus or {}
+    rows = []
+    for role in _role_order(design):
+        pick = design.parts[role]
+        kind = _kind(role)
+        per_copy = sum(pc.count for pc in pick.pieces) or 1
+        diel = sorted({pc.dielectric for pc in pick.pieces if pc.dielectric})
+        polar = any(d.lower() in POLARISED_DIELECTRICS for d in diel)
+        value = pick.label or fmt.value(pick.value, kind)
+        if pick.joined:
+            sep = " + " if pick.joined == "series" else " || "
+            value += " (" + sep.join(fmt.value(pc.value, kind) for pc in pick.pieces
+                                     for _ in range(pc.count)) + ")"
+        rows.append(PartRow(role, value, kind, _rating(role, pick), per_copy * request.builds,
+                            fmt.location_of(pick), per_copy, "/".join(diel),
+                            plus.get(role, "") if polar else ""))
+    label = design.transistor
+    rating = []
+    if transistor is not None:
+        if getattr(transistor, "pd", None):
+            rating.append(f"pd {fmt.si(transistor.pd, 'W')}")
+        if getattr(transistor, "vceo", None):
+            rating.append(f"V_CEO {fmt.si(transistor.vceo, 'V')}")
+        if getattr(transistor, "ic_max", None):
+            rating.append(f"I_C max {fmt.si(transistor.ic_max, 'A')}")
+    rows.append(PartRow("Q", label, getattr(transistor, "polarity", "npn") or "npn",
+                        ", ".join(rating), request.builds,
+                        getattr(transistor, "location", "") or "", 1))
+    return rows
+
+
+def _piece_rating(kind: str, rating: float | None) -> str:
+    if kind == "resistor":
+        return fmt.si(rating or DEFAULT_RESISTOR_POWER_W, "W")
+    return fmt.si(rating or DEFAULT_CAPACITOR_VOLTAGE_V, "V")
+
+
+def pick_route(design: Design, request: Request, transistor=None) -> list[dict]:
+    """One line per stock row to take from, sorted as a walk past the bins."""
+    lines = []
+    for role in _role_order(design):
+        pick = design.parts[role]
+        kind = _kind(role)
+        for pc in pick.pieces:
+            lines.append({"location": pc.location or "", "role": role,
+                          "value": fmt.value(pc.value, kind), "kind": kind,
+                          "count": pc.count * request.builds,
+                          "rating": _piece_rating(kind, pc.rating),
+                          "dielectric": pc.dielectric or ""})
+        if not pick.pieces:
+            lines.append({"location": "", "role": role, "value": pick.label, "kind": kind,
+                          "count": request.builds, "rating": "", "dielectric": ""})
+    lines.append({"location": getattr(transistor, "location", "") or "", "role": "Q",
+                  "value": design.transistor, "kind": getattr(transistor, "polarity", "npn"),
+                  "count": request.builds, "rating": "", "dielectric": ""})
+    lines.sort(key=lambda r: (location_key(r["location"]), r["role"]))
+    return lines
+
+
+def write_parts_csv(path: Path, rows: list[PartRow]) -> Path:
+    path = Path(path)
+    with path.open("w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(COLUMNS)
+        for r in rows:
+            w.writerow([getattr(r, c) for c in COLUMNS])
+    return path
