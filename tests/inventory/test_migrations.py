@@ -1,0 +1,126 @@
+"""The store's schema: Alembic revisions, upgrades of real old stores, refusals."""
+
+from __future__ import annotations
+
+import shutil
+import sqlite3
+from pathlib import Path
+
+import pytest
+from sqlalchemy import create_engine, inspect
+
+from inventory.errors import StoreError
+from inventory.schema import Base
+from inventory.store import head_revision, open_store
+
+DATA = Path(__file__).parent / "data"
+
+
+def _tables(path: Path) -> set[str]:
+    engine = create_engine(f"sqlite:///{path}")
+    try:
+        return set(inspect(engine).get_table_names())
+    finally:
+        engine.dispose()
+
+
+def test_empty_sqlite_file_is_migrated_to_head(tmp_path):
+    path = tmp_path / "empty.sqlite"
+    path.touch()                       # an empty file: a new SQLite database
+    store = open_store(str(path))
+    try:
+        assert store.revision() == head_revision()
+        assert store.snapshot().resistors == ()
+        assert store.check() == []
+    finally:
+        store.close()
+    assert {"items", "batches", "movements", "builds", "build_items", "orders",
+            "alembic_version"} <= _tables(path)
+
+
+def test_revisions_create_exactly_the_orm_schema(tmp_path):
+    """Alembic's own comparison: the migrated database and the ORM models agree."""
+    from alembic.autogenerate import compare_metadata
+    from alembic.runtime.migration import MigrationContext
+
+    path = tmp_path / "s.sqlite"
+    open_store(str(path)).close()
+    engine = create_engine(f"sqlite:///{path}")
+    try:
+        with engine.connect() as conn:
+            diffs = compare_metadata(MigrationContext.configure(conn), Base.metadata)
+    finally:
+        engine.dispose()
+    assert diffs == []
+
+
+def test_store_made_at_revision_0001_opens_and_works(tmp_path):
+    """A real store file written by the program at revision 0001 (design.md: migrations
+    tested on real old stores)."""
+    path = tmp_path / "old.sqlite"
+    shutil.copyfile(DATA / "store_0001.sqlite", path)
+    store = open_store(str(path))
+    try:
+        assert store.revision() == head_revision()
+        assert store.check() == []
+        qty = {p.id: p.qty for p in store.parts()}
+        assert qty == {1: 12, 2: 12, 3: 28, 4: 8, 5: 4}
+        assert store.transistor("OLD-N1").ft == pytest.approx(200e6)
+        builds = store.list_builds()
+        assert [b["request"] for b in builds] == ["old.toml"]
+        # it still takes changes, and the old build can be undone exactly
+        store.undo_build(builds[0]["id"])
+        assert {p.id: p.qty for p in store.parts()} == {1: 16, 2: 12, 3: 30, 4: 8, 5: 6}
+        store.adjust(2, -12, "all used")
+        assert store.item(2).qty == 0
+        assert store.check() == []
+    finally:
+        store.close()
+
+
+def test_store_from_a_newer_program_is_refused(tmp_path):
+    path = tmp_path / "new.sqlite"
+    open_store(str(path)).close()
+    con = sqlite3.connect(path)
+    con.execute("UPDATE alembic_version SET version_num = '9999_from_the_future'")
+    con.commit()
+    con.close()
+    with pytest.raises(StoreError, match="newer drawerfit"):
+        open_store(str(path))
+
+
+@pytest.mark.parametrize("content", [b"kind,value,qty\nresistor,4k7,1\n", b"\x00" * 100,
+                                     b"SQLite format 3\x00" + b"\xff" * 200])
+def test_a_file_that_is_not_a_store_is_refused_in_one_line(tmp_path, content):
+    path = tmp_path / "stock.sqlite"
+    path.write_bytes(content)
+    with pytest.raises(StoreError) as info:
+        open_store(str(path))
+    msg = str(info.value)
+    assert str(path) in msg and "\n" not in msg
+    assert path.read_bytes() == content          # left exactly as it was
+
+
+def test_a_foreign_sqlite_database_is_refused(tmp_path):
+    path = tmp_path / "other.sqlite"
+    con = sqlite3.connect(path)
+    con.execute("CREATE TABLE recipes (id INTEGER PRIMARY KEY, name TEXT)")
+    con.commit()
+    con.close()
+    with pytest.raises(StoreError, match="not a drawerfit store"):
+        open_store(str(path))
+    assert _tables(path) == {"recipes"}
+
+
+def test_missing_folder_is_a_clear_error(tmp_path):
+    with pytest.raises(StoreError, match="does not exist"):
+        open_store(str(tmp_path / "no" / "such" / "stock.sqlite"))
+
+
+def test_postgresql_store_migrates_to_head(pg_schema_url):
+    store = open_store(pg_schema_url)
+    try:
+        assert store.revision() == head_revision()
+        assert store.dialect == "postgresql"
+    finally:
+        store.close()
