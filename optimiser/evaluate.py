@@ -439,3 +439,46 @@ def frequency_response_of(request: Request, batch: StageBatch, transistor: Trans
     model = device_from_transistor(transistor)
     op = operating_point(batch.topology, request.supply_v, batch, model)
     return ac.frequency_response(request, batch, model, op, freqs)
+
+
+def ce_form(values: dict[str, float]) -> str | None:
+    """ce: "unbypassed", "partly bypassed" or "fully bypassed" from which emitter roles are used."""
+    re_, byp = values.get("RE", 0.0) or 0.0, values.get("RE_BYP", 0.0) or 0.0
+    if byp <= 0:
+        return "unbypassed"
+    return "partly bypassed" if re_ > 0 else "fully bypassed"
+
+
+def design_of(ev: Evaluation, i: int, picks: dict | None = None, label: str | None = None):
+    """Candidate ``i`` of ``ev`` as an :class:`optimiser.design.Design` (interface.md JSON).
+
+    ``picks`` maps role -> :class:`~optimiser.design.RolePick`; roles without a pick get
+    one with the value alone (no stock pieces).  Capacitor picks get their ``plus`` side.
+    """
+    from dataclasses import replace as _replace
+
+    from .design import Design, RolePick
+
+    values = ev.batch.one(i)
+    picks = dict(picks or {})
+    parts = {}
+    for role, v in values.items():
+        p = picks.get(role)
+        if p is None:
+            try:
+                from inventory.values import format_value
+                lab = format_value(v, "resistor" if role in RESISTOR_ROLES else "capacitor")
+            except Exception:
+                lab = _g(v)
+            p = RolePick(role, v, lab)
+        if role in ev.plus:
+            p = _replace(p, plus=str(ev.plus[role][i]))
+        parts[role] = p
+    corners = {k: np.asarray(v)[i].tolist() for k, v in ev.corners.items()}
+    small = {k: float(np.asarray(v)[i]) for k, v in ev.small.items()}
+    extra = {"drift": corners, "small_signal": small}
+    return Design(
+        topology=ev.batch.topology, transistor=label or ev.transistor.label, parts=parts,
+        metrics=ev.metrics_of(i), meets_spec=bool(ev.meets[i]), violations=ev.violations(i),
+        warnings=ev.warnings(i), form=ce_form(values) if ev.batch.topology == "ce" else None,
+        extra=extra)

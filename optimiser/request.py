@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
-__all__ = ["TOPOLOGIES", "Request"]
+__all__ = ["TOPOLOGIES", "Request", "parse_request", "load_request", "REQUEST_KEYS"]
 
 TOPOLOGIES = ("ce", "cb", "cc")
 
@@ -55,3 +55,191 @@ class Request:
         d["temp_c"] = list(self.temp_c)
         d["gain_db"] = self.gain_db
         return d
+
+
+# --------------------------------------------------------------------------------------
+# Reading a request from TOML (interface.md "Design request")
+# --------------------------------------------------------------------------------------
+
+#: Keys a request file may hold; ``parts``, ``tolerances`` and a ``[transistor]`` table
+#: belong to a given circuit (``analyse``) and are passed over here.
+REQUEST_KEYS = (
+    "topology", "supply_v", "load_ohm", "source_ohm", "mid_hz", "gain_db", "gain",
+    "gain_tol_db", "f_low_max_hz", "f_high_min_hz", "zin_min_ohm", "ic_drift_max_pct",
+    "temp_c", "input_vpk", "thd_max_pct", "builds", "transistor", "allow_combos",
+    "min_yield_pct", "yield_samples", "seed", "mains",
+)
+CIRCUIT_KEYS = ("parts", "tolerances")
+#: Largest supply the tool accepts, V (single-supply small-signal stages).
+MAX_SUPPLY_V = 400.0
+
+
+def _line_of(text: str | None, key: str) -> int | None:
+    """Line (from 1) where ``key = ...`` first appears in the TOML text, if found."""
+    if not text:
+        return None
+    import re
+
+    m = re.search(rf"^[ \t]*{re.escape(key)}[ \t]*=", text, re.M)
+    return None if m is None else text.count("\n", 0, m.start()) + 1
+
+
+def parse_request(mapping: dict, *, file: str | None = None, text: str | None = None,
+                  extra_keys: tuple[str, ...] = CIRCUIT_KEYS) -> Request:
+    """A :class:`Request` from a parsed TOML mapping, every value checked.
+
+    Values may be numbers (SI) or text with SI prefixes (``"10k"``, ``"100e3"``,
+    ``"250M"``).  Unknown keys, wrong types and out-of-range numbers raise
+    :class:`~inventory.errors.InputError` naming ``file``, the line (when the
+    TOML ``text`` is given) and the key.
+    """
+    from inventory.errors import InputError
+    from inventory import values as V
+
+    def err(key, msg):
+        return InputError(msg, file=file, line=_line_of(text, key), field=key)
+
+    if not isinstance(mapping, dict):
+        raise InputError("a request must be a table of key = value", file=file)
+    for key in mapping:
+        if key not in REQUEST_KEYS and key not in extra_keys:
+            raise err(key, f"unknown key '{key}' (known: {', '.join(REQUEST_KEYS)})")
+
+    def num(key, value, *, lo=None, hi=None, lo_open=False, integer=False, reader=None):
+        if isinstance(value, bool):
+            raise err(key, f"expected a number, got {value!r}")
+        try:
+            if reader is not None:
+                x = reader(value)
+            elif isinstance(value, (int, float)):
+                x = float(value)
+            elif isinstance(value, str):
+                x = float(value.strip())
+            else:
+                raise ValueError
+        except InputError as e:
+            raise err(key, e.message) from None
+        except (TypeError, ValueError):
+            raise err(key, f"expected a number, got {value!r}") from None
+        if not math.isfinite(x):
+            raise err(key, f"expected a finite number, got {value!r}")
+        if integer:
+            if x != int(x):
+                raise err(key, f"expected a whole number, got {value!r}")
+            x = int(x)
+        if lo is not None and (x <= lo if lo_open else x < lo):
+            raise err(key, f"{value!r} is out of range: must be {'>' if lo_open else '≥'} {lo:g}")
+        if hi is not None and x > hi:
+            raise err(key, f"{value!r} is out of range: must be ≤ {hi:g}")
+        return x
+
+    ohm = lambda v: V.parse_value(v, "resistor") if isinstance(v, str) else float(v)  # noqa: E731
+    hz = lambda v: V.parse_frequency(v, positive=False)  # noqa: E731
+    volt = lambda v: V.parse_voltage(v, positive=False)  # noqa: E731
+
+    kw: dict = {}
+    if "topology" not in mapping:
+        raise err("topology", "missing required key 'topology' (ce, cb or cc)")
+    topo = mapping["topology"]
+    if not isinstance(topo, str) or topo.strip().lower() not in TOPOLOGIES:
+        raise err("topology", f"unknown topology {topo!r}: use ce, cb or cc")
+    kw["topology"] = topo.strip().lower()
+    if "supply_v" not in mapping:
+        raise err("supply_v", "missing required key 'supply_v' (the supply voltage)")
+    kw["supply_v"] = num("supply_v", mapping["supply_v"], lo=0, lo_open=True, hi=MAX_SUPPLY_V,
+                         reader=volt)
+    m = mapping
+    if "load_ohm" in m:
+        lo = m["load_ohm"]
+        kw["load_ohm"] = None if (isinstance(lo, str) and lo.strip().lower() in ("", "none", "open")) \
+            else num("load_ohm", lo, lo=0, lo_open=True, reader=ohm)
+    if "source_ohm" in m:
+        kw["source_ohm"] = num("source_ohm", m["source_ohm"], lo=0, reader=ohm)
+    if "mid_hz" in m:
+        kw["mid_hz"] = num("mid_hz", m["mid_hz"], lo=1e-3, hi=100e9, reader=hz)
+    if "gain_db" in m and "gain" in m:
+        raise err("gain", "give either gain_db or gain, not both")
+    if "gain_db" in m:
+        db = num("gain_db", m["gain_db"], lo=-100, hi=200)
+        kw["gain"] = 10.0 ** (db / 20.0)
+    if "gain" in m:
+        kw["gain"] = num("gain", m["gain"], lo=0, lo_open=True, hi=1e9)
+    if "gain_tol_db" in m:
+        kw["gain_tol_db"] = num("gain_tol_db", m["gain_tol_db"], lo=0, lo_open=True, hi=60)
+    for key in ("f_low_max_hz", "f_high_min_hz"):
+        if key in m:
+            kw[key] = num(key, m[key], lo=0, lo_open=True, hi=100e9, reader=hz)
+    if "zin_min_ohm" in m:
+        kw["zin_min_ohm"] = num("zin_min_ohm", m["zin_min_ohm"], lo=0, lo_open=True, reader=ohm)
+    if "ic_drift_max_pct" in m:
+        kw["ic_drift_max_pct"] = num("ic_drift_max_pct", m["ic_drift_max_pct"], lo=0,
+                                     lo_open=True, hi=1000)
+    if "temp_c" in m:
+        t = m["temp_c"]
+        if isinstance(t, (int, float)) and not isinstance(t, bool):
+            t = [t, t]
+        if not isinstance(t, list) or len(t) != 2:
+            raise err("temp_c", f"expected two temperatures [low, high] in °C, got {t!r}")
+        a = num("temp_c", t[0], lo=-60, hi=150)
+        b = num("temp_c", t[1], lo=-60, hi=150)
+        if a > b:
+            raise err("temp_c", f"the low end {a:g} °C is above the high end {b:g} °C")
+        kw["temp_c"] = (a, b)
+    if "input_vpk" in m:
+        kw["input_vpk"] = num("input_vpk", m["input_vpk"], lo=0, lo_open=True,
+                              hi=kw["supply_v"], reader=volt)
+    if "thd_max_pct" in m:
+        kw["thd_max_pct"] = num("thd_max_pct", m["thd_max_pct"], lo=0, lo_open=True, hi=100)
+    if "builds" in m:
+        kw["builds"] = num("builds", m["builds"], lo=1, hi=1e6, integer=True)
+    if "transistor" in m:
+        tr = m["transistor"]
+        if isinstance(tr, str):
+            if not tr.strip():
+                raise err("transistor", "empty transistor label")
+            kw["transistor"] = tr.strip()
+        elif isinstance(tr, dict) and "transistor" in extra_keys:
+            kw["transistor"] = "inline"
+        else:
+            raise err("transistor", f"expected a stock label or \"any\", got {tr!r}")
+    for key in ("allow_combos", "mains"):
+        if key in m:
+            if not isinstance(m[key], bool):
+                raise err(key, f"expected true or false, got {m[key]!r}")
+            kw[key] = m[key]
+    if "min_yield_pct" in m:
+        kw["min_yield_pct"] = num("min_yield_pct", m["min_yield_pct"], lo=0, hi=100)
+    if "yield_samples" in m:
+        kw["yield_samples"] = num("yield_samples", m["yield_samples"], lo=1, hi=1e7, integer=True)
+    if "seed" in m:
+        kw["seed"] = num("seed", m["seed"], lo=0, hi=2**63 - 1, integer=True)
+    return Request(**kw)
+
+
+def read_toml(path) -> tuple[dict, str]:
+    """Parse a TOML file; a syntax error becomes an InputError with file and line."""
+    import re
+    import tomllib
+    from pathlib import Path
+
+    from inventory.errors import InputError
+
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except OSError as e:
+        raise InputError(f"cannot read the file: {e.strerror or e}", file=str(path)) from None
+    try:
+        return tomllib.loads(text), text
+    except tomllib.TOMLDecodeError as e:
+        msg = str(e)
+        m = re.search(r"line (\d+)", msg)
+        raise InputError(f"not valid TOML: {msg}", file=str(path),
+                         line=int(m[1]) if m else None) from None
+
+
+def load_request(path) -> Request:
+    """Read and check a request file (TOML)."""
+    mapping, text = read_toml(path)
+    return parse_request(mapping, file=str(path), text=text,
+                         extra_keys=CIRCUIT_KEYS + ("transistor",))

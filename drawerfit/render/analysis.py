@@ -1,0 +1,107 @@
+"""Terminal view of one analysed stage (``drawerfit analyse``), with Rich."""
+
+from __future__ import annotations
+
+import math
+
+from rich.table import Table
+
+from drawerfit.console import out
+from inventory.values import format_si, format_value
+
+__all__ = ["show_analysis"]
+
+_ROLE_KIND = {"R1": "resistor", "R2": "resistor", "RC": "resistor", "RE": "resistor",
+              "RE_BYP": "resistor"}
+
+
+def _si(x, unit):
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return "—"
+    return format_si(float(x), unit)
+
+
+def _num(x, fmt="{:.3g}"):
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return "—"
+    return fmt.format(x)
+
+
+def show_analysis(design, ev, i: int, circuit, yield_result=None) -> None:
+    """Print the figures, the drift corners, violations and warnings of candidate ``i``."""
+    m = design.metrics
+    req = circuit.request
+    title = {"ce": "common emitter", "cb": "common base", "cc": "common collector"}[req.topology]
+    form = f", {design.form}" if design.form else ""
+    out.print(f"[bold]{title}{form}[/bold] on {format_si(req.supply_v, 'V')}, "
+              f"transistor {design.transistor}")
+
+    parts = Table(title="Parts", show_header=True, header_style="bold")
+    parts.add_column("role")
+    parts.add_column("value", justify="right")
+    parts.add_column("tolerance", justify="right")
+    parts.add_column("note")
+    for role, p in design.parts.items():
+        note = []
+        if p.plus:
+            note.append(f"DC + side: {p.plus}")
+        if role in circuit.stock_ids:
+            note.append(f"stock #{circuit.stock_ids[role]}")
+        tol = circuit.tolerances.get(role)
+        parts.add_row(role, p.label, f"{tol * 100:g} %" if tol is not None else "",
+                      ", ".join(note))
+    out.print(parts)
+
+    op = Table(title="Operating point (25 °C, nominal hFE)", header_style="bold")
+    for h in ("V_B", "V_E", "V_C", "I_C", "V_CE", "P_Q"):
+        op.add_column(h, justify="right")
+    op.add_row(_si(m["vb_v"], "V"), _si(m["ve_v"], "V"), _si(m["vc_v"], "V"),
+               _si(m["ic_a"], "A"), _si(m["vce_v"], "V"), _si(m["pd_q_w"], "W"))
+    out.print(op)
+
+    s = design.extra.get("small_signal", {})
+    fig = Table(title="Small-signal and large-signal figures", header_style="bold")
+    fig.add_column("figure")
+    fig.add_column("value", justify="right")
+    rows = [
+        ("g_m", _si(s.get("gm"), "S")),
+        ("r_π", _si(s.get("rpi"), "Ω")),
+        ("r_o", _si(s.get("ro"), "Ω")),
+        ("gain at mid_hz", f"{_num(m['gain'])} V/V  ({_num(m['gain_db'], '{:.2f}')} dB)"),
+        ("f_low (−3 dB)", _si(m["f_low_hz"], "Hz") if m["f_low_hz"] is not None else "none in range"),
+        ("f_high (−3 dB)", _si(m["f_high_hz"], "Hz") if m["f_high_hz"] is not None else
+         ("none in range" if ev.model.has_ft and ev.model.has_cob else "not computed (no ft/cob)")),
+        ("Zin", _si(m["zin_ohm"], "Ω")),
+        ("Zout", _si(m["zout_ohm"], "Ω")),
+        ("swing at the load", _si(m["swing_vpk"], "V") + " peak" if m["swing_vpk"] is not None
+         else "not reached"),
+        (f"THD at {format_si(req.input_vpk, 'V')} peak", f"{_num(m['thd_pct'])} %"),
+        ("I_C drift over corners", f"{_num(m['ic_drift_pct'])} %"),
+    ]
+    if m.get("yield_pct") is not None:
+        rows.append(("yield", f"{m['yield_pct']:.1f} %"))
+    for a, b in rows:
+        fig.add_row(a, b)
+    out.print(fig)
+
+    c = design.extra.get("drift", {})
+    if c:
+        ct = Table(title="Drift corners", header_style="bold")
+        for h in ("hFE (25 °C)", "T", "I_C", "V_CE", "gain"):
+            ct.add_column(h, justify="right")
+        for k in range(len(c["ic_a"])):
+            ct.add_row(_num(c["beta25"][k], "{:.0f}"), f"{c['temp_c'][k]:g} °C",
+                       _si(c["ic_a"][k], "A"), _si(c["vce_v"][k], "V"),
+                       _num(c["gain"][k]) if "gain" in c else "—")
+        out.print(ct)
+
+    if yield_result is not None:
+        from drawerfit.render.yield_view import show_yield
+        show_yield(yield_result)
+
+    if design.meets_spec:
+        out.print("[green]Valid, and meets every target given.[/green]")
+    for v in design.violations:
+        out.print(f"[red]✗[/red] {v}")
+    for w in design.warnings:
+        out.print(f"[yellow]![/yellow] {w}")

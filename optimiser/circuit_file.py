@@ -1,0 +1,253 @@
+"""A given circuit for ``analyse`` (interface.md "A given circuit"), read from TOML.
+
+The file holds the request keys (``topology`` and ``supply_v`` required; any
+targets), plus::
+
+    [parts]               # role = value, written as in the stock file
+    R1 = "47k"
+    C_IN = "1u"
+    RC = "#12"            # or a stock item by id: "#12" takes value and ratings from the store
+
+    [transistor]          # inline figures (as the stock columns) ...
+    hfe_min = 100
+    hfe_max = 300
+    ft = "250M"
+    cob = "4p"
+    # ... or, at top level instead:  transistor = "GP-N1"  (a stock label)
+
+    [tolerances]          # optional; default 5 % for resistors, 20 % for capacitors
+    R1 = "1%"
+
+Stock references (``"#id"`` parts, a transistor label) are resolved through a
+``store`` object with ``item(id)`` and ``transistor(label)`` (the inventory store),
+fetched lazily, so a circuit with plain values never opens the store.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from inventory.errors import InputError
+from inventory.parts import (
+    DEFAULT_CAPACITOR_TOLERANCE,
+    DEFAULT_RESISTOR_TOLERANCE,
+    Capacitor,
+    Resistor,
+    Transistor,
+)
+
+from .request import CIRCUIT_KEYS, Request, _line_of, parse_request, read_toml
+from .stage import CAPACITOR_ROLES, REQUIRED, RESISTOR_ROLES, ROLES, PartRatings, StageBatch
+
+__all__ = ["Circuit", "parse_circuit", "load_circuit", "TRANSISTOR_KEYS"]
+
+TRANSISTOR_KEYS = ("label", "hfe_min", "hfe_max", "hfe_typ", "vbe", "ic_ref", "vaf", "vce_sat",
+                   "vceo", "ic_max", "pd", "ft", "cob", "polarity")
+_ID = re.compile(r"^\s*#\s*(\d+)\s*$")
+
+
+@dataclass
+class Circuit:
+    """One stage with given values, ready for :func:`optimiser.evaluate.evaluate`."""
+
+    request: Request
+    values: dict[str, float]
+    transistor: Transistor
+    tolerances: dict[str, float]
+    labels: dict[str, str] = field(default_factory=dict)
+    stock_ids: dict[str, int] = field(default_factory=dict)
+    ratings: PartRatings = field(default_factory=PartRatings)
+    stock_parts: dict[str, object] = field(default_factory=dict)
+
+    def batch(self) -> StageBatch:
+        return StageBatch.from_values(self.request.topology, **self.values)
+
+
+def _kind(role: str) -> str:
+    return "resistor" if role in RESISTOR_ROLES else "capacitor"
+
+
+def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = None,
+                  store: Callable[[], object] | None = None) -> Circuit:
+    """Check and convert a parsed circuit file.
+
+    Parameters
+    ----------
+    mapping : dict
+        The TOML document.
+    file, text : str, optional
+        File name and raw text, for messages that name file and line.
+    store : callable, optional
+        Returns the stock store; called only when a stock label or id is used.
+    """
+    from inventory import values as V
+
+    def err(key, msg, line_key=None):
+        return InputError(msg, file=file, line=_line_of(text, line_key or key.split(".")[-1]),
+                          field=key)
+
+    req = parse_request(mapping, file=file, text=text,
+                        extra_keys=CIRCUIT_KEYS + ("transistor",))
+    topo = req.topology
+    parts = mapping.get("parts")
+    if not isinstance(parts, dict) or not parts:
+        raise err("parts", "missing [parts] table: give role = value for each part "
+                           f"({', '.join(REQUIRED[topo])} for {topo})", "[parts]")
+
+    _store = None
+
+    def get_store():
+        nonlocal _store
+        if _store is None:
+            if store is None:
+                raise InputError("stock references need the store", file=file)
+            _store = store()
+        return _store
+
+    values: dict[str, float] = {}
+    labels: dict[str, str] = {}
+    ids: dict[str, int] = {}
+    stock_parts: dict[str, object] = {}
+    power_w, voltage_v, polarised, tol_stock = {}, {}, {}, {}
+    for role, raw in parts.items():
+        key = f"parts.{role}"
+        if role not in ROLES[topo]:
+            raise err(key, f"unknown role '{role}' for a {topo} stage "
+                           f"(roles: {', '.join(ROLES[topo])})", role)
+        kind = _kind(role)
+        m = _ID.match(raw) if isinstance(raw, str) else None
+        if m:
+            item_id = int(m[1])
+            try:
+                part = get_store().item(item_id)
+            except InputError as e:
+                raise err(key, e.message, role) from None
+            ok = isinstance(part, Resistor) if kind == "resistor" else isinstance(part, Capacitor)
+            if not ok:
+                raise err(key, f"stock item #{item_id} is not a {kind}", role)
+            values[role] = float(part.value)
+            ids[role] = item_id
+            stock_parts[role] = part
+            tol_stock[role] = part.tolerance
+            if kind == "resistor":
+                power_w[role] = part.power_w
+            else:
+                voltage_v[role] = part.voltage_v
+                polarised[role] = part.polarised
+        else:
+            if isinstance(raw, bool) or not isinstance(raw, (str, int, float)):
+                raise err(key, f"expected a value such as \"4k7\", got {raw!r}", role)
+            try:
+                values[role] = V.parse_value(raw, kind)
+            except InputError as e:
+                raise err(key, e.message, role) from None
+        if values[role] <= 0:
+            raise err(key, f"{role} must be greater than zero", role)
+        try:
+            labels[role] = V.format_value(values[role], kind)
+        except Exception:
+            labels[role] = str(raw)
+    missing = [r for r in REQUIRED[topo] if r not in values]
+    if missing:
+        raise err("parts", f"missing part{'s' if len(missing) > 1 else ''} "
+                           f"{', '.join(missing)} for a {topo} stage", "[parts]")
+    if topo == "ce":
+        if "RE" not in values and "RE_BYP" not in values:
+            raise err("parts", "a ce stage needs RE or RE_BYP (or both)", "[parts]")
+        if ("RE_BYP" in values) != ("C_BYP" in values):
+            raise err("parts", "RE_BYP and C_BYP go together (C_BYP bypasses RE_BYP)", "[parts]")
+
+    # transistor
+    tr = mapping.get("transistor")
+    if isinstance(tr, str):
+        if tr.strip().lower() == "any":
+            raise err("transistor", "analyse needs one transistor: a stock label or a "
+                                    "[transistor] table with hfe_min and hfe_max")
+        transistor = get_store().transistor(tr.strip())
+        if transistor is None:
+            raise err("transistor", f"no transistor labelled '{tr.strip()}' in stock")
+    elif isinstance(tr, dict):
+        transistor = _inline_transistor(tr, err)
+    else:
+        raise err("transistor", "missing transistor: give transistor = \"LABEL\" or a "
+                                "[transistor] table with hfe_min and hfe_max", "[transistor]")
+
+    tols: dict[str, float] = {}
+    raw_t = mapping.get("tolerances", {})
+    if not isinstance(raw_t, dict):
+        raise err("tolerances", "expected a [tolerances] table of role = tolerance")
+    for role, t in raw_t.items():
+        if role not in values:
+            raise err(f"tolerances.{role}", f"tolerance for '{role}', which is not among the parts",
+                      role)
+        try:
+            tols[role] = V.parse_tolerance(t)
+        except InputError as e:
+            raise err(f"tolerances.{role}", e.message, role) from None
+    for role in values:
+        if role not in tols:
+            tols[role] = tol_stock.get(role, DEFAULT_RESISTOR_TOLERANCE if _kind(role) ==
+                                       "resistor" else DEFAULT_CAPACITOR_TOLERANCE)
+    ratings = PartRatings(
+        power_w={k: np.asarray(v) for k, v in power_w.items()},
+        voltage_v={k: np.asarray(v) for k, v in voltage_v.items()},
+        polarised={k: np.asarray(v) for k, v in polarised.items()},
+    )
+    return Circuit(req, values, transistor, tols, labels, ids, ratings, stock_parts)
+
+
+def _inline_transistor(tr: dict, err) -> Transistor:
+    from inventory import values as V
+
+    for key in tr:
+        if key not in TRANSISTOR_KEYS:
+            raise err(f"transistor.{key}", f"unknown transistor key '{key}' "
+                                           f"(known: {', '.join(TRANSISTOR_KEYS)})", key)
+    for key in ("hfe_min", "hfe_max"):
+        if key not in tr:
+            raise err(f"transistor.{key}", f"missing {key} in [transistor]", "[transistor]")
+
+    def number(key, reader=None, lo=0.0):
+        v = tr[key]
+        try:
+            if isinstance(v, bool):
+                raise ValueError
+            x = reader(v) if (reader and isinstance(v, str)) else float(v)
+        except InputError as e:
+            raise err(f"transistor.{key}", e.message, key) from None
+        except (TypeError, ValueError):
+            raise err(f"transistor.{key}", f"expected a number, got {v!r}", key) from None
+        if not np.isfinite(x) or x <= lo:
+            raise err(f"transistor.{key}", f"{v!r} is out of range: must be > {lo:g}", key)
+        return x
+
+    freq = lambda v: V.parse_frequency(v)  # noqa: E731
+    cap = lambda v: V.parse_value(v, "capacitor")  # noqa: E731
+    volt = lambda v: V.parse_voltage(v)  # noqa: E731
+    amp = lambda v: V.parse_value(v)  # noqa: E731
+    readers = {"vbe": volt, "vaf": volt, "vce_sat": volt, "vceo": volt, "ic_ref": amp,
+               "ic_max": amp, "pd": lambda v: V.parse_power(v), "ft": freq, "cob": cap}
+    kw = {}
+    for key in ("hfe_min", "hfe_max", "hfe_typ", "vbe", "ic_ref", "vaf", "vce_sat", "vceo",
+                "ic_max", "pd", "ft", "cob"):
+        if key in tr:
+            kw[key] = number(key, readers.get(key))
+    if kw["hfe_min"] > kw["hfe_max"]:
+        raise err("transistor.hfe_min", "hfe_min is above hfe_max", "hfe_min")
+    if "vbe" in kw and not 0.2 <= kw["vbe"] <= 1.2:
+        raise err("transistor.vbe", f"vbe {kw['vbe']:g} V is out of range 0.2–1.2 V", "vbe")
+    polarity = str(tr.get("polarity", "npn")).lower()
+    if polarity != "npn":
+        raise err("transistor.polarity", "only npn stages are analysed", "polarity")
+    label = str(tr.get("label", "inline"))
+    return Transistor(label, **kw)
+
+
+def load_circuit(path, *, store: Callable[[], object] | None = None) -> Circuit:
+    """Read and check a circuit file (TOML) for ``analyse``."""
+    mapping, text = read_toml(path)
+    return parse_circuit(mapping, file=str(path), text=text, store=store)
