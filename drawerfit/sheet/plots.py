@@ -108,9 +108,9 @@ def plot_response(paths: Sequence[Path], freqs: np.ndarray, h: np.ndarray, reque
     ax_p.set_xlabel("frequency (Hz)")
     ax_m.set_title("Frequency response (source and load in place)", fontsize=10)
     for ax in (ax_m, ax_p):
-        ax.grid(True, which="both", lw=0.3, alpha=0.6)
+        ax.grid(True, which="major", lw=0.4, alpha=0.6)
     ax_m.legend(loc="lower center", fontsize=8, framealpha=0.9)
-    fig.tight_layout()
+    fig.subplots_adjust(left=0.11, right=0.98, top=0.94, bottom=0.10, hspace=0.08)
     out = []
     for p in paths:
         p = Path(p)

@@ -1,0 +1,67 @@
+"""What the commands call for ``--sheet DIR``: write the sheet, then say what was written.
+
+The cautions and the list of files go to stdout, or to stderr when ``--json``
+owns stdout.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from drawerfit.sheet import WrittenSheet, echo_sheet, write_sheet
+from inventory.errors import InputError
+
+__all__ = ["sheet_option", "sheet_for_design", "sheet_for_build"]
+
+sheet_option = click.option(
+    "--sheet", "sheet_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
+    help="Also write the build sheet here: sheet.html (printable), schematic.svg, "
+         "response.png/.svg, drift.png, parts.csv.")
+
+
+def sheet_for_design(directory, design, request, transistor, *, evaluation=None,
+                     yield_result=None, quiet: bool = False) -> WrittenSheet:
+    """Write the sheet for one design and print the cautions and the files."""
+    from drawerfit.console import err, out
+
+    written = write_sheet(directory, design, request, transistor, evaluation=evaluation,
+                          yield_result=yield_result)
+    echo_sheet(written, err if quiet else out)
+    return written
+
+
+def sheet_for_build(directory, build: dict, parts: list, request_file: str | None = None,
+                    *, quiet: bool = False) -> WrittenSheet:
+    """The sheet of a stored build (``builds show ID --sheet DIR``)."""
+    from drawerfit.sheet.stored import design_from_json, request_from_json, transistor_named
+
+    design_json = build.get("design") or {}
+    design = design_from_json(design_json, parts)
+    if request_file is not None:
+        from optimiser.request import load_request
+
+        request = load_request(request_file)
+    elif isinstance(design_json.get("request"), dict):
+        request = request_from_json(design_json["request"])
+    elif build.get("request") and Path(str(build["request"])).is_file():
+        from optimiser.request import load_request
+
+        request = load_request(str(build["request"]))
+    else:
+        raise InputError(f"build {build.get('id')}: the request {build.get('request')!r} is "
+                         "not stored with the build and no such file is here; give it with "
+                         "--request FILE", field="--sheet")
+    if request.topology != design.topology:
+        raise InputError(f"the request is for a {request.topology} stage but build "
+                         f"{build.get('id')} is {design.topology}", field="--request")
+    request = _with_copies(request, int(build.get("copies", request.builds) or 1))
+    transistor = transistor_named(design.transistor, parts)
+    return sheet_for_design(directory, design, request, transistor, quiet=quiet)
+
+
+def _with_copies(request, copies: int):
+    from dataclasses import replace
+
+    return replace(request, builds=copies)
