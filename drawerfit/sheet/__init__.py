@@ -187,4 +187,4 @@ def echo_sheet(written: WrittenSheet, console=None) -> None:
         console.print(f"{mark}: {rich_escape(c.text)}", markup=True, highlight=False)
     console.print("Build sheet written:")
     for p in written:
-        console.print(f"  {p}", markup=False, highlight=False)
+        console.print(f"  {p}", markup=False, highlight=False, soft_wrap=True)

@@ -1,0 +1,114 @@
+"""``--sheet DIR`` on the commands: files written, cautions and file list printed.
+
+Driven through Click's CliRunner against a fresh SQLite store holding the demo
+drawer (invented data).
+"""
+
+from __future__ import annotations
+
+import importlib.resources
+import json
+import re
+
+import pytest
+from click.testing import CliRunner
+
+from drawerfit.cli import cli
+from drawerfit.sheet import SHEET_FILES, ratings_of
+from drawerfit.sheet.stored import design_from_json
+from optimiser.design import Design, Piece, RolePick
+from optimiser.evaluate import evaluate
+from optimiser.stage import StageBatch
+
+REQUEST_TOML = """topology = "ce"
+supply_v = 12
+load_ohm = "10k"
+source_ohm = "600"
+gain_db = 20
+f_low_max_hz = 50
+temp_c = [0, 50]
+"""
+
+
+def _demo_csv() -> str:
+    return str(importlib.resources.files("drawerfit") / "data" / "demo_stock.csv")
+
+
+@pytest.fixture(scope="module")
+def store_with_build(tmp_path_factory):
+    from inventory.store import open_store
+    from optimiser.request import load_request
+
+    tmp = tmp_path_factory.mktemp("cli")
+    db = str(tmp / "stock.db")
+    r = CliRunner().invoke(cli, ["--db", db, "stock", "import", _demo_csv()])
+    assert r.exit_code == 0, r.output
+    store = open_store(db)
+    parts = store.parts()
+
+    def row(kind, value, dielectric=None, voltage=None):
+        for p in parts:
+            if p.kind == kind and abs(p.value - value) < 1e-9 * value and \
+                    (dielectric is None or p.dielectric == dielectric) and \
+                    (voltage is None or p.voltage_v == voltage):
+                return p
+        raise LookupError((kind, value))
+
+    want = {"R1": ("resistor", 47e3), "R2": ("resistor", 10e3), "RC": ("resistor", 4.7e3),
+            "RE": ("resistor", 220.0), "RE_BYP": ("resistor", 820.0),
+            "C_IN": ("capacitor", 1e-6, "film"), "C_OUT": ("capacitor", 10e-6, "electrolytic", 25.0),
+            "C_BYP": ("capacitor", 47e-6, "electrolytic", 16.0)}
+    picks = {}
+    for role, spec in want.items():
+        p = row(*spec)
+        picks[role] = RolePick(role, p.value, "", (Piece(p.value, 1, p.id, p.location, spec[0]),))
+    req_file = tmp / "preamp.toml"
+    req_file.write_text(REQUEST_TOML)
+    req = load_request(req_file)
+    q = next(p for p in parts if getattr(p, "label", None) == "GP-N1")
+    d = design_from_json(Design("ce", "GP-N1", picks, {}, True).to_json(), parts)
+    ev = evaluate(req, StageBatch.from_values("ce", **d.values()), q, ratings_of(d))
+    d.metrics = ev.metrics_of(0)
+    pieces = {pc.id: 1 for pick in d.parts.values() for pc in pick.pieces}
+    pieces[q.id] = 1
+    ids = store.commit_builds([{"request": "preamp.toml", "copies": 1, "design": d.to_json(),
+                                "pieces": pieces}])
+    return db, ids[0], req_file, d
+
+
+def test_builds_show_writes_the_sheet(store_with_build, tmp_path):
+    db, build_id, req_file, d = store_with_build
+    out = tmp_path / "sheet"
+    r = CliRunner().invoke(cli, ["--db", db, "builds", "show", str(build_id), "--sheet",
+                                 str(out), "--request", str(req_file)])
+    assert r.exit_code == 0, r.output
+    assert sorted(p.name for p in out.iterdir()) == sorted(SHEET_FILES)
+    assert "+ toward the collector" in r.output          # C_OUT is an electrolytic
+    assert "verify" in r.output
+    for name in SHEET_FILES:
+        assert name in r.output
+    html = (out / "sheet.html").read_text(encoding="utf-8")
+    # The ratings came from the stock rows: C_BYP is a 16 V electrolytic in bin K5.
+    assert "K5" in html and "16 V" in html
+    vc = float(re.search(r'data-node="collector" data-volts="([^"]+)"', html)[1])
+    assert vc == pytest.approx(d.metrics["vc_v"], rel=1e-5)
+
+
+def test_builds_show_sheet_with_json_keeps_stdout_json(store_with_build, tmp_path):
+    db, build_id, req_file, _ = store_with_build
+    r = CliRunner().invoke(cli, ["--db", db, "builds", "show", str(build_id), "--json",
+                                 "--sheet", str(tmp_path / "s"), "--request", str(req_file)])
+    assert r.exit_code == 0, r.output
+    assert json.loads(r.stdout)["id"] == build_id
+    assert "sheet.html" in r.stderr
+
+
+def test_builds_show_sheet_without_a_request_is_bad_input(store_with_build, tmp_path,
+                                                          monkeypatch):
+    db, build_id, _, _ = store_with_build
+    monkeypatch.chdir(tmp_path)                           # no preamp.toml here
+    r = CliRunner().invoke(cli, ["--db", db, "builds", "show", str(build_id), "--sheet",
+                                 str(tmp_path / "s")])
+    assert r.exit_code == 2
+    assert "--request" in r.stderr and "Traceback" not in r.output
+    assert not (tmp_path / "s" / "sheet.html").exists()
