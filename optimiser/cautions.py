@@ -92,6 +92,9 @@ class CautionSettings:
         ambient air at this power, too hot to hold a finger on).
     mains_supply_v : float
         A supply above this voltage gets the mains / high-voltage note (30 V).
+    polarity_hint_f : float
+        A capacitor of unknown dielectric from this value up (1 µF; such values
+        are commonly electrolytic) gets a note naming the side for + .
     """
 
     capacitor_derating: float = 0.80
@@ -100,6 +103,7 @@ class CautionSettings:
     hot_fraction_of_pd: float = 0.50
     hot_w: float = 0.25
     mains_supply_v: float = 30.0
+    polarity_hint_f: float = 1e-6
 
 
 DEFAULT_SETTINGS = CautionSettings()
@@ -266,9 +270,12 @@ def _fmt_w(w: float) -> str:
     return f"{w * 1e3:.3g} mW"
 
 
-def _polarised(pick: RolePick) -> bool:
-    return any((pc.dielectric or "").lower() in POLARISED_DIELECTRICS for pc in pick.pieces) \
-        or pick.plus is not None
+def _polarised(pick: RolePick) -> bool | None:
+    """True/False from the pieces' dielectric; None when no piece says what it is."""
+    known = [pc.dielectric for pc in pick.pieces if pc.dielectric]
+    if not known:
+        return None
+    return any(d.lower() in POLARISED_DIELECTRICS for d in known)
 
 
 def cautions(design: Design, request: Request, transistor=None, *,
@@ -314,13 +321,20 @@ def cautions(design: Design, request: Request, transistor=None, *,
                 f"{role}: {_fmt_v(bias.volts)} DC across a {_fmt_v(rating)} part, above "
                 f"{s.capacitor_derating:.0%} of its rating ({_fmt_v(limit)}); use a part rated "
                 f"at least {_fmt_v(bias.volts / s.capacitor_derating)}.", role))
-        if _polarised(pick):
-            # The side follows from the DC voltages (the higher node gets +).
+        # The side follows from the DC voltages (the higher node gets +).
+        polar = _polarised(pick)
+        if polar:
             out.append(Caution(
                 "polarity",
                 f"{role}: polarised; + toward {NODE_WORDS[bias.high]}, − toward "
                 f"{NODE_WORDS[bias.low]} ({_fmt_v(bias.volts)} DC across it). "
                 f"Reversed, it heats and can burst.", role))
+        elif polar is None and pick.value >= s.polarity_hint_f:
+            out.append(Caution(
+                "polarity",
+                f"{role}: if you use a polarised (electrolytic or tantalum) part, put + toward "
+                f"{NODE_WORDS[bias.high]}, − toward {NODE_WORDS[bias.low]} "
+                f"({_fmt_v(bias.volts)} DC across it).", role, "note"))
 
     # Resistors: dissipation of each piece against its rating.
     for role, watts in _role_power(design, request).items():

@@ -6,6 +6,7 @@ import click
 
 from drawerfit.cli import pass_app
 from drawerfit.console import emit_json
+from drawerfit.sheet.cli import sheet_for_circuit, sheet_option
 
 __all__ = ["command"]
 
@@ -13,8 +14,9 @@ __all__ = ["command"]
 @click.command(name="analyse")
 @click.argument("circuit", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print JSON: the request and the design.")
+@sheet_option
 @pass_app
-def command(app, circuit: str, as_json: bool) -> None:
+def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> None:
     """Analyse a stage with given values: operating point, gain, band edges, Zin, Zout,
     drift, swing, distortion, and every rule it breaks.
 
@@ -38,7 +40,11 @@ def command(app, circuit: str, as_json: bool) -> None:
         apply_yield(design, yres, c.request)
     if as_json:
         emit_json({"request": c.request.to_json(), "design": design.to_json()})
+        if sheet_dir is not None:
+            sheet_for_circuit(sheet_dir, design, ev, c, yres, quiet=True)
         return
     from drawerfit.render.analysis import show_analysis
 
     show_analysis(design, ev, 0, c, yres)
+    if sheet_dir is not None:
+        sheet_for_circuit(sheet_dir, design, ev, c, yres)

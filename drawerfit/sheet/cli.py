@@ -65,3 +65,41 @@ def _with_copies(request, copies: int):
     from dataclasses import replace
 
     return replace(request, builds=copies)
+
+
+def design_with_circuit_parts(design, circuit):
+    """The design with each role's piece carrying the circuit file's tolerance and ratings.
+
+    ``analyse`` designs come without stock pieces; the sheet takes tolerances
+    (for the spread of the DC voltages), ratings and dielectrics (for the
+    cautions) and bin locations from the circuit file's stock references.
+    """
+    from dataclasses import replace
+
+    from optimiser.design import Piece
+    from optimiser.stage import RESISTOR_ROLES
+
+    parts = {}
+    for role, pick in design.parts.items():
+        kind = "resistor" if role in RESISTOR_ROLES else "capacitor"
+        stock = circuit.stock_parts.get(role)
+        if kind == "resistor":
+            rating = getattr(stock, "power_w", None)
+            diel = None
+        else:
+            rating = getattr(stock, "voltage_v", None)
+            diel = getattr(stock, "dielectric", None)
+        piece = Piece(pick.value, 1, circuit.stock_ids.get(role),
+                      getattr(stock, "location", "") or "", kind,
+                      circuit.tolerances.get(role), rating, diel)
+        parts[role] = replace(pick, pieces=(piece,)) if not pick.pieces else pick
+    return replace(design, parts=parts)
+
+
+def sheet_for_circuit(directory, design, evaluation, circuit, yield_result=None, *,
+                      quiet: bool = False) -> WrittenSheet:
+    """The sheet of an analysed circuit (``analyse FILE --sheet DIR``)."""
+    sub = evaluation.take([0]) if evaluation is not None and evaluation.n > 1 else evaluation
+    return sheet_for_design(directory, design_with_circuit_parts(design, circuit),
+                            circuit.request, circuit.transistor, evaluation=sub,
+                            yield_result=yield_result, quiet=quiet)

@@ -112,3 +112,51 @@ def test_builds_show_sheet_without_a_request_is_bad_input(store_with_build, tmp_
     assert r.exit_code == 2
     assert "--request" in r.stderr and "Traceback" not in r.output
     assert not (tmp_path / "s" / "sheet.html").exists()
+
+
+CIRCUIT_TOML = REQUEST_TOML + """f_high_min_hz = 100e3
+ic_drift_max_pct = 10
+
+[parts]
+R1 = "47k"
+R2 = "10k"
+RC = "4k7"
+RE = "220"
+RE_BYP = "820"
+C_BYP = "47u"
+C_IN = "1u"
+C_OUT = "10u"
+
+[transistor]
+hfe_min = 100
+hfe_max = 300
+ft = "250M"
+cob = "4p"
+pd = 0.5
+
+[tolerances]
+R1 = "1%"
+"""
+
+
+def test_analyse_sheet_shows_the_figures_of_analyse_json(tmp_path):
+    circuit = tmp_path / "stage.toml"
+    circuit.write_text(CIRCUIT_TOML)
+    runner = CliRunner()
+    r = runner.invoke(cli, ["--db", str(tmp_path / "x.db"), "analyse", str(circuit), "--json"])
+    assert r.exit_code == 0, r.output
+    metrics = json.loads(r.stdout)["design"]["metrics"]
+    out = tmp_path / "sheet"
+    r2 = runner.invoke(cli, ["--db", str(tmp_path / "x.db"), "analyse", str(circuit),
+                             "--sheet", str(out)])
+    assert r2.exit_code == 0, r2.output
+    assert "Build sheet written" in r2.output and "verify" in r2.output
+    html = (out / "sheet.html").read_text(encoding="utf-8")
+    shown = dict(re.findall(r'data-metric="(\w+)" data-value="([^"]*)"', html))
+    assert len(shown) >= 11
+    for key, text in shown.items():
+        want = metrics[key]
+        assert (text == "") if want is None else float(text) == want, key
+    volts = dict(re.findall(r'data-node="(\w+)" data-volts="([^"]+)"', html))
+    for node, key in (("base", "vb_v"), ("emitter", "ve_v"), ("collector", "vc_v")):
+        assert float(volts[node]) == pytest.approx(metrics[key], rel=1e-5)

@@ -26,6 +26,8 @@ from optimiser.request import Request
 
 def pick(role, value, *, kind=None, rating=None, dielectric=None, pieces=None, joined=None):
     kind = kind or ("capacitor" if role.startswith("C_") else "resistor")
+    if kind == "capacitor" and dielectric is None:
+        dielectric = "ceramic"                      # the stock default
     if pieces is None:
         pieces = (Piece(value, 1, 1, "A1", kind, None, rating, dielectric),)
     return RolePick(role, value, str(value), tuple(pieces), joined)
@@ -190,3 +192,26 @@ def test_mains_note(supply, mains, expect):
     if expect:
         assert "qualified" in got[0].text and "local codes" in got[0].text
         assert "licensed" in got[0].text
+
+
+@pytest.mark.parametrize("value,expect", [(0.99e-6, False), (1e-6, True)])
+def test_unknown_dielectric_from_1uF_gets_a_polarity_note(value, expect):
+    # A part whose dielectric nobody stated (a circuit file with bare values): from 1 µF
+    # up such capacitors are commonly electrolytic (common practice), so name the + side.
+    d = ce_design(parts={"C_OUT": RolePick("C_OUT", value, "x", ())})
+    notes = [c for c in cautions(d, REQ) if c.kind == "polarity"]
+    assert bool(notes) is expect
+    if expect:
+        assert notes[0].level == "note" and "+ toward the collector" in notes[0].text
+
+
+def test_a_stated_non_polarised_dielectric_gets_no_polarity_line():
+    d = ce_design(parts={"C_OUT": pick("C_OUT", 10e-6, dielectric="film")})
+    assert "polarity" not in kinds(cautions(d, REQ), "C_OUT")
+
+
+def test_fully_bypassed_c_byp_faces_the_emitter():
+    d = ce_design(parts={"RE": None, "C_BYP": pick("C_BYP", 47e-6, dielectric="electrolytic")})
+    pol = [c.text for c in cautions(d, REQ) if c.kind == "polarity"]
+    assert len(pol) == 1 and "+ toward the emitter," in pol[0]
+    assert capacitor_bias(d, REQ)["C_BYP"].volts == pytest.approx(1.35)
