@@ -288,7 +288,7 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
                        lambda i: f"V_CE {_g(op.vce[i])} V is below vce_sat {_g(vs)} V: "
                                  f"the transistor is saturated"))
     rules.append(_Rule("validity", "cutoff", op.cutoff,
-                       lambda i: f"I_C {_si(op.ic[i], 'A')} : the transistor is cut off"))
+                       lambda i: f"the transistor is cut off (I_C {_si(op.ic[i], 'A')})"))
     csat = cop.vce < vs
 
     def corner_text(i, arr, what):
@@ -375,35 +375,35 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
         tol = request.gain_tol_db
         fail = ~(np.abs(gain_db - tdb) <= tol)
         rules.append(_Rule("target", "gain", fail,
-                           lambda i: f"gain_db {_g(gain_db[i])} outside {_g(tdb)} ± {_g(tol)}"))
+                           lambda i, tdb=tdb, tol=tol: f"gain_db {_g(gain_db[i])} outside {tdb:g} ± {tol:g}"))
     if band_edges and request.f_low_max_hz is not None:
         lim = request.f_low_max_hz
         fail = np.isfinite(f_low) & (f_low > lim)
         rules.append(_Rule("target", "f_low_hz", fail,
-                           lambda i: f"f_low_hz {_g(f_low[i])} > {_g(lim)}"))
+                           lambda i, lim=lim: f"f_low_hz {_g(f_low[i])} > {lim:g}"))
     if request.f_high_min_hz is not None:
         lim = request.f_high_min_hz
         if not has_fhigh:
             rules.append(_Rule("target", "f_high_hz", np.ones(n, bool),
-                               lambda i: "transistor lacks ft/cob: f_high_hz cannot be computed "
-                                         f"for the target {_g(lim)}"))
+                               lambda i, lim=lim: "transistor lacks ft/cob: f_high_hz cannot be "
+                                                  f"computed for the target {lim:g}"))
         elif band_edges:
             fail = np.isfinite(f_high) & (f_high < lim)
             rules.append(_Rule("target", "f_high_hz", fail,
-                               lambda i: f"f_high_hz {_g(f_high[i])} < {_g(lim)}"))
+                               lambda i, lim=lim: f"f_high_hz {_g(f_high[i])} < {lim:g}"))
     if request.zin_min_ohm is not None:
         lim = request.zin_min_ohm
         z = metrics["zin_ohm"]
         rules.append(_Rule("target", "zin_ohm", ~(z >= lim),
-                           lambda i: f"zin_ohm {_g(z[i])} < {_g(lim)}"))
+                           lambda i, lim=lim: f"zin_ohm {_g(z[i])} < {lim:g}"))
     if request.ic_drift_max_pct is not None:
         lim = request.ic_drift_max_pct
         rules.append(_Rule("target", "ic_drift_pct", ~(drift <= lim),
-                           lambda i: f"ic_drift_pct {_g(drift[i])} > {_g(lim)}"))
+                           lambda i, lim=lim: f"ic_drift_pct {_g(drift[i])} > {lim:g}"))
     if large_signal and request.thd_max_pct is not None:
         lim = request.thd_max_pct
         rules.append(_Rule("target", "thd_pct", ~(thd <= lim),
-                           lambda i: f"thd_pct {_g(thd[i])} > {_g(lim)}"))
+                           lambda i, lim=lim: f"thd_pct {_g(thd[i])} > {lim:g}"))
 
     # --- warnings ------------------------------------------------------------
     _, r_th = (None, batch.R1 * batch.R2 / (batch.R1 + batch.R2))
