@@ -73,6 +73,20 @@ def _row(d: dict, i: int = 0) -> dict:
     return out
 
 
+def _matching_row(evaluation, design: Design) -> int | None:
+    """The row of ``evaluation`` whose values are the design's (None if none is)."""
+    try:
+        b = evaluation.batch
+        vals = design.values()
+        ok = np.ones(b.n, bool)
+        for role in ("R1", "R2", "RC", "RE", "RE_BYP", "C_IN", "C_OUT", "C_BYP", "C_B"):
+            ok &= np.isclose(b.role(role), vals.get(role, 0.0), rtol=1e-9, atol=0.0)
+        hits = np.nonzero(ok)[0]
+    except AttributeError:
+        return None
+    return int(hits[0]) if hits.size else None
+
+
 def _yield_samples(yield_result) -> tuple[dict | None, float | None]:
     """Per-sample arrays and yield % from the Monte Carlo result, whatever its shape."""
     if yield_result is None:
@@ -129,9 +143,10 @@ def write_sheet(directory, design: Design, request: Request, transistor, *,
     out_dir.mkdir(parents=True, exist_ok=True)
     batch = _batch(design)
     ratings = ratings_of(design)
-    if evaluation is None:
-        evaluation = evaluate(request, batch, transistor, ratings)
-    corners = _row(evaluation.corners) if evaluation.corners else None
+    row = _matching_row(evaluation, design) if evaluation is not None else None
+    if row is None:
+        evaluation, row = evaluate(request, batch, transistor, ratings), 0
+    corners = _row(evaluation.corners, row) if evaluation.corners else None
 
     items = cautions(design, request, transistor, corners=corners)
 

@@ -138,7 +138,9 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
                 probes: list[Probe], cautions: list[Caution], transistor=None) -> str:
     """The page as one string."""
     topo = {"ce": "common-emitter", "cb": "common-base", "cc": "common-collector"}
-    title = f"Build sheet: {topo.get(design.topology, design.topology)} stage with {design.transistor}"
+    who = design.transistor if design.transistor not in ("", "inline") else \
+        "the given transistor"
+    title = f"Build sheet: {topo.get(design.topology, design.topology)} stage with {who}"
     sub = []
     if design.rank is not None:
         sub.append(f"design rank {design.rank}")

@@ -103,9 +103,12 @@ def part_rows(design: Design, request: Request, transistor=None,
 
 
 def _piece_rating(kind: str, rating: float | None) -> str:
+    """The piece's rating; the stock default, marked so, when the piece has none."""
+    if rating:
+        return fmt.si(rating, "W" if kind == "resistor" else "V")
     if kind == "resistor":
-        return fmt.si(rating or DEFAULT_RESISTOR_POWER_W, "W")
-    return fmt.si(rating or DEFAULT_CAPACITOR_VOLTAGE_V, "V")
+        return fmt.si(DEFAULT_RESISTOR_POWER_W, "W") + " (default)"
+    return fmt.si(DEFAULT_CAPACITOR_VOLTAGE_V, "V") + " (default)"
 
 
 def pick_route(design: Design, request: Request, transistor=None) -> list[dict]:

@@ -323,3 +323,18 @@ def test_matplotlib_draws_off_screen():
     import drawerfit.sheet.plots  # noqa: F401
 
     assert matplotlib.get_backend().lower() == "agg"
+
+
+def test_the_drift_corners_come_from_the_designs_own_row(tmp_path):
+    # An evaluation of several candidates (as the search has it): the sheet must take the
+    # corners of the row whose values are the design's, not row 0.
+    from drawerfit.sheet import _matching_row
+
+    d, req = evaluated("ce")
+    vals = d.values()
+    batch = StageBatch.from_values("ce", **{r: np.array([v * 1.2, v]) if r == "RC" else v
+                                            for r, v in vals.items()})
+    ev = evaluate(req, batch, Q, band_edges=False, large_signal=False)
+    assert _matching_row(ev, d) == 1
+    other = Design("ce", Q.label, {**d.parts, "RC": _pick("RC", 1.0, "1R0", "Z9")}, d.metrics, True)
+    assert _matching_row(ev, other) is None
