@@ -177,7 +177,7 @@ def _parse_request_entry(v: Any, i: int, file: str | None, base: Path, loc: _Loc
         return load_request(path), v, v
     if isinstance(v, dict):
         try:
-            req = parse_request(v, file=file)
+            req = parse_request(v, file=file, extra_keys=())
         except InputError as exc:
             sub = f"{field}.{exc.field}" if exc.field else field
             line = exc.line or loc.find("build", i, exc.field) or loc.find("build", i, None)

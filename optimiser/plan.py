@@ -119,6 +119,10 @@ class PlanItem:
     identical: bool = True
     candidates: tuple[Design, ...] = ()
     note: str = ""            # why there are no candidates, when there are none
+    #: Pieces must keep their tolerance (a wider one never stands in).  Needed when
+    #: the request's yield depends on the tolerances; otherwise the nominal figures
+    #: the design was chosen by do not change with the tolerance.
+    strict_tolerance: bool = True
 
 
 @dataclass(frozen=True)
@@ -191,12 +195,13 @@ def _same_value(a: float | None, b: float | None) -> bool:
     return abs(a - b) <= 1e-9 * max(abs(a), abs(b))
 
 
-def can_stand_in(sub: Row, orig: Row) -> bool:
+def can_stand_in(sub: Row, orig: Row, *, strict_tolerance: bool = True) -> bool:
     """True when a piece of ``sub`` may take the place of a piece of ``orig``.
 
-    Same kind and value (transistors: same label); tolerance no wider; power
-    (resistor) or voltage (capacitor) rating no lower; a non-polarised
-    capacitor is never replaced by a polarised one.
+    Same kind and value (transistors: same label); tolerance no wider (unless
+    ``strict_tolerance`` is False); power (resistor) or voltage (capacitor)
+    rating no lower; a non-polarised capacitor is never replaced by a
+    polarised one.
     """
     if sub.kind != orig.kind:
         return False
@@ -212,7 +217,7 @@ def can_stand_in(sub: Row, orig: Row) -> bool:
     ot = orig.tolerance if orig.tolerance is not None else dtol
     sr = sub.rating if sub.rating is not None else drat
     orr = orig.rating if orig.rating is not None else drat
-    if st > ot * (1 + 1e-9) or sr < orr * (1 - 1e-9):
+    if (strict_tolerance and st > ot * (1 + 1e-9)) or sr < orr * (1 - 1e-9):
         return False
     if sub.kind == "capacitor" and sub.polarised and not orig.polarised:
         return False
@@ -388,11 +393,15 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
 
     # classes and the rows that may stand in for them
     classes = sorted({r for need in demand.values() for r in need})
+    # a class keeps its tolerance when any build that names it needs that
+    strict = {r: any(items[c[0]].strict_tolerance for c, need in demand.items() if r in need)
+              for r in classes}
     flow: dict[tuple[int, int], pulp.LpVariable] = {}
     stand_ins: dict[int, list[int]] = {}
     for r in classes:
         orig = rows[r]
-        subs = [s for s, row in rows.items() if can_stand_in(row, orig)
+        subs = [s for s, row in rows.items()
+                if can_stand_in(row, orig, strict_tolerance=strict[r])
                 and (row.virtual or row.qty > 0 or s == r)]
         stand_ins[r] = subs
         for s in subs:
@@ -1062,7 +1071,8 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
                                               search_fn=search_fn)
         st["candidates"] = len(designs)
         search_stats.append({"request": b.name, **st})
-        items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note))
+        items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,
+                              strict_tolerance=b.request.wants_yield))
     if progress is not None:
         progress("solving the plan")
     plan = plan_builds(items, augmented, catalogue, solver=solver, time_limit=time_limit)

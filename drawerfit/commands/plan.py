@@ -12,7 +12,7 @@ __all__ = ["command", "write_order"]
 
 
 def write_order(plan, path: str) -> None:
-    """Write the shopping list as a stock file (plus ``packs``, ``cost``, ``for_builds``).
+    """Write the shopping list as a stock file (plus the columns ``packs`` and ``cost``).
 
     ``stock receive`` books it when the parts arrive; the location is left
     empty for the owner to fill in.
@@ -29,8 +29,7 @@ def write_order(plan, path: str) -> None:
             parts.append(Capacitor(value=p.value, qty=p.qty, tolerance=p.tolerance,
                                    voltage_v=p.rating, dielectric=p.dielectric or "ceramic",
                                    location=""))
-        extra.append({"packs": str(p.packs), "cost": f"{p.cost:.2f}",
-                      "for_builds": str(p.used)})
+        extra.append({"packs": str(p.packs), "cost": f"{p.cost:.2f}"})
     write_stock_csv(path, parts, extra=extra)
 
 

@@ -182,14 +182,15 @@ def test_commit_refused_when_stock_changed_since_planning(env, monkeypatch):
     real = Store.snapshot
 
     def stale(self):
-        # the drawer as it was before someone took pieces: 5 more of every transistor
+        # the drawer as it was before someone took pieces: 20 more in every row
         snap = real(self)
         from dataclasses import replace
-        return replace(snap, transistors=tuple(replace(t, qty=t.qty + 5)
-                                               for t in snap.transistors))
+        return replace(snap, **{kind: tuple(replace(x, qty=x.qty + 20)
+                                            for x in getattr(snap, kind))
+                                for kind in ("resistors", "capacitors", "transistors")})
 
     monkeypatch.setattr(Store, "snapshot", stale)
-    # 30 copies need more GP-N1 than the store really holds (25), fewer than the stale 30
+    # 30 copies of design A: more GP-N1 (and 4k7, 10u) than the store really holds
     text = '[[build]]\nrequest = "preamp.toml"\ncount = 30\n'
     r = env.run("plan", buildlist(env, text), "--json", "--commit")
     assert r.exit_code == 2
