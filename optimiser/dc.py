@@ -160,6 +160,12 @@ def solve_terminals(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf=0.0,
     u = _initial_vbe(vb_th - ve_th, reff, is_, vt)
     ic0 = is_ * np.expm1(np.minimum(u / vt, 80.0))
     vce0 = (vc_th - ic0 * rc) - (ve_th + ic0 * (1.0 + 1.0 / beta) * re)
+    if np.any(inv_vaf):
+        # one pass with the Early factor q = 1 + V_CB/V_AF of the first guess
+        q = 1.0 + np.clip(vce0 - u, 0.0, None) * inv_vaf
+        u = _initial_vbe(vb_th - ve_th, rb / beta + re * (q + 1.0 / beta), is_ * q, vt)
+        ic0 = is_ * q * np.expm1(np.minimum(u / vt, 80.0))
+        vce0 = (vc_th - ic0 * rc) - (ve_th + ic0 * (1.0 + 1.0 / (beta * q)) * re)
     w = u - np.maximum(vce0, 0.3)
     sat = vce0 < 0.15
     if sat.any():
@@ -172,6 +178,7 @@ def solve_terminals(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf=0.0,
     conv = np.zeros(m, dtype=bool)
     idx = np.arange(m)
     p = [vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, vcrit]
+    dn = None
     for _ in range(max_iter):
         vbt, rbb, vet, ree, vct, rcc, iss, bb, vtt, iva, vcr = p
         ic, ib, dcu, dcw, dbu, dbw = junction_currents(u, w, iss, bb, vtt, iva)
@@ -188,19 +195,24 @@ def solve_terminals(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf=0.0,
         wn = _pnjlim(w + dw, w, vtt, vcr)
         done = (np.abs(du) <= tol * vtt) & (np.abs(dw) <= tol * vtt) & np.isfinite(un)
         u, w = un, wn
-        if done.any():
-            out_u[idx[done]] = u[done]
-            out_w[idx[done]] = w[done]
-            conv[idx[done]] = True
-            keep = ~done
+        dn = done if dn is None else (dn | done)
+        n_done = int(np.count_nonzero(dn))
+        if n_done == dn.size:
+            break
+        if n_done > 0.05 * dn.size:      # compact the working set once it pays
+            out_u[idx[dn]] = u[dn]
+            out_w[idx[dn]] = w[dn]
+            conv[idx[dn]] = True
+            keep = ~dn
             idx = idx[keep]
             u, w = u[keep], w[keep]
             p = [a[keep] for a in p]
-        if idx.size == 0:
-            break
+            dn = None
     if idx.size:
         out_u[idx] = u
         out_w[idx] = w
+        if dn is not None:
+            conv[idx] = dn
     return out_u.reshape(shape), out_w.reshape(shape), conv.reshape(shape)
 
 
