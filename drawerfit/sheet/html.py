@@ -24,20 +24,21 @@ __all__ = ["FIGURES", "render_html", "data_uri"]
 CSS = """
 @page { size: A4; margin: 12mm; }
 * { box-sizing: border-box; }
-body { font: 10.5pt/1.35 "DejaVu Sans", Arial, sans-serif; color: #111; margin: 0 auto;
+body { font: 10pt/1.3 "DejaVu Sans", Arial, sans-serif; color: #111; margin: 0 auto;
        max-width: 190mm; padding: 6mm; }
 h1 { font-size: 15pt; margin: 0 0 2mm; }
 h2 { font-size: 11.5pt; margin: 4mm 0 1.5mm; border-bottom: 1px solid #999; }
 .sub { color: #444; margin: 0 0 3mm; }
 table { border-collapse: collapse; width: 100%; }
-th, td { border: 1px solid #bbb; padding: 1mm 2mm; text-align: left; vertical-align: top; }
+th, td { border: 1px solid #bbb; padding: 0.7mm 1.6mm; text-align: left; vertical-align: top; }
 th { background: #eee; font-weight: 600; }
 td.num, th.num { text-align: right; white-space: nowrap; }
+table.route td { white-space: nowrap; }
 .cols { display: flex; gap: 5mm; }
 .cols > div { flex: 1 1 0; min-width: 0; }
 img { max-width: 100%; height: auto; display: block; margin: 1mm auto; }
-img.schematic { max-height: 120mm; }
-img.plot { max-height: 80mm; }
+img.schematic { max-height: 88mm; }
+img.plot { max-height: 66mm; }
 .probe { font-weight: 700; color: #1f4fbf; font-size: 11.5pt; }
 .tick { width: 8mm; }
 ul.cautions { margin: 0; padding-left: 5mm; }
@@ -49,7 +50,8 @@ li.note { color: #333; }
 .misses { color: #8a1c10; font-weight: 600; }
 section { break-inside: avoid; page-break-inside: avoid; }
 footer { margin-top: 4mm; color: #555; font-size: 8.5pt; }
-@media print { body { padding: 0; } }
+p.small { font-size: 8.5pt; color: #444; margin: 1mm 0; }
+@media print { body { padding: 0; } .page2 { break-before: page; page-break-before: always; } }
 """
 
 #: (metric key, what, unit) in the order the sheet lists them.
@@ -122,7 +124,8 @@ def _req_rows(request: Request) -> list[tuple[str, str]]:
     return rows
 
 
-def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], num_cols=()) -> str:
+def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], num_cols=(),
+           css: str = "") -> str:
     h = "".join(f'<th class="{"num" if i in num_cols else ""}">{escape(x)}</th>'
                 for i, x in enumerate(headers))
     body = []
@@ -130,7 +133,8 @@ def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], num_cols=()) -
         cells = "".join(f'<td class="{"num" if i in num_cols else ""}">{escape(str(x))}</td>'
                         for i, x in enumerate(row))
         body.append(f"<tr>{cells}</tr>")
-    return f"<table><thead><tr>{h}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+    cls = f' class="{css}"' if css else ""
+    return f"<table{cls}><thead><tr>{h}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
 def render_html(design: Design, request: Request, *, schematic_svg: bytes,
@@ -166,27 +170,41 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
 
     probe_rows = []
     names = {"base": "base (B)", "emitter": "emitter (E)", "collector": "collector (C)"}
+    bases = []
     for p in probes:
         if p.low is not None and p.high is not None:
             spread = f"{fmt.si(p.low, 'V')} to {fmt.si(p.high, 'V')}"
-            basis = p.basis
+            if p.basis not in bases:
+                bases.append(p.basis)
         else:
-            spread, basis = "nominal", "no spread computed"
+            spread = "nominal"
         probe_rows.append(
             f'<tr><td>{escape(names.get(p.node, p.node))}</td>'
             f'<td class="num probe" data-node="{p.node}" data-volts="{p.volts:.6g}">'
             f'{escape(fmt.si(p.volts, "V"))}</td>'
-            f'<td class="num">{escape(spread)}</td><td>{escape(basis)}</td>'
-            f'<td class="tick"></td></tr>')
+            f'<td class="num">{escape(spread)}</td><td class="tick"></td></tr>')
+    covers = ("Range: " + "; ".join(bases) + ".") if bases else \
+        "Nominal values only: no spread was computed."
     probe_table = ('<table><thead><tr><th>node</th><th class="num">expect</th>'
-                   '<th class="num">range</th><th>range covers</th><th>✓</th></tr></thead>'
-                   f'<tbody>{"".join(probe_rows)}</tbody></table>')
+                   '<th class="num">range</th><th>✓</th></tr></thead>'
+                   f'<tbody>{"".join(probe_rows)}</tbody></table>'
+                   f'<p class="small">{escape(covers)} Supply on, no signal, meter from the '
+                   'node to ground.</p>')
 
-    route_rows = [(r["location"] or "—", r["role"], r["value"], r["kind"] +
-                   (f" ({r['dielectric']})" if r["dielectric"] else ""), r["rating"],
-                   str(r["count"]), "") for r in route]
+    route_rows = []
+    defaults = False
+    for r in route:
+        kind = r["dielectric"] or r["kind"]
+        rating = r["rating"]
+        if rating.endswith(" (default)"):
+            rating, defaults = rating[:-len(" (default)")] + "*", True
+        route_rows.append((r["location"] or "—", r["role"], r["value"], kind, rating,
+                           str(r["count"]), ""))
     route_table = _table(("bin", "role", "value", "kind", "rating", "take", "✓"), route_rows,
-                         num_cols=(5,))
+                         num_cols=(5,), css="route")
+    if defaults:
+        route_table += ('<p class="small">* no rating known for this part: the stock default '
+                        'is assumed; use a part rated at least this much.</p>')
 
     items = []
     for c in cautions:
@@ -214,9 +232,9 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
 </section>
 <div class="cols">
 <section><h2>Parts, in picking order</h2>{route_table}</section>
+<section><h2>DC voltages to check</h2>{probe_table}</section>
 </div>
-<section><h2>DC voltages to check with a meter (to ground, no signal)</h2>{probe_table}</section>
-<div class="cols">
+<div class="cols page2">
 <section><h2>The request</h2>{req}</section>
 <section><h2>Figures</h2>{figures}</section>
 </div>

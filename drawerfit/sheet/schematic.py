@@ -23,7 +23,7 @@ __all__ = ["draw", "write_schematic", "role_label"]
 
 #: Unit length of one part body (schemdraw units).
 L = 2.6
-FONT = 12
+FONT = 14
 
 
 def role_label(design: Design, role: str, kind: str) -> str:
@@ -97,7 +97,7 @@ def draw(design: Design, request: Request,
                                                             ofst=0.15))
         if r == "RE_BYP" and "C_BYP" in p:
             dw.add(elm.Dot().at(res.start))
-            dw.add(elm.Line().at(res.start).right(2.4))
+            dw.add(elm.Line().at(res.start).right(2.8))
             dw.add(_cap(design, "C_BYP").down(L).label(_label(design, "C_BYP"), loc="bottom",
                                                        ofst=0.15))
             dw.add(elm.Line().toy(y_gnd))
