@@ -11,22 +11,27 @@ from inventory.errors import InputError, StockShortage
 __all__ = ["command", "write_order"]
 
 
-def write_order(plan, path: str) -> None:
+def write_order(plan, path: str, *, committed: bool = False) -> None:
     """Write the shopping list as a stock file (plus the columns ``packs`` and ``cost``).
 
     ``stock receive`` books it when the parts arrive; the location is left
-    empty for the owner to fill in.
+    empty for the owner to fill in.  ``qty`` is what goes into the drawer: all
+    the pieces bought, or, when the builds were committed (and so already took
+    their share of the order), the pieces left over after them.
     """
     from inventory.parts import Capacitor, Resistor
     from inventory.tabular import write_stock_csv
 
     parts, extra = [], []
+
+    def _qty(p) -> int:
+        return p.qty - p.used if committed else p.qty
     for p in plan.purchases:
         if p.kind == "resistor":
-            parts.append(Resistor(value=p.value, qty=p.qty, tolerance=p.tolerance,
+            parts.append(Resistor(value=p.value, qty=_qty(p), tolerance=p.tolerance,
                                   power_w=p.rating, location=""))
         else:
-            parts.append(Capacitor(value=p.value, qty=p.qty, tolerance=p.tolerance,
+            parts.append(Capacitor(value=p.value, qty=_qty(p), tolerance=p.tolerance,
                                    voltage_v=p.rating, dielectric=p.dielectric or "ceramic",
                                    location=""))
         extra.append({"packs": str(p.packs), "cost": f"{p.cost:.2f}"})
@@ -76,7 +81,7 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
             raise InputError(f"the stock changed since planning, nothing was recorded "
                              f"({exc.message}); run the plan again", field="--commit") from None
     if order_path and plan.feasible:
-        write_order(plan, order_path)
+        write_order(plan, order_path, committed=build_ids is not None)
     if as_json:
         data = plan.to_json()
         if build_ids is not None:

@@ -230,3 +230,38 @@ def test_rich_view_lists_bins_and_total(env):
     assert r.exit_code == 0, r.output
     assert "E2" in r.stdout or "F1" in r.stdout
     assert "Total cost" in r.stdout and "Optimal" in r.stdout
+
+
+def test_commit_with_purchases_records_orders_and_order_file_holds_the_rest(env):
+    from inventory.store import open_store
+
+    text = """
+[[build]]
+request = "preamp.toml"
+count = 20
+
+[purchase]
+series = "E24"
+"""
+    before = env.stock()
+    order = env.tmp / "order.csv"
+    r = env.run("plan", buildlist(env, text), "--json", "--commit", "--order", str(order))
+    assert r.exit_code == 0, r.output
+    d = json.loads(r.stdout)
+    # as in the test above: 4k7 18 in stock + 2 bought, 10u 14 + 6 bought, 10k and GP-N1
+    # from stock: 18 + 14 + 20 + 20 = 72 pieces leave the drawer now.
+    assert sum(before.values()) - sum(env.stock().values()) == 72
+    with open(order, newline="") as f:
+        rows = {r["value"]: int(r["qty"]) for r in csv.DictReader(f)}
+    assert rows == {"4k7": 10 - 2, "10u": 10 - 6}     # what is left for the drawer
+    store = open_store(str(env.db))
+    pending = store.pending_orders()
+    assert sorted((o["kind"], o["qty"]) for o in pending) == [("capacitor", 10), ("resistor", 10)]
+    store.close()
+    r = env.run("stock", "receive", str(order))
+    assert r.exit_code == 0, r.output
+    assert sum(before.values()) - sum(env.stock().values()) == 72 - 12
+    store = open_store(str(env.db))
+    assert store.pending_orders() == []
+    store.close()
+    assert len(d["build_ids"]) >= 1

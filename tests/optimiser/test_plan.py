@@ -377,3 +377,34 @@ def test_stand_in_rules():
     assert not can_stand_in(rows[4], rows[2])    # other value: no
     assert can_stand_in(rows[6], rows[5])        # non-polarised for polarised: yes
     assert not can_stand_in(rows[5], rows[6])    # polarised for non-polarised: never
+
+
+def test_a_stopped_solver_is_reported_not_hidden(monkeypatch):
+    import optimiser.plan as plan_mod
+    from optimiser.plan import SolverReport
+
+    snap = small_drawer()
+    d = make_design("GP-N1", [("R1", 10000.0, 2, 1)], 0.0)
+    monkeypatch.setattr(plan_mod, "solve_model",
+                        lambda model, solver="cbc", time_limit=None:
+                        SolverReport("CBC", "Not Solved", 0.5))
+    plan = plan_builds([PlanItem("pre", 2, True, (d,))], snap)
+    assert not plan.feasible
+    assert plan.solver.status == "Not Solved"
+    assert plan.to_json()["solver"]["status"] == "Not Solved"
+    assert "Not Solved" in plan.infeasible[0].reason
+
+
+def test_status_of_a_time_limited_solution_is_feasible_not_optimal():
+    # PuLP marks a solution found but not proven optimal with sol_status 2.
+    import pulp
+
+    from optimiser.plan import _status_text
+
+    prob = pulp.LpProblem("x", pulp.LpMinimize)
+    prob.sol_status = pulp.LpSolutionIntegerFeasible
+    assert _status_text(prob, pulp.LpStatusOptimal) == "Feasible"
+    prob.sol_status = pulp.LpSolutionOptimal
+    assert _status_text(prob, pulp.LpStatusOptimal) == "Optimal"
+    prob.sol_status = pulp.LpSolutionNoSolutionFound
+    assert _status_text(prob, pulp.LpStatusNotSolved) == "Not Solved"
