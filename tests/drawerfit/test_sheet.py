@@ -357,3 +357,28 @@ def test_the_drift_corners_come_from_the_designs_own_row(tmp_path):
     assert _matching_row(ev, d) == 1
     other = Design("ce", Q.label, {**d.parts, "RC": _pick("RC", 1.0, "1R0", "Z9")}, d.metrics, True)
     assert _matching_row(ev, other) is None
+
+
+def test_drift_plot_adds_the_yield_histogram_when_computed(tmp_path):
+    from types import SimpleNamespace
+
+    from PIL import Image
+
+    from drawerfit.sheet import _yield_samples
+    from drawerfit.sheet.plots import plot_drift
+
+    d, req = evaluated("ce")
+    ev = evaluate(req, StageBatch.from_values("ce", **d.values()), Q, band_edges=False,
+                  large_signal=False)
+    corners = {k: v[0] for k, v in ev.corners.items()}
+    rng = np.random.default_rng(0)
+    yr = SimpleNamespace(yield_pct=87.5, samples={"gain": rng.normal(10, 0.3, 500)})
+    samples, pct = _yield_samples(yr)
+    assert pct == 87.5 and set(samples) == {"gain", "gain_db"}
+    np.testing.assert_allclose(samples["gain_db"], 20 * np.log10(yr.samples["gain"]))
+    two = plot_drift(tmp_path / "two.png", d.metrics, corners, req)
+    three = plot_drift(tmp_path / "three.png", d.metrics, corners, req, samples, pct)
+    for p in (two, three):
+        assert p.read_bytes()[:8] == PNG_SIGNATURE
+    assert Image.open(three).size[0] > Image.open(two).size[0]
+    assert _yield_samples(None) == (None, None)
