@@ -33,11 +33,13 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> N
     design = design_of(ev, 0, label=c.transistor.label)
     yres = None
     if c.request.wants_yield:
-        from optimiser.yield_ import apply_yield, monte_carlo
+        from optimiser.yield_ import apply_yield, monte_carlo, worst_case
 
         yres = monte_carlo(c.request, c.values, c.transistor, c.tolerances,
                            samples=c.request.samples, seed=c.request.seed)
         apply_yield(design, yres, c.request)
+        design.extra["worst_case"] = worst_case(c.request, c.values, c.transistor,
+                                                c.tolerances).to_json()
     if as_json:
         emit_json({"request": c.request.to_json(), "design": design.to_json()})
         if sheet_dir is not None:

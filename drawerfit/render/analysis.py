@@ -98,6 +98,14 @@ def show_analysis(design, ev, i: int, circuit, yield_result=None) -> None:
     if yield_result is not None:
         from drawerfit.render.yield_view import show_yield
         show_yield(yield_result)
+        wc = design.extra.get("worst_case")
+        if wc:
+            r = wc["ranges"]
+            out.print(f"worst case over the tolerance corners: gain {r['gain_db'][0]:.2f} … "
+                      f"{r['gain_db'][1]:.2f} dB, I_C {_si(r['ic_a'][0], 'A')} … "
+                      f"{_si(r['ic_a'][1], 'A')}; "
+                      + ("every target holds at every corner" if wc["meets"] else
+                         "misses at some corner: " + ", ".join(wc["failing"])))
 
     if design.meets_spec:
         out.print("[green]Valid, and meets every target given.[/green]")
