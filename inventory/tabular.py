@@ -22,8 +22,6 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-import pandas as pd
-
 from inventory import values
 from inventory.errors import InputError, InputErrors
 from inventory.parts import (
@@ -191,7 +189,9 @@ def _record_lines(text: str, file: str) -> tuple[list[str], list[int]]:
     return header, lines
 
 
-def _frame(text: str, file: str) -> pd.DataFrame:
+def _frame(text: str, file: str):
+    import pandas as pd  # imported here: most commands never read a CSV
+
     try:
         return pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False,
                            index_col=False, skip_blank_lines=True)
@@ -578,6 +578,8 @@ def write_stock_csv(path: str | Path, parts: Iterable, *,
         Extra columns per row (same length as ``parts``), appended after the
         standard ones (e.g. ``packs`` in an order file).
     """
+    import pandas as pd  # imported here: most commands never write a CSV
+
     records = [part_cells(p) for p in parts]
     columns = list(COLUMNS)
     if extra:
