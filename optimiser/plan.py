@@ -765,11 +765,12 @@ def _demand_order(design: Design, rows: dict[int, Row], catalogue: Catalogue
 
 
 def prefer_stock(model: PlanModel, solution: Solution) -> Solution:
-    """Move pieces from bought packs to stock rows that still have room.
+    """Move pieces from bought packs to stock rows that still have room, then
+    to the very rows the designs named.
 
     Any optimal plan stays optimal (the packs and the designs do not change);
     this only keeps the drawer's own pieces in use first, so that what is left
-    over is new stock, not old.
+    over is new stock, not old, and splits copies over fewer rows.
     """
     rows = model.rows
     room = {s: r.qty for s, r in rows.items() if not r.virtual}
@@ -789,6 +790,16 @@ def prefer_stock(model: PlanModel, solution: Solution) -> Solution:
                 k -= moved
                 flow[(r, s2)] = flow.get((r, s2), 0) + moved
                 flow[(r, s)] -= moved
+    # then the row each design named, where it has room (fewer split allocations)
+    for (r, s), k in sorted(flow.items()):
+        if k <= 0 or s == r or rows[s].virtual or r not in room or (r, r) not in model.flow:
+            continue
+        moved = min(k, room[r])
+        if moved > 0:
+            room[r] -= moved
+            room[s] += moved
+            flow[(r, r)] = flow.get((r, r), 0) + moved
+            flow[(r, s)] -= moved
     flow = {key: n for key, n in flow.items() if n > 0}
     return replace(solution, flow=flow)
 

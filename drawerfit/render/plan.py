@@ -8,6 +8,7 @@ written as a technician writes them (:func:`inventory.values.format_value`,
 from __future__ import annotations
 
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 from rich.text import Text
 
@@ -17,23 +18,26 @@ from optimiser.plan import Allocation, Plan
 __all__ = ["print_plan", "part_lines"]
 
 
-def _piece_text(p, kind: str) -> str:
+def _piece_text(p, kind: str, single: bool) -> str:
     where = p.location or "?"
     n = f"{p.count}× " if p.count != 1 else ""
-    return f"{n}{format_value(p.value, kind)} [{where}]" if p.value else f"{n}[{where}]"
+    if single:
+        return f"{n}{where}"
+    return f"{n}{format_value(p.value, kind)} {where}"
 
 
 def part_lines(alloc: Allocation) -> list[str]:
-    """One line per role: ``R1 47k  ← A3`` (several pieces joined with +)."""
+    """One line per role: ``R1 47k ← F1``; a combination or several rows joined with +."""
     lines = []
     for role, pick in alloc.design.parts.items():
         kind = pick.pieces[0].kind if pick.pieces else (
             "capacitor" if role.startswith("C") else "resistor")
         if kind not in ("resistor", "capacitor"):
             continue
-        pieces = " + ".join(_piece_text(p, kind) for p in pick.pieces)
+        single = pick.joined is None
+        pieces = " + ".join(_piece_text(p, kind, single) for p in pick.pieces)
         joined = f" ({pick.joined})" if pick.joined else ""
-        lines.append(f"{role} {pick.label}{joined} ← {pieces}")
+        lines.append(f"{role} {format_value(pick.value, kind)}{joined} ← {pieces}")
     return lines
 
 
@@ -69,7 +73,7 @@ def print_plan(console: Console, plan: Plan, *, build_ids: list[int] | None = No
     if not plan.feasible:
         console.print(Text("No plan meets every build from this drawer.", style="bold red"))
         for s in plan.infeasible:
-            console.print(f"[bold]{s.request}[/bold]: {s.reason}")
+            console.print(f"[bold]{escape(s.request)}[/bold]: {escape(s.reason)}")
             if s.shortage:
                 t = Table(show_edge=False, box=None, padding=(0, 2))
                 for col in ("kind", "part", "in stock", "needed"):
@@ -81,19 +85,19 @@ def print_plan(console: Console, plan: Plan, *, build_ids: list[int] | None = No
         warned = False
         for bp in plan.builds:
             mode = "identical copies" if bp.identical else "copies may differ"
-            t = Table(title=f"{bp.name}: {bp.count} {'copy' if bp.count == 1 else 'copies'} "
+            t = Table(title=f"{escape(bp.name)}: {bp.count} {'copy' if bp.count == 1 else 'copies'} "
                             f"({mode})", title_justify="left", show_lines=True)
             t.add_column("copies", justify="right")
             t.add_column("transistor")
             t.add_column("values ← bins")
             t.add_column("figures")
             for a in bp.allocations:
-                t.add_row(str(a.copies), a.design.transistor, "\n".join(part_lines(a)),
-                          _figures(a))
+                t.add_row(str(a.copies), escape(a.design.transistor),
+                          escape("\n".join(part_lines(a))), _figures(a))
             console.print(t)
             for a in bp.allocations:
                 for w in a.design.warnings:
-                    console.print(f"  [yellow]caution[/yellow] ({bp.name}): {w}")
+                    console.print(f"  [yellow]caution[/yellow] ({escape(bp.name)}): {escape(w)}")
                     warned = True
         if warned:
             console.print("  Cautions are common practice only; local codes and licensed "
