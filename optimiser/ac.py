@@ -169,11 +169,11 @@ def solve_network(net: Network, ss: SmallSignal, freqs, *, source_ohm: float = 0
     r_elems = [e for e in net.elements if e.kind == "R"]
     shorts = np.stack([np.asarray(e.value) == 0 for e in r_elems], axis=1) if r_elems else \
         np.zeros((n, 0), bool)
-    patterns, inverse = np.unique(shorts, axis=0, return_inverse=True)
-    inverse = np.asarray(inverse).ravel()
+    code = (shorts.astype(np.int64) << np.arange(shorts.shape[1], dtype=np.int64)).sum(axis=1)
     out = {name: np.zeros((nf, n), dtype=complex) for name in net.nodes}
-    for gi, pat in enumerate(patterns):
-        sel = np.nonzero(inverse == gi)[0]
+    for c in np.flatnonzero(np.bincount(code)):
+        sel = np.nonzero(code == c)[0]
+        pat = shorts[sel[0]]
         index, size = _classes(net, pat)
         if size == 0:
             continue
@@ -300,20 +300,28 @@ def _h_at(net, ss, f_per_design, source_ohm, load_ohm):
 
 
 def midband(request, batch: StageBatch, model: DeviceModel, op: OperatingPoint,
-            ss: SmallSignal | None = None) -> dict[str, np.ndarray]:
-    """Gain (complex, V/V), Zin and Zout (ohm) at ``request.mid_hz``; arrays (n,)."""
+            ss: SmallSignal | None = None, want_zout: bool = True) -> dict[str, np.ndarray]:
+    """Gain (complex, V/V), Zin and Zout (ohm) at ``request.mid_hz``; arrays (n,).
+
+    ``want_zout=False`` skips the output-impedance solve (Zout is then NaN).
+    """
     net = network_of(batch.topology, batch)
     ss = small_signal(op, model) if ss is None else ss
     f = [request.mid_hz]
     h = frequency_response(request, batch, model, op, f, ss)[0]
     zin_nodes = solve_network(net, ss, f, source_ohm=request.source_ohm,
                               load_ohm=request.load_ohm, mode="zin")
-    zout_nodes = solve_network(net, ss, f, source_ohm=request.source_ohm,
-                               load_ohm=request.load_ohm, mode="zout")
     w = 2.0 * math.pi * request.mid_hz
     with np.errstate(divide="ignore"):
         zin = zin_nodes[net.input][0] + 1.0 / (1j * w * np.asarray(net.c_in, dtype=float))
-        zout = zout_nodes[net.output][0] + 1.0 / (1j * w * np.asarray(net.c_out, dtype=float))
+    if want_zout:
+        zout_nodes = solve_network(net, ss, f, source_ohm=request.source_ohm,
+                                   load_ohm=request.load_ohm, mode="zout")
+        with np.errstate(divide="ignore"):
+            zout = zout_nodes[net.output][0] + 1.0 / (1j * w * np.asarray(net.c_out,
+                                                                          dtype=float))
+    else:
+        zout = np.full(zin.shape, np.nan + 0j)
     return {"h": h, "zin": zin, "zout": zout}
 
 

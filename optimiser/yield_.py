@@ -101,7 +101,7 @@ def _figures(request: Request, batch: StageBatch, transistor: Transistor, beta25
     op = operating_point(batch.topology, request.supply_v, batch, model, temp_c=temps,
                          beta=beta25)
     ss = ac.small_signal(op, model)
-    mid = ac.midband(request, batch, model, op, ss)
+    mid = ac.midband(request, batch, model, op, ss, want_zout=False)
     gain = np.abs(mid["h"])
     with np.errstate(divide="ignore"):
         out = {"gain": gain, "gain_db": 20 * np.log10(gain), "ic_a": op.ic, "vce_v": op.vce,
