@@ -9,6 +9,7 @@ dropped) is solved too; the MIP times are printed as ratios to it.
     python benchmarks/plan.py [--candidates N] [--time-limit S]
 """
 
+# ruff: noqa: T201  (a script: it prints its figures)
 from __future__ import annotations
 
 import argparse

@@ -211,7 +211,7 @@ def parse_buildlist(data: dict, *, file: str | None = None, base_dir: str | Path
     base = Path(base_dir) if base_dir is not None else Path.cwd()
     for key in data:
         if key not in TOP_KEYS:
-            raise _err(f"unknown key (known: [[build]] and [purchase])", file, loc, None, None,
+            raise _err("unknown key (known: [[build]] and [purchase])", file, loc, None, None,
                        key, key)
     entries = data.get("build")
     if entries is None:

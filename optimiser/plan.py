@@ -903,7 +903,7 @@ def diagnose(items: Sequence[PlanItem], rows: dict[int, Row], catalogue: Catalog
             pool_need[rows[s].pool] += k
     # which builds draw on which short pools
     users: dict[tuple[str, str], set[int]] = defaultdict(set)
-    for (b, j), n in sol.copies.items():
+    for (b, j) in sol.copies:
         for r in model.demand[(b, j)]:
             for (rr, s), k in sol.flow.items():
                 if rr == r and s in drawn and k > 0:

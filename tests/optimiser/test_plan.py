@@ -89,9 +89,9 @@ def brute_force(instance) -> tuple[float, float] | None:
         need_buy = defaultdict(int)      # pieces naming the bought row of value i
         need_q = defaultdict(int)
         score = 0.0
-        for (count, identical, cands), copies in zip(builds, choice):
+        for (_count, _identical, cands), copies in zip(builds, choice, strict=True):
             norm = normalised([c["score"] for c in cands])
-            for c, n, s in zip(cands, copies, norm):
+            for c, n, s in zip(cands, copies, norm, strict=True):
                 if n == 0:
                     continue
                 score += s * n
@@ -177,7 +177,7 @@ def instances(draw):
 
 def plan_score(plan, items) -> float:
     total = 0.0
-    for bp, it in zip(plan.builds, items):
+    for bp, it in zip(plan.builds, items, strict=True):
         norm = normalised([d.score for d in it.candidates])
         for a in bp.allocations:
             total += norm[a.candidate] * a.copies
@@ -190,7 +190,7 @@ def check_plan_respects_stock(plan, snap, cat, items):
     qty.update({t.id: t.qty for t in snap.transistors})
     taken = defaultdict(int)
     bought = defaultdict(int)
-    for bp, it in zip(plan.builds, items):
+    for bp, it in zip(plan.builds, items, strict=True):
         assert sum(a.copies for a in bp.allocations) == it.count
         if it.identical:
             assert len({tuple(sorted(a.design.values().items())) for a in bp.allocations}) == 1
