@@ -133,3 +133,82 @@ def test_hostile_stock_files_are_refused_cleanly_or_imported(tmp_path_factory):
     assert seen["refused"] > 0 and seen["ok"] > 0
     with open(tmp / "figures.txt", "w") as fh:      # for the closing note's figures
         fh.write(f"{seen}\n")
+
+
+# ----------------------------------------------------------- build lists (TOML)
+
+TOML_VALUES = ['"ce"', '"cc"', '"xx"', "12", "-5", "0", "1e400", "nan", "inf", '"12"', "true",
+               "[1, 2]", "{a = 1}", '"=1+1"', '"4k7"', '"1%"', "3.5", "9999999999999",
+               '"E24"', '"E7"', '""', "-inf", '"any"', '"GP-N1"']
+REQUEST_KEYS = ["topology", "supply_v", "load_ohm", "gain_db", "f_low_max_hz", "builds",
+                "transistor", "temp_c", "bogus_key"]
+BUILD_KEYS = ["count", "identical", "name", "colour"]
+PURCHASE_KEYS = ["series", "pack", "resistor_price", "line_cost", "capacitor_voltage", "nope"]
+
+
+@st.composite
+def build_lists(draw) -> bytes:
+    out = []
+    for _ in range(draw(st.integers(0, 2))):
+        out.append("[[build]]")
+        for key in draw(st.lists(st.sampled_from(BUILD_KEYS), max_size=3, unique=True)):
+            out.append(f"{key} = {draw(st.sampled_from(TOML_VALUES))}")
+        out.append("[build.request]")
+        keys = draw(st.lists(st.sampled_from(REQUEST_KEYS), max_size=5, unique=True))
+        if draw(st.booleans()):
+            keys = ["topology", "supply_v", *[k for k in keys if k not in ("topology",
+                                                                            "supply_v")]]
+        for key in keys:
+            out.append(f"{key} = {draw(st.sampled_from(TOML_VALUES))}")
+    if draw(st.booleans()):
+        out.append("[purchase]")
+        for key in draw(st.lists(st.sampled_from(PURCHASE_KEYS), max_size=3, unique=True)):
+            out.append(f"{key} = {draw(st.sampled_from(TOML_VALUES))}")
+    text = "\n".join(out) + "\n"
+    if draw(st.integers(0, 9)) == 0:
+        text = text[: draw(st.integers(0, len(text)))] + draw(st.sampled_from(['"', "[", "=",
+                                                                                "\x00", "é"]))
+    return text.encode("utf-8")
+
+
+def test_hostile_build_lists_never_touch_the_store(tmp_path_factory):
+    """`plan --commit` with Hypothesis-made build lists: exit 0 or 2, never a traceback;
+    whenever it exits 2 the store is exactly as before."""
+    tmp = tmp_path_factory.mktemp("fuzz_toml")
+    db = str(tmp / "stock.sqlite")
+    seed = tmp / "seed.csv"
+    seed.write_text("kind,value,qty,hfe_min,hfe_max\nresistor,4k7,10,,\nresistor,47k,4,,\n"
+                    "resistor,10k,4,,\nresistor,1k0,4,,\ncapacitor,10u,4,,\n"
+                    "npn,GP-N1,3,100,300\n")
+    store = open_store(db)
+    store.import_csv(seed)
+    runner = CliRunner()
+    seen = {"ok": 0, "refused": 0}
+
+    @settings(max_examples=max(20, FUZZ_EXAMPLES // 3), deadline=None, database=None,
+              suppress_health_check=[HealthCheck.too_slow])
+    @given(data=build_lists())
+    def check(data: bytes) -> None:
+        path = tmp / "list.toml"
+        path.write_bytes(data)
+        before = store.dump()
+        result = runner.invoke(cli, ["--db", db, "plan", str(path), "--commit", "--json",
+                                     "--candidates", "3", "--time-limit", "5"])
+        assert result.exit_code in (0, 2), (data, result.output, result.exception)
+        assert "Traceback" not in result.output
+        if result.exit_code == 2:
+            seen["refused"] += 1
+            lines = result.stderr.strip().splitlines()
+            assert lines and all(line.startswith("drawerfit: ") for line in lines), lines
+            assert store.dump() == before
+        else:
+            seen["ok"] += 1
+            assert store.check() == []
+
+    try:
+        check()
+    finally:
+        store.close()
+    assert seen["refused"] > 0
+    with open(tmp / "figures.txt", "w") as fh:
+        fh.write(f"{seen}\n")
