@@ -1,0 +1,122 @@
+"""Fast bounds the search prunes with (pure array functions, no stock, no I/O).
+
+Nothing here is a reported figure: the engine (:mod:`optimiser.evaluate`)
+confirms every design.  These functions only have to be *safe*: each bound
+below is documented in docs/search.md with the argument why it cannot discard
+a design the engine would accept.
+
+Units: volt, ampere, ohm, siemens; temperatures in °C.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.special import wrightomega
+
+from .device import DeviceModel, scaled, thermal_voltage
+
+__all__ = ["bias_current", "early_bounds", "midband_estimate"]
+
+
+def early_bounds(supply_v: float, model: DeviceModel) -> tuple[float, float]:
+    """Range of the Early factor ``q = 1 + V_CB/V_AF`` over any forward-active point.
+
+    V_CB lies between ``vce_sat − 1 V`` (V_BE below 1 V) and ``supply_v``.
+    """
+    if not np.isfinite(model.vaf):
+        return 1.0, 1.0
+    return 1.0 + (model.vce_sat - 1.0) / model.vaf, 1.0 + supply_v / model.vaf
+
+
+def bias_current(v_th, r_th, r_e, model: DeviceModel, temp_c=25.0, beta=None, q=1.0):
+    """Collector current of the divider-biased transistor for a fixed Early factor ``q``.
+
+    Solves ``V_TH = V_BE + x·(R_TH/β + R_E·(q + 1/β))`` with
+    ``x = I_S·e^{V_BE/V_T}`` (so ``I_B = x/β`` and ``I_C = q·x``) in closed form
+    by the Lambert W function.  The reverse (base–collector) diode terms are
+    left out: they matter only within a few tenths of a volt of saturation.
+    ``I_C`` grows with ``q`` (docs/search.md, bound B1), so the two ends of
+    :func:`early_bounds` bracket the collector current of the full model.
+
+    Returns
+    -------
+    ic : ndarray
+        Collector current, A (0 where V_TH ≤ 0).
+    """
+    is_t, beta_t = scaled(model, temp_c, beta)
+    vt = thermal_voltage(temp_c)
+    v_th = np.asarray(v_th, dtype=float)
+    reff = np.asarray(r_th, dtype=float) / beta_t + np.asarray(r_e, dtype=float) * (q + 1.0 / beta_t)
+    reff = np.maximum(reff, 1e-9)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        z = np.log(reff * is_t / vt) + v_th / vt
+        x = vt / reff * np.real(wrightomega(z))
+    x = np.where(np.isfinite(x), x, 0.0)
+    return q * np.maximum(x, 0.0)
+
+
+def midband_estimate(topology: str, *, r1, r2, rc, re, source_ohm, load_ohm, mid_hz, ss):
+    """Gain |v_load/v_emf| and junction drive |v_be/v_emf| with every capacitor shorted.
+
+    The same transistor stamps as :mod:`optimiser.ac` (``y_be = g_π + jωC_π``,
+    ``y_bc = g_μ + jω(C_tx + C_μ)``, ``y_ce = g_m``, ``y_cc = g_x − jωC_μ``) at
+    ``mid_hz`` on three nodes (base, emitter, collector), with the coupling and
+    bypass capacitors as shorts: the engine's midband figures of the stage
+    with capacitors shorted, to rounding.  ``re`` is the unbypassed emitter
+    resistance (0: emitter grounded); ``rc`` = 0 ties the collector to the
+    supply; ``load_ohm`` None is an open load.  ``ss`` is
+    :func:`optimiser.ac.small_signal` at the operating point.
+
+    Returns
+    -------
+    gain, drive : ndarray (V/V)
+    """
+    big = 1e12
+    r1, r2, rc, re = np.broadcast_arrays(*[np.asarray(a, dtype=float) for a in (r1, r2, rc, re)])
+    shape = r1.shape
+    w = 2.0 * np.pi * float(mid_hz)
+    gl = 0.0 if not load_ohm else 1.0 / float(load_ohm)
+    rs = float(source_ohm or 0.0)
+    gs = 1.0 / rs if rs > 0 else big
+    with np.errstate(divide="ignore"):
+        grc = np.where(rc > 0, 1.0 / np.where(rc > 0, rc, 1.0), big)
+        gre = np.where(re > 0, 1.0 / np.where(re > 0, re, 1.0), big)
+        gbias = 1.0 / r1 + 1.0 / r2
+    s = {k: np.broadcast_to(np.asarray(ss[k], dtype=float), shape)
+         for k in ("gpi", "cpi", "gmu_dc", "ctx", "cmu", "gm", "gx")}
+    y_be = s["gpi"] + 1j * w * s["cpi"]
+    y_bc = s["gmu_dc"] + 1j * w * (s["ctx"] + s["cmu"])
+    y_ce = s["gm"] + 0j
+    y_cc = s["gx"] - 1j * w * s["cmu"]
+    Y = np.zeros(shape + (3, 3), dtype=complex)
+    J = np.zeros(shape + (3,), dtype=complex)
+    B, E, C = 0, 1, 2
+    Y[..., B, B] += y_be + y_bc
+    Y[..., B, E] -= y_be
+    Y[..., B, C] -= y_bc
+    Y[..., C, B] += y_ce + y_cc
+    Y[..., C, E] -= y_ce
+    Y[..., C, C] -= y_cc
+    Y[..., E, B] -= y_be + y_bc + y_ce + y_cc
+    Y[..., E, E] += y_be + y_ce
+    Y[..., E, C] += y_bc + y_cc
+    if topology == "ce":
+        Y[..., B, B] += gbias + gs
+        Y[..., E, E] += gre
+        Y[..., C, C] += grc + gl
+        J[..., B] = gs
+        out = C
+    elif topology == "cb":
+        Y[..., B, B] += big
+        Y[..., E, E] += gre + gs
+        Y[..., C, C] += grc + gl
+        J[..., E] = gs
+        out = C
+    else:  # cc
+        Y[..., B, B] += gbias + gs
+        Y[..., E, E] += gre + gl
+        Y[..., C, C] += grc
+        J[..., B] = gs
+        out = E
+    v = np.linalg.solve(Y, J[..., None])[..., 0]
+    return np.abs(v[..., out]), np.abs(v[..., B] - v[..., E])

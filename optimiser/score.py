@@ -1,0 +1,78 @@
+"""The score that ranks designs meeting a request (lower is better).
+
+    score = |G∞ − G_target| / tol        gain:   G∞ the midband gain in dB with every
+                                                 capacitor shorted, target and tol in dB
+                                                 (0 when the request sets no gain)
+          + drift / 10 %                 bias drift: ic_drift_pct
+          + HD2 / 1 %                    distortion: the second harmonic the junction's
+                                         exponential law gives for the midband drive
+                                         v̂_be (capacitors shorted): HD2 = 25 %·v̂_be/V_T
+          + I_supply / 10 mA             supply current: through R1 plus I_C
+          + 0.25 × (rows emptied)        stock: each real resistor row or transistor
+                                         row the builds would empty
+
+The gain and distortion terms use the stage with its capacitors shorted (what
+the resistors and the transistor set), so that the score of a stage does not
+depend on which capacitors are picked; the capacitors are chosen afterwards,
+small ones that meet the request.  HD2 ≈ v̂_be/(4·V_T) is the textbook
+small-drive result for an exponential junction (from memory: Gray & Meyer,
+"Analysis and Design of Analog Integrated Circuits", large-signal BJT
+distortion); it ranks stages by how hard the signal drives the junction, which
+emitter degeneration reduces.  The reported thd_pct (the full quasi-static
+sweep) is a hard target when the request sets thd_max_pct.  Every term is documented in docs/search.md.
+Each term is ≥ 0, which the search uses as a lower bound before the
+distortion is known.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["DRIFT_UNIT_PCT", "THD_UNIT_PCT", "CURRENT_UNIT_A", "STOCK_PENALTY",
+           "gain_term", "hd2_pct", "score_terms", "score"]
+
+DRIFT_UNIT_PCT = 10.0
+THD_UNIT_PCT = 1.0
+CURRENT_UNIT_A = 10e-3
+STOCK_PENALTY = 0.25
+
+
+def gain_term(gain_inf_db, target_db: float | None, tol_db: float):
+    """Distance of the shorted-capacitor gain to the target, in units of the tolerance."""
+    g = np.asarray(gain_inf_db, dtype=float)
+    if target_db is None:
+        return np.zeros_like(g)
+    return np.abs(g - target_db) / max(float(tol_db), 1e-3)
+
+
+def hd2_pct(input_vpk: float, drive):
+    """Second-harmonic distortion in % of a junction driven with v̂_be = input_vpk·drive.
+
+    ``drive`` is |v_be/v_emf| at mid_hz with the capacitors shorted (V/V);
+    V_T at 25 °C.
+    """
+    from optimiser.device import thermal_voltage
+    return 25.0 * float(input_vpk) * np.asarray(drive, dtype=float) / thermal_voltage(25.0)
+
+
+def score_terms(*, gain_inf_db, target_db, tol_db, drift_pct, hd2_pct, supply_a, emptied):
+    """The five terms of the score as arrays (NaN drift or HD2 counts as 0).
+
+    Parameters are arrays (or scalars) broadcasting together: dB, %, %, A and a
+    count of emptied rows.
+    """
+    drift = np.nan_to_num(np.asarray(drift_pct, dtype=float), nan=0.0)
+    thd = np.nan_to_num(np.asarray(hd2_pct, dtype=float), nan=0.0)
+    return {
+        "gain": gain_term(gain_inf_db, target_db, tol_db),
+        "drift": drift / DRIFT_UNIT_PCT,
+        "distortion": thd / THD_UNIT_PCT,
+        "current": np.asarray(supply_a, dtype=float) / CURRENT_UNIT_A,
+        "stock": STOCK_PENALTY * np.asarray(emptied, dtype=float),
+    }
+
+
+def score(**kw):
+    """Sum of :func:`score_terms` (same arguments)."""
+    t = score_terms(**kw)
+    return t["gain"] + t["drift"] + t["distortion"] + t["current"] + t["stock"]
