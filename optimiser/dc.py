@@ -153,7 +153,26 @@ def solve_terminals(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf=0.0,
     args = np.broadcast_arrays(*[np.asarray(a, dtype=float) for a in
                                  (vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf)])
     shape = args[0].shape
-    vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf = [a.ravel() for a in args]
+    flat = [a.ravel() for a in args]
+    m = flat[0].size
+    if m > _CHUNK:
+        # cache-sized blocks: the Newton loop is memory-bound on large arrays
+        u = np.empty(m)
+        w = np.empty(m)
+        c = np.empty(m, dtype=bool)
+        for s in range(0, m, _CHUNK):
+            part = [a[s:s + _CHUNK] for a in flat]
+            u[s:s + _CHUNK], w[s:s + _CHUNK], c[s:s + _CHUNK] = _solve_flat(
+                *part, tol=tol, max_iter=max_iter)
+        return u.reshape(shape), w.reshape(shape), c.reshape(shape)
+    u, w, c = _solve_flat(*flat, tol=tol, max_iter=max_iter)
+    return u.reshape(shape), w.reshape(shape), c.reshape(shape)
+
+
+_CHUNK = 65536
+
+
+def _solve_flat(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, *, tol, max_iter):
     m = vb_th.size
 
     reff = rb / beta + re * (1.0 + 1.0 / beta)
@@ -213,7 +232,7 @@ def solve_terminals(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf=0.0,
         out_w[idx] = w
         if dn is not None:
             conv[idx] = dn
-    return out_u.reshape(shape), out_w.reshape(shape), conv.reshape(shape)
+    return out_u, out_w, conv
 
 
 def _op_from(vbe, vbc, vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf,
