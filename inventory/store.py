@@ -34,7 +34,7 @@ from typing import Any
 from sqlalchemy import create_engine, event, func, inspect, select, text
 from sqlalchemy.engine import URL, Engine, make_url
 from sqlalchemy.exc import ArgumentError, OperationalError, SQLAlchemyError
-from sqlalchemy.orm import Session, sessionmaker
+from sqlalchemy.orm import Session, selectinload, sessionmaker
 
 from inventory import tabular
 from inventory.errors import DrawerfitError, InputError, StockShortage, StoreError
@@ -396,7 +396,8 @@ class Store:
             "item", "change", "reason"}]}``.
         """
         with self._session(write=False) as s:
-            q = select(Batch).order_by(Batch.id.desc())
+            q = select(Batch).order_by(Batch.id.desc()).options(
+                selectinload(Batch.movements).selectinload(Movement.item))
             if limit is not None:
                 q = q.limit(int(limit))
             out = []
@@ -432,7 +433,8 @@ class Store:
         items = s.scalars(select(Item).with_for_update()).all()
         by_key = {tabular.part_key(_to_part(i)): i for i in items}
         problems: list[InputError] = []
-        ids: list[int] = []
+        plan: list[tuple[tabular.StockRow, Item]] = []
+        new: list[Item] = []
         for row in tabular.merge_rows(rows):
             part = row.part
             key = tabular.part_key(part)
@@ -446,15 +448,19 @@ class Store:
                     continue
             if item is None:
                 item = _new_item(part)
-                s.add(item)
-                s.flush()
+                new.append(item)
                 by_key[key] = item
-            if row.min_qty is not None:
-                item.min_qty = row.min_qty
-            self._move(s, batch, item, part.qty, reason)
-            ids.append(item.id)
+            plan.append((row, item))
         if problems:
             raise problems[0] if len(problems) == 1 else _errors(problems)
+        s.add_all(new)
+        s.flush()                      # one round of INSERTs gives every new item its id
+        ids: list[int] = []
+        for row, item in plan:
+            if row.min_qty is not None:
+                item.min_qty = row.min_qty
+            self._move(s, batch, item, row.part.qty, reason)
+            ids.append(item.id)
         return ids
 
     def import_csv(self, path: str | Path) -> int:

@@ -432,9 +432,10 @@ def read_stock_csv(path: str | Path, *, ignore_columns: Sequence[str] = ()) -> l
         lines = [i + 2 for i in range(len(frame))]
     has_min_qty = "min_qty" in names
     rows: list[StockRow] = []
-    for i, (_, rec) in enumerate(frame.iterrows()):
+    known = [n for n in names if n in COLUMNS]
+    for i, rec in enumerate(frame[known].to_dict("records")):
         line = lines[i]
-        cells = {n: _unquote(str(rec[n])) for n in names if n in COLUMNS}
+        cells = {n: _unquote(str(rec[n])) for n in known}
         if not any(c.strip() for c in cells.values()):
             continue
         part, min_qty, problems = _row_part(cells, has_min_qty)
