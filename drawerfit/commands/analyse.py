@@ -30,7 +30,7 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> N
     c = load_circuit(circuit, store=app.store)
     batch = c.batch()
     ev = evaluate(c.request, batch, c.transistor, c.ratings)
-    design = design_of(ev, 0, label=c.transistor.label)
+    design = design_of(ev, 0, picks=_stock_picks(c), label=c.transistor.label)
     yres = None
     if c.request.wants_yield:
         from optimiser.yield_ import apply_yield, monte_carlo, worst_case
@@ -40,6 +40,10 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> N
         apply_yield(design, yres, c.request)
         design.extra["worst_case"] = worst_case(c.request, c.values, c.transistor,
                                                 c.tolerances).to_json()
+    from optimiser.cautions import cautions
+
+    notes = cautions(design, c.request, c.transistor, corners=design.extra.get("drift"))
+    design.extra["cautions"] = [n.to_json() for n in notes]
     if as_json:
         emit_json({"request": c.request.to_json(), "design": design.to_json()})
         if sheet_dir is not None:
@@ -48,5 +52,33 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> N
     from drawerfit.render.analysis import show_analysis
 
     show_analysis(design, ev, 0, c, yres)
+    _show_cautions(notes)
     if sheet_dir is not None:
         sheet_for_circuit(sheet_dir, design, ev, c, yres)
+
+
+def _show_cautions(notes) -> None:
+    from drawerfit.console import out
+
+    for n in notes:
+        mark = "[yellow]caution:[/yellow]" if n.level == "caution" else "note:"
+        out.print(f"{mark} {n.text}")
+
+
+def _stock_picks(c):
+    """RolePicks with their stock piece for roles given by stock id (ratings for cautions)."""
+    from optimiser.design import Piece, RolePick
+
+    picks = {}
+    for role, item_id in c.stock_ids.items():
+        part = c.stock_parts[role]
+        is_r = getattr(part, "kind", "") == "resistor"
+        piece = Piece(value=float(part.value), count=1, id=item_id,
+                      location=getattr(part, "location", "") or "",
+                      kind="resistor" if is_r else "capacitor",
+                      tolerance=getattr(part, "tolerance", None),
+                      rating=getattr(part, "power_w", None) if is_r else
+                      getattr(part, "voltage_v", None),
+                      dielectric=None if is_r else getattr(part, "dielectric", None))
+        picks[role] = RolePick(role, float(part.value), c.labels.get(role, ""), (piece,))
+    return picks
