@@ -198,6 +198,7 @@ def _solve_flat(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, *, tol,
     idx = np.arange(m)
     p = [vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, vcrit]
     dn = None
+    sq_tol = np.sqrt(tol)
     for _ in range(max_iter):
         vbt, rbb, vet, ree, vct, rcc, iss, bb, vtt, iva, vcr = p
         ic, ib, dcu, dcw, dbu, dbw = junction_currents(u, w, iss, bb, vtt, iva)
@@ -210,9 +211,14 @@ def _solve_flat(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, *, tol,
         det = j11 * j22 - j12 * j21
         du = -(j22 * f1 - j12 * f2) / det
         dw = -(-j21 * f1 + j11 * f2) / det
-        un = _pnjlim(u + du, u, vtt, vcr)
-        wn = _pnjlim(w + dw, w, vtt, vcr)
-        done = (np.abs(du) <= tol * vtt) & (np.abs(dw) <= tol * vtt) & np.isfinite(un)
+        u_full, w_full = u + du, w + dw
+        un = _pnjlim(u_full, u, vtt, vcr)
+        wn = _pnjlim(w_full, w, vtt, vcr)
+        # Newton converges quadratically: in the forward-active region (V_CE > 0.3 V) an
+        # unlimited step below sqrt(tol)·V_T leaves an error of order tol·V_T once applied
+        step = np.maximum(np.abs(du), np.abs(dw))
+        quad = (step <= sq_tol * vtt) & (un == u_full) & (wn == w_full) & (un - wn > 0.3)
+        done = ((step <= tol * vtt) | quad) & np.isfinite(un)
         u, w = un, wn
         dn = done if dn is None else (dn | done)
         n_done = int(np.count_nonzero(dn))

@@ -81,3 +81,18 @@ def test_corner_shapes_broadcast():
     assert op.ic.shape == (2, 2)
     # warmer and higher β: more current
     assert (op.ic[:, 1] > op.ic[:, 0]).all()
+
+
+def test_converged_to_1e9_relative_against_a_much_tighter_solve():
+    r1, r2, rc, re = _random_networks(11, 20000)
+    v, r = thevenin(12.0, r1, r2)
+    from optimiser.device import junction_currents, scaled, thermal_voltage
+
+    is_, beta = scaled(M, 25.0)
+    vt = thermal_voltage(25.0)
+    a = solve_terminals(v, r, 0.0, re, 12.0, rc, is_, beta, vt, 1 / M.vaf)
+    b = solve_terminals(v, r, 0.0, re, 12.0, rc, is_, beta, vt, 1 / M.vaf, tol=1e-15)
+    ica = junction_currents(a[0], a[1], is_, beta, vt, 1 / M.vaf)[0]
+    icb = junction_currents(b[0], b[1], is_, beta, vt, 1 / M.vaf)[0]
+    on = icb > 1e-9
+    assert np.max(np.abs(ica[on] / icb[on] - 1)) < 1e-9
