@@ -103,3 +103,31 @@ def sheet_for_circuit(directory, design, evaluation, circuit, yield_result=None,
     return sheet_for_design(directory, design_with_circuit_parts(design, circuit),
                             circuit.request, circuit.transistor, evaluation=sub,
                             yield_result=yield_result, quiet=quiet)
+
+
+rank_option = click.option(
+    "--rank", "sheet_rank", type=click.IntRange(1, 100), default=1, show_default=True,
+    help="Which ranked design --sheet draws.")
+
+
+def sheet_for_search(directory, result, rank: int, snapshot, *, quiet: bool = False):
+    """The sheet of the design ranked ``rank`` in a search result (``design --sheet``).
+
+    Returns the WrittenSheet, or None when no design meets the request (nothing is
+    drawn then; a line on stderr says so).
+    """
+    from drawerfit.console import err
+
+    designs = list(result.designs)
+    if not designs:
+        err.print("--sheet: no design meets the request, so no build sheet was written.")
+        return None
+    if rank > len(designs):
+        raise InputError(f"there {'is' if len(designs) == 1 else 'are'} only {len(designs)} "
+                         f"design{'s' if len(designs) != 1 else ''}; choose a rank from 1 to "
+                         f"{len(designs)}", field="--rank")
+    design = next((d for d in designs if d.rank == rank), designs[rank - 1])
+    transistor = snapshot.transistor(design.transistor)
+    if transistor is None:
+        raise InputError(f"transistor {design.transistor!r} is not in stock", field="--sheet")
+    return sheet_for_design(directory, design, result.request, transistor, quiet=quiet)
