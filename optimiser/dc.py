@@ -34,6 +34,7 @@ __all__ = [
     "solve_bias",
     "operating_point",
     "thevenin",
+    "forward_active_ic",
 ]
 
 #: Below this collector current (A) a candidate is reported as cut off.
@@ -312,3 +313,24 @@ def operating_point(topology: str, supply_v: float, batch: StageBatch, model: De
     if len(tshape) == 2:
         v_th, r_th, re, rc, byp = (a[:, None] for a in (v_th, r_th, re, rc, byp))
     return solve_bias(v_th, r_th, re, rc, supply_v, model, temp_c, beta, re_byp=byp)
+
+
+def forward_active_ic(v_th, r_th, re, model: DeviceModel, temp_c=25.0, beta=None, vcb=0.0):
+    """Collector current of the base loop alone, in closed form, for fast pruning (A).
+
+    Assumes the forward-active region with the collector–base voltage ``vcb``
+    (V, default 0: the data-sheet condition) for the Early factor
+    ``q = 1 + vcb/V_AF``: ``V_TH = I_B·R_TH + V_BE + I_E·R_E`` with
+    ``I_C = q·I_S·e^{V_BE/V_T}``, ``I_B = I_S·e^{V_BE/V_T}/β`` solved by the Lambert W
+    function.  No collector network is needed, so it ranks bias networks (R1, R2,
+    R_E) before R_C is chosen; :func:`solve_bias` gives the exact figures.
+    """
+    is_t, beta_t = scaled(model, temp_c, beta)
+    vt = thermal_voltage(temp_c)
+    inv_vaf = 0.0 if not np.isfinite(model.vaf) else 1.0 / model.vaf
+    q = 1.0 + np.asarray(vcb, dtype=float) * inv_vaf
+    r_th = np.asarray(r_th, dtype=float)
+    re = np.asarray(re, dtype=float)
+    reff = r_th / beta_t + re * (q + 1.0 / beta_t)
+    u = _initial_vbe(np.asarray(v_th, dtype=float), reff, is_t, vt)
+    return q * is_t * np.exp(u / vt)

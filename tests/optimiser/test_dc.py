@@ -96,3 +96,15 @@ def test_converged_to_1e9_relative_against_a_much_tighter_solve():
     icb = junction_currents(b[0], b[1], is_, beta, vt, 1 / M.vaf)[0]
     on = icb > 1e-9
     assert np.max(np.abs(ica[on] / icb[on] - 1)) < 1e-9
+
+
+def test_closed_form_pruning_current_matches_the_full_solver():
+    """forward_active_ic (Lambert W, base loop only) vs the full solver where V_CB is known."""
+    from optimiser.dc import forward_active_ic
+
+    r1, r2, rc, re = _random_networks(13, 5000)
+    v, r = thevenin(12.0, r1, r2)
+    op = solve_bias(v, r, re, rc, 12.0, M)
+    fa = ~op.saturated & ~op.cutoff & (op.vce > 1.0)
+    ic = forward_active_ic(v, r, re, M, vcb=op.vce - op.vbe)
+    np.testing.assert_allclose(ic[fa], op.ic[fa], rtol=1e-6)
