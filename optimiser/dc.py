@@ -128,8 +128,9 @@ def _saturated_vbc(u, vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, w_default)
         ebe = (ic + 2.0 * ib) / (is_ * (1.0 + 2.0 / beta))
         ebc = ib / is_ - ebe / beta
         w = vt * np.log(ebc)
-    good = np.isfinite(w) & (ebc > 0) & (w < u)
-    return np.where(good, w, np.minimum(w_default, u - vs))
+        u_new = vt * np.log(ebe)
+    good = np.isfinite(w) & (ebc > 0) & (w < u) & np.isfinite(u_new) & (u_new > w)
+    return (np.where(good, u_new, u), np.where(good, w, np.minimum(w_default, u - vs)))
 
 
 def solve_terminals(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf=0.0,
@@ -189,7 +190,7 @@ def _solve_flat(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, *, tol,
     w = u - np.maximum(vce0, 0.3)
     sat = vce0 < 0.15
     if sat.any():
-        w[sat] = _saturated_vbc(u[sat], vb_th[sat], rb[sat], ve_th[sat], re[sat], vc_th[sat],
+        u[sat], w[sat] = _saturated_vbc(u[sat], vb_th[sat], rb[sat], ve_th[sat], re[sat], vc_th[sat],
                                 rc[sat], is_[sat], beta[sat], vt[sat], w[sat])
     vcrit = vt * np.log(vt / (np.sqrt(2.0) * is_))
 
