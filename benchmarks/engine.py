@@ -1,3 +1,4 @@
+# ruff: noqa: T201  (a benchmark script prints its figures)
 """Engine speed: DC operating points, AC response, and ngspice per design, in one run.
 
     python benchmarks/engine.py [--dc N] [--ac N] [--spice N]

@@ -1,3 +1,4 @@
+# ruff: noqa: T201  (a benchmark script prints its figures)
 """Monte Carlo speed: 10^4 samples of one design (DC and midband AC) in one vectorised run.
 
     python benchmarks/yield.py [--samples N] [--loop M]
@@ -19,7 +20,6 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from inventory.parts import Transistor  # noqa: E402
 from optimiser.evaluate import evaluate  # noqa: E402
 from optimiser.request import Request  # noqa: E402
-from optimiser.stage import StageBatch  # noqa: E402
 from optimiser.yield_ import draw, monte_carlo  # noqa: E402
 
 T = Transistor("GP-N1", hfe_min=100, hfe_max=300, vaf=100, ft=250e6, cob=4e-12)

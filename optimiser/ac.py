@@ -102,7 +102,7 @@ def _classes(net: Network, short_mask: np.ndarray):
         return a
 
     r_elems = [e for e in net.elements if e.kind == "R"]
-    for e, short in zip(r_elems, short_mask):
+    for e, short in zip(r_elems, short_mask, strict=True):
         if short:
             ra, rb = find(e.a), find(e.b)
             if ra != rb:

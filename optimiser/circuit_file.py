@@ -41,7 +41,7 @@ from inventory.parts import (
 )
 
 from .request import CIRCUIT_KEYS, Request, _line_of, parse_request, read_toml
-from .stage import CAPACITOR_ROLES, REQUIRED, RESISTOR_ROLES, ROLES, PartRatings, StageBatch
+from .stage import REQUIRED, RESISTOR_ROLES, ROLES, PartRatings, StageBatch
 
 __all__ = ["Circuit", "parse_circuit", "load_circuit", "TRANSISTOR_KEYS"]
 

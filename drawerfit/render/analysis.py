@@ -7,7 +7,7 @@ import math
 from rich.table import Table
 
 from drawerfit.console import out
-from inventory.values import format_si, format_value
+from inventory.values import format_si
 
 __all__ = ["show_analysis"]
 

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import numpy as np
-import pytest
 
 from inventory.parts import Transistor
 from optimiser.evaluate import DERATING, METRIC_KEYS, design_of, evaluate

@@ -311,3 +311,9 @@ def swing_from_curve(emf, v_load, vce, ic, ic0: float, vce_sat: float,
     vp = np.interp(a, emf, v_load)
     vn = np.interp(-a, emf, v_load)
     return float(min(max(vp, vn, 0.0), max(-vp, -vn, 0.0)))
+
+
+@pytest.fixture
+def ngspice() -> str:
+    """Fixture form of :func:`require_ngspice` (import it into a test module to use it)."""
+    return require_ngspice()

@@ -94,7 +94,7 @@ def test_band_edges(compared):
 
 def test_thd_and_swing(compared):
     variant, req, ev, model, sp, qs, sw = compared
-    for i, (q, s) in enumerate(zip(qs, sw)):
+    for i, (q, s) in enumerate(zip(qs, sw, strict=True)):
         ref = thd_from_curve(q["emf"], q["v_load"], req.input_vpk)
         ours = ev.metrics["thd_pct"][i]
         if ref < 0.5:
