@@ -6,7 +6,8 @@
           + drift / 10 %                 bias drift: ic_drift_pct
           + HD2 / 1 %                    distortion: the second harmonic the junction's
                                          exponential law gives for the midband drive
-                                         v̂_be (capacitors shorted): HD2 = 25 %·v̂_be/V_T
+                                         v̂_be (capacitors shorted), reduced by the local
+                                         feedback: HD2 = 25 %·(v̂_be/V_T)/(1 + g_m·R_deg)
           + I_supply / 10 mA             supply current: through R1 plus I_C
           + 0.25 × (rows emptied)        stock: each real resistor row or transistor
                                          row the builds would empty
@@ -15,10 +16,11 @@ The gain and distortion terms use the stage with its capacitors shorted (what
 the resistors and the transistor set), so that the score of a stage does not
 depend on which capacitors are picked; the capacitors are chosen afterwards,
 small ones that meet the request.  HD2 ≈ v̂_be/(4·V_T) is the textbook
-small-drive result for an exponential junction (from memory: Gray & Meyer,
-"Analysis and Design of Analog Integrated Circuits", large-signal BJT
-distortion); it ranks stages by how hard the signal drives the junction, which
-emitter degeneration reduces.  The reported thd_pct (the full quasi-static
+small-drive result for an exponential junction, and local feedback of loop
+gain T = g_m·R_deg divides the closed-loop second harmonic by 1 + T (from
+memory: Gray & Meyer, "Analysis and Design of Analog Integrated Circuits",
+large-signal BJT distortion and the effect of feedback on distortion).
+R_deg is the unbypassed emitter resistance (ce), R_S‖RE (cb) or RE‖R_L (cc).  The reported thd_pct (the full quasi-static
 sweep) is a hard target when the request sets thd_max_pct.  Every term is documented in docs/search.md.
 Each term is ≥ 0, which the search uses as a lower bound before the
 distortion is known.
@@ -29,7 +31,7 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["DRIFT_UNIT_PCT", "THD_UNIT_PCT", "CURRENT_UNIT_A", "STOCK_PENALTY",
-           "gain_term", "hd2_pct", "score_terms", "score"]
+           "gain_term", "hd2_pct", "degeneration", "score_terms", "score"]
 
 DRIFT_UNIT_PCT = 10.0
 THD_UNIT_PCT = 1.0
@@ -45,14 +47,28 @@ def gain_term(gain_inf_db, target_db: float | None, tol_db: float):
     return np.abs(g - target_db) / max(float(tol_db), 1e-3)
 
 
-def hd2_pct(input_vpk: float, drive):
+def hd2_pct(input_vpk: float, drive, loop=0.0):
     """Second-harmonic distortion in % of a junction driven with v̂_be = input_vpk·drive.
 
-    ``drive`` is |v_be/v_emf| at mid_hz with the capacitors shorted (V/V);
-    V_T at 25 °C.
+    ``drive`` is |v_be/v_emf| at mid_hz with the capacitors shorted (V/V),
+    ``loop`` the local loop gain g_m·R_deg; V_T at 25 °C.
     """
     from optimiser.device import thermal_voltage
-    return 25.0 * float(input_vpk) * np.asarray(drive, dtype=float) / thermal_voltage(25.0)
+    return 25.0 * float(input_vpk) * np.asarray(drive, dtype=float) / thermal_voltage(25.0) / (
+        1.0 + np.asarray(loop, dtype=float))
+
+
+def degeneration(topology: str, re, source_ohm: float, load_ohm: float | None):
+    """R_deg of the distortion term (ohm): RE (ce), R_S‖RE (cb), RE‖R_L (cc)."""
+    re = np.asarray(re, dtype=float)
+    if topology == "ce":
+        return re
+    if topology == "cb":
+        rs = float(source_ohm or 0.0)
+        return np.where(re > 0, rs * re / np.maximum(rs + re, 1e-300), rs) if rs > 0 else 0.0 * re
+    if load_ohm:
+        return re * load_ohm / (re + load_ohm)
+    return re
 
 
 def score_terms(*, gain_inf_db, target_db, tol_db, drift_pct, hd2_pct, supply_a, emptied):

@@ -44,7 +44,7 @@ from optimiser.options import (
     StockOptions,
 )
 from optimiser.request import Request
-from optimiser.score import hd2_pct, score_terms
+from optimiser.score import degeneration, hd2_pct, score_terms
 from optimiser.stage import PartRatings, StageBatch
 
 __all__ = ["SearchResult", "search", "check_request", "FORMS", "SHORT_F",
@@ -272,6 +272,7 @@ class _Job:
         o = np.argsort(etot, kind="stable")
         self.re_a, self.byp_a, self.etot = re_a[o], byp_a[o], etot[o]
         self.utot = np.unique(self.etot)
+        self.tb = TOTALS_BLOCK if self.utot.size > 4 * TOTALS_BLOCK else 1
         self.q_lo, self.q_hi = early_bounds(V, model)
         self.corners = _corner_points(request, t)
         self.rel = DRIFT_REL_SLACK * (V + 1.0) / model.vaf if math.isfinite(model.vaf) else 0.0
@@ -284,29 +285,32 @@ class _Job:
         pr[key] = pr.get(key, 0) + int(n)
 
     def pair_blocks(self):
-        step = max(1, CHUNK // max(self.utot.size, 1))
+        nb = -(-self.utot.size // self.tb)
+        step = max(1, CHUNK // max(nb, 1))
         for s in range(0, self.R1.size, step):
             yield float(self.plb[s]), np.arange(s, min(s + step, self.R1.size))
 
-    def expand_pairs(self, p: np.ndarray, upper: float):
-        """Bias nodes of the pairs ``p``: arrays sorted by their bound."""
+    def _bounds(self, P, r_small, r_big, upper: float):
+        """Bounds for pair P with DC emitter totals anywhere in [r_small, r_big].
+
+        I_C falls and V_E·I_C-stability rises with the emitter resistance
+        (B7), so the smallest current and drift are those at ``r_big`` and the
+        largest current the one at ``r_small``.
+        """
         from optimiser.prune import bias_current
 
         model, V = self.model, self.V
-        P, E = np.meshgrid(p, np.arange(self.utot.size), indexing="ij")
-        P, E = P.ravel(), E.ravel()
-        self.stats["bias_nodes"] = self.stats.get("bias_nodes", 0) + int(P.size)
-        v_th, r_th, r_e = self.vth[P], self.rth[P], self.utot[E]
+        v_th, r_th = self.vth[P], self.rth[P]
         # B1: I_C lies between its values at the extreme Early factors
-        ic_lo = bias_current(v_th, r_th, r_e, model, 25.0, None, self.q_lo)
-        ic_hi = bias_current(v_th, r_th, r_e, model, 25.0, None, self.q_hi)
+        ic_lo = bias_current(v_th, r_th, r_big, model, 25.0, None, self.q_lo)
+        ic_hi = bias_current(v_th, r_th, r_small, model, 25.0, None, self.q_hi)
         ok = ic_lo <= model.ic_max * (1 + 1e-9)
         # B2: drift at a common Early factor, with a margin for the factor's spread
         q_mid = 0.5 * (self.q_lo + self.q_hi)
-        ic_mid = bias_current(v_th, r_th, r_e, model, 25.0, None, q_mid)
+        ic_mid = bias_current(v_th, r_th, r_big, model, 25.0, None, q_mid)
         d = np.zeros_like(ic_mid)
         for tc, b in self.corners:
-            icc = bias_current(v_th, r_th, r_e, model, tc, b, q_mid)
+            icc = bias_current(v_th, r_th, r_big, model, tc, b, q_mid)
             with np.errstate(divide="ignore", invalid="ignore"):
                 d = np.maximum(d, np.abs(icc - ic_mid) / ic_mid * 100.0)
         d = np.nan_to_num(d, nan=0.0, posinf=np.inf)
@@ -314,7 +318,43 @@ class _Job:
         if self.request.ic_drift_max_pct is not None:
             ok &= d_lb <= self.request.ic_drift_max_pct
         nlb = d_lb / 10.0 + (V / (self.R1[P] + self.R2[P]) + ic_lo) / 10e-3
+        # B8: a gain G needs a junction drive v_be ≥ G·v_in·V_T/(I_C·R) with
+        # I_C·R ≤ min(I_C·R_L, V − vce_sat), so HD2 ≥ 25 %·G·v_in/min(...)
+        if self.win is not None and self.topo in ("ce", "cb"):
+            room = V - model.vce_sat
+            if self.request.load_ohm:
+                room = np.minimum(room, ic_hi * self.request.load_ohm)
+            from optimiser.device import thermal_voltage
+            rdeg = (r_big if self.form != "fully bypassed" else 0.0) if self.topo == "ce" \
+                else float(self.request.source_ohm or 0.0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                h = 25.0 * self.win[0] * self.request.input_vpk / room / GAIN_BOUND_MARGIN / (
+                    1.0 + ic_hi * rdeg / thermal_voltage(25.0))
+            nlb = nlb + np.nan_to_num(h, nan=np.inf, posinf=np.inf)
         ok &= nlb < upper
+        return ok, ic_lo, ic_hi, d_lb, nlb
+
+    def expand_pairs(self, p: np.ndarray, upper: float):
+        """Blocks of emitter totals for the pairs ``p``, sorted by their bound."""
+        nb = -(-self.utot.size // self.tb)
+        P, K = np.meshgrid(p, np.arange(nb), indexing="ij")
+        P, K = P.ravel(), K.ravel()
+        a = K * self.tb
+        b = np.minimum(a + self.tb, self.utot.size) - 1
+        ok, _, _, _, lb = self._bounds(P, self.utot[a], self.utot[b], upper)
+        self.count("bias_blocks", (~ok).sum() * self.tb)
+        P, a, b, lb = P[ok], a[ok], b[ok], lb[ok]
+        o = np.argsort(lb, kind="stable")
+        return P[o], a[o], b[o], lb[o]
+
+    def expand_blocks(self, P, a, b, upper: float):
+        """Bias nodes (pair × each total of its block), sorted by their bound."""
+        cnt = b - a + 1
+        rep, offs = _expand(cnt)
+        P, E = P[rep], a[rep] + offs
+        self.stats["bias_nodes"] = self.stats.get("bias_nodes", 0) + int(P.size)
+        r = self.utot[E]
+        ok, ic_lo, ic_hi, d_lb, nlb = self._bounds(P, r, r, upper)
         self.count("bias", (~ok).sum())
         P, E, ic_lo, ic_hi, d_lb, nlb = P[ok], E[ok], ic_lo[ok], ic_hi[ok], d_lb[ok], nlb[ok]
         o = np.argsort(nlb, kind="stable")
@@ -358,6 +398,24 @@ class _Job:
         Pc = P[rep]
         REc, BYc, dlb = REv[rep], BYv[rep], d_lb[rep]
         RCc, RCbest = self.rc_vals[offs], self.rc_best[offs]
+        # B8 with RC known, before the exact DC point
+        pre = dlb / 10.0 + (V / (self.R1[Pc] + self.R2[Pc]) + ic_lo[rep]) / 10e-3
+        if self.win is not None and topo in ("ce", "cb"):
+            rl = request.load_ohm
+            zc = RCc if not rl else RCc * rl / (RCc + rl)
+            room = np.minimum(ic_hi[rep] * zc, V - model.vce_sat)
+            from optimiser.device import thermal_voltage
+            rdeg = degeneration(topo, REc, request.source_ohm, request.load_ohm)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                h = 25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
+                    1.0 + ic_hi[rep] * rdeg / thermal_voltage(25.0))
+            pre = pre + np.nan_to_num(h, nan=np.inf, posinf=np.inf)
+        keep = pre < upper
+        self.count("score_bound_pre", (~keep).sum())
+        if not keep.all():
+            Pc, REc, BYc, dlb, RCc, RCbest = (x[keep] for x in (Pc, REc, BYc, dlb, RCc, RCbest))
+        if Pc.size == 0:
+            return None
         r1c, r2c = self.R1[Pc], self.R2[Pc]
         op = solve_bias(self.vth[Pc], self.rth[Pc], REc + BYc, RCc, V, model)
         good = op.converged & (op.vce >= model.vce_sat) & (op.ic <= model.ic_max) \
@@ -378,7 +436,8 @@ class _Job:
                 source_ohm=request.source_ohm, load_ohm=request.load_ohm,
                 mid_hz=request.mid_hz, ss=ss)
             gdb[sel] = 20 * np.log10(np.maximum(g, 1e-300))
-            hd2[sel] = hd2_pct(request.input_vpk, drive)
+            loop = ss["gm"] * degeneration(topo, REc[sel], request.source_ohm, request.load_ohm)
+            hd2[sel] = hd2_pct(request.input_vpk, drive, loop)
         if self.win is not None:
             lo_db = 20 * math.log10(self.win[0]) - GAIN_SLACK_DB
             hi_db = 20 * math.log10(self.win[1]) + HIGH_GAIN_SLACK_DB
@@ -511,6 +570,7 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
 QUICK_BATCH = 2000
 CONFIRM_BATCH = 48
 NODE_BLOCK = 8192
+TOTALS_BLOCK = 16
 
 
 def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
@@ -551,12 +611,17 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
         lb, _, kind, payload = heapq.heappop(heap)
         if kind == "pairs":
             j, p = payload
-            P, E, ic_lo, d_lb, nlb = jobs[j].expand_pairs(p, kth)
-            # blocks of bias nodes, each expanding to about CHUNK candidates
-            per = NODE_BLOCK
-            for s in range(0, P.size, per):
-                sl = slice(s, s + per)
-                heapq.heappush(heap, (float(nlb[s]), next(seq), "nodes",
+            P, a, b, blb = jobs[j].expand_pairs(p, kth)
+            for s0 in range(0, P.size, NODE_BLOCK):
+                sl = slice(s0, s0 + NODE_BLOCK)
+                heapq.heappush(heap, (float(blb[s0]), next(seq), "blocks",
+                                      (j, P[sl], a[sl], b[sl])))
+        elif kind == "blocks":
+            j, P, a, b = payload
+            P, E, ic_lo, d_lb, nlb = jobs[j].expand_blocks(P, a, b, kth)
+            for s0 in range(0, P.size, NODE_BLOCK):
+                sl = slice(s0, s0 + NODE_BLOCK)
+                heapq.heappush(heap, (float(nlb[s0]), next(seq), "nodes",
                                       (j, P[sl], E[sl], ic_lo[:, sl], d_lb[sl])))
         elif kind == "nodes":
             j, P, E, ic_lo, d_lb = payload
@@ -661,7 +726,8 @@ def skeleton_figures(request: Request, batch: StageBatch, transistor: Transistor
     with np.errstate(divide="ignore", invalid="ignore"):
         drift = 100.0 * np.max(np.abs(cop.ic - op.ic[:, None]), axis=1) / op.ic
     return {"gain_inf_db": 20 * np.log10(np.maximum(g, 1e-300)),
-            "hd2_pct": hd2_pct(request.input_vpk, drive),
+            "hd2_pct": hd2_pct(request.input_vpk, drive, np.asarray(ss["gm"]) * degeneration(
+                batch.topology, batch.RE, request.source_ohm, request.load_ohm)),
             "supply_a": (request.supply_v - op.vb) / batch.R1 + op.ic,
             "drift_pct": drift}
 

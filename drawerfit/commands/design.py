@@ -1,8 +1,89 @@
-"""`drawerfit design` (to be written)."""
+"""`drawerfit design REQUEST.toml`: the best stages buildable from the drawer."""
+
+from __future__ import annotations
 
 import click
 
+from drawerfit.cli import pass_app
+from drawerfit.console import emit_json, err, out
 
-@click.group(name="design")
-def command() -> None:
-    """(not yet available)"""
+__all__ = ["command", "run_design"]
+
+
+def _locate(exc, path: str, text: str):
+    """Give a request-check error the file and the line of its key."""
+    from inventory.errors import InputError, InputErrors
+    from optimiser.request import _line_of
+
+    def one(e: InputError) -> InputError:
+        line = None
+        for key in (e.field, "gain" if e.field == "gain_db" else None):
+            if key and line is None:
+                line = _line_of(text, key)
+        return e.located(file=path, line=line)
+
+    if isinstance(exc, InputErrors):
+        return InputErrors([one(e) for e in exc.errors])
+    return one(exc)
+
+
+def run_design(request, snapshot, *, top: int, progress: bool):
+    """Run the search (with a progress bar on stderr when asked)."""
+    from optimiser.search import search
+
+    if not progress:
+        return search(request, snapshot, top=top)
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    with Progress(TextColumn("[dim]{task.description}"), BarColumn(),
+                  TimeElapsedColumn(), console=err, transient=True) as bar:
+        task = bar.add_task("searching", total=top)
+
+        def tick(done, total, text):
+            bar.update(task, completed=done, total=total, description=text)
+
+        return search(request, snapshot, top=top, progress=tick)
+
+
+@click.command(name="design")
+@click.argument("request_file", metavar="REQUEST.toml", type=click.Path(dir_okay=False))
+@click.option("--top", "top", type=click.IntRange(1, 100), default=5, show_default=True,
+              help="How many ranked designs to show.")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON (interface.md) instead of tables.")
+@pass_app
+def command(app, request_file: str, top: int, as_json: bool) -> None:
+    """Find the best stages you can build from your drawer for REQUEST.toml.
+
+    Prints the ranked designs with the bin of every part, or, when nothing in
+    stock meets the request, the nearest misses and what would unlock it.
+    """
+    from inventory.errors import InputError
+    from optimiser.request import load_request, read_toml
+    from optimiser.search import check_request
+
+    request = load_request(request_file)
+    store = app.store()
+    snapshot = store.snapshot()
+    try:
+        check_request(request, snapshot)
+    except InputError as exc:
+        _, text = read_toml(request_file)
+        raise _locate(exc, request_file, text) from None
+    result = run_design(request, snapshot, top=top, progress=not as_json and err.is_terminal)
+    if as_json:
+        emit_json(result.to_json())
+        return
+    from drawerfit.render.designs import show_result
+
+    show_result(out, result, cautions_for=_cautions(request, snapshot))
+
+
+def _cautions(request, snapshot):
+    def f(design):
+        try:
+            from optimiser.cautions import cautions
+        except ImportError:
+            return []
+        return [c for c in cautions(design, request, snapshot.transistor(design.transistor))
+                if c.level == "caution" or c.kind in ("mains", "verify")]
+    return f
