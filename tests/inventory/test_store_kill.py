@@ -28,11 +28,11 @@ CSV_HEADER = "kind,value,qty,location\n"
 
 #: (operation, when to kill): the k-th INSERT/UPDATE of the transaction, or "commit"
 #: (just before COMMIT is sent).
-KILL_POINTS = [("import", 1), ("import", 40), ("import", "commit"),
+KILL_POINTS = [("import", 1), ("import", 3), ("import", "commit"),
                ("build", 2), ("build", "commit")]
 
 
-def _child(url: str, operation: str, when, csv_path: str, pieces: dict, ready) -> None:
+def _child(url: str, operation: str, when, csv_path: str, pieces: dict, ready, done) -> None:
     store = open_store(url)
     writes = 0
 
@@ -58,7 +58,8 @@ def _child(url: str, operation: str, when, csv_path: str, pieces: dict, ready) -
     else:
         store.commit_builds([{"request": "killed.toml", "copies": 1, "design": {"x": 1},
                               "pieces": pieces}])
-    os._exit(3)   # not reached when the kill lands
+    done.set()    # not reached when the kill lands
+    os._exit(3)
 
 
 @pytest.mark.parametrize("operation, when", KILL_POINTS)
@@ -75,12 +76,15 @@ def test_sigkill_part_way_leaves_the_store_as_before(store_url, tmp_path, operat
     store.close()
 
     ctx = mp.get_context("fork")
-    ready = ctx.Event()
+    ready, done = ctx.Event(), ctx.Event()
     proc = ctx.Process(target=_child, args=(store_url, operation, when, str(big),
-                                            {i: 3 for i in ids[:5]}, ready))
+                                            {i: 3 for i in ids[:5]}, ready, done))
     proc.start()
     try:
-        assert ready.wait(120), "the child never reached the kill point"
+        for _ in range(1200):
+            if ready.wait(0.1) or done.is_set() or not proc.is_alive():
+                break
+        assert ready.is_set(), "the child finished without reaching the kill point"
         os.kill(proc.pid, signal.SIGKILL)
     finally:
         proc.join(30)
