@@ -386,6 +386,22 @@ class Store:
         """Items below their restock level (qty < min_qty)."""
         return [p for p in self.parts() if p.qty < p.min_qty]
 
+    def batch(self, batch_id: int) -> dict:
+        """One batch as in :meth:`history`.  InputError if there is none."""
+        with self._session(write=False) as s:
+            b = s.get(Batch, int(batch_id))
+            if b is None:
+                raise InputError(f"no batch {batch_id}; see `drawerfit stock history`")
+            return self._batch_dict(b)
+
+    @staticmethod
+    def _batch_dict(b: Batch) -> dict:
+        return {"batch": b.id, "when": _iso(b.when), "kind": b.kind, "note": b.note,
+                "undone_by": b.undone_by,
+                "movements": [{"item_id": m.item_id, "item": describe(_to_part(m.item)),
+                               "change": m.change, "reason": m.reason}
+                              for m in b.movements]}
+
     def history(self, limit: int | None = None) -> list[dict]:
         """Batches, newest first, each with its movements.
 
@@ -400,16 +416,7 @@ class Store:
                 selectinload(Batch.movements).selectinload(Movement.item))
             if limit is not None:
                 q = q.limit(int(limit))
-            out = []
-            for b in s.scalars(q).all():
-                out.append({
-                    "batch": b.id, "when": _iso(b.when), "kind": b.kind, "note": b.note,
-                    "undone_by": b.undone_by,
-                    "movements": [{"item_id": m.item_id, "item": describe(_to_part(m.item)),
-                                   "change": m.change, "reason": m.reason}
-                                  for m in b.movements],
-                })
-            return out
+            return [self._batch_dict(b) for b in s.scalars(q).all()]
 
     # -- booking -----------------------------------------------------------
 

@@ -30,7 +30,7 @@ def import_(app, file: str) -> None:
     """
     store = app.store()
     batch = store.import_csv(file)
-    moves = store.history(limit=1)[0]["movements"]
+    moves = store.batch(batch)["movements"]
     out.print(f"Imported {file}: {len(moves)} items, {sum(m['change'] for m in moves)} "
               f"pieces (batch {batch}; undo with [bold]drawerfit stock undo {batch}[/bold]).")
 
@@ -202,7 +202,7 @@ def receive(app, file: str) -> None:
     """Book an arrived order (stock-file format; packs and cost columns are ignored)."""
     store = app.store()
     batch = store.receive(file)
-    moves = store.history(limit=1)[0]["movements"]
+    moves = store.batch(batch)["movements"]
     out.print(f"Received {file}: {len(moves)} items, {sum(m['change'] for m in moves)} pieces "
               f"(batch {batch}). {len(store.pending_orders())} orders still awaited.")
 

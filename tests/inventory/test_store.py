@@ -49,6 +49,7 @@ def test_import_creates_items_with_logged_movements(store, stock_csv):
     assert store.transistor("GP-N1").cob == pytest.approx(4e-12)
     assert store.transistor("nope") is None
     entry = store.history()[0]
+    assert entry == store.batch(batch)
     assert entry["batch"] == batch and entry["kind"] == "import"
     assert sum(m["change"] for m in entry["movements"]) == 52
     assert store.check() == []
