@@ -254,11 +254,18 @@ def _op_from(vbe, vbc, vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf,
     pq = ic * vce + ib * vbe
     vx = ve * 0.0 if vx_fraction is None else ie * vx_fraction
     shape = np.broadcast(vbe, vb, vc).shape
-    b = lambda a: np.broadcast_to(np.asarray(a, dtype=float), shape).copy()  # noqa: E731
+
+    def b(a):
+        a = np.asarray(a, dtype=float)
+        # arrays of the right shape are used as they are; scalars become read-only views
+        return a if a.shape == shape else np.broadcast_to(a, shape)
+
+    vce_b = b(vce)
+    ic_b = b(ic)
     return OperatingPoint(
-        ic=b(ic), ib=b(ib), ie=b(ie), vb=b(vb), ve=b(ve), vc=b(vc), vbe=b(vbe), vce=b(vce),
-        pq=b(pq), saturated=b(vce) < vce_sat, cutoff=b(ic) < CUTOFF_A, vbc=b(vbc), vx=b(vx),
-        is_=b(is_), beta=b(beta), vt=b(vt), converged=np.broadcast_to(conv, shape).copy(),
+        ic=ic_b, ib=b(ib), ie=b(ie), vb=b(vb), ve=b(ve), vc=b(vc), vbe=b(vbe), vce=vce_b,
+        pq=b(pq), saturated=vce_b < vce_sat, cutoff=ic_b < CUTOFF_A, vbc=b(vbc), vx=b(vx),
+        is_=b(is_), beta=b(beta), vt=b(vt), converged=np.broadcast_to(conv, shape),
     )
 
 
