@@ -15,11 +15,13 @@ the loopback PostgreSQL test server):
 from __future__ import annotations
 
 import multiprocessing as mp
+import os
 
 from inventory.parts import Resistor
 from inventory.store import open_store
 
-ROUNDS = 10        # rounds of the build race per database
+#: Rounds of the build race per database; DRAWERFIT_RACE_ROUNDS raises it for a long hunt.
+ROUNDS = int(os.environ.get("DRAWERFIT_RACE_ROUNDS", "10"))
 WORKERS = 3        # processes racing
 ADJUST_STOCK = 20  # pieces the adjust race takes one by one
 
