@@ -124,7 +124,7 @@ def add(app, **cells: str) -> None:
               help="Also set the item's restock level.")
 @pass_app
 def adjust(app, item_id: int, change: int, reason: str, min_qty: int | None) -> None:
-    """Change item ITEM_ID's quantity by CHANGE (e.g. -3 or +10).
+    """Change an item's quantity by CHANGE, such as -3 or +10.
 
     A change that would take the quantity below zero is refused; nothing changes.
     With a CHANGE of 0, only --min is applied.

@@ -131,17 +131,18 @@ def print_history(console: Console, entries: Iterable[dict]) -> None:
     t = Table(title="Stock history (newest first)", title_justify="left")
     for col, just in (("batch", "right"), ("when (UTC)", "left"), ("kind", "left"),
                       ("note", "left"), ("changes", "left"), ("undone", "left")):
-        t.add_column(col, justify=just)
+        t.add_column(col, justify=just, no_wrap=col in ("when (UTC)", "kind"))
     n = 0
     for e in entries:
         n += 1
         moves = e["movements"]
-        shown = "; ".join(f"{m['change']:+d} {m['item']}" for m in moves[:3])
-        if len(moves) > 3:
-            shown += f"; … {len(moves) - 3} more ({sum(m['change'] for m in moves):+d} pieces "
-            shown += "in all)"
-        t.add_row(str(e["batch"]), (e["when"] or "").replace("T", " ").rstrip("Z"), e["kind"],
-                  e["note"], shown or "—",
+        if len(moves) == 1:
+            shown = f"{moves[0]['change']:+d} {moves[0]['item']}"
+        else:
+            shown = (f"{len(moves)} items, {sum(m['change'] for m in moves):+d} pieces"
+                     if moves else "—")
+        t.add_row(str(e["batch"]), (e["when"] or "")[:16].replace("T", " "), e["kind"],
+                  e["note"], shown,
                   f"by batch {e['undone_by']}" if e["undone_by"] else "")
     if n == 0:
         console.print("No stock movements yet.")
