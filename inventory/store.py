@@ -622,7 +622,6 @@ class Store:
             if short:
                 raise StockShortage("not enough stock, nothing was taken: " + "; ".join(short))
             ids = []
-            first_batch = None
             for request, copies, design, pieces, orders in specs:
                 batch = Batch(kind="build", note=f"build {request} x{copies}")
                 s.add(batch)
@@ -636,7 +635,6 @@ class Store:
                     if q:
                         s.add(BuildItem(build_id=build.id, item_id=i, qty=q))
                         self._move(s, batch, items[i], -q, f"build {build.id}")
-                first_batch = first_batch or batch
                 for o in orders:
                     s.add(self._order(o, batch.id))
                 ids.append(build.id)
