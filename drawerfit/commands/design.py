@@ -6,6 +6,7 @@ import click
 
 from drawerfit.cli import pass_app
 from drawerfit.console import emit_json, err, out
+from drawerfit.sheet.cli import rank_option, sheet_for_search, sheet_option
 
 __all__ = ["command", "run_design"]
 
@@ -50,8 +51,11 @@ def run_design(request, snapshot, *, top: int, progress: bool):
 @click.option("--top", "top", type=click.IntRange(1, 100), default=5, show_default=True,
               help="How many ranked designs to show.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON (interface.md) instead of tables.")
+@sheet_option
+@rank_option
 @pass_app
-def command(app, request_file: str, top: int, as_json: bool) -> None:
+def command(app, request_file: str, top: int, as_json: bool, sheet_dir: str | None = None,
+            sheet_rank: int = 1) -> None:
     """Find the best stages you can build from your drawer for REQUEST.toml.
 
     Prints the ranked designs with the bin of every part, or, when nothing in
@@ -72,10 +76,14 @@ def command(app, request_file: str, top: int, as_json: bool) -> None:
     result = run_design(request, snapshot, top=top, progress=not as_json and err.is_terminal)
     if as_json:
         emit_json(result.to_json())
+        if sheet_dir is not None:
+            sheet_for_search(sheet_dir, result, sheet_rank, snapshot, quiet=True)
         return
     from drawerfit.render.designs import show_result
 
     show_result(out, result, cautions_for=_cautions(request, snapshot))
+    if sheet_dir is not None:
+        sheet_for_search(sheet_dir, result, sheet_rank, snapshot)
 
 
 def _cautions(request, snapshot):

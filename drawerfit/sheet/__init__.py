@@ -187,19 +187,21 @@ def write_sheet(directory, design: Design, request: Request, transistor, *,
     return written
 
 
-def echo_sheet(written: WrittenSheet, console=None) -> None:
+def echo_sheet(written: WrittenSheet, console=None, *, show_cautions: bool = True,
+               title: str = "Build sheet written:") -> None:
     """Print the cautions and the files written (for the commands' ``--sheet``).
 
     Goes to stderr when no console is given, so that ``--json`` output on
-    stdout stays clean.
+    stdout stays clean.  ``show_cautions=False`` when the command's own view
+    has just printed the same cautions.
     """
     from rich.markup import escape as rich_escape
 
     if console is None:
         from drawerfit.console import err as console
-    for c in written.cautions:
+    for c in (written.cautions if show_cautions else []):
         mark = "[bold red]caution[/]" if c.level == "caution" else "[dim]note[/]"
         console.print(f"{mark}: {rich_escape(c.text)}", markup=True, highlight=False)
-    console.print("Build sheet written:")
+    console.print(title, markup=False, highlight=False)
     for p in written:
         console.print(f"  {p}", markup=False, highlight=False, soft_wrap=True)

@@ -22,13 +22,20 @@ sheet_option = click.option(
 
 
 def sheet_for_design(directory, design, request, transistor, *, evaluation=None,
-                     yield_result=None, quiet: bool = False) -> WrittenSheet:
-    """Write the sheet for one design and print the cautions and the files."""
+                     yield_result=None, quiet: bool = False,
+                     cautions_shown: bool = False) -> WrittenSheet:
+    """Write the sheet for one design and print the cautions and the files.
+
+    ``quiet``: print to stderr (``--json`` owns stdout).  ``cautions_shown``:
+    the command's own view has just printed this design's cautions.
+    """
     from drawerfit.console import err, out
 
     written = write_sheet(directory, design, request, transistor, evaluation=evaluation,
                           yield_result=yield_result)
-    echo_sheet(written, err if quiet else out)
+    title = "Build sheet" + (f" for design #{design.rank}" if design.rank else "") + " written:"
+    echo_sheet(written, err if quiet else out, show_cautions=quiet or not cautions_shown,
+               title=title)
     return written
 
 
@@ -98,11 +105,14 @@ def design_with_circuit_parts(design, circuit):
 
 def sheet_for_circuit(directory, design, evaluation, circuit, yield_result=None, *,
                       quiet: bool = False) -> WrittenSheet:
-    """The sheet of an analysed circuit (``analyse FILE --sheet DIR``)."""
-    sub = evaluation.take([0]) if evaluation is not None and evaluation.n > 1 else evaluation
+    """The sheet of an analysed circuit (``analyse FILE --sheet DIR``).
+
+    The analysis view prints the cautions itself; they are repeated only on
+    stderr with ``--json``.
+    """
     return sheet_for_design(directory, design_with_circuit_parts(design, circuit),
-                            circuit.request, circuit.transistor, evaluation=sub,
-                            yield_result=yield_result, quiet=quiet)
+                            circuit.request, circuit.transistor, evaluation=evaluation,
+                            yield_result=yield_result, quiet=quiet, cautions_shown=True)
 
 
 rank_option = click.option(
@@ -125,9 +135,11 @@ def sheet_for_search(directory, result, rank: int, snapshot, *, quiet: bool = Fa
     if rank > len(designs):
         raise InputError(f"there {'is' if len(designs) == 1 else 'are'} only {len(designs)} "
                          f"design{'s' if len(designs) != 1 else ''}; choose a rank from 1 to "
-                         f"{len(designs)}", field="--rank")
+                         f"{len(designs)} (or raise --top)", field="--rank")
     design = next((d for d in designs if d.rank == rank), designs[rank - 1])
     transistor = snapshot.transistor(design.transistor)
     if transistor is None:
         raise InputError(f"transistor {design.transistor!r} is not in stock", field="--sheet")
-    return sheet_for_design(directory, design, result.request, transistor, quiet=quiet)
+    # The ranked view prints the cautions of design #1 itself.
+    return sheet_for_design(directory, design, result.request, transistor, quiet=quiet,
+                            cautions_shown=design is designs[0])

@@ -126,11 +126,12 @@ def _req_rows(request: Request) -> list[tuple[str, str]]:
 
 def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], num_cols=(),
            css: str = "") -> str:
-    h = "".join(f'<th class="{"num" if i in num_cols else ""}">{escape(x)}</th>'
+    num = ' class="num"'
+    h = "".join(f'<th{num if i in num_cols else ""}>{escape(x)}</th>'
                 for i, x in enumerate(headers))
     body = []
     for row in rows:
-        cells = "".join(f'<td class="{"num" if i in num_cols else ""}">{escape(str(x))}</td>'
+        cells = "".join(f'<td{num if i in num_cols else ""}>{escape(str(x))}</td>'
                         for i, x in enumerate(row))
         body.append(f"<tr>{cells}</tr>")
     cls = f' class="{css}"' if css else ""

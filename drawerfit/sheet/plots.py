@@ -66,7 +66,7 @@ def plot_response(paths: Sequence[Path], freqs: np.ndarray, h: np.ndarray, reque
     mag = 20 * np.log10(np.maximum(np.abs(h), 1e-30))
     phase = np.degrees(np.unwrap(np.angle(h)))
 
-    fig = Figure(figsize=(7.2, 5.0), dpi=110)
+    fig = Figure(figsize=(9.0, 4.6), dpi=110)
     ax_m, ax_p = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3, 2]})
     ax_m.semilogx(freqs, mag, color=NOMINAL, lw=1.6, label="gain (computed)")
     ax_p.semilogx(freqs, phase, color=NOMINAL, lw=1.4)
@@ -110,7 +110,7 @@ def plot_response(paths: Sequence[Path], freqs: np.ndarray, h: np.ndarray, reque
     for ax in (ax_m, ax_p):
         ax.grid(True, which="major", lw=0.4, alpha=0.6)
     ax_m.legend(loc="lower center", fontsize=8, framealpha=0.9)
-    fig.subplots_adjust(left=0.11, right=0.98, top=0.94, bottom=0.10, hspace=0.08)
+    fig.subplots_adjust(left=0.09, right=0.985, top=0.93, bottom=0.11, hspace=0.08)
     out = []
     for p in paths:
         p = Path(p)

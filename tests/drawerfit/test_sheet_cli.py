@@ -148,3 +148,56 @@ def test_analyse_sheet_shows_the_figures_of_analyse_json(tmp_path):
     volts = dict(re.findall(r'data-node="(\w+)" data-volts="([^"]+)"', html))
     for node, key in (("base", "vb_v"), ("emitter", "ve_v"), ("collector", "vc_v")):
         assert float(volts[node]) == pytest.approx(metrics[key], rel=1e-5)
+
+
+SMALL_STOCK = """kind,value,qty,tolerance,power,voltage,dielectric,location,hfe_min,hfe_max,vbe,ic_ref,vaf,vce_sat,vceo,ic_max,pd,ft,cob
+resistor,220R,5,5%,0.25W,,,A1,,,,,,,,,,,
+resistor,820R,5,5%,0.25W,,,A2,,,,,,,,,,,
+resistor,1k0,5,5%,0.25W,,,A3,,,,,,,,,,,
+resistor,4k7,5,5%,0.25W,,,A4,,,,,,,,,,,
+resistor,10k,5,5%,0.25W,,,A10,,,,,,,,,,,
+resistor,47k,5,5%,0.25W,,,A11,,,,,,,,,,,
+capacitor,1u0,5,10%,,63V,film,B1,,,,,,,,,,,
+capacitor,10u,5,20%,,25V,electrolytic,B2,,,,,,,,,,,
+capacitor,47u,5,20%,,16V,electrolytic,B3,,,,,,,,,,,
+npn,GP-N1,5,,,,,C1,100,300,0.65,1m,100,0.2,40,0.1,0.5,250M,4p
+"""
+
+SMALL_REQUEST = """topology = "ce"
+supply_v = 12
+load_ohm = "10k"
+source_ohm = "600"
+gain_db = 20
+gain_tol_db = 3
+f_low_max_hz = 100
+temp_c = [0, 50]
+"""
+
+
+def test_design_sheet_draws_the_chosen_rank(tmp_path):
+    # A small invented drawer so that the search takes a moment only.
+    (tmp_path / "stock.csv").write_text(SMALL_STOCK)
+    (tmp_path / "req.toml").write_text(SMALL_REQUEST)
+    db = str(tmp_path / "s.db")
+    runner = CliRunner()
+    assert runner.invoke(cli, ["--db", db, "stock", "import",
+                               str(tmp_path / "stock.csv")]).exit_code == 0
+    out = tmp_path / "sheet"
+    r = runner.invoke(cli, ["--db", db, "design", str(tmp_path / "req.toml"), "--json",
+                            "--sheet", str(out), "--rank", "2"])
+    assert r.exit_code == 0, r.output
+    designs = json.loads(r.stdout)["designs"]
+    assert len(designs) >= 2
+    assert "design #2" in r.stderr and "sheet.html" in r.stderr
+    html = (out / "sheet.html").read_text(encoding="utf-8")
+    shown = dict(re.findall(r'data-metric="(\w+)" data-value="([^"]*)"', html))
+    want = designs[1]["metrics"]
+    for key, text in shown.items():
+        assert (text == "") if want[key] is None else float(text) == want[key], key
+    # the picking list names the bins of rank 2's pieces
+    for role, part in designs[1]["parts"].items():
+        for pc in part["pieces"]:
+            assert f"<td>{pc['location']}</td><td>{role}</td>" in html
+    r = runner.invoke(cli, ["--db", db, "design", str(tmp_path / "req.toml"), "--top", "2",
+                            "--sheet", str(tmp_path / "s2"), "--rank", "3"])
+    assert r.exit_code == 2 and "--rank" in r.stderr and "Traceback" not in r.output
