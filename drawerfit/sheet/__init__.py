@@ -155,6 +155,10 @@ def write_sheet(directory, design: Design, request: Request, transistor, *,
     veval = evaluate(request, vbatch, transistor, ratings, band_edges=False,
                      large_signal=False, corner_gain=False)
     probes = spread.probes(design, request, transistor, vertices_eval=veval, batch=vbatch)
+    raw = getattr(yield_result, "samples", None)
+    if isinstance(raw, dict):
+        probes = spread.with_percentiles(probes,
+                                         spread.sample_percentiles(request.supply_v, raw))
 
     written = WrittenSheet()
     sch_path = schematic.write_schematic(out_dir / "schematic.svg", design, request,

@@ -27,17 +27,23 @@ CSS = """
 body { font: 10pt/1.3 "DejaVu Sans", Arial, sans-serif; color: #111; margin: 0 auto;
        max-width: 190mm; padding: 6mm; }
 h1 { font-size: 15pt; margin: 0 0 2mm; }
-h2 { font-size: 11.5pt; margin: 4mm 0 1.5mm; border-bottom: 1px solid #999; }
+h2 { font-size: 11.5pt; margin: 3mm 0 1.2mm; border-bottom: 1px solid #999; }
 .sub { color: #444; margin: 0 0 3mm; }
 table { border-collapse: collapse; width: 100%; }
 th, td { border: 1px solid #bbb; padding: 0.7mm 1.6mm; text-align: left; vertical-align: top; }
 th { background: #eee; font-weight: 600; }
 td.num, th.num { text-align: right; white-space: nowrap; }
 table.route td { white-space: nowrap; }
+table.route, table.probes { width: auto; }
+.cols.bench > :first-child { flex: 1 1 55%; }
+.cols.bench > :last-child { flex: 1 1 42%; }
+table.route { font-size: 9pt; }
+table.route td, table.route th { padding: 0.5mm 1.2mm; }
 .cols { display: flex; gap: 5mm; }
-.cols > div { flex: 1 1 0; min-width: 0; }
+.cols > * { flex: 1 1 0; min-width: 0; }
+td.range { white-space: nowrap; text-align: right; }
 img { max-width: 100%; height: auto; display: block; margin: 1mm auto; }
-img.schematic { max-height: 88mm; }
+img.schematic { max-height: 95mm; }
 img.plot { max-height: 66mm; }
 .probe { font-weight: 700; color: #1f4fbf; font-size: 11.5pt; }
 .tick { width: 8mm; }
@@ -138,6 +144,12 @@ def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], num_cols=(),
     return f"<table{cls}><thead><tr>{h}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
+def _mc(p: Probe) -> str:
+    if p.p5 is None or p.p95 is None:
+        return "—"
+    return f"{fmt.si(p.p5, 'V')} to {fmt.si(p.p95, 'V')}"
+
+
 def render_html(design: Design, request: Request, *, schematic_svg: bytes,
                 response_png: bytes, drift_png: bytes, route: list[dict],
                 probes: list[Probe], cautions: list[Caution], transistor=None) -> str:
@@ -172,6 +184,7 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
     probe_rows = []
     names = {"base": "base (B)", "emitter": "emitter (E)", "collector": "collector (C)"}
     bases = []
+    with_mc = any(p.p5 is not None for p in probes)
     for p in probes:
         if p.low is not None and p.high is not None:
             spread = f"{fmt.si(p.low, 'V')} to {fmt.si(p.high, 'V')}"
@@ -183,14 +196,17 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
             f'<tr><td>{escape(names.get(p.node, p.node))}</td>'
             f'<td class="num probe" data-node="{p.node}" data-volts="{p.volts:.6g}">'
             f'{escape(fmt.si(p.volts, "V"))}</td>'
-            f'<td class="num">{escape(spread)}</td><td class="tick"></td></tr>')
+            f'<td class="range">{escape(spread)}</td><td class="tick"></td></tr>')
     covers = ("Range: " + "; ".join(bases) + ".") if bases else \
         "Nominal values only: no spread was computed."
-    probe_table = ('<table><thead><tr><th>node</th><th class="num">expect</th>'
+    if with_mc:
+        covers += " 90 % of the Monte Carlo samples lie within: " + ", ".join(
+            f"{names[p.node][-2]} {_mc(p)}" for p in probes if p.p5 is not None) + "."
+    probe_table = ('<table class="probes"><thead><tr><th>node</th><th class="num">expect</th>'
                    '<th class="num">range</th><th>✓</th></tr></thead>'
                    f'<tbody>{"".join(probe_rows)}</tbody></table>'
-                   f'<p class="small">{escape(covers)} Supply on, no signal, meter from the '
-                   'node to ground.</p>')
+                   f'<p class="small">Supply on, no signal, meter from the node to ground. '
+                   f'{escape(covers)}</p>')
 
     route_rows = []
     defaults = False
@@ -229,9 +245,9 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
 <section><h2>Cautions</h2>{caution_list}</section>
 <section><h2>Schematic</h2>
 <img class="schematic" src="{sch}" alt="schematic of the stage with role names, values and bins">
-<p class="sub">Blue figures: DC volts to ground to expect at base (B), emitter (E) and collector (C).</p>
+<p class="small">Blue: DC volts to ground to expect at base (B), emitter (E), collector (C).</p>
 </section>
-<div class="cols">
+<div class="cols bench">
 <section><h2>Parts, in picking order</h2>{route_table}</section>
 <section><h2>DC voltages to check</h2>{probe_table}</section>
 </div>

@@ -24,7 +24,8 @@ from optimiser.design import Design
 from optimiser.request import Request
 from optimiser.stage import RESISTOR_ROLES, StageBatch
 
-__all__ = ["Probe", "nodes_at_corners", "tolerance_vertices", "probes"]
+__all__ = ["Probe", "nodes_at_corners", "tolerance_vertices", "probes", "sample_percentiles",
+           "with_percentiles"]
 
 NODES = ("base", "emitter", "collector")
 _KEYS = {"base": "vb_v", "emitter": "ve_v", "collector": "vc_v"}
@@ -39,6 +40,8 @@ class Probe:
     low: float | None = None
     high: float | None = None
     basis: str = "nominal"
+    p5: float | None = None          # 5th and 95th percentiles over Monte Carlo samples
+    p95: float | None = None
 
 
 def nodes_at_corners(supply_v: float, values: dict[str, np.ndarray], ic: np.ndarray,
@@ -107,3 +110,32 @@ def probes(design: Design, request: Request, transistor=None, *,
             continue
         out.append(Probe(n, float(nominal[n]), float(pool.min()), float(pool.max()), basis))
     return out
+
+
+def sample_percentiles(supply_v: float, samples: dict) -> dict[str, tuple[float, float]]:
+    """5th/95th percentiles (V) of the node voltages over Monte Carlo samples.
+
+    ``samples`` holds per-sample role values (ohm) and the sample's ``ic_a`` and
+    ``vce_v`` (at its own hFE and temperature), as the yield run returns them;
+    empty when those are missing.
+    """
+    if not samples or "ic_a" not in samples or "vce_v" not in samples or "R1" not in samples:
+        return {}
+    vals = {r: np.asarray(samples[r], float) for r in RESISTOR_ROLES if r in samples}
+    at = nodes_at_corners(supply_v, vals, np.asarray(samples["ic_a"], float),
+                          np.asarray(samples["vce_v"], float))
+    out = {}
+    for node, v in at.items():
+        v = v[np.isfinite(v)]
+        if v.size:
+            a, b = np.percentile(v, [5, 95])
+            out[node] = (float(a), float(b))
+    return out
+
+
+def with_percentiles(items: list[Probe], pct: dict[str, tuple[float, float]]) -> list[Probe]:
+    """The probes with their sample percentiles filled in where known."""
+    from dataclasses import replace
+
+    return [replace(p, p5=pct[p.node][0], p95=pct[p.node][1]) if p.node in pct else p
+            for p in items]

@@ -107,6 +107,7 @@ def test_builds_show_sheet_without_a_request_is_bad_input(store_with_build, tmp_
 
 CIRCUIT_TOML = REQUEST_TOML + """f_high_min_hz = 100e3
 ic_drift_max_pct = 10
+yield_samples = 300
 
 [parts]
 R1 = "47k"
@@ -148,6 +149,24 @@ def test_analyse_sheet_shows_the_figures_of_analyse_json(tmp_path):
     volts = dict(re.findall(r'data-node="(\w+)" data-volts="([^"]+)"', html))
     for node, key in (("base", "vb_v"), ("emitter", "ve_v"), ("collector", "vc_v")):
         assert float(volts[node]) == pytest.approx(metrics[key], rel=1e-5)
+    # Yield was asked for: its figure, the sample percentiles of the DC voltages (which
+    # must lie inside the worst-case range, the samples being drawn inside the same box).
+    assert "yield_pct" in shown and "90 % of the Monte Carlo samples" in html
+    worst = dict(re.findall(r'data-node="(\w+)"[^>]*>[^<]*</td><td class="range">([^<]+)</td>',
+                            html))
+    rng = r"(\S+ m?V to \S+ m?V)"
+    mc = re.search(rf"90 % of the Monte Carlo samples lie within: B {rng}, E {rng}, C {rng}\.",
+                   html)
+    rows = [(n, worst[n], mc[i + 1]) for i, n in enumerate(("base", "emitter", "collector"))]
+
+    def volts_of(text):
+        return [float(x) * (1e-3 if u == "m" else 1.0)
+                for x, u in re.findall(r"([-\d.]+) (m?)V", text)]
+
+    for node, worst, mc in rows:
+        lo, hi = volts_of(worst)
+        p5, p95 = volts_of(mc)
+        assert lo <= p5 <= p95 <= hi, node
 
 
 SMALL_STOCK = """kind,value,qty,tolerance,power,voltage,dielectric,location,hfe_min,hfe_max,vbe,ic_ref,vaf,vce_sat,vceo,ic_max,pd,ft,cob
