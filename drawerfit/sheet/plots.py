@@ -132,7 +132,7 @@ def _corner_labels(corners: dict) -> list[str]:
     """hFE as the data sheet gives it (at 25 °C, ``beta25``) and the temperature."""
     beta = np.asarray(corners.get("beta25", corners["beta"]), float).reshape(-1)
     temp = np.asarray(corners["temp_c"], float).reshape(-1)
-    return [f"hFE {b:.0f}\n{t:g} °C" for b, t in zip(beta, temp)]
+    return [f"hFE {b:.0f}\n{t:g} °C" for b, t in zip(beta, temp, strict=True)]
 
 
 def plot_drift(path: Path, metrics: dict, corners: dict | None, request: Request,

@@ -201,8 +201,8 @@ def test_figures_on_the_sheet_are_the_engines(ce_sheet):
 
 
 def test_dc_voltages_to_probe_agree_with_ngspice(tmp_path, ce_sheet):
-    from tests.reference.spice import SpiceDesign, require_ngspice, run_op_ac
     from optimiser.device import device_from_transistor
+    from tests.reference.spice import SpiceDesign, require_ngspice, run_op_ac
 
     require_ngspice()
     sheets = [ce_sheet[:3]]
@@ -382,3 +382,16 @@ def test_drift_plot_adds_the_yield_histogram_when_computed(tmp_path):
         assert p.read_bytes()[:8] == PNG_SIGNATURE
     assert Image.open(three).size[0] > Image.open(two).size[0]
     assert _yield_samples(None) == (None, None)
+
+
+def test_a_series_pair_is_named_piece_by_piece(tmp_path):
+    from drawerfit.sheet.parts_csv import part_rows
+
+    parts = _parts("ce", "partly bypassed")
+    parts["RC"] = RolePick("RC", 4.4e3, "4k4", (Piece(2.2e3, 2, 9, "B7", "resistor"),),
+                           "series")
+    d = Design("ce", Q.label, parts, {"vb_v": 2.0, "ve_v": 1.35, "vc_v": 7.0}, True)
+    lines = _svg_lines(write_schematic(tmp_path / "s.svg", d, _request("ce")))
+    assert "4k4 = 2k2 + 2k2" in lines
+    row = {r.role: r for r in part_rows(d, _request("ce", builds=3), Q)}["RC"]
+    assert row.value == "4k4 (2k2 + 2k2)" and row.per_copy == 2 and row.pieces == 6
