@@ -395,3 +395,15 @@ def test_a_series_pair_is_named_piece_by_piece(tmp_path):
     assert "4k4 = 2k2 + 2k2" in lines
     row = {r.role: r for r in part_rows(d, _request("ce", builds=3), Q)}["RC"]
     assert row.value == "4k4 (2k2 + 2k2)" and row.per_copy == 2 and row.pieces == 6
+
+
+def test_open_load_and_ideal_source_are_drawn_without_those_parts(tmp_path):
+    d, _ = evaluated("cc")
+    req = Request("cc", 12.0, temp_c=(0.0, 50.0))           # no load, source_ohm 0
+    ev = evaluate(req, StageBatch.from_values("cc", **d.values()), Q, ratings_of(d))
+    d.metrics = ev.metrics_of(0)
+    written = write_sheet(tmp_path, d, req, Q)
+    lines = _svg_lines(tmp_path / "schematic.svg")
+    assert "load" not in lines and "source R" not in lines and "out" in lines
+    assert (tmp_path / "response.png").read_bytes()[:8] == PNG_SIGNATURE
+    assert [c.kind for c in written.cautions][-1] == "verify"
