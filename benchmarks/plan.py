@@ -13,6 +13,7 @@ dropped) is solved too; the MIP times are printed as ratios to it.
 from __future__ import annotations
 
 import argparse
+import pickle
 import sys
 import tempfile
 import time
@@ -71,6 +72,9 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--candidates", type=int, default=30, help="search top per source")
     ap.add_argument("--time-limit", type=float, default=None)
+    ap.add_argument("--cache", metavar="FILE.pickle", default=None,
+                    help="keep the candidates here: read them if the file exists, else "
+                         "write them after the search (to time the solver again quickly)")
     args = ap.parse_args(argv)
 
     snap = demo_snapshot()
@@ -83,7 +87,12 @@ def main(argv=None) -> int:
 
     items = []
     t_search = 0.0
-    for b in blist.builds:
+    cache = Path(args.cache) if args.cache else None
+    if cache is not None and cache.is_file():
+        with open(cache, "rb") as f:
+            items, t_search = pickle.load(f)
+        print(f"candidates read from {cache} (search took {t_search:.1f} s when made)")
+    for b in blist.builds if not items else ():
         t0 = time.perf_counter()
         designs, note, st = gather_candidates(b.request, snap, augmented, top=args.candidates)
         dt = time.perf_counter() - t0
@@ -92,6 +101,9 @@ def main(argv=None) -> int:
               f"{dt:6.1f} s){'  ' + note if note else ''}", flush=True)
         items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,
                               strict_tolerance=b.request.wants_yield))
+    if cache is not None and not cache.is_file():
+        with open(cache, "wb") as f:
+            pickle.dump((items, t_search), f)
     n_cand = sum(len(it.candidates) for it in items)
     print(f"candidates: {n_cand} in all; search {t_search:.1f} s")
 

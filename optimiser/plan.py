@@ -34,7 +34,15 @@ Constraints (named after what they guard)
 * ``stock_<row>`` (e.g. ``stock_R_4k7_id12``): Σ_r flow[r,s] ≤ qty_s for a stock
   row; ``stock_R_4k7_buy``: Σ_r flow[r,v] ≤ pack · packs[v] for a purchasable.
 * ``order_<value>``: packs[v] ≤ M_v · ordered[v], M_v the most packs any plan
-  could need of it.
+  could need of it; ``order_<value>_for_<class>``: flow[r,v] ≤ U_r · ordered[v]
+  (U_r the most pieces of class r any plan could take), and
+  ``needs_order_<value>_<b>_<j>``: a column needing a class that only bought
+  pieces can give carries copies only if the value is ordered.  These repeat
+  what the first link implies, but tighten the LP relaxation a great deal.
+
+Reduction: a stock row that could hold everything that may ever land on it
+serves its own class alone (no stand-ins): moving that class's pieces onto it
+keeps any plan feasible and no dearer, so no optimum is lost.
 
 Objective
 ---------
@@ -393,24 +401,6 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
 
     # classes and the rows that may stand in for them
     classes = sorted({r for need in demand.values() for r in need})
-    # a class keeps its tolerance when any build that names it needs that
-    strict = {r: any(items[c[0]].strict_tolerance for c, need in demand.items() if r in need)
-              for r in classes}
-    flow: dict[tuple[int, int], pulp.LpVariable] = {}
-    stand_ins: dict[int, list[int]] = {}
-    for r in classes:
-        orig = rows[r]
-        subs = [s for s, row in rows.items()
-                if can_stand_in(row, orig, strict_tolerance=strict[r])
-                and (row.virtual or row.qty > 0 or s == r)]
-        stand_ins[r] = subs
-        for s in subs:
-            flow[(r, s)] = pulp.LpVariable(f"flow_{_tag(orig)}_from_{_tag(rows[s])}", 0,
-                                           cat=pulp.LpInteger)
-    for r in classes:
-        used = pulp.lpSum(copies[c] * need[r] for c, need in demand.items() if r in need)
-        prob += (used == pulp.lpSum(flow[(r, s)] for s in stand_ins[r]), f"use_{_tag(rows[r])}")
-
     # upper bound on the pieces each class may ever need
     most: dict[int, int] = defaultdict(int)
     for b, it in enumerate(items):
@@ -422,6 +412,35 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
                 per_class[r] = max(per_class[r], k * it.count)
         for r, k in per_class.items():
             most[r] += k
+    # a class keeps its tolerance when any build that names it needs that
+    strict = {r: any(items[c[0]].strict_tolerance for c, need in demand.items() if r in need)
+              for r in classes}
+    stand_ins: dict[int, list[int]] = {}
+    for r in classes:
+        orig = rows[r]
+        stand_ins[r] = [s for s, row in rows.items()
+                        if can_stand_in(row, orig, strict_tolerance=strict[r])
+                        and (row.virtual or row.qty > 0 or s == r)]
+    # A stock row that holds all that could ever land on it serves its own class
+    # alone: moving that class's pieces onto it keeps any plan feasible and no
+    # dearer, so no optimum is lost and the programme gets smaller.
+    load: dict[int, int] = defaultdict(int)
+    for r in classes:
+        for s in stand_ins[r]:
+            load[s] += most[r]
+    for r in classes:
+        if not rows[r].virtual and load[r] <= rows[r].qty:
+            stand_ins[r] = [r]
+    flow: dict[tuple[int, int], pulp.LpVariable] = {}
+    for r in classes:
+        orig = rows[r]
+        for s in stand_ins[r]:
+            cap = most[r] if rows[s].virtual or elastic else min(most[r], rows[s].qty)
+            flow[(r, s)] = pulp.LpVariable(f"flow_{_tag(orig)}_from_{_tag(rows[s])}", 0,
+                                           max(cap, 0), cat=pulp.LpInteger)
+    for r in classes:
+        used = pulp.lpSum(copies[c] * need[r] for c, need in demand.items() if r in need)
+        prob += (used == pulp.lpSum(flow[(r, s)] for s in stand_ins[r]), f"use_{_tag(rows[r])}")
 
     supply_rows = sorted({s for (_, s) in flow})
     packs: dict[int, pulp.LpVariable] = {}
@@ -439,6 +458,11 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
             ordered[s] = pulp.LpVariable(f"ordered_{_tag(row)}", cat=pulp.LpBinary)
             prob += (taken <= p.pack * packs[s], f"stock_{_tag(row)}")
             prob += (packs[s] <= m * ordered[s], f"order_{_tag(row)[:-4]}")
+            # the same link per class, much tighter in the LP relaxation
+            for (r, s2) in flow:
+                if s2 == s:
+                    prob += (flow[(r, s)] <= most[r] * ordered[s],
+                             f"order_{_tag(row)[:-4]}_for_{_tag(rows[r])}")
             line = catalogue.options.line_cost if catalogue.options is not None else 0.0
             cost_terms.append(p.pack_price * packs[s] + line * ordered[s])
         elif elastic:
@@ -446,6 +470,17 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
             prob += (taken <= row.qty + slack[s], f"stock_{_tag(row)}")
         else:
             prob += (taken <= row.qty, f"stock_{_tag(row)}")
+
+    # A column that needs a class only bought pieces can give cannot carry a copy
+    # unless that value is ordered (far tighter than the aggregate link above).
+    for c, need in demand.items():
+        b = c[0]
+        for r in need:
+            subs = stand_ins[r]
+            if len(subs) == 1 and rows[subs[0]].virtual and subs[0] in ordered:
+                v = subs[0]
+                lhs = pick[c] if c in pick else copies[c] * (1.0 / max(items[b].count, 1))
+                prob += (lhs <= ordered[v], f"needs_order_{_tag(rows[v])[:-4]}_{b}_{c[1]}")
 
     score_term = pulp.lpSum(scores[c] * copies[c] for c in demand)
     if elastic:
