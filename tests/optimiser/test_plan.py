@@ -408,3 +408,23 @@ def test_status_of_a_time_limited_solution_is_feasible_not_optimal():
     assert _status_text(prob, pulp.LpStatusOptimal) == "Optimal"
     prob.sol_status = pulp.LpSolutionNoSolutionFound
     assert _status_text(prob, pulp.LpStatusNotSolved) == "Not Solved"
+
+
+@pytest.mark.skipif("highs" not in available_solvers(), reason="highspy not installed")
+def test_highs_banner_stays_off_stdout(tmp_path):
+    # HiGHS prints a banner from C++ on its first use; `plan --json` must stay parseable.
+    import json
+    import subprocess
+    import sys
+
+    script = (
+        "import json\n"
+        "from tests.optimiser.test_plan import make_design, small_drawer\n"
+        "from optimiser.plan import PlanItem, plan_builds\n"
+        "d = make_design('GP-N1', [('R1', 10000.0, 2, 1)], 0.0)\n"
+        "p = plan_builds([PlanItem('pre', 2, True, (d,))], small_drawer(), solver='highs')\n"
+        "print(json.dumps(p.to_json()))\n")
+    out = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True,
+                         check=True, cwd=str(__import__("pathlib").Path(__file__).parents[2]))
+    data = json.loads(out.stdout)
+    assert data["solver"]["name"] == "HiGHS" and data["feasible"]
