@@ -174,6 +174,48 @@ def solve_terminals(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf=0.0,
 _CHUNK = 65536
 
 
+def _forward_1d(u, vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, iva, tol, iters: int = 8):
+    """Newton in V_BE alone with e^(V_BC/V_T) taken as 0 (forward-active).
+
+    With that term gone the collector loop is linear in V_BC, so V_BC(V_BE) is
+    explicit and the base loop is one equation in V_BE.  The neglected term is
+    e^(−V_CE/V_T) relative, below 2e-12 for V_CE > 0.7 V, which is where the result
+    is accepted (``ok``); the others go to the full two-variable Newton.
+    """
+    a = vc_th - ve_th
+    sq = np.sqrt(tol)
+    ok = np.zeros(u.shape, dtype=bool)
+    w = u
+    for _ in range(iters):
+        e = is_ * np.exp(np.minimum(u / vt, 80.0))
+        k = (rc + re) * e
+        c = re * e / beta + rc * is_ - re * is_ / beta
+        num = u - a + k + c
+        den = 1.0 + k * iva
+        w = num / den
+        q = 1.0 - w * iva
+        ib = (e - is_) / beta - is_
+        ie = e * (q + 1.0 / beta) - is_ / beta
+        f = vb_th - ve_th - u - ib * rb - ie * re
+        de = e / vt
+        dnum = 1.0 + (rc + re) * de + re * de / beta
+        dden = iva * (rc + re) * de
+        dw = (dnum * den - num * dden) / (den * den)
+        dq = -iva * dw
+        fp = -1.0 - rb * de / beta - re * (de * (q + 1.0 / beta) + e * dq)
+        du = -f / fp
+        u = u + du
+        ok = np.abs(du) <= sq * vt
+        if ok.all():
+            break
+    e = is_ * np.exp(np.minimum(u / vt, 80.0))
+    k = (rc + re) * e
+    c = re * e / beta + rc * is_ - re * is_ / beta
+    w = (u - a + k + c) / (1.0 + k * iva)
+    ok &= np.isfinite(u) & (u - w > 0.7)
+    return u, w, ok
+
+
 def _solve_flat(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, *, tol, max_iter):
     m = vb_th.size
 
@@ -197,8 +239,23 @@ def _solve_flat(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, *, tol,
     out_u = u.copy()
     out_w = w.copy()
     conv = np.zeros(m, dtype=bool)
-    idx = np.arange(m)
-    p = [vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, vcrit]
+    # forward-active fast path: exact while e^(V_BC/V_T) is negligible (V_CE > 0.7 V)
+    fa = vce0 > 1.0
+    if fa.any():
+        sel = np.flatnonzero(fa)
+        uf, wf, okf = _forward_1d(u[sel], vb_th[sel], rb[sel], ve_th[sel], re[sel],
+                                  vc_th[sel], rc[sel], is_[sel], beta[sel], vt[sel],
+                                  inv_vaf[sel], tol)
+        out_u[sel] = uf
+        out_w[sel] = wf
+        conv[sel] = okf
+        u[sel], w[sel] = uf, wf
+    todo = ~conv
+    if not todo.any():
+        return out_u, out_w, conv
+    idx = np.flatnonzero(todo)
+    u, w = u[idx], w[idx]
+    p = [a[idx] for a in (vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, vcrit)]
     dn = None
     sq_tol = np.sqrt(tol)
     for _ in range(max_iter):
