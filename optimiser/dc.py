@@ -223,12 +223,6 @@ def _solve_flat(vb_th, rb, ve_th, re, vc_th, rc, is_, beta, vt, inv_vaf, *, tol,
     u = _initial_vbe(vb_th - ve_th, reff, is_, vt)
     ic0 = is_ * np.expm1(np.minimum(u / vt, 80.0))
     vce0 = (vc_th - ic0 * rc) - (ve_th + ic0 * (1.0 + 1.0 / beta) * re)
-    if np.any(inv_vaf):
-        # one pass with the Early factor q = 1 + V_CB/V_AF of the first guess
-        q = 1.0 + np.clip(vce0 - u, 0.0, None) * inv_vaf
-        u = _initial_vbe(vb_th - ve_th, rb / beta + re * (q + 1.0 / beta), is_ * q, vt)
-        ic0 = is_ * q * np.expm1(np.minimum(u / vt, 80.0))
-        vce0 = (vc_th - ic0 * rc) - (ve_th + ic0 * (1.0 + 1.0 / (beta * q)) * re)
     w = u - np.maximum(vce0, 0.3)
     sat = vce0 < 0.15
     if sat.any():
