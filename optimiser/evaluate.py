@@ -336,7 +336,7 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
                 if role in ("RC", "RE", "RE_BYP") else role
             lead = f"{who} dissipates {_g(p[i], 2)} W" if share[role][i] >= 1 else \
                 f"each {who} piece dissipates {_g(piece[i], 2)} W"
-            return (f"{lead}, over {_g(rf * 100, 2)} % of its {_g(power[role][i], 2)} W rating")
+            return f"{lead}, over {rf * 100:g} % of its {power[role][i]:g} W rating"
 
         rules.append(_Rule("validity", f"power_{role}", fail, _rtext, {"power_w": p}))
     cf = der["capacitor_voltage"]
@@ -351,8 +351,8 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
         fail = present & (np.abs(v) > cf * volt[role])
 
         def _ctext(i, role=role, v=v):
-            return (f"{role} sees {_g(abs(v[i]))} V, over {_g(cf * 100, 2)} % of its "
-                    f"{_g(volt[role][i])} V rating")
+            return (f"{role} sees {_g(abs(v[i]))} V, over {cf * 100:g} % of its "
+                    f"{volt[role][i]:g} V rating")
 
         rules.append(_Rule("validity", f"voltage_{role}", fail, _ctext, {"volts": v}))
         if pol[role].any():

@@ -83,3 +83,33 @@ def test_bad_input_one_line_exit_2(tmp_path, old, new, field):
     assert len(lines) == 1, r.output
     assert str(p) in lines[0] and f"{field}:" in lines[0]
     assert "Traceback" not in r.output
+
+
+def test_stock_ids_and_transistor_label_from_the_store(tmp_path):
+    """Parts written "#id" and transistor = "LABEL" come from the store (invented stock)."""
+    csv = tmp_path / "stock.csv"
+    csv.write_text("kind,value,qty,power,voltage,dielectric,location,hfe_min,hfe_max,ft,cob\n"
+                   "resistor,4k7,10,10mW,,,A1,,,,\n"
+                   "capacitor,47u,5,,16,electrolytic,B2,,,,\n"
+                   "npn,GP-N1,4,,,,C3,100,300,250M,4p\n")
+    db = tmp_path / "s.db"
+    runner = CliRunner()
+    r = runner.invoke(cli, ["--db", str(db), "stock", "import", str(csv)])
+    assert r.exit_code == 0, r.output
+    items = json.loads(runner.invoke(cli, ["--db", str(db), "stock", "list", "--json"]).output)
+    rid = next(i["id"] for i in items if i["kind"] == "resistor")
+    cid = next(i["id"] for i in items if i["kind"] == "capacitor")
+    text = (GOOD.replace('RC = "4k7"', f'RC = "#{rid}"').replace('C_BYP = "47u"', f'C_BYP = "#{cid}"')
+            .split("[transistor]")[0].replace('topology = "ce"', 'topology = "ce"\ntransistor = "GP-N1"'))
+    p = tmp_path / "c.toml"
+    p.write_text(text)
+    r = runner.invoke(cli, ["--db", str(db), "analyse", str(p), "--json"])
+    assert r.exit_code == 0, r.output
+    d = json.loads(r.output)["design"]
+    assert d["transistor"] == "GP-N1"
+    assert d["parts"]["RC"]["value"] == 4700.0
+    assert d["parts"]["RC"]["pieces"][0]["id"] == rid
+    assert d["parts"]["C_BYP"]["plus"] == "emitter"
+    # the stock piece is judged against its own 10 mW rating: R_C dissipates about 8 mW
+    assert any(v.startswith("R_C dissipates") and "of its 0.01 W rating" in v
+               for v in d["violations"]), d["violations"]
