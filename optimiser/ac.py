@@ -125,9 +125,6 @@ def _classes(net: Network, short_mask: np.ndarray):
 
 def _why_singular(net: Network, index, ss_sel, mode) -> str:
     """A physical reason for a singular nodal matrix."""
-    c = index.get(net.collector, -1)
-    if c >= 0 and not np.all(np.isfinite(ss_sel["go"])):
-        pass
     if index.get(net.base, -1) == index.get(net.emitter, -1) and index.get(net.base, -1) >= 0:
         return "base and emitter are joined by a zero-ohm path"
     return ("the small-signal circuit has a node with no path to ground at this frequency "

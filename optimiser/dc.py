@@ -367,7 +367,7 @@ def operating_point(topology: str, supply_v: float, batch: StageBatch, model: De
     v_th, r_th = thevenin(supply_v, batch.R1, batch.R2)
     re = batch.re_total
     rc = batch.RC
-    byp = np.where(batch.C_BYP > 0, batch.RE_BYP, batch.RE_BYP)
+    byp = batch.RE_BYP
     tshape = np.broadcast(np.asarray(temp_c), np.asarray(beta if beta is not None else 0.0)).shape
     if len(tshape) == 2:
         v_th, r_th, re, rc, byp = (a[:, None] for a in (v_th, r_th, re, rc, byp))

@@ -406,7 +406,7 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
                            lambda i, lim=lim: f"thd_pct {_g(thd[i])} > {lim:g}"))
 
     # --- warnings ------------------------------------------------------------
-    _, r_th = (None, batch.R1 * batch.R2 / (batch.R1 + batch.R2))
+    r_th = batch.R1 * batch.R2 / (batch.R1 + batch.R2)
     b_lo = model.corner_betas[0]
     limit = DIVIDER_RULE * b_lo * batch.re_total
     rules.append(_Rule("warning", "divider_rule", r_th > limit,
