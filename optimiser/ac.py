@@ -189,19 +189,19 @@ def solve_network(net: Network, ss: SmallSignal, freqs, *, source_ohm: float = 0
 def _solve_group(net, ss, part, index, size, w, source_ohm, load_ohm, mode):
     m = part.size
     nf = w.shape[0]
-    Y = np.zeros((nf, m, size, size), dtype=complex)
-    J = np.zeros((nf, m, size), dtype=complex)
-    jw = 1j * w                                                    # (nf, m) or (nf, 1)
+    # frequency-independent stamps: Y(ω) = G + jω·C, then the series branches
+    G = np.zeros((m, size, size))
+    Cm = np.zeros((m, size, size))
 
-    def add2(a, b, y):
+    def add2(M, a, b, y):
         ia, ib = index[a], index[b]
         if ia >= 0:
-            Y[:, :, ia, ia] += y
+            M[:, ia, ia] += y
         if ib >= 0:
-            Y[:, :, ib, ib] += y
+            M[:, ib, ib] += y
         if ia >= 0 and ib >= 0:
-            Y[:, :, ia, ib] -= y
-            Y[:, :, ib, ia] -= y
+            M[:, ia, ib] -= y
+            M[:, ib, ia] -= y
 
     for e in net.elements:
         val = np.asarray(e.value, dtype=float)[part]
@@ -209,13 +209,33 @@ def _solve_group(net, ss, part, index, size, w, source_ohm, load_ohm, mode):
             ok = (val > 0) & np.isfinite(val)
             if not ok.any():
                 continue
-            g = np.where(ok, 1.0 / np.where(ok, val, 1.0), 0.0)
-            add2(e.a, e.b, g[None, :] + 0j)
+            add2(G, e.a, e.b, np.where(ok, 1.0 / np.where(ok, val, 1.0), 0.0))
         else:
             if not np.any(val > 0):
                 continue
-            add2(e.a, e.b, jw * val[None, :])
+            add2(Cm, e.a, e.b, np.where(val > 0, val, 0.0))
 
+    # transistor: i_b = y_be·v_be + y_bc·v_bc, i_c = y_ce·v_be + y_cc·v_bc, i_e = −(i_b + i_c)
+    s = {k: np.asarray(v)[part] for k, v in ss.items()}
+    B, E, C = index[net.base], index[net.emitter], index[net.collector]
+    parts_g = {"be": s["gpi"], "bc": s["gmu_dc"], "ce": s["gm"], "cc": s["gx"]}
+    parts_c = {"be": s["cpi"], "bc": s["ctx"] + s["cmu"], "ce": 0.0 * s["gm"], "cc": -s["cmu"]}
+    for M, y in ((G, parts_g), (Cm, parts_c)):
+        def add(i, j, val, M=M):
+            if i >= 0 and j >= 0:
+                M[:, i, j] += val
+        add(B, B, y["be"] + y["bc"])
+        add(B, E, -y["be"])
+        add(B, C, -y["bc"])
+        add(C, B, y["ce"] + y["cc"])
+        add(C, E, -y["ce"])
+        add(C, C, -y["cc"])
+        add(E, B, -(y["be"] + y["bc"] + y["ce"] + y["cc"]))
+        add(E, E, y["be"] + y["ce"])
+        add(E, C, y["bc"] + y["cc"])
+
+    Y = G[None] + (1j * w)[:, :, None, None] * Cm[None]
+    J = np.zeros((nf, m, size), dtype=complex)
     c_in = np.asarray(net.c_in, dtype=float)[part][None, :]
     c_out = np.asarray(net.c_out, dtype=float)[part][None, :]
     k_in, k_out = index[net.input], index[net.output]
@@ -233,31 +253,6 @@ def _solve_group(net, ss, part, index, size, w, source_ohm, load_ohm, mode):
         J[:, :, k_in] += 1.0
     if mode == "zout" and k_out >= 0:
         J[:, :, k_out] += 1.0
-
-    # transistor
-    s = {k: np.asarray(v)[part][None, :] for k, v in ss.items()}
-    y_be = s["gpi"] + jw * s["cpi"]
-    y_bc = s["gmu_dc"] + jw * (s["ctx"] + s["cmu"])
-    y_ce = s["gm"] + 0j * w
-    y_cc = s["gx"] - jw * s["cmu"]
-    B, E, C = index[net.base], index[net.emitter], index[net.collector]
-
-    def add(i, j, y):
-        if i >= 0 and j >= 0:
-            Y[:, :, i, j] += y
-
-    # row B: i_b = y_be (vB - vE) + y_bc (vB - vC)
-    add(B, B, y_be + y_bc)
-    add(B, E, -y_be)
-    add(B, C, -y_bc)
-    # row C: i_c = y_ce (vB - vE) + y_cc (vB - vC)
-    add(C, B, y_ce + y_cc)
-    add(C, E, -y_ce)
-    add(C, C, -y_cc)
-    # row E: -(i_b + i_c)
-    add(E, B, -(y_be + y_bc + y_ce + y_cc))
-    add(E, E, y_be + y_ce)
-    add(E, C, y_bc + y_cc)
 
     try:
         v = np.linalg.solve(Y, J[..., None])[..., 0]
