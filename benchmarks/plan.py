@@ -55,10 +55,52 @@ COPIES = 10
 
 
 def demo_snapshot():
+    """The demo drawer, with every transistor quantity doubled.
+
+    The demo drawer holds 40 transistors; fifty copies need fifty, and
+    transistors are never bought, so the plan would be infeasible on the
+    transistor count alone.  Doubling them keeps the benchmark about choosing
+    and buying resistors and capacitors.
+    """
     tmp = tempfile.mkdtemp(prefix="drawerfit-bench-")
     store = open_store(str(Path(tmp) / "bench.db"))
     store.import_csv(str(resources.files("drawerfit") / "data" / "demo_stock.csv"))
-    return store.snapshot()
+    snap = store.snapshot()
+    store.close()
+    return replace(snap, transistors=tuple(replace(t, qty=2 * t.qty) for t in snap.transistors))
+
+
+def synthetic_items(snap, augmented, per_request: int, seed: int = 1) -> list[PlanItem]:
+    """Candidates without the search: per request a base design from stock rows and
+    ``per_request`` variations with one to three parts swapped for any stock or
+    purchasable value (a stand-in for the search when timing the solver alone)."""
+    import random
+
+    from optimiser.design import Design, Piece, RolePick
+
+    rng = random.Random(seed)
+    r_roles, c_roles = ("R1", "R2", "RC", "RE", "RE_BYP"), ("C_IN", "C_OUT", "C_BYP")
+    items = []
+    for name in REQUESTS:
+        plenty_r = [r for r in snap.resistors if r.qty >= COPIES]
+        plenty_c = [c for c in snap.capacitors if c.qty >= COPIES]
+        base = {role: rng.choice(plenty_r) for role in r_roles}
+        base.update({role: rng.choice(plenty_c) for role in c_roles})
+        t0 = rng.choice([t for t in snap.transistors if t.qty >= COPIES]).label
+        designs = []
+        for j in range(per_request):
+            parts = dict(base)
+            for _ in range(rng.randint(1, 3)):
+                role = rng.choice(r_roles + c_roles)
+                parts[role] = rng.choice(augmented.resistors if role in r_roles
+                                         else augmented.capacitors)
+            t = t0 if rng.random() < 0.7 else rng.choice(snap.transistors).label
+            picks = {role: RolePick(role, x.value, "", (Piece(x.value, 1, x.id, x.location,
+                                                              x.kind),))
+                     for role, x in parts.items()}
+            designs.append(Design("ce", t, picks, {}, True, score=rng.random() + 0.02 * j))
+        items.append(PlanItem(name, COPIES, len(items) % 2 == 0, tuple(designs)))
+    return items
 
 
 def lp_relaxation_seconds(items, rows, catalogue) -> float:
@@ -72,6 +114,9 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--candidates", type=int, default=30, help="search top per source")
     ap.add_argument("--time-limit", type=float, default=None)
+    ap.add_argument("--synthetic", type=int, default=0, metavar="N",
+                    help="skip the search: N synthetic candidates per request (times the "
+                         "solver alone; not the benchmark's real figure)")
     ap.add_argument("--cache", metavar="FILE.pickle", default=None,
                     help="keep the candidates here: read them if the file exists, else "
                          "write them after the search (to time the solver again quickly)")
@@ -82,13 +127,16 @@ def main(argv=None) -> int:
     augmented, catalogue = augment(snap, purchase)
     blist = BuildList(tuple(BuildSpec(name, replace(parse_request(m), builds=COPIES), COPIES)
                             for name, m in REQUESTS.items()), purchase)
-    print(f"drawer: {len(snap.resistors)} resistor rows, {len(snap.capacitors)} capacitor rows, "
+    print(f"demo drawer (transistor stock doubled): {len(snap.resistors)} resistor rows, {len(snap.capacitors)} capacitor rows, "
           f"{len(snap.transistors)} transistor types; {len(catalogue.items)} purchasable values")
 
     items = []
     t_search = 0.0
     cache = Path(args.cache) if args.cache else None
-    if cache is not None and cache.is_file():
+    if args.synthetic:
+        items = synthetic_items(snap, augmented, args.synthetic)
+        print(f"SYNTHETIC candidates ({args.synthetic} per request), no search")
+    elif cache is not None and cache.is_file():
         with open(cache, "rb") as f:
             items, t_search = pickle.load(f)
         print(f"candidates read from {cache} (search took {t_search:.1f} s when made)")

@@ -36,9 +36,10 @@ Constraints (named after what they guard)
 * ``order_<value>``: packs[v] ≤ M_v · ordered[v], M_v the most packs any plan
   could need of it; ``order_<value>_for_<class>``: flow[r,v] ≤ U_r · ordered[v]
   (U_r the most pieces of class r any plan could take), and
-  ``needs_order_<value>_<b>_<j>``: a column needing a class that only bought
-  pieces can give carries copies only if the value is ordered.  These repeat
-  what the first link implies, but tighten the LP relaxation a great deal.
+  ``needs_order_<class>_<b>_<j>``: a column carries more copies than the stock
+  stand-ins of a class can serve only if some value that can stand in is
+  ordered.  These repeat what the first link implies, but tighten the LP
+  relaxation a great deal.
 
 Reduction: a stock row that could hold everything that may ever land on it
 serves its own class alone (no stand-ins): moving that class's pieces onto it
@@ -471,16 +472,50 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
         else:
             prob += (taken <= row.qty, f"stock_{_tag(row)}")
 
-    # A column that needs a class only bought pieces can give cannot carry a copy
-    # unless that value is ordered (far tighter than the aggregate link above).
+    # A column whose copies need more pieces of a class than the stock rows that
+    # may stand in for it hold cannot carry them unless a value is ordered
+    # (far tighter in the LP relaxation than the aggregate links above).
     for c, need in demand.items():
-        b = c[0]
-        for r in need:
-            subs = stand_ins[r]
-            if len(subs) == 1 and rows[subs[0]].virtual and subs[0] in ordered:
-                v = subs[0]
-                lhs = pick[c] if c in pick else copies[c] * (1.0 / max(items[b].count, 1))
-                prob += (lhs <= ordered[v], f"needs_order_{_tag(rows[v])[:-4]}_{b}_{c[1]}")
+        b, count = c[0], items[c[0]].count
+        for r, k in need.items():
+            virt = [s for s in stand_ins[r] if rows[s].virtual and s in ordered]
+            if not virt:
+                continue
+            held = sum(rows[s].qty for s in stand_ins[r] if not rows[s].virtual)
+            cap = held // k                      # copies the stock alone can give
+            if cap >= count:
+                continue
+            any_order = pulp.lpSum(ordered[v] for v in virt)
+            name = f"needs_order_{_tag(rows[r])}_{b}_{c[1]}"
+            if c in pick:
+                prob += (pick[c] <= any_order, name)
+            else:
+                prob += (copies[c] <= cap + (count - cap) * any_order, name)
+
+    # For identical copies: when the chosen column needs an order, some value that
+    # one of those columns could order is ordered.  Summed over the columns of a
+    # build (their picks add up to 1), this keeps the LP from paying a sliver of
+    # many orders instead of one whole one.
+    needy: dict[int, list] = defaultdict(list)
+    values_of: dict[int, set[int]] = defaultdict(set)
+    for c, need in demand.items():
+        if c not in pick:
+            continue
+        vs: set[int] = set()
+        needs = False
+        for r, k in need.items():
+            virt = [s for s in stand_ins[r] if rows[s].virtual and s in ordered]
+            held = sum(rows[s].qty for s in stand_ins[r] if not rows[s].virtual)
+            if virt and held // k < items[c[0]].count:
+                needs = True
+                vs.update(virt)
+        if needs:
+            needy[c[0]].append(c)
+            values_of[c[0]].update(vs)
+    for b, cols in needy.items():
+        if len(cols) > 1:
+            prob += (pulp.lpSum(pick[c] for c in cols)
+                     <= pulp.lpSum(ordered[v] for v in sorted(values_of[b])), f"some_order_{b}")
 
     score_term = pulp.lpSum(scores[c] * copies[c] for c in demand)
     if elastic:
