@@ -44,7 +44,7 @@ from optimiser.options import (
     StockOptions,
 )
 from optimiser.request import Request
-from optimiser.score import degeneration, hd2_pct, score_terms
+from optimiser.score import STOCK_PENALTY, degeneration, hd2_pct, score_terms
 from optimiser.stage import PartRatings, StageBatch
 
 __all__ = ["SearchResult", "search", "check_request", "FORMS", "SHORT_F",
@@ -279,6 +279,20 @@ class _Job:
         self.rc_vals = rv if self.topo != "cc" else np.concatenate([[0.0], rv])
         self.rc_best = rbest if self.topo != "cc" else np.concatenate([[np.inf], rbest])
         self.win = gain_window(request)
+        # pieces-per-copy each resistor value can give (single pieces; rows pooled)
+        units = np.zeros(rv.size)
+        for k, v in enumerate(rv):
+            rows = opts.rows_of("resistor", v)
+            units[k] = sum(opts.rows[i].qty // opts.builds for i in rows) if rows else np.inf
+            if opts.allow_combos:
+                units[k] = np.inf       # a joined pair may stand in: no cheap count
+        self.units = units
+        # largest row of each value, and whether a value may be bought (virtual row)
+        self.maxq = np.array([max((opts.rows[i].qty for i in opts.rows_of("resistor", v)),
+                                  default=0) for v in rv], dtype=float)
+        self.virtual = np.array([any((opts.rows[i].id is not None and opts.rows[i].id < 0)
+                                     for i in opts.rows_of("resistor", v)) for v in rv])
+        self.t_empty = float(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
 
     def count(self, key, n):
         pr = self.stats["pruned"]
@@ -412,8 +426,26 @@ class _Job:
             pre = pre + np.nan_to_num(h, nan=np.inf, posinf=np.inf)
         keep = pre < upper
         self.count("score_bound_pre", (~keep).sum())
+        # B9: a value in k roles needs k pieces per copy (ratings aside)
+        cols = [self.R1[Pc], self.R2[Pc], RCc, REc, BYc]
+        stock_lb = np.full(Pc.size, self.t_empty)
+        for x in cols:
+            k = sum((y == x) for y in cols)
+            idx = np.clip(np.searchsorted(self.rv, x), 0, self.rv.size - 1)
+            single = (x > 0) & (self.rv[idx] == x)
+            short = single & (k > self.units[idx])
+            self.count("stock", (short & keep).sum())
+            keep &= ~short
+            # B10: a value whose every row holds ≤ k·builds pieces empties a bin
+            if not self.opts.allow_combos:
+                must = single & (self.maxq[idx] <= k * self.request.builds) & ~self.virtual[idx]
+                stock_lb = stock_lb + must / np.maximum(k, 1)
+        stock_lb = STOCK_PENALTY * stock_lb
+        pre = pre + stock_lb
+        keep &= pre < upper
         if not keep.all():
-            Pc, REc, BYc, dlb, RCc, RCbest = (x[keep] for x in (Pc, REc, BYc, dlb, RCc, RCbest))
+            Pc, REc, BYc, dlb, RCc, RCbest, stock_lb = (
+                x[keep] for x in (Pc, REc, BYc, dlb, RCc, RCbest, stock_lb))
         if Pc.size == 0:
             return None
         r1c, r2c = self.R1[Pc], self.R2[Pc]
@@ -448,7 +480,7 @@ class _Job:
                             tol_db=request.gain_tol_db, drift_pct=0.0, hd2_pct=hd2,
                             supply_a=supply, emptied=0)
         lb = dlb / 10.0 + np.maximum(terms["gain"] - GAIN_SLACK_DB / max(
-            request.gain_tol_db, 1e-3), 0.0) + terms["distortion"] + terms["current"]
+            request.gain_tol_db, 1e-3), 0.0) + terms["distortion"] + terms["current"] + stock_lb
         under = lb < upper
         self.count("score_bound", (good & ~under).sum())
         good &= under
@@ -459,6 +491,7 @@ class _Job:
         idx = idx[np.argsort(lb[idx], kind="stable")]
         sk = Skeletons(topo, self.t, self.form, r1c[idx], r2c[idx], RCc[idx], REc[idx], BYc[idx])
         sk.lb, sk.gdb, sk.hd2, sk.supply = lb[idx], gdb[idx], hd2[idx], supply[idx]
+        sk.stock_lb = stock_lb[idx]
         return sk
 
 
@@ -560,7 +593,7 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
     stats: dict = {"pruned": {}}
     designs, pool = search_designs(request, snapshot, top, stats, progress)
     result = SearchResult(request, bool(designs), designs, [], [], stats)
-    if not designs:
+    if not designs and misses > 0:
         from optimiser.misses import explain
         result.nearest_misses, result.unlock = explain(request, snapshot, pool, misses, stats)
     stats["seconds"] = time.perf_counter() - t0
@@ -652,7 +685,8 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
             terms = score_terms(gain_inf_db=sk.gdb, target_db=request.gain_db,
                                 tol_db=request.gain_tol_db, drift_pct=drift, hd2_pct=sk.hd2,
                                 supply_a=sk.supply, emptied=0)
-            lb15 = terms["gain"] + terms["drift"] + terms["distortion"] + terms["current"]
+            lb15 = terms["gain"] + terms["drift"] + terms["distortion"] + terms["current"] \
+                + sk.stock_lb
             for i in np.flatnonzero(ok & (lb15 < kth)):
                 heapq.heappush(heap, (float(lb15[i]), next(seq), "skel",
                                       (sk, int(i), {"drift_pct": float(drift[i]),
@@ -698,7 +732,7 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
 
 def _take_all(c: Skeletons, idx) -> Skeletons:
     sub = c.take(idx)
-    for k in ("lb", "gdb", "hd2", "supply"):
+    for k in ("lb", "gdb", "hd2", "supply", "stock_lb"):
         setattr(sub, k, getattr(c, k)[idx])
     return sub
 

@@ -61,3 +61,6 @@ def command(save_csv: str | None) -> None:
         out.print(f"Wrote the demo stock file to {save_csv}.")
     with demo_store() as store:
         show_demo_stock(store)
+        from drawerfit.commands.design import show_demo_design
+
+        show_demo_design(store)

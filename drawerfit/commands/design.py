@@ -95,3 +95,20 @@ def _cautions(request, snapshot):
         return [c for c in cautions(design, request, snapshot.transistor(design.transistor))
                 if c.level == "caution" or c.kind in ("mains", "verify")]
     return f
+
+
+def show_demo_design(store) -> None:
+    """Run the packaged demo request on ``store`` and print the ranked table (for `demo`)."""
+    from importlib import resources
+
+    from drawerfit.render.designs import show_result
+    from optimiser.request import load_request
+
+    with resources.as_file(resources.files("drawerfit") / "data" / "demo_request.toml") as p:
+        request = load_request(p)
+    out.print(f"\nDesign request (drawerfit/data/demo_request.toml): a {request.topology} stage, "
+              f"{request.supply_v:g} V, gain {request.gain_db:.0f} dB ± {request.gain_tol_db:g} dB, "
+              f"f_low ≤ {request.f_low_max_hz:g} Hz, f_high ≥ {request.f_high_min_hz:g} Hz")
+    snapshot = store.snapshot()
+    result = run_design(request, snapshot, top=3, progress=err.is_terminal)
+    show_result(out, result, cautions_for=_cautions(request, snapshot))

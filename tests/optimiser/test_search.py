@@ -1,0 +1,114 @@
+"""The search: request checks, the pruning bounds against the engine, stock counting."""
+
+import math
+
+import numpy as np
+import pytest
+
+from inventory.errors import InputError
+from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
+from optimiser.ac import small_signal
+from optimiser.dc import operating_point, solve_bias, thevenin
+from optimiser.device import device_from_transistor
+from optimiser.evaluate import evaluate
+from optimiser.prune import bias_current, early_bounds, midband_estimate
+from optimiser.request import Request
+from optimiser.search import check_request, search
+from optimiser.stage import StageBatch
+
+T = Transistor("GP-N1", 100, 300, qty=10, ft=250e6, cob=4e-12, vceo=40, ic_max=0.1, pd=0.5,
+               id=900, location="Q1")
+E12 = [1.0, 1.2, 1.5, 1.8, 2.2, 2.7, 3.3, 3.9, 4.7, 5.6, 6.8, 8.2]
+
+
+def drawer(qty=10, decades=(2, 3, 4, 5)):
+    res = [Resistor(m * 10**d, qty, id=i, location=f"R{i}")
+           for i, (d, m) in enumerate((d, m) for d in decades for m in E12)]
+    caps = [Capacitor(v, qty, id=500 + i, location=f"C{i}")
+            for i, v in enumerate([100e-9, 470e-9, 1e-6, 4.7e-6, 10e-6, 47e-6, 100e-6])]
+    return StockSnapshot(tuple(res), tuple(caps), (T,))
+
+
+@pytest.mark.parametrize("kw, field", [
+    (dict(topology="ce", f_low_max_hz=1e4, f_high_min_hz=1e3), "f_high_min_hz"),
+    (dict(topology="cc", gain=2.0), "gain_db"),
+    # ce gain < g_m·R_C = I_C·R_C/V_T < V_supply/V_T ≈ 467 at 12 V, 25 °C
+    (dict(topology="ce", gain=1000.0), "gain_db"),
+    (dict(topology="cb", gain=100.0, load_ohm=1e4, source_ohm=600.0), "gain_db"),
+    (dict(topology="cc", zin_min_ohm=1e7), "zin_min_ohm"),
+])
+def test_contradictory_requests_are_input_errors(kw, field):
+    req = Request(supply_v=12.0, **kw)
+    with pytest.raises(InputError) as e:
+        check_request(req, drawer())
+    assert e.value.field == field
+    assert "\n" not in str(e.value)
+
+
+def test_sensible_request_passes_the_checks():
+    check_request(Request(topology="ce", supply_v=12.0, gain=10.0, load_ohm=1e4,
+                          f_low_max_hz=50, f_high_min_hz=1e5), drawer())
+
+
+def test_bias_current_brackets_the_engine():
+    # bound B1: I_C at the two extreme Early factors brackets the full model's I_C
+    rng = np.random.default_rng(3)
+    n = 4000
+    m = device_from_transistor(T)
+    r1, r2 = rng.uniform(5e3, 2e5, n), rng.uniform(1e3, 5e4, n)
+    re, rc = rng.uniform(50, 5e3, n), rng.uniform(0, 2e4, n)
+    vth, rth = thevenin(12.0, r1, r2)
+    op = solve_bias(vth, rth, re, rc, 12.0, m)
+    ok = op.converged & (op.vce >= m.vce_sat + 0.3) & (op.ic > 1e-7)
+    lo, hi = early_bounds(12.0, m)
+    ic_lo = bias_current(vth, rth, re, m, 25.0, None, lo)
+    ic_hi = bias_current(vth, rth, re, m, 25.0, None, hi)
+    assert ok.sum() > 1000
+    assert np.all(op.ic[ok] >= ic_lo[ok] * (1 - 1e-9))
+    assert np.all(op.ic[ok] <= ic_hi[ok] * (1 + 1e-9))
+
+
+@pytest.mark.parametrize("topo", ["ce", "cb", "cc"])
+def test_midband_estimate_is_the_engine_with_capacitors_shorted(topo):
+    rng = np.random.default_rng(7)
+    n = 500
+    req = Request(topology=topo, supply_v=12.0, load_ohm=1e4, source_ohm=600.0)
+    vals = dict(R1=rng.uniform(2e4, 1e5, n), R2=rng.uniform(5e3, 2e4, n),
+                RC=rng.uniform(1e3, 1e4, n), RE=rng.uniform(100, 1e3, n), C_IN=1.0, C_OUT=1.0)
+    if topo == "ce":
+        vals.update(RE_BYP=rng.uniform(100, 1e3, n), C_BYP=1.0)
+    if topo == "cb":
+        vals.update(C_B=1.0)
+    b = StageBatch.from_values(topo, **vals)
+    ev = evaluate(req, b, T, None, band_edges=False, large_signal=False)
+    model = device_from_transistor(T)
+    op = operating_point(topo, 12.0, b, model)
+    g, _ = midband_estimate(topo, r1=b.R1, r2=b.R2, rc=b.RC, re=b.RE, source_ohm=600.0,
+                            load_ohm=1e4, mid_hz=1000.0, ss=small_signal(op, model))
+    ok = ev.valid
+    assert ok.sum() > 100
+    err_db = np.abs(20 * np.log10(g[ok] / ev.metrics["gain"][ok]))
+    assert err_db.max() < 1e-3        # GAIN_SLACK_DB in optimiser.search
+
+
+def test_builds_and_shared_values_are_counted_against_stock():
+    # every value 1 piece short of what three builds of any ce stage need in one role
+    req = Request(topology="cc", supply_v=12.0, load_ohm=1e4, source_ohm=600.0, gain=0.9,
+                  gain_tol_db=3.0, builds=3)
+    res = search(req, drawer(qty=3, decades=(3, 4)), top=3, misses=0)
+    assert res.feasible
+    for d in res.designs:
+        used = {}
+        for p in d.parts.values():
+            for x in p.pieces:
+                used[x.id] = used.get(x.id, 0) + x.count
+        for rid, n in used.items():
+            assert n * 3 <= 3          # every row holds 3: one piece per copy at most
+
+
+def test_no_transistor_that_stands_the_supply_is_an_answer():
+    t = Transistor("LV", 100, 300, qty=5, vceo=5.0, ft=1e8, cob=5e-12)
+    snap = StockSnapshot(drawer().resistors, drawer().capacitors, (t,))
+    res = search(Request(topology="cc", supply_v=12.0, gain=0.9), snap, top=3)
+    assert not res.feasible
+    assert any("vceo" in u for u in res.unlock)
