@@ -623,38 +623,55 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     ts = _transistors(request, snapshot)
     jobs = [_Job(request, opts, t, f, stats) for t in ts for f in FORMS[request.topology]
             if opts.resistor.values.size]
-    heap: list = []
+    levels = ("pairs", "blocks", "nodes", "cands", "skel")
+    heaps: dict[str, list] = {k: [] for k in levels}
+
+    def push(item):
+        heapq.heappush(heaps[item[2]], item)
+
+    def smallest() -> float:
+        return min((h[0][0] for h in heaps.values() if h), default=math.inf)
+
     seq = itertools.count()
     for j, job in enumerate(jobs):
         for lb, p in job.pair_blocks():
-            heapq.heappush(heap, (lb, next(seq), "pairs", (j, p)))
+            push((lb, next(seq), "pairs", (j, p)))
     found: list[Design] = []
     pool: list = []
     win = gain_window(request)
     stats.setdefault("drift_checked", 0)
     stats.setdefault("quick_evaluations", 0)
     steps = 0
-    while heap:
+    while any(heaps.values()):
         kth = found[top - 1].score if len(found) >= top else math.inf
-        if heap[0][0] >= kth:
+        low = smallest()
+        if low >= kth:
             break
         steps += 1
         if progress and steps % 5 == 0:
             progress(min(len(found), top), top, f"{len(found)} designs found")
-        lb, _, kind, payload = heapq.heappop(heap)
+        if len(found) < top:
+            # dive: the deepest level first, so that a bound to beat is known early
+            level = next(k for k in reversed(levels) if heaps[k])
+        else:
+            # best first: the level holding the smallest bound
+            level = min((k for k in levels if heaps[k]), key=lambda k: heaps[k][0][0])
+        lb, _, kind, payload = heapq.heappop(heaps[level])
+        if lb >= kth:
+            continue
         if kind == "pairs":
             j, p = payload
             P, a, b, blb = jobs[j].expand_pairs(p, kth)
             for s0 in range(0, P.size, NODE_BLOCK):
                 sl = slice(s0, s0 + NODE_BLOCK)
-                heapq.heappush(heap, (float(blb[s0]), next(seq), "blocks",
+                push((float(blb[s0]), next(seq), "blocks",
                                       (j, P[sl], a[sl], b[sl])))
         elif kind == "blocks":
             j, P, a, b = payload
             P, E, ic_lo, d_lb, nlb = jobs[j].expand_blocks(P, a, b, kth)
             for s0 in range(0, P.size, NODE_BLOCK):
                 sl = slice(s0, s0 + NODE_BLOCK)
-                heapq.heappush(heap, (float(nlb[s0]), next(seq), "nodes",
+                push((float(nlb[s0]), next(seq), "nodes",
                                       (j, P[sl], E[sl], ic_lo[:, sl], d_lb[sl])))
         elif kind == "nodes":
             j, P, E, ic_lo, d_lb = payload
@@ -662,7 +679,7 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
             if sk is not None:
                 for s in range(0, sk.n, QUICK_BATCH):
                     sub = _take_all(sk, np.arange(s, min(s + QUICK_BATCH, sk.n)))
-                    heapq.heappush(heap, (float(sub.lb[0]), next(seq), "cands", sub))
+                    push((float(sub.lb[0]), next(seq), "cands", sub))
         elif kind == "cands":
             sk = payload
             keep = sk.lb < kth
@@ -688,16 +705,15 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
             lb15 = terms["gain"] + terms["drift"] + terms["distortion"] + terms["current"] \
                 + sk.stock_lb
             for i in np.flatnonzero(ok & (lb15 < kth)):
-                heapq.heappush(heap, (float(lb15[i]), next(seq), "skel",
+                push((float(lb15[i]), next(seq), "skel",
                                       (sk, int(i), {"drift_pct": float(drift[i]),
                                                     "gain_inf_db": float(sk.gdb[i]),
                                                     "hd2_pct": float(sk.hd2[i]),
                                                     "supply_a": float(sk.supply[i])})))
         else:
             batch = [(lb, payload)]
-            while heap and heap[0][2] == "skel" and len(batch) < CONFIRM_BATCH \
-                    and heap[0][0] < kth:
-                e = heapq.heappop(heap)
+            while heaps["skel"] and len(batch) < CONFIRM_BATCH and heaps["skel"][0][0] < kth:
+                e = heapq.heappop(heaps["skel"])
                 batch.append((e[0], e[3]))
             groups: dict[int, list] = {}
             for lbx, (sk, i, row) in batch:
