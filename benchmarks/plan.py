@@ -112,7 +112,7 @@ def lp_relaxation_seconds(items, rows, catalogue) -> float:
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--candidates", type=int, default=30, help="search top per source")
+    ap.add_argument("--candidates", type=int, default=20, help="search top per source")
     ap.add_argument("--time-limit", type=float, default=None)
     ap.add_argument("--synthetic", type=int, default=0, metavar="N",
                     help="skip the search: N synthetic candidates per request (times the "

@@ -1120,7 +1120,7 @@ def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot
     return unique, note, {"searches": runs, "seconds": time.perf_counter() - t0}
 
 
-def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candidates: int = 30,
+def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candidates: int = 20,
               time_limit: float | None = None, search_fn: Callable | None = None,
               progress: Callable[[str], None] | None = None) -> Plan:
     """Plan a build list against ``snapshot``: candidates, programme, solution.

@@ -48,7 +48,7 @@ def write_order(plan, path: str, *, committed: bool = False) -> None:
 @click.option("--commit", is_flag=True,
               help="Record the builds and take their pieces out of stock (one transaction); "
                    "purchases are recorded as awaiting arrival.")
-@click.option("--candidates", type=click.IntRange(1, 500), default=30, show_default=True,
+@click.option("--candidates", type=click.IntRange(1, 500), default=20, show_default=True,
               help="Designs the search offers per request (and per source).")
 @click.option("--time-limit", type=click.FloatRange(min=0.1), default=None, metavar="SECONDS",
               help="Stop the solver after this long; the status then says so.")
