@@ -17,7 +17,7 @@ Times are wall-clock seconds on this machine; nothing here asserts.
 from __future__ import annotations
 
 import argparse
-import itertools
+import signal
 import statistics
 import sys
 import time
@@ -118,11 +118,24 @@ def exhaustive_rate(req: Request, snap: StockSnapshot, sample: int) -> tuple[flo
     return (time.perf_counter() - t) / sample, total
 
 
+class _Stopped(Exception):
+    pass
+
+
+def _alarm(signum, frame):
+    raise _Stopped()
+
+
+signal.signal(signal.SIGALRM, _alarm)
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--runs", type=int, default=3)
     ap.add_argument("--skip-e96", action="store_true")
     ap.add_argument("--sample", type=int, default=2000)
+    ap.add_argument("--topologies", default="ce,cb,cc")
+    ap.add_argument("--limit", type=int, default=600, help="seconds before a run is stopped")
     a = ap.parse_args()
     print("drawerfit search benchmark (wall-clock seconds)")
     demo()
@@ -130,12 +143,20 @@ def main() -> None:
         snap = e96_drawer()
         print(f"E96 drawer: {len(snap.resistors)} resistor values, {len(snap.capacitors)} "
               f"capacitor values, {len(snap.transistors)} transistor types; top 10")
-        for topo, req in REQUESTS.items():
+        for topo in a.topologies.split(","):
+            req = REQUESTS[topo]
             times = []
-            for _ in range(a.runs):
-                t = time.perf_counter()
-                res = search(req, snap, top=10, misses=0)
-                times.append(time.perf_counter() - t)
+            res = None
+            try:
+                for _ in range(a.runs):
+                    t = time.perf_counter()
+                    signal.alarm(a.limit)
+                    res = search(req, snap, top=10, misses=0)
+                    signal.alarm(0)
+                    times.append(time.perf_counter() - t)
+            except _Stopped:
+                print(f"  {topo}: stopped after {a.limit} s without finishing (target ≤ 3 s)")
+                continue
             print(f"  {topo}: median {statistics.median(times):.2f} s over {a.runs} runs "
                   f"(target ≤ 3 s), {len(res.designs)} designs, "
                   f"{res.stats.get('collector_candidates', 0)} stages bounded")

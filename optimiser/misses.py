@@ -9,7 +9,8 @@
 * **Relax one target.**  Among those designs, the ones that miss a single
   target say how far that target alone must move: "f_low_max_hz 50 → 63".
 * **Buy one value.**  The search is run on the drawer plus every E12 resistor
-  (10 Ω–1 MΩ) and E6 capacitor (10 pF–1000 µF) as rows "to order"; a design
+  and E6 capacitor within (a little beyond) the span of values the drawer holds
+  (at most 10 Ω–1 MΩ, 10 pF–1000 µF) as rows "to order"; a design
   meeting the request with exactly one bought value names it.  This is a
   suggestion, not a complete list.
 
@@ -29,7 +30,12 @@ from optimiser.design import Design
 from optimiser.request import Request
 from optimiser.stage import StageBatch
 
-__all__ = ["explain", "miss_distance", "relaxed", "TARGETS"]
+__all__ = ["explain", "miss_distance", "relaxed", "TARGETS", "MISS_BUDGET_S", "BUY_BUDGET_S"]
+
+#: Time budgets (s) of the two suggestion searches; they are heuristics, and a
+#: budget only shortens the list of suggestions.
+MISS_BUDGET_S = 20.0
+BUY_BUDGET_S = 10.0
 
 #: Targets of a request: key, metric, sense ("max": metric ≤ limit, "min": ≥).
 TARGETS = (("f_low_max_hz", "f_low_hz", "max"), ("f_high_min_hz", "f_high_hz", "min"),
@@ -140,7 +146,7 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
                     f"{best:g} V): lower supply_v to {best:g} V or buy a higher-voltage type"]
     s2: dict = {"pruned": {}}
     loose = relaxed(request)
-    found, _ = search_designs(loose, snapshot, max(4 * misses, 20), s2)
+    found, _ = search_designs(loose, snapshot, max(4 * misses, 20), s2, budget_s=MISS_BUDGET_S)
     stats["misses_search"] = {k: v for k, v in s2.items() if k != "pruned"}
     judged = _judge(request, found, snapshot)
     nearest = judged[:misses]
@@ -185,10 +191,14 @@ def _virtual(snapshot: StockSnapshot) -> StockSnapshot:
     res = list(snapshot.resistors)
     caps = list(snapshot.capacitors)
     k = 1
-    for v in series_values("E12", 10.0, 1e6):
+    rlo = min((r.value for r in res), default=10.0) / 2
+    rhi = max((r.value for r in res), default=1e6) * 2
+    clo = min((c.value for c in caps), default=10e-12) / 3
+    chi = max((c.value for c in caps), default=1000e-6) * 3
+    for v in series_values("E12", max(10.0, rlo), min(1e6, rhi)):
         res.append(Resistor(float(v), 10**9, id=-k, location="to order"))
         k += 1
-    for v in series_values("E6", 10e-12, 1000e-6):
+    for v in series_values("E6", max(10e-12, clo), min(1000e-6, chi)):
         diel = "electrolytic" if v >= 1e-6 else "ceramic"
         caps.append(Capacitor(float(v), 10**9, id=-k, location="to order", dielectric=diel))
         k += 1
@@ -198,7 +208,7 @@ def _virtual(snapshot: StockSnapshot) -> StockSnapshot:
 def _buy_one(request: Request, snapshot: StockSnapshot) -> list[str]:
     from optimiser.search import search_designs
     s3: dict = {"pruned": {}}
-    found, _ = search_designs(request, _virtual(snapshot), 20, s3)
+    found, _ = search_designs(request, _virtual(snapshot), 20, s3, budget_s=BUY_BUDGET_S)
     out: list[str] = []
     for d in found:
         bought = {(p.kind, p.value) for rp in d.parts.values() for p in rp.pieces

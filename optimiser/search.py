@@ -393,18 +393,45 @@ class _Job:
             rc_max = np.where(ic_lo > 0, (V - ve_lo - model.vce_sat) / ic_lo, np.inf)
         nrc = np.searchsorted(self.rc_vals, rc_max * (1 + 1e-9), side="right")
         self.count("headroom", (self.rc_vals.size - nrc).sum())
-        # B6: gain ≤ (RC‖RL)/(V_T/I_C + RE) (ce) or g_m·(RC‖RL) (cb), with a 20 % margin
+        # B6: gain ≤ (RC‖RL)/(V_T/I_C + RE) (ce) or g_m·(RC‖RL) (cb), with a 20 % margin.
+        # Once a score to beat is known, the gain term alone confines the gain to
+        # target·10^(±upper·tol/20) (B11), on both sides for ce.
         n0 = np.zeros_like(nrc)
         if self.win is not None and topo in ("ce", "cb"):
             from optimiser.device import thermal_voltage
             vt = thermal_voltage(25.0)
+            g_lo, g_hi = self.win[0], self.win[1] * 10 ** (HIGH_GAIN_SLACK_DB / 20)
+            if math.isfinite(upper):
+                span = upper * request.gain_tol_db / 20.0
+                g_lo = max(g_lo, request.gain / 10 ** span)
+                g_hi = min(g_hi, request.gain * 10 ** span)
+            rl = request.load_ohm
             with np.errstate(divide="ignore", invalid="ignore"):
-                x = self.win[0] * (vt / ic_hi + (REv if topo == "ce" else 0.0)) / GAIN_BOUND_MARGIN
-                rl = request.load_ohm
+                x = g_lo * (vt / ic_hi + (REv if topo == "ce" else 0.0)) / GAIN_BOUND_MARGIN
                 rc_min = x if not rl else np.where(x < rl, x * rl / (rl - x), np.inf)
             rc_min = np.nan_to_num(rc_min, nan=np.inf)
             n0 = np.minimum(np.searchsorted(self.rc_vals, rc_min * (1 - 1e-9), side="left"), nrc)
             self.count("gain_bound", n0.sum())
+            if topo == "ce":
+                # smallest gain a given RC can give: k_in·β·Z'/(r_π + (β+1)·RE) with every
+                # factor at its least favourable end; RC above the one reaching g_hi·margin
+                # gives too much gain
+                b = float(self.t.beta_nominal)
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    rpi_max = b * self.q_hi * vt / ic_lo
+                    rpi_min = b * self.q_lo * vt / ic_hi
+                    rth = self.rth[P]
+                    rin = rth * (rpi_min + (b + 1) * REv) / (rth + rpi_min + (b + 1) * REv)
+                    rs = float(request.source_ohm or 0.0)
+                    k_in = rin / (rin + rs)
+                    zmax = g_hi * GAIN_BOUND_MARGIN * (rpi_max + (b + 1) * REv) / (k_in * b)
+                    ro = (model.vaf - 1.0) / ic_hi if math.isfinite(model.vaf) else np.inf
+                    inv = 1.0 / zmax - (1.0 / rl if rl else 0.0) - 1.0 / ro
+                    rc_top = np.where(inv > 0, 1.0 / np.where(inv > 0, inv, 1.0), np.inf)
+                rc_top = np.minimum(np.nan_to_num(rc_top, nan=np.inf), 1e300)
+                n1 = np.searchsorted(self.rc_vals, rc_top * (1 + 1e-9), side="right")
+                self.count("gain_bound_high", np.maximum(nrc - np.maximum(n1, n0), 0).sum())
+                nrc = np.maximum(np.minimum(nrc, n1), n0)
         rep, offs = _expand(nrc - n0)
         if rep.size == 0:
             return None
@@ -591,13 +618,43 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
     check_request(request, snapshot)
     t0 = time.perf_counter()
     stats: dict = {"pruned": {}}
-    designs, pool = search_designs(request, snapshot, top, stats, progress)
+    want = top * 3 if request.min_yield_pct is not None else top
+    designs, pool = search_designs(request, snapshot, want, stats, progress)
+    if request.wants_yield and designs:
+        designs = _with_yield(request, snapshot, designs, top, stats)
     result = SearchResult(request, bool(designs), designs, [], [], stats)
     if not designs and misses > 0:
         from optimiser.misses import explain
         result.nearest_misses, result.unlock = explain(request, snapshot, pool, misses, stats)
     stats["seconds"] = time.perf_counter() - t0
     return result
+
+
+def _with_yield(request: Request, snapshot: StockSnapshot, designs: list[Design], top: int,
+                stats: dict) -> list[Design]:
+    """Monte Carlo yield of the shortlist (interface.md "Yield"); drops designs below
+    min_yield_pct.  The yield is computed after ranking, on up to 3·top designs."""
+    try:
+        from optimiser.yield_ import apply_yield, monte_carlo
+    except ImportError:  # pragma: no cover - the module ships with the engine
+        return designs[:top]
+    kept = []
+    for d in designs:
+        tol = {r: max((x.tolerance for x in p.pieces if x.tolerance is not None), default=None)
+               for r, p in d.parts.items()}
+        tol = {r: v for r, v in tol.items() if v is not None}
+        res = monte_carlo(request, d.values(), snapshot.transistor(d.transistor), tol,
+                          samples=request.samples, seed=request.seed)
+        apply_yield(d, res, request)
+        if d.meets_spec:
+            kept.append(d)
+        else:
+            stats["pruned"]["yield"] = stats["pruned"].get("yield", 0) + 1
+        if len(kept) >= top:
+            break
+    for r, d in enumerate(kept, 1):
+        d.rank = r
+    return kept
 
 
 QUICK_BATCH = 2000
@@ -607,7 +664,7 @@ TOTALS_BLOCK = 16
 
 
 def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
-                   progress=None):
+                   progress=None, budget_s: float | None = None):
     """Steps 2–5 as one best-first branch and bound; (designs, pool of evaluated misses).
 
     A heap holds blocks of pairs, blocks of bias nodes, blocks of collector
@@ -642,7 +699,11 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     stats.setdefault("drift_checked", 0)
     stats.setdefault("quick_evaluations", 0)
     steps = 0
+    t_start = time.perf_counter()
     while any(heaps.values()):
+        if budget_s is not None and time.perf_counter() - t_start > budget_s:
+            stats["stopped_at_budget"] = True      # only for suggestions, never for `search`
+            break
         kth = found[top - 1].score if len(found) >= top else math.inf
         low = smallest()
         if low >= kth:
