@@ -22,8 +22,6 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
-import numpy as np
-
 from inventory.parts import Capacitor, Resistor, StockSnapshot
 from inventory.values import format_value, series_values
 from optimiser.design import Design

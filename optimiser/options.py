@@ -228,7 +228,7 @@ class StockOptions:
             alts = []
             for rec in recs:
                 cand = []
-                for part, share in zip(rec.parts, rec.shares):
+                for part, share in zip(rec.parts, rec.shares, strict=False):
                     rows = [i for i in self.rows_of(kind, part)
                             if self._stress_ok(self.rows[i], stress, share)]
                     cand.append(rows)
@@ -283,7 +283,7 @@ class StockOptions:
         used = {}
         picks: dict[str, RolePick] = {}
         ratings: dict[str, dict[str, float]] = {}
-        for role, (rec, rows) in zip(order, best[1]):
+        for role, (rec, rows) in zip(order, best[1], strict=False):
             kind = roles[role][0]
             counts: dict[int, int] = {}
             for i in rows:
@@ -292,7 +292,7 @@ class StockOptions:
             pieces = tuple(self._piece(i, c) for i, c in counts.items())
             picks[role] = RolePick(role, rec.value, format_value(rec.value, kind), pieces, rec.joined)
             if kind == "resistor":
-                eff = min(self._rating(self.rows[i]) / s for i, s in zip(rows, rec.shares))
+                eff = min(self._rating(self.rows[i]) / s for i, s in zip(rows, rec.shares, strict=False))
                 share = max(rec.shares)
                 ratings[role] = {"power_w": eff * share, "power_share": share}
             else:

@@ -37,7 +37,7 @@ import numpy as np
 
 from inventory.errors import InputError, InputErrors
 from inventory.parts import StockSnapshot, Transistor
-from optimiser.design import Design, Piece, RolePick
+from optimiser.design import Design
 from optimiser.options import (
     CAPACITOR_DERATING,
     RESISTOR_DERATING,
@@ -862,7 +862,7 @@ def _cap_targets(request, sk: Skeletons, li: np.ndarray, rows: list[dict], crole
     rs = float(request.source_ohm or 0.0)
     rl = float(request.load_ohm) if request.load_ohm else math.inf
     out = np.zeros((len(rows), nr))
-    for a, (i, m) in enumerate(zip(li, rows)):
+    for a, (i, m) in enumerate(zip(li, rows, strict=False)):
         r1, r2, rc, re, byp = (float(getattr(sk, k)[i]) for k in ("R1", "R2", "RC", "RE", "RE_BYP"))
         ic = max(m["ic_a"], 1e-12)
         re_small = 0.02585 / ic
@@ -901,7 +901,7 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
     t = sk.transistor
     t_empty = int(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
     li_all, rows, allocs, allowed, st_all = [], [], [], [], []
-    for lb2, _, _, i, row in entries:
+    for _lb2, _, _, i, row in entries:
         st = _stresses(sk, i, {k: [v] for k, v in row.items()}, 0, V)
         rroles = resistor_roles(sk.topology, sk.form, float(sk.RC[i]))
         alloc = opts.allocate({r: ("resistor", float(getattr(sk, r)[i]), st[r]) for r in rroles})

@@ -47,7 +47,7 @@ def run_design(request, snapshot, *, top: int, progress: bool):
 
 
 @click.command(name="design")
-@click.argument("request_file", metavar="REQUEST.toml", type=click.Path(dir_okay=False))
+@click.argument("request_file", metavar="REQUEST.toml", type=click.Path())
 @click.option("--top", "top", type=click.IntRange(1, 100), default=5, show_default=True,
               help="How many ranked designs to show.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON (interface.md) instead of tables.")
@@ -73,7 +73,11 @@ def command(app, request_file: str, top: int, as_json: bool, sheet_dir: str | No
     except InputError as exc:
         _, text = read_toml(request_file)
         raise _locate(exc, request_file, text) from None
-    result = run_design(request, snapshot, top=top, progress=not as_json and err.is_terminal)
+    try:
+        result = run_design(request, snapshot, top=top, progress=not as_json and err.is_terminal)
+    except InputError as exc:                 # e.g. a transistor label not in stock
+        _, text = read_toml(request_file)
+        raise _locate(exc, request_file, text) from None
     if as_json:
         emit_json(result.to_json())
         if sheet_dir is not None:

@@ -1,7 +1,6 @@
 """`drawerfit design` through the CLI runner: exit codes, JSON shape, key lines."""
 
 import json
-from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -50,7 +49,7 @@ def check_design_shape(d, meets):
     # interface.md "JSON printed by design --json"
     assert set(d) >= {"rank", "topology", "transistor", "parts", "metrics", "meets_spec", "score"}
     assert d["meets_spec"] is meets
-    for role, p in d["parts"].items():
+    for _role, p in d["parts"].items():
         assert set(p) >= {"value", "label", "pieces"}
         for piece in p["pieces"]:
             assert set(piece) >= {"id", "count", "value", "location"}

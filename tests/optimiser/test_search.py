@@ -1,6 +1,5 @@
 """The search: request checks, the pruning bounds against the engine, stock counting."""
 
-import math
 
 import numpy as np
 import pytest
@@ -102,7 +101,7 @@ def test_builds_and_shared_values_are_counted_against_stock():
         for p in d.parts.values():
             for x in p.pieces:
                 used[x.id] = used.get(x.id, 0) + x.count
-        for rid, n in used.items():
+        for _rid, n in used.items():
             assert n * 3 <= 3          # every row holds 3: one piece per copy at most
 
 

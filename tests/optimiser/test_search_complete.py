@@ -16,7 +16,7 @@ from hypothesis import strategies as st
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
 from optimiser.evaluate import evaluate
 from optimiser.request import Request
-from optimiser.score import STOCK_PENALTY, score_terms
+from optimiser.score import score_terms
 from optimiser.search import FORMS, cap_roles, search_designs, skeleton_figures
 from optimiser.stage import StageBatch
 
@@ -48,13 +48,13 @@ def exhaustive(req: Request, snap: StockSnapshot):
         croles = cap_roles(req.topology, form)
         rows = []
         for rv in itertools.product(sorted(rqty), repeat=len(rroles)):
-            vals = dict(zip(rroles, rv))
+            vals = dict(zip(rroles, rv, strict=False))
             choices = [dict(vals)]
             if req.topology == "cc":
                 choices.append({**vals, "RC": 0.0})
             for v in choices:
                 for cv in itertools.product(sorted(cqty), repeat=len(croles)):
-                    rows.append({**v, **dict(zip(croles, cv))})
+                    rows.append({**v, **dict(zip(croles, cv, strict=False))})
         # stock: pieces × builds ≤ qty, a value in two roles counted twice
         keep = []
         for v in rows:
