@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import click
 
-from inventory.errors import DrawerfitError
+from inventory.errors import DrawerfitError, InputError
 
 __all__ = ["main", "cli", "AppContext", "pass_app"]
 
@@ -36,6 +36,14 @@ class AppContext:
 
 pass_app = click.make_pass_decorator(AppContext)
 
+#: Characters that would break one problem's message over several lines.
+_BREAKS = "\n\r\v\f\x1c\x1d\x1e\x85\u2028\u2029"
+
+
+def _one_line(text: str) -> str:
+    """One input problem on one line: line breaks quoted from the input are shown escaped."""
+    return "".join(repr(c)[1:-1] if c in _BREAKS else c for c in text)
+
 
 class _Group(click.Group):
     """Maps the project's errors to one line each on stderr and their exit code."""
@@ -44,7 +52,9 @@ class _Group(click.Group):
         try:
             return super().invoke(ctx)
         except DrawerfitError as exc:
-            for line in str(exc).splitlines() or [exc.__class__.__name__]:
+            lines = ([_one_line(str(e)) for e in getattr(exc, "errors", [exc])]
+                     if isinstance(exc, InputError) else str(exc).splitlines())
+            for line in lines or [exc.__class__.__name__]:
                 click.echo(f"drawerfit: {line}", err=True)
             raise click.exceptions.Exit(exc.exit_code) from None
 

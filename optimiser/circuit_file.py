@@ -122,6 +122,9 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
         m = _ID.match(raw) if isinstance(raw, str) else None
         if m:
             item_id = int(m[1])
+            if item_id > 2**31 - 1:          # beyond the store's integer ids
+                raise err(key, f"no stock item with id {item_id}; see `drawerfit stock list`",
+                          role)
             try:
                 part = get_store().item(item_id)
             except InputError as e:
@@ -221,7 +224,9 @@ def _inline_transistor(tr: dict, err) -> Transistor:
             raise err(f"transistor.{key}", e.message, key) from None
         except (TypeError, ValueError):
             raise err(f"transistor.{key}", f"expected a number, got {v!r}", key) from None
-        if not np.isfinite(x) or x <= lo:
+        if not np.isfinite(x):
+            raise err(f"transistor.{key}", f"expected a finite number, got {v!r}", key)
+        if x <= lo:
             raise err(f"transistor.{key}", f"{v!r} is out of range: must be > {lo:g}", key)
         return x
 
@@ -238,12 +243,18 @@ def _inline_transistor(tr: dict, err) -> Transistor:
             kw[key] = number(key, readers.get(key))
     if kw["hfe_min"] > kw["hfe_max"]:
         raise err("transistor.hfe_min", "hfe_min is above hfe_max", "hfe_min")
+    if "hfe_typ" in kw and not kw["hfe_min"] <= kw["hfe_typ"] <= kw["hfe_max"]:
+        raise err("transistor.hfe_typ", f"hfe_typ {kw['hfe_typ']:g} lies outside hfe_min..hfe_max "
+                                        f"({kw['hfe_min']:g}..{kw['hfe_max']:g})", "hfe_typ")
     if "vbe" in kw and not 0.2 <= kw["vbe"] <= 1.2:
         raise err("transistor.vbe", f"vbe {kw['vbe']:g} V is out of range 0.2–1.2 V", "vbe")
-    polarity = str(tr.get("polarity", "npn")).lower()
-    if polarity != "npn":
+    polarity = tr.get("polarity", "npn")
+    if not isinstance(polarity, str) or polarity.strip().lower() != "npn":
         raise err("transistor.polarity", "only npn stages are analysed", "polarity")
-    label = str(tr.get("label", "inline"))
+    label = tr.get("label", "inline")
+    if not isinstance(label, str) or not label.strip():
+        raise err("transistor.label", f"expected a non-empty text, got {label!r}", "label")
+    label = label.strip()
     return Transistor(label, **kw)
 
 

@@ -72,6 +72,8 @@ REQUEST_KEYS = (
 CIRCUIT_KEYS = ("parts", "tolerances")
 #: Largest supply the tool accepts, V (single-supply small-signal stages).
 MAX_SUPPLY_V = 400.0
+#: Resistances a request may name (load, source, Z_in bound), ohm: 1 mΩ to 1 TΩ.
+MIN_OHM, MAX_OHM = 1e-3, 1e12
 
 
 def _line_of(text: str | None, key: str) -> int | None:
@@ -81,6 +83,14 @@ def _line_of(text: str | None, key: str) -> int | None:
     import re
 
     m = re.search(rf"^[ \t]*{re.escape(key)}[ \t]*=", text, re.M)
+    return None if m is None else text.count("\n", 0, m.start()) + 1
+
+
+def _header_line(text: str | None, table: str) -> int | None:
+    """Line (from 1) of the ``[table]`` header in the TOML text, if found."""
+    import re
+
+    m = re.search(rf"^[ \t]*\[[ \t]*{re.escape(table)}[ \t]*\]", text or "", re.M)
     return None if m is None else text.count("\n", 0, m.start()) + 1
 
 
@@ -152,9 +162,9 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     if "load_ohm" in m:
         lo = m["load_ohm"]
         kw["load_ohm"] = None if (isinstance(lo, str) and lo.strip().lower() in ("", "none", "open")) \
-            else num("load_ohm", lo, lo=0, lo_open=True, reader=ohm)
+            else num("load_ohm", lo, lo=MIN_OHM, hi=MAX_OHM, reader=ohm)
     if "source_ohm" in m:
-        kw["source_ohm"] = num("source_ohm", m["source_ohm"], lo=0, reader=ohm)
+        kw["source_ohm"] = num("source_ohm", m["source_ohm"], lo=0, hi=MAX_OHM, reader=ohm)
     if "mid_hz" in m:
         kw["mid_hz"] = num("mid_hz", m["mid_hz"], lo=1e-3, hi=100e9, reader=hz)
     if "gain_db" in m and "gain" in m:
@@ -170,7 +180,8 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
         if key in m:
             kw[key] = num(key, m[key], lo=0, lo_open=True, hi=100e9, reader=hz)
     if "zin_min_ohm" in m:
-        kw["zin_min_ohm"] = num("zin_min_ohm", m["zin_min_ohm"], lo=0, lo_open=True, reader=ohm)
+        kw["zin_min_ohm"] = num("zin_min_ohm", m["zin_min_ohm"], lo=0, lo_open=True, hi=MAX_OHM,
+                                reader=ohm)
     if "ic_drift_max_pct" in m:
         kw["ic_drift_max_pct"] = num("ic_drift_max_pct", m["ic_drift_max_pct"], lo=0,
                                      lo_open=True, hi=1000)
@@ -226,9 +237,14 @@ def read_toml(path) -> tuple[dict, str]:
 
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        text = p.read_text(encoding="utf-8-sig")      # a leading BOM is dropped
     except OSError as e:
         raise InputError(f"cannot read the file: {e.strerror or e}", file=str(path)) from None
+    except UnicodeDecodeError as e:
+        data = p.read_bytes()
+        line = data.count(b"\n", 0, e.start) + 1
+        raise InputError(f"not UTF-8 text (byte 0x{data[e.start]:02x}); save the file as UTF-8",
+                         file=str(path), line=line) from None
     try:
         return tomllib.loads(text), text
     except tomllib.TOMLDecodeError as e:
@@ -240,6 +256,13 @@ def read_toml(path) -> tuple[dict, str]:
 
 def load_request(path) -> Request:
     """Read and check a request file (TOML)."""
+    from inventory.errors import InputError
+
     mapping, text = read_toml(path)
+    if isinstance(mapping.get("transistor"), dict):
+        raise InputError("a [transistor] table describes one given transistor (for `analyse`); "
+                         "a request picks from stock: write transistor = \"LABEL\" or leave "
+                         "it out for any", file=str(path), line=_header_line(text, "transistor"),
+                         field="transistor")
     return parse_request(mapping, file=str(path), text=text,
                          extra_keys=CIRCUIT_KEYS + ("transistor",))

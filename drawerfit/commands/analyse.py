@@ -12,7 +12,7 @@ __all__ = ["command"]
 
 
 @click.command(name="analyse")
-@click.argument("circuit", type=click.Path(dir_okay=False))
+@click.argument("circuit", type=click.Path())
 @click.option("--json", "as_json", is_flag=True, help="Print JSON: the request and the design.")
 @sheet_option
 @pass_app
