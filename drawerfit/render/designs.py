@@ -37,7 +37,7 @@ def parts_cell(d: Design) -> str:
                          for x in p.pieces)
         extra = f" {p.joined}" if p.joined else ""
         if p.plus:
-            extra += f" (+ to {p.plus})"
+            extra += f" +{p.plus[:4]}"
         lines.append(f"{role} {p.label}{extra} [dim]@{locs}[/dim]")
     if d.extra.get("transistor_pick"):
         loc = d.extra["transistor_pick"].get("location") or "?"
@@ -48,7 +48,7 @@ def parts_cell(d: Design) -> str:
 def _table(designs: list[Design], title: str, misses: bool = False) -> Table:
     t = Table(title=title, show_lines=True, title_justify="left")
     t.add_column("#", justify="right")
-    t.add_column("parts (value @ bin)")
+    t.add_column("parts @ bin", no_wrap=True)
     t.add_column("gain dB", justify="right")
     t.add_column("f_low", justify="right")
     t.add_column("f_high", justify="right")

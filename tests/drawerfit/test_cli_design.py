@@ -83,7 +83,11 @@ def test_table_shows_bins_and_reason(store, tmp_path):
     assert "#1" in r.stdout
 
 
-def test_infeasible_request_is_an_answer(store, tmp_path):
+def test_infeasible_request_is_an_answer(store, tmp_path, monkeypatch):
+    import optimiser.misses as misses
+
+    monkeypatch.setattr(misses, "MISS_BUDGET_S", 5.0)     # keep the suite quick
+    monkeypatch.setattr(misses, "BUY_BUDGET_S", 2.0)
     text = REQUEST.replace("f_low_max_hz = 100", "f_low_max_hz = 0.5")
     r = run(store, tmp_path, text, "--json")
     assert r.exit_code == 0, r.output

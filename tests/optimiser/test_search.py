@@ -111,3 +111,37 @@ def test_no_transistor_that_stands_the_supply_is_an_answer():
     res = search(Request(topology="cc", supply_v=12.0, gain=0.9), snap, top=3)
     assert not res.feasible
     assert any("vceo" in u for u in res.unlock)
+
+
+@pytest.mark.parametrize("rs, rl", [(600.0, 1e4), (0.0, None), (50.0, 2e3)])
+def test_closed_form_gain_bounds_hold_against_the_engine(rs, rl):
+    # bounds B6 (upper) and B11 (lower, ce) of docs/search.md, with the search's margin
+    from optimiser.device import thermal_voltage
+    from optimiser.search import GAIN_BOUND_MARGIN
+
+    rng = np.random.default_rng(11)
+    n = 1500
+    t = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=50.0)
+    m = device_from_transistor(t)
+    vt = thermal_voltage(25.0)
+    lo, hi = early_bounds(12.0, m)
+    req = Request(topology="ce", supply_v=12.0, load_ohm=rl, source_ohm=rs)
+    b = StageBatch.from_values("ce", R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
+                               RC=rng.uniform(200, 3e4, n), RE=rng.uniform(0, 2e3, n),
+                               RE_BYP=rng.uniform(0, 2e3, n), C_IN=1.0, C_OUT=1.0, C_BYP=1.0)
+    ev = evaluate(req, b, t, None, band_edges=False, large_signal=False)
+    ok = ev.valid
+    assert ok.sum() > 500
+    vth, rth = thevenin(12.0, b.R1, b.R2)
+    ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
+    ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
+    g = ev.metrics["gain"]
+    zc = b.RC if not rl else b.RC * rl / (b.RC + rl)
+    upper = zc / (vt / ic_hi + b.RE) * GAIN_BOUND_MARGIN
+    assert np.all(g[ok] <= upper[ok])
+    beta = t.beta_nominal
+    rpi_max, rpi_min = beta * hi * vt / ic_lo, beta * lo * vt / ic_hi
+    rin = rth * (rpi_min + (beta + 1) * b.RE) / (rth + rpi_min + (beta + 1) * b.RE)
+    z = 1 / (1 / b.RC + (1 / rl if rl else 0.0) + ic_hi / (m.vaf - 1.0))
+    lower = rin / (rin + rs) * beta * z / (rpi_max + (beta + 1) * b.RE) / GAIN_BOUND_MARGIN
+    assert np.all(g[ok] >= lower[ok])
