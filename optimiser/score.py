@@ -11,6 +11,11 @@
           + I_supply / 10 mA             supply current: through R1 plus I_C
           + 0.25 × (rows emptied)        stock: each real resistor row or transistor
                                          row the builds would empty
+          + max(0, 1 − V_CE / (V_supply/4))  headroom: a quiescent V_CE below a
+                                         quarter of the supply leaves little room
+                                         for the signal and for drift (common
+                                         practice: bias near the middle of the
+                                         load line, not at its saturated end)
 
 The gain and distortion terms use the stage with its capacitors shorted (what
 the resistors and the transistor set), so that the score of a stage does not
@@ -31,12 +36,27 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["DRIFT_UNIT_PCT", "THD_UNIT_PCT", "CURRENT_UNIT_A", "STOCK_PENALTY",
-           "gain_term", "hd2_pct", "degeneration", "score_terms", "score"]
+           "HEADROOM_FRACTION", "headroom_term", "gain_term", "hd2_pct", "degeneration", "score_terms", "score"]
 
 DRIFT_UNIT_PCT = 10.0
 THD_UNIT_PCT = 1.0
 CURRENT_UNIT_A = 10e-3
 STOCK_PENALTY = 0.25
+#: V_CE below this fraction of the supply is penalised (common practice).
+HEADROOM_FRACTION = 0.25
+
+
+def headroom_term(vce_v, supply_v):
+    """max(0, 1 − V_CE/(HEADROOM_FRACTION·V_supply)): 0 with ample headroom, 1 at V_CE = 0.
+
+    ``vce_v`` is the quiescent collector-emitter voltage (V, array); ``None``
+    (not yet known) counts as 0, which keeps every lower bound valid.
+    """
+    if vce_v is None or supply_v is None:
+        return 0.0
+    want = HEADROOM_FRACTION * float(supply_v)
+    v = np.nan_to_num(np.asarray(vce_v, dtype=float), nan=want)
+    return np.maximum(0.0, 1.0 - v / want)
 
 
 def gain_term(gain_inf_db, target_db: float | None, tol_db: float):
@@ -71,11 +91,13 @@ def degeneration(topology: str, re, source_ohm: float, load_ohm: float | None):
     return re
 
 
-def score_terms(*, gain_inf_db, target_db, tol_db, drift_pct, hd2_pct, supply_a, emptied):
-    """The five terms of the score as arrays (NaN drift or HD2 counts as 0).
+def score_terms(*, gain_inf_db, target_db, tol_db, drift_pct, hd2_pct, supply_a, emptied,
+                vce_v=None, supply_v=None):
+    """The six terms of the score as arrays (NaN drift or HD2 counts as 0).
 
-    Parameters are arrays (or scalars) broadcasting together: dB, %, %, A and a
-    count of emptied rows.
+    Parameters are arrays (or scalars) broadcasting together: dB, %, %, A, a
+    count of emptied rows, and the quiescent V_CE with the supply voltage (V)
+    for the headroom term (0 while V_CE is not known).
     """
     drift = np.nan_to_num(np.asarray(drift_pct, dtype=float), nan=0.0)
     thd = np.nan_to_num(np.asarray(hd2_pct, dtype=float), nan=0.0)
@@ -85,10 +107,11 @@ def score_terms(*, gain_inf_db, target_db, tol_db, drift_pct, hd2_pct, supply_a,
         "distortion": thd / THD_UNIT_PCT,
         "current": np.asarray(supply_a, dtype=float) / CURRENT_UNIT_A,
         "stock": STOCK_PENALTY * np.asarray(emptied, dtype=float),
+        "headroom": headroom_term(vce_v, supply_v),
     }
 
 
 def score(**kw):
     """Sum of :func:`score_terms` (same arguments)."""
     t = score_terms(**kw)
-    return t["gain"] + t["drift"] + t["distortion"] + t["current"] + t["stock"]
+    return t["gain"] + t["drift"] + t["distortion"] + t["current"] + t["stock"] + t["headroom"]

@@ -505,9 +505,12 @@ class _Job:
             good &= gwin
         terms = score_terms(gain_inf_db=gdb, target_db=request.gain_db,
                             tol_db=request.gain_tol_db, drift_pct=0.0, hd2_pct=hd2,
-                            supply_a=supply, emptied=0)
+                            supply_a=supply, emptied=0, vce_v=op.vce, supply_v=V)
+        # the headroom term is exact here (the nominal DC point); a hair of slack
+        # keeps the bound below the confirmed score
         lb = dlb / 10.0 + np.maximum(terms["gain"] - GAIN_SLACK_DB / max(
-            request.gain_tol_db, 1e-3), 0.0) + terms["distortion"] + terms["current"] + stock_lb
+            request.gain_tol_db, 1e-3), 0.0) + terms["distortion"] + terms["current"] + stock_lb \
+            + np.maximum(terms["headroom"] - 1e-6, 0.0)
         under = lb < upper
         self.count("score_bound", (good & ~under).sum())
         good &= under
@@ -762,15 +765,17 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
                 ok &= drift <= request.ic_drift_max_pct
             terms = score_terms(gain_inf_db=sk.gdb, target_db=request.gain_db,
                                 tol_db=request.gain_tol_db, drift_pct=drift, hd2_pct=sk.hd2,
-                                supply_a=sk.supply, emptied=0)
+                                supply_a=sk.supply, emptied=0, vce_v=op.vce,
+                                supply_v=request.supply_v)
             lb15 = terms["gain"] + terms["drift"] + terms["distortion"] + terms["current"] \
-                + sk.stock_lb
+                + sk.stock_lb + terms["headroom"]
             for i in np.flatnonzero(ok & (lb15 < kth)):
                 push((float(lb15[i]), next(seq), "skel",
                                       (sk, int(i), {"drift_pct": float(drift[i]),
                                                     "gain_inf_db": float(sk.gdb[i]),
                                                     "hd2_pct": float(sk.hd2[i]),
-                                                    "supply_a": float(sk.supply[i])})))
+                                                    "supply_a": float(sk.supply[i]),
+                                                    "vce_v": float(op.vce[i])})))
         else:
             batch = [(lb, payload)]
             while heaps["skel"] and len(batch) < CONFIRM_BATCH and heaps["skel"][0][0] < kth:
@@ -840,7 +845,8 @@ def skeleton_figures(request: Request, batch: StageBatch, transistor: Transistor
             "hd2_pct": hd2_pct(request.input_vpk, drive, np.asarray(ss["gm"]) * degeneration(
                 batch.topology, batch.RE, request.source_ohm, request.load_ohm)),
             "supply_a": (request.supply_v - op.vb) / batch.R1 + op.ic,
-            "drift_pct": drift}
+            "drift_pct": drift,
+            "vce_v": op.vce}
 
 
 # ---------------------------------------------------------------------------
@@ -1064,7 +1070,8 @@ def _make_design(request, sk: Skeletons, i: int, row: dict, alloc_r, alloc_c, ev
     emptied = alloc_r.emptied + t_empty
     terms = score_terms(gain_inf_db=row["gain_inf_db"], target_db=request.gain_db,
                         tol_db=request.gain_tol_db, drift_pct=row["drift_pct"],
-                        hd2_pct=row["hd2_pct"], supply_a=row["supply_a"], emptied=emptied)
+                        hd2_pct=row["hd2_pct"], supply_a=row["supply_a"], emptied=emptied,
+                        vce_v=row["vce_v"], supply_v=request.supply_v)
     sc = float(sum(float(v) for v in terms.values()))
     for role in croles:
         p = evc.plus.get(role)

@@ -40,3 +40,13 @@ def test_feedback_divides_the_second_harmonic():
     assert float(degeneration("cc", 1e3, 600.0, 1e3)) == pytest.approx(500.0)
     assert float(degeneration("cb", 1e3, 1e3, None)) == pytest.approx(500.0)
     assert np.all(np.asarray(hd2_pct(1e-3, np.array([1.0, 2.0]))) > 0)
+
+
+def test_headroom_term_penalises_a_collector_near_saturation():
+    # common practice: a quiescent V_CE of at least a quarter of the supply
+    from optimiser.score import headroom_term
+    assert headroom_term(3.0, 12.0) == 0.0
+    assert headroom_term(6.0, 12.0) == 0.0
+    assert abs(float(headroom_term(1.5, 12.0)) - 0.5) < 1e-12
+    assert float(headroom_term(0.6, 12.0)) > float(headroom_term(1.2, 12.0)) > 0.0
+    assert headroom_term(None, 12.0) == 0.0       # unknown V_CE: a lower bound of 0

@@ -81,7 +81,8 @@ def exhaustive(req: Request, snap: StockSnapshot):
         emptied = np.array([keep[i][1] for i in ok]) + (t.qty == req.builds)
         s = score_terms(gain_inf_db=fig["gain_inf_db"], target_db=req.gain_db,
                         tol_db=req.gain_tol_db, drift_pct=fig["drift_pct"],
-                        hd2_pct=fig["hd2_pct"], supply_a=fig["supply_a"], emptied=emptied)
+                        hd2_pct=fig["hd2_pct"], supply_a=fig["supply_a"], emptied=emptied,
+                        vce_v=fig["vce_v"], supply_v=req.supply_v)
         total = sum(s.values())
         m = float(np.min(total))
         best = m if best is None else min(best, m)
