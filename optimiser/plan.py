@@ -1048,7 +1048,8 @@ def _design_key(d: Design) -> tuple:
 
 
 def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot, *,
-                      top: int = 30, search_fn: Callable | None = None
+                      top: int = 30, search_fn: Callable | None = None,
+                      search_time_s: float | None = None
                       ) -> tuple[list[Design], str, dict]:
     """Candidate designs for one request: enough, and varied enough, to give the programme choices.
 
@@ -1078,12 +1079,16 @@ def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot
     found: list[Design] = []
     misses: list[Design] = []
     runs = 0
+    incomplete: list[str] = []
     t0 = time.perf_counter()
 
     def run(req, snap, n, nmiss=0):
         nonlocal runs
         runs += 1
-        res = search_fn(req, snap, top=n, misses=nmiss)
+        kw = {"time_limit_s": search_time_s} if search_time_s else {}
+        res = search_fn(req, snap, top=n, misses=nmiss, **kw)
+        if not res.stats.get("complete", True) if hasattr(res, "stats") else False:
+            incomplete.append(req.transistor)
         found.extend(d for d in res.designs if d.meets_spec)
         misses.extend(getattr(res, "nearest_misses", []) or [])
         return res
@@ -1117,12 +1122,14 @@ def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot
             best = misses[0]
             if best.violations:
                 note += "; nearest miss: " + ", ".join(best.violations[:3])
-    return unique, note, {"searches": runs, "seconds": time.perf_counter() - t0}
+    return unique, note, {"searches": runs, "seconds": time.perf_counter() - t0,
+                          "searches_stopped_at_time_limit": len(incomplete)}
 
 
 def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candidates: int = 20,
               time_limit: float | None = None, search_fn: Callable | None = None,
-              progress: Callable[[str], None] | None = None) -> Plan:
+              progress: Callable[[str], None] | None = None,
+              search_time_s: float | None = None) -> Plan:
     """Plan a build list against ``snapshot``: candidates, programme, solution.
 
     Parameters
@@ -1137,6 +1144,10 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
         Seconds for the solver.
     search_fn : callable, optional
         Stands in for :func:`optimiser.search.search` (tests).
+    search_time_s : float, optional
+        Time limit of each candidate search.  A search stopped by it still
+        gives valid designs; the plan is then optimal over the candidates found
+        (``stats["search"]`` counts the searches that stopped early).
     progress : callable, optional
         Called with a short text before each request's search.
     """
@@ -1149,7 +1160,7 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
         if progress is not None:
             progress(f"searching designs for {b.name}")
         designs, note, st = gather_candidates(b.request, snapshot, augmented, top=candidates,
-                                              search_fn=search_fn)
+                                              search_fn=search_fn, search_time_s=search_time_s)
         st["candidates"] = len(designs)
         search_stats.append({"request": b.name, **st})
         items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,

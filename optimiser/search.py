@@ -155,6 +155,13 @@ class SearchResult:
             "designs": [d.to_json() for d in self.designs],
             "nearest_misses": [d.to_json() for d in self.nearest_misses],
             "unlock": list(self.unlock),
+            "search": {
+                "complete": bool(self.stats.get("complete", True)),
+                "proven_ranks": int(self.stats.get("proven_ranks", len(self.designs))),
+                "open_bound": (None if not math.isfinite(self.stats.get("open_bound", math.inf))
+                               else float(self.stats["open_bound"])),
+                "seconds": self.stats.get("seconds"),
+            },
         }
 
 
@@ -598,7 +605,7 @@ def _transistors(request: Request, snapshot: StockSnapshot) -> list[Transistor]:
 
 
 def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: int = 5,
-           progress=None) -> SearchResult:
+           progress=None, time_limit_s: float | None = None) -> SearchResult:
     """Find the best ``top`` stages buildable from ``snapshot`` that meet ``request``.
 
     Parameters
@@ -613,6 +620,12 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
         How many nearest misses to return when no design meets the request.
     progress : callable, optional
         ``progress(done, total, text)``, called between steps.
+    time_limit_s : float, optional
+        Stop the branch and bound after this many seconds.  The result then
+        says how far it got (``stats["complete"]`` False, ``stats["open_bound"]``
+        the smallest score any unexamined design could have, and
+        ``stats["proven_ranks"]`` how many leading ranks are proven best
+        anyway).  ``None`` searches to the end: the ranking is then proven.
 
     Returns
     -------
@@ -622,7 +635,18 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
     t0 = time.perf_counter()
     stats: dict = {"pruned": {}}
     want = top * 3 if request.min_yield_pct is not None else top
-    designs, pool = search_designs(request, snapshot, want, stats, progress)
+    designs, pool = search_designs(request, snapshot, want, stats, progress,
+                                   budget_s=time_limit_s)
+    complete = not stats.get("stopped_at_budget", False)
+    stats["complete"] = complete
+    bound = stats.get("open_bound", math.inf)
+    proven = 0
+    for d in designs:
+        if d.score is not None and d.score <= bound:
+            proven += 1
+        else:
+            break
+    stats["proven_ranks"] = proven
     if request.wants_yield and designs:
         designs = _with_yield(request, snapshot, designs, top, stats)
     result = SearchResult(request, bool(designs), designs, [], [], stats)
@@ -705,7 +729,10 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     t_start = time.perf_counter()
     while any(heaps.values()):
         if budget_s is not None and time.perf_counter() - t_start > budget_s:
-            stats["stopped_at_budget"] = True      # only for suggestions, never for `search`
+            # stopped by the time limit: every design left unexamined scores at
+            # least the smallest bound still in the heaps
+            stats["stopped_at_budget"] = True
+            stats["open_bound"] = smallest()
             break
         kth = found[top - 1].score if len(found) >= top else math.inf
         low = smallest()

@@ -28,12 +28,18 @@ def _locate(exc, path: str, text: str):
     return one(exc)
 
 
-def run_design(request, snapshot, *, top: int, progress: bool):
+#: Default time limit of the command's search, in seconds (0: none).
+DEFAULT_TIME_LIMIT_S = 120.0
+
+
+def run_design(request, snapshot, *, top: int, progress: bool,
+               time_limit_s: float | None = DEFAULT_TIME_LIMIT_S):
     """Run the search (with a progress bar on stderr when asked)."""
     from optimiser.search import search
 
+    limit = time_limit_s if time_limit_s else None
     if not progress:
-        return search(request, snapshot, top=top)
+        return search(request, snapshot, top=top, time_limit_s=limit)
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
     with Progress(TextColumn("[dim]{task.description}"), BarColumn(),
@@ -43,7 +49,7 @@ def run_design(request, snapshot, *, top: int, progress: bool):
         def tick(done, total, text):
             bar.update(task, completed=done, total=total, description=text)
 
-        return search(request, snapshot, top=top, progress=tick)
+        return search(request, snapshot, top=top, progress=tick, time_limit_s=limit)
 
 
 @click.command(name="design")
@@ -51,11 +57,15 @@ def run_design(request, snapshot, *, top: int, progress: bool):
 @click.option("--top", "top", type=click.IntRange(1, 100), default=5, show_default=True,
               help="How many ranked designs to show.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON (interface.md) instead of tables.")
+@click.option("--time-limit", "time_limit", type=click.FloatRange(0), default=DEFAULT_TIME_LIMIT_S,
+              show_default=True, metavar="SECONDS",
+              help="Stop the search after this long and say how much of the ranking is "
+                   "proven; 0 searches to the end.")
 @sheet_option
 @rank_option
 @pass_app
-def command(app, request_file: str, top: int, as_json: bool, sheet_dir: str | None = None,
-            sheet_rank: int = 1) -> None:
+def command(app, request_file: str, top: int, as_json: bool, time_limit: float = DEFAULT_TIME_LIMIT_S,
+            sheet_dir: str | None = None, sheet_rank: int = 1) -> None:
     """Find the best stages you can build from your drawer for REQUEST.toml.
 
     Prints the ranked designs with the bin of every part, or, when nothing in
@@ -74,7 +84,8 @@ def command(app, request_file: str, top: int, as_json: bool, sheet_dir: str | No
         _, text = read_toml(request_file)
         raise _locate(exc, request_file, text) from None
     try:
-        result = run_design(request, snapshot, top=top, progress=not as_json and err.is_terminal)
+        result = run_design(request, snapshot, top=top, progress=not as_json and err.is_terminal,
+                            time_limit_s=time_limit)
     except InputError as exc:                 # e.g. a transistor label not in stock
         _, text = read_toml(request_file)
         raise _locate(exc, request_file, text) from None
@@ -101,6 +112,10 @@ def _cautions(request, snapshot):
     return f
 
 
+#: The demo shows what the search reaches in this time (and says what is proven).
+DEMO_TIME_LIMIT_S = 0.0     # 0: to the end, so the demo shows a proven ranking
+
+
 def show_demo_design(store) -> None:
     """Run the packaged demo request on ``store`` and print the ranked table (for `demo`)."""
     from importlib import resources
@@ -114,5 +129,6 @@ def show_demo_design(store) -> None:
               f"{request.supply_v:g} V, gain {request.gain_db:.0f} dB ± {request.gain_tol_db:g} dB, "
               f"f_low ≤ {request.f_low_max_hz:g} Hz, f_high ≥ {request.f_high_min_hz:g} Hz")
     snapshot = store.snapshot()
-    result = run_design(request, snapshot, top=3, progress=err.is_terminal)
+    result = run_design(request, snapshot, top=3, progress=err.is_terminal,
+                        time_limit_s=DEMO_TIME_LIMIT_S)
     show_result(out, result, cautions_for=_cautions(request, snapshot))

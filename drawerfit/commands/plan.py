@@ -52,9 +52,14 @@ def write_order(plan, path: str, *, committed: bool = False) -> None:
               help="Designs the search offers per request (and per source).")
 @click.option("--time-limit", type=click.FloatRange(min=0.1), default=None, metavar="SECONDS",
               help="Stop the solver after this long; the status then says so.")
+@click.option("--search-time", type=click.FloatRange(min=0), default=20.0, show_default=True,
+              metavar="SECONDS",
+              help="Time limit of each candidate search (0: search to the end). The plan is "
+                   "optimal over the candidates found.")
 @pass_app
 def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | None,
-            commit: bool, candidates: int, time_limit: float | None) -> None:
+            commit: bool, candidates: int, time_limit: float | None,
+            search_time: float = 20.0) -> None:
     """Plan several builds from one drawer at the least purchase cost.
 
     BUILDLIST.toml lists [[build]] entries (a request file or table, a count,
@@ -69,7 +74,8 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
     snapshot = store.snapshot()
     progress = None if as_json else (lambda text: err.print(f"[dim]{text} …[/dim]"))
     plan = make_plan(blist, snapshot, solver=solver, candidates=candidates,
-                     time_limit=time_limit, progress=progress)
+                     time_limit=time_limit, progress=progress,
+                     search_time_s=search_time or None)
     build_ids = None
     if commit:
         if not plan.feasible:

@@ -117,6 +117,10 @@ def show_result(console: Console, result, cautions_for=None) -> None:
         if cautions_for is not None:
             for c in cautions_for(first):
                 console.print(f"[yellow]{c.level}:[/yellow] {c.text}")
+    elif not st_complete(result):
+        console.print("[bold]No design found before the time limit.[/bold] "
+                      "The search was stopped, so this is not a proof that none exists; "
+                      "run again with a longer --time-limit (0: no limit).")
     else:
         console.print("[bold]No design from your drawer meets the request.[/bold]")
         if result.nearest_misses:
@@ -126,6 +130,17 @@ def show_result(console: Console, result, cautions_for=None) -> None:
             for u in result.unlock:
                 console.print(f"  • {u}")
     st = result.stats
+    if not st_complete(result) and result.designs:
+        n, bound = st.get("proven_ranks", 0), st.get("open_bound")
+        console.print(f"[yellow]search stopped at the time limit:[/yellow] "
+                      f"{'rank 1' if n == 1 else f'ranks 1–{n}' if n else 'no rank'} proven best; "
+                      f"no unexamined design scores below {bound:.3f}. "
+                      "Use --time-limit 0 to search to the end.")
     console.print(f"[dim]searched in {st.get('seconds', 0):.2f} s: "
                   f"{st.get('collector_candidates', 0)} stages bounded, "
                   f"{st.get('confirmed_skeletons', 0)} confirmed by the full engine[/dim]")
+
+
+def st_complete(result) -> bool:
+    """Whether the search ran to the end (its ranking is then proven)."""
+    return bool(result.stats.get("complete", True))

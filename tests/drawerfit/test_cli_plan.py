@@ -37,7 +37,7 @@ def _pick(role, row, kind):
                     (Piece(row.value, 1, row.id, row.location, kind, row.tolerance),))
 
 
-def fake_search(request, snapshot, *, top=10, misses=5, progress=None):
+def fake_search(request, snapshot, *, top=10, misses=5, progress=None, time_limit_s=None):
     """Two designs: A (10k E2, 4k7 D7, 10u K3, GP-N1; score 0.1) and B (47k F1, 2k2 D3,
     47n J6, GP-N2; score 0.5), offered to a request open to any transistor."""
     R, C = snapshot.resistors, snapshot.capacitors

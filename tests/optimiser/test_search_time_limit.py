@@ -1,0 +1,52 @@
+"""The search's time limit: what it returns is valid and it says what is proven."""
+
+from __future__ import annotations
+
+from importlib import resources
+
+import numpy as np
+
+from inventory.store import open_store
+from optimiser.evaluate import evaluate
+from optimiser.request import load_request
+from optimiser.search import search
+from optimiser.stage import StageBatch
+
+
+def _demo(tmp_path):
+    store = open_store(str(tmp_path / "demo.sqlite"))
+    with resources.as_file(resources.files("drawerfit") / "data" / "demo_stock.csv") as p:
+        store.import_csv(p)
+    with resources.as_file(resources.files("drawerfit") / "data" / "demo_request.toml") as p:
+        request = load_request(p)
+    return store.snapshot(), request
+
+
+def test_stopped_search_says_so_and_returns_only_valid_designs(tmp_path):
+    snap, request = _demo(tmp_path)
+    res = search(request, snap, top=3, misses=0, time_limit_s=0.5)
+    st = res.stats
+    assert st["complete"] is False
+    assert 0 <= st["proven_ranks"] <= len(res.designs)
+    js = res.to_json()["search"]
+    assert js["complete"] is False and js["proven_ranks"] == st["proven_ranks"]
+    # a proven rank scores no more than anything left unexamined
+    for d in res.designs[:st["proven_ranks"]]:
+        assert d.score <= st["open_bound"]
+    # every design returned meets the request when the engine re-evaluates it
+    t = {x.label: x for x in snap.transistors}
+    for d in res.designs:
+        b = StageBatch.from_values(d.topology, **{r: np.array([v]) for r, v in d.values().items()})
+        ev = evaluate(request, b, t[d.transistor])
+        assert bool(ev.meets[0]), ev.violations(0)
+
+
+def test_search_without_limit_is_complete(tmp_path):
+    snap, request = _demo(tmp_path)
+    from dataclasses import replace
+    # a cc request on the demo drawer finishes quickly; its ranking is proven
+    req = replace(request, topology="cc", gain=None, f_high_min_hz=None, load_ohm=2200.0,
+                  source_ohm=10e3, ic_drift_max_pct=None)
+    res = search(req, snap, top=2, misses=0, time_limit_s=None)
+    assert res.stats["complete"] is True
+    assert res.stats["proven_ranks"] == len(res.designs)
