@@ -239,6 +239,12 @@ class StockOptions:
                              if not (rec.parts[0] == rec.parts[1] and j < i)]
             if not alts:
                 return None
+            # try single pieces first, then the fullest rows, then the lowest rating
+            # that suffices: higher-rated and scarce rows stay free for where they
+            # are needed (and the first allocation of least cost is the one kept)
+            alts.sort(key=lambda a: (a[0].joined is not None,
+                                     -min(self.rows[i].qty for i in a[1]),
+                                     sum(self._rating(self.rows[i]) for i in a[1])))
             choices.append(alts)
 
         best: list = [None, None]
