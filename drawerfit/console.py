@@ -4,13 +4,20 @@ from __future__ import annotations
 
 import json
 import math
+import os
 import sys
 
 from rich.console import Console
 
 __all__ = ["out", "err", "emit_json", "jsonable"]
 
+#: Width when the output is not a terminal (a file or a pipe), so that tables of
+#: ranked designs are not cut to 80 columns; COLUMNS still wins when set.
+PIPE_WIDTH = 132
+
 out = Console(highlight=False)
+if not out.is_terminal and "COLUMNS" not in os.environ:
+    out = Console(highlight=False, width=PIPE_WIDTH)
 err = Console(stderr=True, highlight=False, soft_wrap=True)
 
 
