@@ -113,18 +113,7 @@ def test_hostile_stock_files_are_refused_cleanly_or_imported(tmp_path_factory):
     def check(data: bytes) -> None:
         path = tmp / "fuzz.csv"
         path.write_bytes(data)
-        before = store.dump()
-        result = runner.invoke(cli, ["--db", db, "stock", "import", str(path)])
-        assert result.exit_code in (0, 2), (result.exit_code, result.output, result.exception)
-        assert "Traceback" not in result.output
-        if result.exit_code == 2:
-            seen["refused"] += 1
-            lines = result.stderr.strip().splitlines()
-            assert lines and all(line.startswith("drawerfit: ") for line in lines), lines
-            assert store.dump() == before
-        else:
-            seen["ok"] += 1
-            assert store.check() == []
+        _judge(runner, store, seen, ["--db", db, "stock", "import", str(path)])
 
     try:
         check()
@@ -191,19 +180,8 @@ def test_hostile_build_lists_never_touch_the_store(tmp_path_factory):
     def check(data: bytes) -> None:
         path = tmp / "list.toml"
         path.write_bytes(data)
-        before = store.dump()
-        result = runner.invoke(cli, ["--db", db, "plan", str(path), "--commit", "--json",
+        _judge(runner, store, seen, ["--db", db, "plan", str(path), "--commit", "--json",
                                      "--candidates", "3", "--time-limit", "5"])
-        assert result.exit_code in (0, 2), (data, result.output, result.exception)
-        assert "Traceback" not in result.output
-        if result.exit_code == 2:
-            seen["refused"] += 1
-            lines = result.stderr.strip().splitlines()
-            assert lines and all(line.startswith("drawerfit: ") for line in lines), lines
-            assert store.dump() == before
-        else:
-            seen["ok"] += 1
-            assert store.check() == []
 
     try:
         check()
@@ -212,3 +190,20 @@ def test_hostile_build_lists_never_touch_the_store(tmp_path_factory):
     assert seen["refused"] > 0
     with open(tmp / "figures.txt", "w") as fh:
         fh.write(f"{seen}\n")
+
+
+def _judge(runner, store, seen: dict, args: list[str]) -> None:
+    """Run one fuzzed command: exit 0 with a consistent store, or exit 2 with one
+    ``drawerfit:`` line per problem and the store exactly as before."""
+    before = store.dump()
+    result = runner.invoke(cli, args)
+    assert result.exit_code in (0, 2), (result.exit_code, result.output, result.exception)
+    assert "Traceback" not in result.output
+    if result.exit_code == 2:
+        seen["refused"] += 1
+        lines = result.stderr.strip().splitlines()
+        assert lines and all(line.startswith("drawerfit: ") for line in lines), lines
+        assert store.dump() == before
+    else:
+        seen["ok"] += 1
+        assert store.check() == []
