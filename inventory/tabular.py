@@ -332,29 +332,15 @@ def _row_part(cells: dict[str, str], has_min_qty: bool):
             fail("tolerance", exc.message)
 
     if kind == "resistor":
-        power = DEFAULT_RESISTOR_POWER_W
-        p_text = cells.get("power", "").strip()
-        if p_text:
-            try:
-                power = values.parse_power(p_text)
-                if not math.isfinite(power) or power <= 0:
-                    raise InputError(f"{p_text!r} must be a power rating above zero")
-            except InputError as exc:
-                fail("power", exc.message)
+        power = _rating(cells, "power", values.parse_power, DEFAULT_RESISTOR_POWER_W,
+                        "a power rating", fail)
         if problems:
             return None, min_qty, problems
         return (Resistor(value=value, qty=qty, tolerance=tolerance, power_w=power,
                          location=location), min_qty, problems)
 
-    voltage = DEFAULT_CAPACITOR_VOLTAGE_V
-    v_text = cells.get("voltage", "").strip()
-    if v_text:
-        try:
-            voltage = values.parse_voltage(v_text)
-            if not math.isfinite(voltage) or voltage <= 0:
-                raise InputError(f"{v_text!r} must be a voltage rating above zero")
-        except InputError as exc:
-            fail("voltage", exc.message)
+    voltage = _rating(cells, "voltage", values.parse_voltage, DEFAULT_CAPACITOR_VOLTAGE_V,
+                      "a voltage rating", fail)
     dielectric = cells.get("dielectric", "").strip().lower() or "ceramic"
     if problems:
         return None, min_qty, problems
@@ -594,3 +580,19 @@ def write_stock_csv(path: str | Path, parts: Iterable, *,
         frame.to_csv(Path(path), index=False, lineterminator="\n")
     except OSError as exc:
         raise InputError(f"cannot write: {exc.strerror}", file=str(path)) from None
+
+
+def _rating(cells: dict, column: str, parse, default: float, what: str, fail) -> float:
+    """A rating column (power, voltage): its default when empty, else a finite value
+    above zero; a bad cell is reported through ``fail(column, message)``."""
+    text = cells.get(column, "").strip()
+    if not text:
+        return default
+    try:
+        value = parse(text)
+        if not math.isfinite(value) or value <= 0:
+            raise InputError(f"{text!r} must be {what} above zero")
+        return value
+    except InputError as exc:
+        fail(column, exc.message)
+        return default
