@@ -145,3 +145,54 @@ def test_closed_form_gain_bounds_hold_against_the_engine(rs, rl):
     z = 1 / (1 / b.RC + (1 / rl if rl else 0.0) + ic_hi / (m.vaf - 1.0))
     lower = rin / (rin + rs) * beta * z / (rpi_max + (beta + 1) * b.RE) / GAIN_BOUND_MARGIN
     assert np.all(g[ok] >= lower[ok])
+
+
+@pytest.mark.parametrize("topo, rs, rl, vin, gdb", [
+    ("ce", 600.0, 1e4, 0.01, 20.0), ("ce", 0.0, None, 0.05, 12.0), ("ce", 50.0, 2e3, 0.002, 26.0),
+    ("cb", 50.0, 1e4, 0.01, 26.0), ("cb", 0.0, None, 0.05, 20.0), ("cb", 600.0, 2e3, 0.002, 6.0)])
+def test_junction_floor_is_below_the_engine_score_terms(topo, rs, rl, vin, gdb):
+    # bound B12 of docs/search.md: gain + distortion + headroom terms of the score,
+    # computed by the engine (skeleton_figures), never below the floor — neither the
+    # floor over every RC (bias level) nor the one with RC known (collector level)
+    from optimiser.prune import junction_floor
+    from optimiser.score import score_terms
+    from optimiser.search import GAIN_SLACK_DB, gain_window, skeleton_figures
+
+    rng = np.random.default_rng(7)
+    n = 4000
+    t = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=60.0)
+    m = device_from_transistor(t)
+    lo, hi = early_bounds(12.0, m)
+    req = Request(topology=topo, supply_v=12.0, load_ohm=rl, source_ohm=rs, input_vpk=vin,
+                  gain=10 ** (gdb / 20), gain_tol_db=2.0)
+    if topo == "ce":
+        caps = dict(C_IN=1.0, C_OUT=1.0, C_BYP=1.0,
+                    RE=rng.uniform(0, 2e3, n) * (rng.random(n) < 0.8),
+                    RE_BYP=rng.uniform(0, 2e3, n))
+    else:
+        caps = dict(C_IN=1.0, C_OUT=1.0, C_B=1.0, RE=rng.uniform(100, 2e4, n))
+    b = StageBatch.from_values(topo, R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
+                               RC=rng.uniform(200, 3e4, n), **caps)
+    ev = evaluate(req, b, t, None, band_edges=False, large_signal=False)
+    f = skeleton_figures(req, b, t)
+    win = gain_window(req)
+    ok = ev.valid & (f["gain_inf_db"] >= 20 * np.log10(win[0]) - GAIN_SLACK_DB)
+    assert ok.sum() > 150
+    terms = score_terms(gain_inf_db=f["gain_inf_db"], target_db=req.gain_db,
+                        tol_db=req.gain_tol_db, drift_pct=0.0, hd2_pct=f["hd2_pct"],
+                        supply_a=0.0, emptied=0, vce_v=f["vce_v"], supply_v=12.0)
+    actual = terms["gain"] + terms["distortion"] + terms["headroom"]
+    vth, rth = thevenin(12.0, b.R1, b.R2)
+    ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
+    ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
+    kw = dict(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ic_lo * b.re_total, supply_v=12.0, load_ohm=rl,
+              input_vpk=vin, gain_lo_db=20 * np.log10(win[0]) - GAIN_SLACK_DB,
+              target_db=req.gain_db, tol_db=req.gain_tol_db, vce_sat=m.vce_sat)
+    free = junction_floor(**kw)
+    known = junction_floor(**kw, rc=b.RC)
+    assert np.all(free[ok] <= actual[ok]), np.max((free - actual)[ok])
+    assert np.all(known[ok] <= actual[ok]), np.max((known - actual)[ok])
+    # and the floor is not empty: near the gain target it carries a good share
+    near = ok & (terms["gain"] < 0.5)
+    assert near.sum() >= 5
+    assert np.median(known[near] / actual[near]) > 0.25
