@@ -147,14 +147,25 @@ JUNCTION_FLOOR_STEPS = 8
 
 
 def _gain_distortion_min(c, g_lo_db, target_db, tol_db):
-    """min over g ≥ g_lo of |target − g|/tol + c·10^(g/10) (g in dB, c ≥ 0)."""
+    """min over g ≥ g_lo of |target − g|/tol + c·10^(g/10) (g in dB, c ≥ 0).
+
+    Below the target the function is convex in g with its stationary point
+    where c·10^(g/10) = K = 10/(tol·ln 10); above the target it only grows.
+    """
     c = np.asarray(c, dtype=float)
     tol = max(float(tol_db), 1e-3)
-    top = max(float(target_db), float(g_lo_db))
-    with np.errstate(divide="ignore", over="ignore"):
-        g = 10.0 * np.log10(10.0 / (tol * np.maximum(c, 1e-300) * np.log(10.0)))
-    g = np.clip(g, g_lo_db, top)
-    return np.abs(target_db - g) / tol + c * 10.0 ** (g / 10.0)
+    t = float(target_db)
+    lo = min(float(g_lo_db), t)
+    K = 10.0 / (tol * np.log(10.0))
+    u_t, u_lo = 10.0 ** (t / 10.0), 10.0 ** (lo / 10.0)
+    with np.errstate(divide="ignore"):
+        mid = (t - 10.0 * np.log10(K / np.clip(c, K / u_t, K / u_lo))) / tol + K
+    out = np.where(c <= K / u_t, c * u_t, mid)
+    out = np.where(c >= K / u_lo, (t - lo) / tol + c * u_lo, out)
+    if float(g_lo_db) > t:               # the whole window lies above the target
+        g = float(g_lo_db)
+        out = (g - t) / tol + c * 10.0 ** (g / 10.0)
+    return out
 
 
 def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_lo_db,
@@ -167,8 +178,8 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
     the score's HD2 = 25 %·(v̂_be/V_T)/(1 + g_m·R_E) is at least
     ``25 %·v̂_in·G²·V_T/(I_C·(R_C‖R_L))²`` — whatever split of the emitter
     resistance gives that gain.  The same holds for a common-base stage, whose
-    feedback 1 + g_m·(R_S‖R_E) is at most 1 + R_S/r_e ≈ g_m·Z_c'/G.  A larger I_C·R_C lowers it but eats the
-    headroom V_CE = V − V_E − I_C·R_C.  This function takes the least of the
+    feedback 1 + g_m·(R_S‖R_E) is at most 1 + R_S/r_e ≈ g_m·Z_c'/G.  A larger
+    I_C·R_C lowers it but eats the headroom V_CE = V − V_E − I_C·R_C.  This function takes the least of the
     three terms together over every gain G ≥ ``gain_lo_db`` and every
     collector drop y = I_C·R_C the supply allows (or the given ``rc``), with
     I_C in [ic_lo, ic_hi] and V_E ≥ ``ve_lo`` (docs/search.md, bound B12).
@@ -184,12 +195,14 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
     a = ic_hi * float(load_ohm) if load_ohm else None
 
     def coef(y):
+        aa = a if a is None or np.ndim(y) == np.ndim(a) else a[..., None]
         with np.errstate(divide="ignore", invalid="ignore"):
-            x = y if a is None else y * a / (y + a)
+            x = y if aa is None else y * aa / (y + aa)
             return np.where(x > 0, k / np.where(x > 0, x, 1.0) ** 2, np.inf)
 
     def head(y):
-        return np.maximum(0.0, 1.0 - (V - y - ve_lo) / want)
+        ve = ve_lo if np.ndim(y) == np.ndim(ve_lo) else ve_lo[..., None]
+        return np.maximum(0.0, 1.0 - (V - y - ve) / want)
 
     def f(c):
         out = np.full(c.shape, np.inf)
@@ -205,9 +218,12 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
         c = np.where(x_hi > 0, k / np.where(x_hi > 0, x_hi, 1.0) ** 2, np.inf)
         return np.where(ic_lo * rc <= y_max, f(c) + head(ic_lo * rc), np.inf)
     y0 = np.clip(V - want - ve_lo, 0.0, np.maximum(y_max, 0.0))
-    best = np.where(y0 > 0, f(coef(y0)), np.inf)
-    for j in range(steps):
-        ya = y0 + (y_max - y0) * j / steps
-        yb = y0 + (y_max - y0) * (j + 1) / steps
-        best = np.minimum(best, f(coef(yb)) + head(ya))
+    # segment ends y_0 < y_1 < … < y_steps = y_max of the range with a headroom cost,
+    # all at once: shape (n, steps + 1)
+    frac = np.arange(steps + 1) / steps
+    ys = y0[..., None] + (y_max - y0)[..., None] * frac
+    fs = f(coef(ys))
+    best = np.where(y0 > 0, fs[..., 0], np.inf)       # below y_0: no headroom cost
+    seg = fs[..., 1:] + head(ys[..., :-1])
+    best = np.minimum(best, seg.min(axis=-1))
     return np.where(y_max > 0, best, np.inf)

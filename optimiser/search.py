@@ -59,8 +59,9 @@ GAIN_SLACK_DB = 1e-3         # midband estimate vs engine (agree to ~1e-6 dB)
 HIGH_GAIN_SLACK_DB = 6.0     # how far above the window a stage may sit and still be
                              # pulled into it by small capacitors (assumption A2)
 GAIN_BOUND_MARGIN = 1.05    # closed-form gain bounds B6, B8, B11 widened by this factor
-DRIFT_REL_SLACK = 2.0        # × V/V_AF, relative margin on the bias drift bound
+DRIFT_REL_SLACK = 0.5        # × (V+1)/V_AF, relative margin on the bias drift bound
 DRIFT_ABS_SLACK = 0.2        # percentage points
+DRIFT_BOUND_CAP_PCT = 20.0   # the bound claims no more than this (B2 fails for huge drifts)
 CHUNK = 400_000
 CAP_ENUM_LIMIT = 4096
 
@@ -306,8 +307,8 @@ class _Job:
         pr[key] = pr.get(key, 0) + int(n)
 
     def pair_blocks(self):
-        nb = -(-self.utot.size // self.tb)
-        step = max(1, CHUNK // max(nb, 1))
+        nb = min(-(-self.utot.size // self.tb), SPAN_BLOCKS)     # widest spans per pair
+        step = max(1, CHUNK // (8 * nb))
         for s in range(0, self.R1.size, step):
             yield float(self.plb[s]), np.arange(s, min(s + step, self.R1.size))
 
@@ -316,55 +317,125 @@ class _Job:
 
         I_C falls and V_E·I_C-stability rises with the emitter resistance
         (B7), so the smallest current and drift are those at ``r_big`` and the
-        largest current the one at ``r_small``.
+        largest current the one at ``r_small``.  The bounds are taken in order
+        of cost (current, drift, then the junction floor), each on the nodes
+        the earlier ones left.  Returns (ok, ic_lo, ic_hi, d_lb, nlb) over all
+        of ``P``; entries not ok hold nlb = inf.
         """
+        from optimiser.device import thermal_voltage
         from optimiser.prune import bias_current
 
         model, V = self.model, self.V
+        n = P.size
+        r_small = np.broadcast_to(np.asarray(r_small, dtype=float), (n,))
+        r_big = np.broadcast_to(np.asarray(r_big, dtype=float), (n,))
+        ic_lo, ic_hi, d_lb = np.zeros(n), np.zeros(n), np.zeros(n)
+        nlb = np.full(n, np.inf)
         v_th, r_th = self.vth[P], self.rth[P]
         # B1: I_C lies between its values at the extreme Early factors
-        ic_lo = bias_current(v_th, r_th, r_big, model, 25.0, None, self.q_lo)
-        ic_hi = bias_current(v_th, r_th, r_small, model, 25.0, None, self.q_hi)
-        ok = ic_lo <= model.ic_max * (1 + 1e-9)
+        ic_lo[:] = bias_current(v_th, r_th, r_big, model, 25.0, None, self.q_lo)
+        lb = (V / (self.R1[P] + self.R2[P]) + ic_lo) / 10e-3          # B5
+        s = np.flatnonzero((ic_lo <= model.ic_max * (1 + 1e-9)) & (lb < upper))
+        if s.size == 0:
+            return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
+        ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, self.q_hi)
         # B2: drift at a common Early factor, with a margin for the factor's spread
         q_mid = 0.5 * (self.q_lo + self.q_hi)
-        ic_mid = bias_current(v_th, r_th, r_big, model, 25.0, None, q_mid)
+        vs, rs_, rb = v_th[s], r_th[s], r_big[s]
+        ic_mid = bias_current(vs, rs_, rb, model, 25.0, None, q_mid)
         d = np.zeros_like(ic_mid)
         for tc, b in self.corners:
-            icc = bias_current(v_th, r_th, r_big, model, tc, b, q_mid)
+            icc = bias_current(vs, rs_, rb, model, tc, b, q_mid)
             with np.errstate(divide="ignore", invalid="ignore"):
                 d = np.maximum(d, np.abs(icc - ic_mid) / ic_mid * 100.0)
         d = np.nan_to_num(d, nan=0.0, posinf=np.inf)
-        d_lb = np.maximum(d * (1.0 - self.rel) - DRIFT_ABS_SLACK, 0.0)
+        d_lb[s] = np.clip(d * (1.0 - self.rel) - DRIFT_ABS_SLACK, 0.0, DRIFT_BOUND_CAP_PCT)
+        lb_s = d_lb[s] / 10.0 + lb[s]
+        keep = lb_s < upper
         if self.request.ic_drift_max_pct is not None:
-            ok &= d_lb <= self.request.ic_drift_max_pct
-        nlb = d_lb / 10.0 + (V / (self.R1[P] + self.R2[P]) + ic_lo) / 10e-3
+            keep &= d_lb[s] <= self.request.ic_drift_max_pct
+        s, lb_s = s[keep], lb_s[keep]
         # B8: a gain G needs a junction drive v_be ≥ G·v_in·V_T/(I_C·R) with
         # I_C·R ≤ min(I_C·R_L, V − vce_sat), so HD2 ≥ 25 %·G·v_in/min(...)
-        if self.win is not None and self.topo in ("ce", "cb"):
-            room = V - model.vce_sat
+        if s.size and self.win is not None and self.topo in ("ce", "cb"):
+            room = np.full(s.size, V - model.vce_sat)
             if self.request.load_ohm:
-                room = np.minimum(room, ic_hi * self.request.load_ohm)
-            from optimiser.device import thermal_voltage
-            rdeg = (r_big if self.form != "fully bypassed" else 0.0) if self.topo == "ce" \
+                room = np.minimum(room, ic_hi[s] * self.request.load_ohm)
+            rdeg = (r_big[s] if self.form != "fully bypassed" else 0.0) if self.topo == "ce" \
                 else float(self.request.source_ohm or 0.0)
             with np.errstate(divide="ignore", invalid="ignore"):
                 h = 25.0 * self.win[0] * self.request.input_vpk / room / GAIN_BOUND_MARGIN / (
-                    1.0 + ic_hi * rdeg / thermal_voltage(25.0))
-            nlb = nlb + np.nan_to_num(h, nan=np.inf, posinf=np.inf)
-        ok &= nlb < upper
+                    1.0 + ic_hi[s] * rdeg / thermal_voltage(25.0))
+            h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
+            # B12: gain, distortion and headroom together, over every RC and split
+            live = lb_s + h < upper
+            h[live] = np.maximum(h[live], self._floor(
+                ic_lo[s[live]], ic_hi[s[live]], ic_lo[s[live]] * r_small[s[live]]))
+            lb_s = lb_s + h
+        nlb[s] = lb_s
+        ok = nlb < upper
         return ok, ic_lo, ic_hi, d_lb, nlb
 
+    def _cc_needs_rc(self, P, r_e) -> np.ndarray:
+        """Bias networks of a follower whose stage with the collector on the supply
+        breaks the transistor's pd rule (nominal point or any drift corner).
+
+        Screened first with the corner currents at the largest Early factor
+        (B1) times the supply, an upper bound of the dissipation; the few
+        left are solved by the engine, exactly as :func:`evaluate` judges pd.
+        """
+        from optimiser.dc import operating_point
+        from optimiser.evaluate import corner_points
+        from optimiser.prune import bias_current
+
+        need = np.zeros(P.size, dtype=bool)
+        if not math.isfinite(self.model.pd) or P.size == 0:
+            return need
+        v_th, r_th = self.vth[P], self.rth[P]
+        top = bias_current(v_th, r_th, r_e, self.model, 25.0, None, self.q_hi)
+        for tc, b in self.corners:
+            top = np.maximum(top, bias_current(v_th, r_th, r_e, self.model, tc, b, self.q_hi))
+        cand = np.flatnonzero(top * self.V * (1 + 1e-6) > self.model.pd)
+        if cand.size:
+            b = StageBatch.from_values("cc", R1=self.R1[P[cand]], R2=self.R2[P[cand]], RC=0.0,
+                                       RE=r_e[cand], C_IN=SHORT_F, C_OUT=SHORT_F)
+            op = operating_point("cc", self.V, b, self.model)
+            cop, _, _ = corner_points(self.request, b, self.model)
+            need[cand] = np.maximum(op.pq, cop.pq.max(axis=1)) > self.model.pd
+        return need
+
+    def _floor(self, ic_lo, ic_hi, ve_lo, rc=None):
+        from optimiser.prune import junction_floor
+        r = self.request
+        return junction_floor(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ve_lo, supply_v=self.V,
+                              load_ohm=r.load_ohm, input_vpk=r.input_vpk,
+                              gain_lo_db=20 * math.log10(self.win[0]) - GAIN_SLACK_DB,
+                              target_db=r.gain_db, tol_db=r.gain_tol_db,
+                              vce_sat=self.model.vce_sat, rc=rc)
+
     def expand_pairs(self, p: np.ndarray, upper: float):
-        """Blocks of emitter totals for the pairs ``p``, sorted by their bound."""
-        nb = -(-self.utot.size // self.tb)
-        P, K = np.meshgrid(p, np.arange(nb), indexing="ij")
-        P, K = P.ravel(), K.ravel()
-        a = K * self.tb
-        b = np.minimum(a + self.tb, self.utot.size) - 1
-        ok, _, _, _, lb = self._bounds(P, self.utot[a], self.utot[b], upper)
-        self.count("bias_blocks", (~ok).sum() * self.tb)
-        P, a, b, lb = P[ok], a[ok], b[ok], lb[ok]
+        """Blocks of emitter totals for the pairs ``p``, sorted by their bound.
+
+        Spans of totals are bounded coarse to fine — spans of 16·8^k totals,
+        the widest first, each surviving span split in eight — down to blocks
+        of 16 (the same bound, B7, on every level).
+        """
+        n = self.utot.size
+        widths = [self.tb]
+        while widths[0] * SPAN_BLOCKS < n:
+            widths.insert(0, widths[0] * SPAN_BLOCKS)
+        P, a, span = p, np.zeros(p.size, dtype=int), n
+        for width in widths:
+            k = -(-span // width)                 # pieces of each surviving span
+            a = np.repeat(a, k) + np.tile(np.arange(k) * width, P.size)
+            P = np.repeat(P, k)
+            live = a < n
+            P, a = P[live], a[live]
+            b = np.minimum(a + width, n) - 1
+            ok, _, _, _, lb = self._bounds(P, self.utot[a], self.utot[b], upper)
+            self.count("bias_blocks", (b - a + 1)[~ok].sum())
+            P, a, b, lb = P[ok], a[ok], b[ok], lb[ok]
+            span = width
         o = np.argsort(lb, kind="stable")
         return P[o], a[o], b[o], lb[o]
 
@@ -400,6 +471,13 @@ class _Job:
             rc_max = np.where(ic_lo > 0, (V - ve_lo - model.vce_sat) / ic_lo, np.inf)
         nrc = np.searchsorted(self.rc_vals, rc_max * (1 + 1e-9), side="right")
         self.count("headroom", (self.rc_vals.size - nrc).sum())
+        if topo == "cc":
+            # a follower's collector resistor only where the transistor would
+            # otherwise dissipate more than its pd (docs/search.md)
+            few = np.minimum(nrc, 1)
+            need = self._cc_needs_rc(P, REv + BYv)
+            self.count("cc_collector_rule", (nrc - few)[~need].sum())
+            nrc = np.where(need, nrc, few)
         # B6: gain ≤ (RC‖RL)/(V_T/I_C + RE) (ce) or g_m·(RC‖RL) (cb), with a 20 % margin.
         # Once a score to beat is known, the gain term alone confines the gain to
         # target·10^(±upper·tol/20) (B11), on both sides for ce.
@@ -457,7 +535,10 @@ class _Job:
             with np.errstate(divide="ignore", invalid="ignore"):
                 h = 25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
                     1.0 + ic_hi[rep] * rdeg / thermal_voltage(25.0))
-            pre = pre + np.nan_to_num(h, nan=np.inf, posinf=np.inf)
+            h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
+            h = np.maximum(h, self._floor(ic_lo[rep], ic_hi[rep], ic_lo[rep] * (REc + BYc),
+                                          rc=RCc))
+            pre = pre + h
         keep = pre < upper
         self.count("score_bound_pre", (~keep).sum())
         # B9: a value in k roles needs k pieces per copy (ratings aside)
@@ -688,25 +769,73 @@ QUICK_BATCH = 2000
 CONFIRM_BATCH = 48
 NODE_BLOCK = 8192
 TOTALS_BLOCK = 16
+#: Aspiration levels of the score (search_designs); the last run is unbounded.
+ASPIRATION = (0.5, 1.0, 2.0, 4.0)
+SPAN_BLOCKS = 8
 
 
 def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
                    progress=None, budget_s: float | None = None):
-    """Steps 2–5 as one best-first branch and bound; (designs, pool of evaluated misses).
+    """Steps 2–5 as a best-first branch and bound; (designs, pool of evaluated misses).
 
-    A heap holds blocks of pairs, blocks of bias nodes, blocks of collector
-    candidates and single skeletons, each keyed by a lower bound of the score
-    of every design below it.  The smallest is expanded until ``top`` designs
-    are known whose scores do not exceed the smallest bound left: then no
-    design left unexamined can rank among them.
+    The branch and bound runs first with an aspiration level: every node whose
+    bound reaches ``ASPIRATION[0]`` is dropped as if ``top`` designs that good
+    were already known.  If ``top`` designs at or below that level are found,
+    no dropped node could hold a better one and the ranking is proven; if not,
+    the search runs again with the next, higher level (the last is unbounded).
+    This only makes the search faster: the designs returned are the same.
     """
-    from optimiser.dc import operating_point
-    from optimiser.evaluate import corner_points
-
     opts = StockOptions(snapshot, request.builds, request.allow_combos)
     ts = _transistors(request, snapshot)
     jobs = [_Job(request, opts, t, f, stats) for t in ts for f in FORMS[request.topology]
             if opts.resistor.values.size]
+    t_start = time.perf_counter()
+    found, pool = [], []
+    for cap in ASPIRATION + (math.inf,):
+        left = None if budget_s is None else max(budget_s - (time.perf_counter() - t_start), 0.0)
+        found, pool = _branch_and_bound(request, opts, jobs, top, stats, progress, left, cap)
+        if stats.get("stopped_at_budget") or (len(found) >= top and found[top - 1].score <= cap):
+            break
+        stats["aspiration_rounds"] = stats.get("aspiration_rounds", 0) + 1
+    found = found[:top]
+    _large_signal(request, snapshot, found)
+    for r, d in enumerate(found, 1):
+        d.rank = r
+    return found, pool
+
+
+def _large_signal(request: Request, snapshot: StockSnapshot, designs: list[Design]) -> None:
+    """THD, swing and the clipping warning of the ranked designs, in place.
+
+    Distortion and swing do not enter the score and are a target only with
+    ``thd_max_pct`` (then they were computed while confirming); otherwise they
+    are computed here, once, for the designs returned.
+    """
+    need = [d for d in designs if d.metrics.get("thd_pct") is None]
+    groups: dict[str, list[Design]] = {}
+    for d in need:
+        groups.setdefault(d.transistor, []).append(d)
+    for label, ds in groups.items():
+        t = snapshot.transistor(label)
+        roles = sorted({r for d in ds for r in d.values()})
+        vals = {r: np.array([d.values().get(r, 0.0) for d in ds]) for r in roles}
+        ev = _evaluate(request, StageBatch.from_values(ds[0].topology, **vals), t, None,
+                       band_edges=False, large_signal=True)
+        for j, d in enumerate(ds):
+            m = ev.metrics_of(j)
+            d.metrics["thd_pct"], d.metrics["swing_vpk"] = m.get("thd_pct"), m.get("swing_vpk")
+            d.warnings += [r.text(j) for r in ev.rules
+                           if r.key == "clipping" and bool(r.fail[j])]
+
+
+def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap):
+    """One run of the branch and bound, dropping nodes whose bound reaches ``cap``.
+
+    Returns every design found (sorted by score) and the pool of evaluated misses.
+    """
+    from optimiser.dc import operating_point
+    from optimiser.evaluate import corner_points
+
     levels = ("pairs", "blocks", "nodes", "cands", "skel")
     heaps: dict[str, list] = {k: [] for k in levels}
 
@@ -732,9 +861,9 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
             # stopped by the time limit: every design left unexamined scores at
             # least the smallest bound still in the heaps
             stats["stopped_at_budget"] = True
-            stats["open_bound"] = smallest()
+            stats["open_bound"] = min(smallest(), cap)
             break
-        kth = found[top - 1].score if len(found) >= top else math.inf
+        kth = min(found[top - 1].score if len(found) >= top else math.inf, cap)
         low = smallest()
         if low >= kth:
             break
@@ -833,10 +962,9 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
                     pool.append(("quick", sk, li[bad], ev.take(bad)))
                 found.extend(_confirm_group(request, opts, sk, good, stats, pool))
             found.sort(key=lambda d: d.score)
-    stats["heap_steps"] = steps
-    for r, d in enumerate(found[:top], 1):
-        d.rank = r
-    return found[:top], pool
+    stats["heap_steps"] = stats.get("heap_steps", 0) + steps
+    found.sort(key=lambda d: d.score)
+    return found, pool
 
 
 def _take_all(c: Skeletons, idx) -> Skeletons:
@@ -975,7 +1103,7 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                 for k in range(len(croles)):
                     vec[a, k] = _pick_at_least(cv, allowed[a][k], cv[vec[a, k]] * 4.0 * (1 + 1e-9))
         ev = _eval_vectors(request, opts, part.take(pending), croles, vec[pending],
-                           large_signal=(rnd == 0))
+                           large_signal=(rnd == 0 and request.thd_max_pct is not None))
         stats["full_evaluations"] = stats.get("full_evaluations", 0) + pending.size
         still = []
         for j, a in enumerate(pending):

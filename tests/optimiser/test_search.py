@@ -196,3 +196,54 @@ def test_junction_floor_is_below_the_engine_score_terms(topo, rs, rl, vin, gdb):
     near = ok & (terms["gain"] < 0.5)
     assert near.sum() >= 5
     assert np.median(known[near] / actual[near]) > 0.25
+
+
+@pytest.mark.parametrize("g_lo, target, tol", [(18.9, 20.0, 1.0), (5.0, 20.0, 3.0),
+                                               (21.0, 20.0, 1.0), (19.999, 20.0, 0.5)])
+def test_gain_distortion_minimum_matches_a_dense_grid(g_lo, target, tol):
+    # the closed-form minimum inside B12 against brute force over a fine gain grid
+    from optimiser.prune import _gain_distortion_min
+
+    c = 10 ** np.random.default_rng(0).uniform(-8, 1, 500)
+    g = np.linspace(g_lo, max(target, g_lo) + 10, 20001)
+    brute = np.min(np.abs(target - g)[None, :] / tol + c[:, None] * 10 ** (g[None, :] / 10),
+                   axis=1)
+    f = _gain_distortion_min(c, g_lo, target, tol)
+    assert np.all(f <= brute + 1e-12)
+    assert np.all(brute - f < 1e-3)
+
+
+@pytest.mark.parametrize("vaf, supply", [(100.0, 12.0), (30.0, 12.0), (50.0, 24.0), (100.0, 5.0)])
+def test_drift_bound_holds_against_the_engine(vaf, supply):
+    # bound B2 of docs/search.md: the closed-form drift at a common Early factor, with
+    # the search's margins and cap, never above the engine's drift of a valid stage
+    from optimiser.search import (DRIFT_ABS_SLACK, DRIFT_BOUND_CAP_PCT, DRIFT_REL_SLACK,
+                                  _corner_points, skeleton_figures)
+
+    rng = np.random.default_rng(5)
+    n = 6000
+    t = Transistor("GP-N1", 100, 400, ft=250e6, cob=4e-12, vaf=vaf)
+    m = device_from_transistor(t)
+    req = Request(topology="ce", supply_v=supply, load_ohm=1e4, source_ohm=600.0,
+                  temp_c=(0.0, 50.0))
+    b = StageBatch.from_values(
+        "ce", R1=10 ** rng.uniform(3.5, 5.7, n), R2=10 ** rng.uniform(3, 5, n),
+        RC=10 ** rng.uniform(2.5, 4.5, n), RE=rng.uniform(0, 2e3, n) * (rng.random(n) < 0.5),
+        RE_BYP=10 ** rng.uniform(1, 4, n), C_IN=1.0, C_OUT=1.0, C_BYP=1.0)
+    ev = evaluate(req, b, t, None, band_edges=False, large_signal=False)
+    drift = skeleton_figures(req, b, t)["drift_pct"]
+    ok = ev.valid & np.isfinite(drift)
+    assert ok.sum() > 2000
+    vth, rth = thevenin(supply, b.R1, b.R2)
+    lo, hi = early_bounds(supply, m)
+    q = 0.5 * (lo + hi)
+    mid = bias_current(vth, rth, b.re_total, m, 25.0, None, q)
+    d = np.zeros(n)
+    for tc, beta in _corner_points(req, t):
+        d = np.maximum(d, np.abs(bias_current(vth, rth, b.re_total, m, tc, beta, q) - mid) / mid * 100)
+    rel = DRIFT_REL_SLACK * (supply + 1.0) / vaf
+    d_lb = np.clip(d * (1 - rel) - DRIFT_ABS_SLACK, 0.0, DRIFT_BOUND_CAP_PCT)
+    assert np.all(d_lb[ok] <= drift[ok]), np.max((d_lb - drift)[ok])
+    # not empty: stages of modest drift keep most of it
+    mod = ok & (drift > 1.0) & (drift < 15.0)
+    assert np.median(d_lb[mod] / drift[mod]) > 0.6

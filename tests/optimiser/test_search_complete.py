@@ -35,6 +35,14 @@ def resistor_roles(topo, form):
             ("cc", None): ("R1", "R2", "RC", "RE")}[(topo, form)]
 
 
+def _needs_collector_resistor(req: Request, values: dict, t: Transistor) -> bool:
+    """The search's rule for followers (docs/search.md): a collector resistor only
+    where the stage with the collector on the supply breaks the transistor's pd."""
+    twin = StageBatch.from_values("cc", **{**values, "RC": 0.0})
+    ev = evaluate(req, twin, t, None, band_edges=False, large_signal=False)
+    return "pd" in ev.failed_keys(0)
+
+
 def exhaustive(req: Request, snap: StockSnapshot):
     """Best score over every buildable stage (None when nothing meets the request)."""
     rqty = {r.value: r.qty for r in snap.resistors}
@@ -69,6 +77,8 @@ def exhaustive(req: Request, snap: StockSnapshot):
                     all(n * req.builds <= cqty[x] for x, n in cc.items()):
                 emptied = sum(1 for x, n in rc.items() if n * req.builds == rqty[x])
                 keep.append((v, emptied))
+        if req.topology == "cc":
+            keep = [(v, e) for v, e in keep if v["RC"] == 0 or _needs_collector_resistor(req, v, t)]
         if not keep:
             continue
         batch = StageBatch.from_values(req.topology, **{
@@ -107,7 +117,8 @@ def cases(draw):
     caps = [Capacitor(v, draw(st.integers(1, 6)), id=100 + i, location=f"C{i}")
             for i, v in enumerate(cvals)]
     t = Transistor(T.label, T.hfe_min, T.hfe_max, qty=draw(st.sampled_from([2, 4])), ft=T.ft,
-                   cob=T.cob, vceo=T.vceo, ic_max=T.ic_max, pd=T.pd, id=T.id, location="Q1")
+                   cob=T.cob, vceo=T.vceo, ic_max=T.ic_max, pd=draw(st.sampled_from([0.05, T.pd])),
+                   id=T.id, location="Q1")
     gain = draw(st.floats(0.5, 0.95) if topo == "cc" else st.floats(1.5, 40.0))
     req = Request(
         topology=topo, supply_v=draw(st.sampled_from([9.0, 12.0])),
@@ -116,11 +127,12 @@ def cases(draw):
         gain=gain, gain_tol_db=draw(st.sampled_from([1.0, 3.0, 6.0])),
         f_low_max_hz=draw(st.sampled_from([None, 100.0, 1000.0])),
         ic_drift_max_pct=draw(st.sampled_from([None, 25.0])),
-        temp_c=(0.0, 50.0), builds=builds)
+        temp_c=(0.0, 50.0), builds=builds,
+        input_vpk=draw(st.sampled_from([0.001, 0.01, 0.05])))
     return req, StockSnapshot(tuple(res), tuple(caps), (t,))
 
 
-@settings(max_examples=8, deadline=None, suppress_health_check=list(HealthCheck))
+@settings(max_examples=16, deadline=None, suppress_health_check=list(HealthCheck))
 @given(cases())
 def test_search_agrees_with_exhaustive_enumeration(case):
     req, snap = case
