@@ -169,7 +169,8 @@ def _gain_distortion_min(c, g_lo_db, target_db, tol_db):
 
 
 def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_lo_db,
-                   target_db, tol_db, vce_sat, rc=None, steps=JUNCTION_FLOOR_STEPS):
+                   target_db, tol_db, vce_sat, rc=None, steps=JUNCTION_FLOOR_STEPS,
+                   cut=None):
     """Lower bound of the score's gain + distortion + headroom terms of a ce or cb stage.
 
     For a common-emitter stage whose midband gain with the capacitors shorted
@@ -186,6 +187,8 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
 
     Arrays broadcast together; volts, amperes, ohms, dB.  Returns the bound
     (inf where no collector resistor leaves the transistor out of saturation).
+    With ``cut`` (an array), entries whose cheaper bound already reaches it
+    return that cheaper bound instead of the full one.
     """
     V = float(supply_v)
     ic_lo, ic_hi, ve_lo = np.broadcast_arrays(*(np.asarray(a, dtype=float)
@@ -218,6 +221,19 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
         c = np.where(x_hi > 0, k / np.where(x_hi > 0, x_hi, 1.0) ** 2, np.inf)
         return np.where(ic_lo * rc <= y_max, f(c) + head(ic_lo * rc), np.inf)
     y0 = np.clip(V - want - ve_lo, 0.0, np.maximum(y_max, 0.0))
+    if cut is not None:
+        # cheap first: the floor is at least its value at the largest drop, where the
+        # distortion is least and the headroom not counted; only nodes that this
+        # leaves under ``cut`` get the full floor
+        quick = f(coef(np.maximum(y_max, 0.0)))
+        live = np.flatnonzero((quick < cut) & (y_max > 0))
+        out = np.where(y_max > 0, quick, np.inf)
+        if live.size:
+            out[live] = junction_floor(
+                ic_lo=ic_lo[live], ic_hi=ic_hi[live], ve_lo=ve_lo[live], supply_v=V,
+                load_ohm=load_ohm, input_vpk=input_vpk, gain_lo_db=gain_lo_db,
+                target_db=target_db, tol_db=tol_db, vce_sat=vce_sat, steps=steps)
+        return out
     # segment ends y_0 < y_1 < … < y_steps = y_max of the range with a headroom cost,
     # all at once: shape (n, steps + 1)
     frac = np.arange(steps + 1) / steps

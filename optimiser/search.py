@@ -318,8 +318,8 @@ class _Job:
         I_C falls and V_E·I_C-stability rises with the emitter resistance
         (B7), so the smallest current and drift are those at ``r_big`` and the
         largest current the one at ``r_small``.  The bounds are taken in order
-        of cost (current, drift, then the junction floor), each on the nodes
-        the earlier ones left.  Returns (ok, ic_lo, ic_hi, d_lb, nlb) over all
+        of cost (current, the junction floor, then the drift), each on the
+        nodes the earlier ones left.  Returns (ok, ic_lo, ic_hi, d_lb, nlb) over all
         of ``P``; entries not ok hold nlb = inf.
         """
         from optimiser.device import thermal_voltage
@@ -339,22 +339,7 @@ class _Job:
         if s.size == 0:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
         ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, self.q_hi)
-        # B2: drift at a common Early factor, with a margin for the factor's spread
-        q_mid = 0.5 * (self.q_lo + self.q_hi)
-        vs, rs_, rb = v_th[s], r_th[s], r_big[s]
-        ic_mid = bias_current(vs, rs_, rb, model, 25.0, None, q_mid)
-        d = np.zeros_like(ic_mid)
-        for tc, b in self.corners:
-            icc = bias_current(vs, rs_, rb, model, tc, b, q_mid)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                d = np.maximum(d, np.abs(icc - ic_mid) / ic_mid * 100.0)
-        d = np.nan_to_num(d, nan=0.0, posinf=np.inf)
-        d_lb[s] = np.clip(d * (1.0 - self.rel) - DRIFT_ABS_SLACK, 0.0, DRIFT_BOUND_CAP_PCT)
-        lb_s = d_lb[s] / 10.0 + lb[s]
-        keep = lb_s < upper
-        if self.request.ic_drift_max_pct is not None:
-            keep &= d_lb[s] <= self.request.ic_drift_max_pct
-        s, lb_s = s[keep], lb_s[keep]
+        lb_s = lb[s]
         # B8: a gain G needs a junction drive v_be ≥ G·v_in·V_T/(I_C·R) with
         # I_C·R ≤ min(I_C·R_L, V − vce_sat), so HD2 ≥ 25 %·G·v_in/min(...)
         if s.size and self.win is not None and self.topo in ("ce", "cb"):
@@ -370,8 +355,29 @@ class _Job:
             # B12: gain, distortion and headroom together, over every RC and split
             live = lb_s + h < upper
             h[live] = np.maximum(h[live], self._floor(
-                ic_lo[s[live]], ic_hi[s[live]], ic_lo[s[live]] * r_small[s[live]]))
+                ic_lo[s[live]], ic_hi[s[live]], ic_lo[s[live]] * r_small[s[live]],
+                cut=upper - lb_s[live]))
             lb_s = lb_s + h
+            keep = lb_s < upper
+            s, lb_s = s[keep], lb_s[keep]
+        if s.size == 0:
+            return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
+        # B2: drift at a common Early factor, with a margin for the factor's spread
+        q_mid = 0.5 * (self.q_lo + self.q_hi)
+        vs, rs_, rb = v_th[s], r_th[s], r_big[s]
+        ic_mid = bias_current(vs, rs_, rb, model, 25.0, None, q_mid)
+        d = np.zeros_like(ic_mid)
+        for tc, b in self.corners:
+            icc = bias_current(vs, rs_, rb, model, tc, b, q_mid)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                d = np.maximum(d, np.abs(icc - ic_mid) / ic_mid * 100.0)
+        d = np.nan_to_num(d, nan=0.0, posinf=np.inf)
+        d_lb[s] = np.clip(d * (1.0 - self.rel) - DRIFT_ABS_SLACK, 0.0, DRIFT_BOUND_CAP_PCT)
+        lb_s = lb_s + d_lb[s] / 10.0
+        keep = lb_s < upper
+        if self.request.ic_drift_max_pct is not None:
+            keep &= d_lb[s] <= self.request.ic_drift_max_pct
+        s, lb_s = s[keep], lb_s[keep]
         nlb[s] = lb_s
         ok = nlb < upper
         return ok, ic_lo, ic_hi, d_lb, nlb
@@ -404,14 +410,14 @@ class _Job:
             need[cand] = np.maximum(op.pq, cop.pq.max(axis=1)) > self.model.pd
         return need
 
-    def _floor(self, ic_lo, ic_hi, ve_lo, rc=None):
+    def _floor(self, ic_lo, ic_hi, ve_lo, rc=None, cut=None):
         from optimiser.prune import junction_floor
         r = self.request
         return junction_floor(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ve_lo, supply_v=self.V,
                               load_ohm=r.load_ohm, input_vpk=r.input_vpk,
                               gain_lo_db=20 * math.log10(self.win[0]) - GAIN_SLACK_DB,
                               target_db=r.gain_db, tol_db=r.gain_tol_db,
-                              vce_sat=self.model.vce_sat, rc=rc)
+                              vce_sat=self.model.vce_sat, rc=rc, cut=cut)
 
     def expand_pairs(self, p: np.ndarray, upper: float):
         """Blocks of emitter totals for the pairs ``p``, sorted by their bound.

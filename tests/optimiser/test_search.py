@@ -190,6 +190,11 @@ def test_junction_floor_is_below_the_engine_score_terms(topo, rs, rl, vin, gdb):
               target_db=req.gain_db, tol_db=req.gain_tol_db, vce_sat=m.vce_sat)
     free = junction_floor(**kw)
     known = junction_floor(**kw, rc=b.RC)
+    # with a cut, the cheap bound stands in only where it already reaches the cut
+    cut = junction_floor(**kw, cut=np.full(n, 0.3))
+    assert np.all(cut <= free + 1e-12)
+    assert np.allclose(cut[free < 0.3], free[free < 0.3])
+    assert np.all(cut[free >= 0.3] >= 0.3)
     assert np.all(free[ok] <= actual[ok]), np.max((free - actual)[ok])
     assert np.all(known[ok] <= actual[ok]), np.max((known - actual)[ok])
     # and the floor is not empty: near the gain target it carries a good share
