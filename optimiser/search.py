@@ -275,6 +275,17 @@ class _Job:
         plb = V / (R1 + R2) / 10e-3
         o = np.argsort(plb, kind="stable")
         self.R1, self.R2, self.vth, self.rth, self.plb = R1[o], R2[o], vth[o], rth[o], plb[o]
+        self.win = gain_window(request)
+        if self.topo == "cc" and self.win is not None:
+            # B13 at the pair: the divider alone caps a follower's gain
+            short = self._gain_shortfall(self._follower_gain_max(np.arange(self.R1.size)))
+            keep = np.isfinite(short)
+            self.count("pairs", (~keep).sum())
+            plb = self.plb[keep] + short[keep]
+            o = np.argsort(plb, kind="stable")
+            self.R1, self.R2, self.vth, self.rth = (x[keep][o] for x in
+                                                    (self.R1, self.R2, self.vth, self.rth))
+            self.plb = plb[o]
         re_a, byp_a = _emitter_options(self.topo, form, rv)
         etot = re_a + byp_a
         o = np.argsort(etot, kind="stable")
@@ -286,7 +297,6 @@ class _Job:
         self.rel = DRIFT_REL_SLACK * (V + 1.0) / model.vaf if math.isfinite(model.vaf) else 0.0
         self.rc_vals = rv if self.topo != "cc" else np.concatenate([[0.0], rv])
         self.rc_best = rbest if self.topo != "cc" else np.concatenate([[np.inf], rbest])
-        self.win = gain_window(request)
         # pieces-per-copy each resistor value can give (single pieces; rows pooled)
         units = np.zeros(rv.size)
         for k, v in enumerate(rv):
@@ -340,6 +350,13 @@ class _Job:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
         ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, self.q_hi)
         lb_s = lb[s]
+        if self.topo == "cc" and self.win is not None:
+            # B13: a follower's gain is at most k_in·A_f, the divider's share of the
+            # source (Z_in ≤ R_TH) times RE‖RL over r_e + RE‖RL
+            g_hi = self._follower_gain_max(P[s], r_big[s], ic_hi[s])
+            lb_s = lb_s + self._gain_shortfall(g_hi)
+            keep = lb_s < upper
+            s, lb_s = s[keep], lb_s[keep]
         # B8: a gain G needs a junction drive v_be ≥ G·v_in·V_T/(I_C·R) with
         # I_C·R ≤ min(I_C·R_L, V − vce_sat), so HD2 ≥ 25 %·G·v_in/min(...)
         if s.size and self.win is not None and self.topo in ("ce", "cb"):
@@ -381,6 +398,35 @@ class _Job:
         nlb[s] = lb_s
         ok = nlb < upper
         return ok, ic_lo, ic_hi, d_lb, nlb
+
+    def _follower_gain_max(self, P, r_e=None, ic_hi=None) -> np.ndarray:
+        """Upper bound of a follower's midband gain (B13, with the search's margin).
+
+        G ≤ R_TH/(R_TH + R_S) · (RE‖RL)/(r_e + RE‖RL) with r_e ≥ V_T/I_E,max;
+        without ``r_e`` only the first factor.
+        """
+        from optimiser.device import thermal_voltage
+        rs = float(self.request.source_ohm or 0.0)
+        rth = self.rth[P]
+        g = rth / (rth + rs) * GAIN_BOUND_MARGIN
+        if r_e is not None:
+            rl = self.request.load_ohm
+            rel = r_e if not rl else r_e * rl / (r_e + rl)
+            ie = ic_hi * (1.0 + 1.0 / float(self.t.hfe_min))
+            with np.errstate(divide="ignore", invalid="ignore"):
+                af = np.where(ie > 0, rel / (thermal_voltage(25.0) / np.where(ie > 0, ie, 1.0)
+                                             + rel), 0.0)
+            g = g * af
+        return g
+
+    def _gain_shortfall(self, g_hi) -> np.ndarray:
+        """Lower bound of the gain term for stages whose gain is at most ``g_hi``
+        (inf where even that misses the bottom of the window)."""
+        r = self.request
+        with np.errstate(divide="ignore"):
+            g_db = 20.0 * np.log10(np.maximum(g_hi, 1e-300))
+        term = np.maximum(r.gain_db - g_db, 0.0) / max(r.gain_tol_db, 1e-3)
+        return np.where(g_db >= 20.0 * math.log10(self.win[0]) - GAIN_SLACK_DB, term, np.inf)
 
     def _cc_needs_rc(self, P, r_e) -> np.ndarray:
         """Bias networks of a follower whose stage with the collector on the supply
@@ -503,26 +549,30 @@ class _Job:
             rc_min = np.nan_to_num(rc_min, nan=np.inf)
             n0 = np.minimum(np.searchsorted(self.rc_vals, rc_min * (1 - 1e-9), side="left"), nrc)
             self.count("gain_bound", n0.sum())
-            if topo == "ce":
-                # smallest gain a given RC can give: k_in·β·Z'/(r_π + (β+1)·RE) with every
-                # factor at its least favourable end; RC above the one reaching g_hi·margin
-                # gives too much gain
-                b = float(self.t.beta_nominal)
-                with np.errstate(divide="ignore", invalid="ignore"):
+            # smallest gain a given RC can give, every factor at its least favourable
+            # end — ce: k_in·β·Z'/(r_π + (β+1)·RE); cb: g_m·Z'·x/(R_S + x) with
+            # x = RE‖r_e — so RC above the one reaching g_hi·margin gives too much gain
+            b = float(self.t.beta_nominal)
+            rs = float(request.source_ohm or 0.0)
+            ro = (model.vaf - 1.0) / ic_hi if math.isfinite(model.vaf) else np.inf
+            with np.errstate(divide="ignore", invalid="ignore"):
+                if topo == "ce":
                     rpi_max = b * self.q_hi * vt / ic_lo
                     rpi_min = b * self.q_lo * vt / ic_hi
                     rth = self.rth[P]
                     rin = rth * (rpi_min + (b + 1) * REv) / (rth + rpi_min + (b + 1) * REv)
-                    rs = float(request.source_ohm or 0.0)
                     k_in = rin / (rin + rs)
                     zmax = g_hi * GAIN_BOUND_MARGIN * (rpi_max + (b + 1) * REv) / (k_in * b)
-                    ro = (model.vaf - 1.0) / ic_hi if math.isfinite(model.vaf) else np.inf
-                    inv = 1.0 / zmax - (1.0 / rl if rl else 0.0) - 1.0 / ro
-                    rc_top = np.where(inv > 0, 1.0 / np.where(inv > 0, inv, 1.0), np.inf)
-                rc_top = np.minimum(np.nan_to_num(rc_top, nan=np.inf), 1e300)
-                n1 = np.searchsorted(self.rc_vals, rc_top * (1 + 1e-9), side="right")
-                self.count("gain_bound_high", np.maximum(nrc - np.maximum(n1, n0), 0).sum())
-                nrc = np.maximum(np.minimum(nrc, n1), n0)
+                else:
+                    re_min = vt / ic_hi * b / (b + 1.0)
+                    x = REv * re_min / (REv + re_min)
+                    zmax = g_hi * GAIN_BOUND_MARGIN * vt * (rs + x) / (ic_lo * x)
+                inv = 1.0 / zmax - (1.0 / rl if rl else 0.0) - 1.0 / ro
+                rc_top = np.where(inv > 0, 1.0 / np.where(inv > 0, inv, 1.0), np.inf)
+            rc_top = np.minimum(np.nan_to_num(rc_top, nan=np.inf), 1e300)
+            n1 = np.searchsorted(self.rc_vals, rc_top * (1 + 1e-9), side="right")
+            self.count("gain_bound_high", np.maximum(nrc - np.maximum(n1, n0), 0).sum())
+            nrc = np.maximum(np.minimum(nrc, n1), n0)
         rep, offs = _expand(nrc - n0)
         if rep.size == 0:
             return None
@@ -530,43 +580,49 @@ class _Job:
         Pc = P[rep]
         REc, BYc, dlb = REv[rep], BYv[rep], d_lb[rep]
         RCc, RCbest = self.rc_vals[offs], self.rc_best[offs]
-        # B8 with RC known, before the exact DC point
+        # B5 and the drift, then B8/B12 with RC known, then the stock (B9, B10) — each
+        # on the candidates the cheaper ones left, all before the exact DC point
         pre = dlb / 10.0 + (V / (self.R1[Pc] + self.R2[Pc]) + ic_lo[rep]) / 10e-3
-        if self.win is not None and topo in ("ce", "cb"):
+        sel = np.flatnonzero(pre < upper)
+        if sel.size and self.win is not None and topo in ("ce", "cb"):
             rl = request.load_ohm
-            zc = RCc if not rl else RCc * rl / (RCc + rl)
-            room = np.minimum(ic_hi[rep] * zc, V - model.vce_sat)
+            rs_ = rep[sel]
+            zc = RCc[sel] if not rl else RCc[sel] * rl / (RCc[sel] + rl)
+            room = np.minimum(ic_hi[rs_] * zc, V - model.vce_sat)
             from optimiser.device import thermal_voltage
-            rdeg = degeneration(topo, REc, request.source_ohm, request.load_ohm)
+            rdeg = degeneration(topo, REc[sel], request.source_ohm, request.load_ohm)
             with np.errstate(divide="ignore", invalid="ignore"):
                 h = 25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
-                    1.0 + ic_hi[rep] * rdeg / thermal_voltage(25.0))
+                    1.0 + ic_hi[rs_] * rdeg / thermal_voltage(25.0))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
-            h = np.maximum(h, self._floor(ic_lo[rep], ic_hi[rep], ic_lo[rep] * (REc + BYc),
-                                          rc=RCc))
-            pre = pre + h
-        keep = pre < upper
-        self.count("score_bound_pre", (~keep).sum())
+            h = np.maximum(h, self._floor(ic_lo[rs_], ic_hi[rs_],
+                                          ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel]))
+            pre[sel] += h
+            sel = sel[pre[sel] < upper]
+        self.count("score_bound_pre", Pc.size - sel.size)
         # B9: a value in k roles needs k pieces per copy (ratings aside)
-        cols = [self.R1[Pc], self.R2[Pc], RCc, REc, BYc]
-        stock_lb = np.full(Pc.size, self.t_empty)
+        cols = [self.R1[Pc[sel]], self.R2[Pc[sel]], RCc[sel], REc[sel], BYc[sel]]
+        st = np.full(sel.size, float(self.t_empty))
+        ok = np.ones(sel.size, dtype=bool)
         for x in cols:
-            k = sum((y == x) for y in cols)
+            k = (cols[0] == x).astype(int)
+            for y in cols[1:]:
+                k += (y == x)
             idx = np.clip(np.searchsorted(self.rv, x), 0, self.rv.size - 1)
             single = (x > 0) & (self.rv[idx] == x)
             short = single & (k > self.units[idx])
-            self.count("stock", (short & keep).sum())
-            keep &= ~short
+            self.count("stock", (short & ok).sum())
+            ok &= ~short
             # B10: a value whose every row holds ≤ k·builds pieces empties a bin
             if not self.opts.allow_combos:
                 must = single & (self.maxq[idx] <= k * self.request.builds) & ~self.virtual[idx]
-                stock_lb = stock_lb + must / np.maximum(k, 1)
-        stock_lb = STOCK_PENALTY * stock_lb
-        pre = pre + stock_lb
-        keep &= pre < upper
-        if not keep.all():
-            Pc, REc, BYc, dlb, RCc, RCbest, stock_lb = (
-                x[keep] for x in (Pc, REc, BYc, dlb, RCc, RCbest, stock_lb))
+                st = st + must / np.maximum(k, 1)
+        st = STOCK_PENALTY * st
+        ok &= pre[sel] + st < upper
+        sel = sel[ok]
+        stock_lb = st[ok]
+        Pc, REc, BYc, dlb, RCc, RCbest = (x[sel] for x in (Pc, REc, BYc, dlb, RCc, RCbest))
+        rep = rep[sel]
         if Pc.size == 0:
             return None
         r1c, r2c = self.R1[Pc], self.R2[Pc]

@@ -252,3 +252,66 @@ def test_drift_bound_holds_against_the_engine(vaf, supply):
     # not empty: stages of modest drift keep most of it
     mod = ok & (drift > 1.0) & (drift < 15.0)
     assert np.median(d_lb[mod] / drift[mod]) > 0.6
+
+
+@pytest.mark.parametrize("rs, rl, vaf", [(10e3, 1e3, 100.0), (600.0, None, 30.0),
+                                         (50e3, 10e3, 60.0), (0.0, 2e3, 100.0)])
+def test_follower_gain_bound_holds_against_the_engine(rs, rl, vaf):
+    # bound B13 of docs/search.md: a follower's shorted-capacitor gain is at most
+    # R_TH/(R_TH+R_S) · (RE‖RL)/(r_e + RE‖RL) — without the search's 5 % margin here
+    from optimiser.device import thermal_voltage
+    from optimiser.search import skeleton_figures
+
+    rng = np.random.default_rng(2)
+    n = 4000
+    t = Transistor("GP-N1", 100, 400, ft=250e6, cob=4e-12, vaf=vaf)
+    m = device_from_transistor(t)
+    req = Request(topology="cc", supply_v=12.0, load_ohm=rl, source_ohm=rs)
+    b = StageBatch.from_values(
+        "cc", R1=10 ** rng.uniform(3.5, 6, n), R2=10 ** rng.uniform(3, 6, n),
+        RC=np.where(rng.random(n) < 0.7, 0.0, 10 ** rng.uniform(1, 3, n)),
+        RE=10 ** rng.uniform(1.5, 5, n), C_IN=1.0, C_OUT=1.0)
+    ok = evaluate(req, b, t, None, band_edges=False, large_signal=False).valid
+    assert ok.sum() > 1000
+    g = 10 ** (skeleton_figures(req, b, t)["gain_inf_db"] / 20)
+    vth, rth = thevenin(12.0, b.R1, b.R2)
+    ic_hi = bias_current(vth, rth, b.RE, m, 25.0, None, early_bounds(12.0, m)[1])
+    rel = b.RE if rl is None else b.RE * rl / (b.RE + rl)
+    af = rel / (thermal_voltage(25.0) / (ic_hi * (1 + 1 / t.hfe_min)) + rel)
+    bound = rth / (rth + rs) * af
+    assert np.all(g[ok] <= bound[ok])
+    assert np.median(g[ok] / bound[ok]) > 0.9          # and it is close
+
+
+@pytest.mark.parametrize("rs, rl, vaf", [(50.0, 1e4, 100.0), (600.0, None, 30.0),
+                                         (0.0, 2e3, 60.0), (1e3, 1e3, 100.0)])
+def test_common_base_gain_floor_holds_against_the_engine(rs, rl, vaf):
+    # bound B11 for cb (docs/search.md): the least gain an RC can give,
+    # g_m,min·(RC‖RL‖r_o,min)·x/(R_S + x) with x = RE‖r_e,min, within the 5 % margin
+    from optimiser.device import thermal_voltage
+    from optimiser.search import GAIN_BOUND_MARGIN
+
+    rng = np.random.default_rng(4)
+    n = 4000
+    t = Transistor("GP-N1", 100, 400, ft=250e6, cob=4e-12, vaf=vaf)
+    m = device_from_transistor(t)
+    req = Request(topology="cb", supply_v=12.0, load_ohm=rl, source_ohm=rs)
+    b = StageBatch.from_values("cb", R1=10 ** rng.uniform(3.5, 5.5, n),
+                               R2=10 ** rng.uniform(3, 5, n), RC=10 ** rng.uniform(2, 4.5, n),
+                               RE=10 ** rng.uniform(1.5, 4.5, n), C_IN=1.0, C_OUT=1.0, C_B=1.0)
+    ev = evaluate(req, b, t, None, band_edges=False, large_signal=False)
+    ok = ev.valid
+    assert ok.sum() > 1000
+    vth, rth = thevenin(12.0, b.R1, b.R2)
+    lo, hi = early_bounds(12.0, m)
+    ic_lo = bias_current(vth, rth, b.RE, m, 25.0, None, lo)
+    ic_hi = bias_current(vth, rth, b.RE, m, 25.0, None, hi)
+    vt = thermal_voltage(25.0)
+    beta = t.beta_nominal
+    re_min = vt / ic_hi * beta / (beta + 1)
+    x = b.RE * re_min / (b.RE + re_min)
+    z = 1 / (1 / b.RC + (1 / rl if rl else 0.0) + ic_hi / (vaf - 1))
+    low = ic_lo / vt * z * x / (rs + x) / GAIN_BOUND_MARGIN
+    g = ev.metrics["gain"]
+    assert np.all(g[ok] >= low[ok])
+    assert np.median(g[ok] / low[ok]) < 1.5             # and it is close
