@@ -25,6 +25,10 @@ class Piece:
     tolerance: float | None = None
     rating: float | None = None       # W for resistors, V for capacitors
     dielectric: str | None = None
+    #: The least rating this piece needs where it sits (W or V, derating included):
+    #: its share of the role's DC dissipation or voltage.  None when not known (a
+    #: stage read from a circuit file); the planner then keeps the row's own rating.
+    need: float | None = None
 
     def to_json(self) -> dict:
         return {"id": self.id, "count": self.count, "value": self.value,

@@ -16,7 +16,7 @@ total dissipation taken by one piece: ``R_i/(R_a+R_b)`` in series,
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from itertools import combinations_with_replacement
 
 import numpy as np
@@ -295,7 +295,13 @@ class StockOptions:
             for i in rows:
                 counts[i] = counts.get(i, 0) + 1
                 used[i] = used.get(i, 0) + 1
-            pieces = tuple(self._piece(i, c) for i, c in counts.items())
+            stress = roles[role][2]
+            need: dict[int, float] = {}
+            for i, sh in zip(rows, rec.shares, strict=False):
+                n = (sh * stress / RESISTOR_DERATING if kind == "resistor"
+                     else abs(stress) / CAPACITOR_DERATING)
+                need[i] = max(need.get(i, 0.0), float(n))
+            pieces = tuple(replace(self._piece(i, c), need=need[i]) for i, c in counts.items())
             picks[role] = RolePick(role, rec.value, format_value(rec.value, kind), pieces, rec.joined)
             if kind == "resistor":
                 eff = min(self._rating(self.rows[i]) / s for i, s in zip(rows, rec.shares, strict=False))

@@ -204,13 +204,15 @@ def _same_value(a: float | None, b: float | None) -> bool:
     return abs(a - b) <= 1e-9 * max(abs(a), abs(b))
 
 
-def can_stand_in(sub: Row, orig: Row, *, strict_tolerance: bool = True) -> bool:
+def can_stand_in(sub: Row, orig: Row, *, strict_tolerance: bool = True,
+                 need: float | None = None) -> bool:
     """True when a piece of ``sub`` may take the place of a piece of ``orig``.
 
     Same kind and value (transistors: same label); tolerance no wider (unless
     ``strict_tolerance`` is False); power (resistor) or voltage (capacitor)
-    rating no lower; a non-polarised capacitor is never replaced by a
-    polarised one.
+    rating at least ``need`` — the rating every piece that names ``orig``
+    needs where it sits — or, when that is not known, no lower than
+    ``orig``'s; a non-polarised capacitor is never replaced by a polarised one.
     """
     if sub.kind != orig.kind:
         return False
@@ -226,7 +228,8 @@ def can_stand_in(sub: Row, orig: Row, *, strict_tolerance: bool = True) -> bool:
     ot = orig.tolerance if orig.tolerance is not None else dtol
     sr = sub.rating if sub.rating is not None else drat
     orr = orig.rating if orig.rating is not None else drat
-    if (strict_tolerance and st > ot * (1 + 1e-9)) or sr < orr * (1 - 1e-9):
+    floor = orr if need is None else need
+    if (strict_tolerance and st > ot * (1 + 1e-9)) or sr < floor * (1 - 1e-9):
         return False
     if sub.kind == "capacitor" and sub.polarised and not orig.polarised:
         return False
@@ -235,6 +238,25 @@ def can_stand_in(sub: Row, orig: Row, *, strict_tolerance: bool = True) -> bool:
 
 class _Unusable(Exception):
     """A candidate names a part the planner cannot find."""
+
+
+def _named_rows(design: Design, rows: dict[int, Row],
+                catalogue: Catalogue | None) -> list[tuple[int, Piece]]:
+    """(row id, piece) of every piece of ``design``: a piece without an id is a
+    value to be bought and maps to the purchasable row of that value."""
+    out = []
+    for pick in design.parts.values():
+        for p in pick.pieces:
+            rid = p.id
+            if rid is None:
+                hit = catalogue.find(p.kind, p.value) if catalogue is not None else None
+                if hit is None:
+                    raise _Unusable(f"{pick.role} {pick.label} is neither in stock nor purchasable")
+                rid = hit.id
+            if rid not in rows:
+                raise _Unusable(f"{pick.role}: stock row {rid} is not in the drawer")
+            out.append((rid, p))
+    return out
 
 
 def design_demand(design: Design, rows: dict[int, Row],
@@ -252,19 +274,10 @@ def design_demand(design: Design, rows: dict[int, Row],
     """
     need: dict[int, int] = defaultdict(int)
     has_q = False
-    for pick in design.parts.values():
-        for p in pick.pieces:
-            if p.kind in TRANSISTOR_KINDS:
-                has_q = True
-            rid = p.id
-            if rid is None:
-                hit = catalogue.find(p.kind, p.value) if catalogue is not None else None
-                if hit is None:
-                    raise _Unusable(f"{pick.role} {pick.label} is neither in stock nor purchasable")
-                rid = hit.id
-            if rid not in rows:
-                raise _Unusable(f"{pick.role}: stock row {rid} is not in the drawer")
-            need[rid] += int(p.count)
+    for rid, p in _named_rows(design, rows, catalogue):
+        if p.kind in TRANSISTOR_KINDS:
+            has_q = True
+        need[rid] += int(p.count)
     if not has_q:
         qrows = [r for r in rows.values()
                  if r.kind in TRANSISTOR_KINDS and r.label == design.transistor]
@@ -370,15 +383,22 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
     demand: dict[tuple[int, int], dict[int, int]] = {}
     scores: dict[tuple[int, int], float] = {}
     skipped: dict[tuple[int, int], str] = {}
+    # the rating every piece naming a row needs where it sits (None: not known,
+    # then stand-ins keep that row's own rating)
+    rating_need: dict[int, float | None] = {}
     for b, it in enumerate(items):
         norm = _normalised_scores(it.candidates)
         for j, d in enumerate(it.candidates):
             try:
                 demand[(b, j)] = design_demand(d, rows, catalogue)
+                named = _named_rows(d, rows, catalogue)
             except _Unusable as exc:
                 skipped[(b, j)] = str(exc)
                 continue
             scores[(b, j)] = norm[j]
+            for rid, p in named:
+                old = rating_need.get(rid, 0.0)
+                rating_need[rid] = None if old is None or p.need is None else max(old, p.need)
 
     total_copies = sum(max(it.count, 0) for it in items) or 1
     quantum = _cost_quantum(catalogue)
@@ -420,7 +440,8 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
     for r in classes:
         orig = rows[r]
         stand_ins[r] = [s for s, row in rows.items()
-                        if can_stand_in(row, orig, strict_tolerance=strict[r])
+                        if can_stand_in(row, orig, strict_tolerance=strict[r],
+                                        need=rating_need.get(r))
                         and (row.virtual or row.qty > 0 or s == r)]
     # A stock row that holds all that could ever land on it serves its own class
     # alone: moving that class's pieces onto it keeps any plan feasible and no

@@ -74,3 +74,20 @@ def test_capacitor_voltage_rating_and_last_pieces_not_scored_for_virtual_rows():
     assert [p.id for p in a.picks["C_OUT"].pieces] == [-5]
     assert a.emptied_caps == 0                                # virtual rows never count
     assert LAST_PIECES_PENALTY > 0
+
+
+def test_pieces_carry_the_rating_they_need_where_they_sit():
+    # a piece's need is its share of the role's stress over the derating (50 % for
+    # resistor power, 80 % for capacitor voltage): the planner's stand-in rule reads it
+    from optimiser.options import CAPACITOR_DERATING, RESISTOR_DERATING, StockOptions
+
+    snap = StockSnapshot(
+        resistors=(Resistor(4700.0, 10, power_w=0.25, id=1),),
+        capacitors=(Capacitor(1e-6, 10, voltage_v=25.0, id=2),))
+    opts = StockOptions(snap, 1, False)
+    al = opts.allocate({"RC": ("resistor", 4700.0, 0.03), "C_IN": ("capacitor", 1e-6, 4.0)})
+    assert al is not None
+    (pr,) = al.picks["RC"].pieces
+    (pc,) = al.picks["C_IN"].pieces
+    assert pr.need == pytest.approx(0.03 / RESISTOR_DERATING)
+    assert pc.need == pytest.approx(4.0 / CAPACITOR_DERATING)

@@ -428,3 +428,27 @@ def test_highs_banner_stays_off_stdout(tmp_path):
                          check=True, cwd=str(__import__("pathlib").Path(__file__).parents[2]))
     data = json.loads(out.stdout)
     assert data["solver"]["name"] == "HiGHS" and data["feasible"]
+
+
+@pytest.mark.parametrize("need, feasible", [(0.05, True), (0.2, False), (None, False)])
+def test_a_lower_rated_row_stands_in_when_the_design_needs_less(need, feasible):
+    # the design names a 0.25 W row that holds 2 pieces; a 0.125 W row of the same
+    # value holds 10.  Six copies fit only if the 0.125 W pieces may stand in: they
+    # may when every piece naming the row needs at most 0.125 W (need 0.05 W), not
+    # when one needs more (0.2 W), and not when the need is unknown (the named
+    # row's own rating is kept then)
+    snap = StockSnapshot(
+        resistors=(Resistor(4700.0, 2, tolerance=0.05, power_w=0.25, id=1, location="A1"),
+                   Resistor(4700.0, 10, tolerance=0.05, power_w=0.125, id=3, location="A3")),
+        transistors=(Transistor("GP-N1", 100, 300, qty=10, id=10),))
+    d = Design("ce", "GP-N1", {"R1": RolePick("R1", 4700.0, "4k7", (
+        Piece(4700.0, 1, 1, "A1", "resistor", 0.05, 0.25, need=need),))}, {}, True, score=0.1)
+    plan = plan_builds([PlanItem("amp", 6, True, (d,))], snap)
+    assert plan.feasible is feasible
+    if feasible:
+        used: dict[int, int] = {}
+        for al in plan.builds[0].allocations:
+            for rid, k in al.pieces.items():
+                used[rid] = used.get(rid, 0) + k
+        assert not plan.purchases
+        assert used.get(3, 0) >= 4 and used.get(1, 0) <= 2
