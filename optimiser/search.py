@@ -1188,9 +1188,12 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
         pending = np.array(still, dtype=int)
         if rnd == 3:
             break
-    # the rest: every allowed combination the stock can supply
+    # the rest: every allowed combination the stock can supply, after a screen
+    keep = _screen_caps(request, opts, part, list(pending), croles, allowed, stats)
     for a in pending:
-        got = _enumerate_caps(request, opts, part.take(np.array([a])), croles, allowed[a],
+        if keep[a] is None:
+            continue
+        got = _enumerate_caps(request, opts, part.take(np.array([a])), croles, keep[a],
                               st_all[a], stats)
         if got is not None:
             accepted[a] = got
@@ -1253,8 +1256,56 @@ def _alloc_caps(opts, croles, vec, st):
                           for k, r in enumerate(croles)})
 
 
-def _enumerate_caps(request, opts, one: Skeletons, croles, allowed, st, stats):
-    combos = list(itertools.product(*[list(np.flatnonzero(a)) for a in allowed]))
+def _screen_caps(request, opts, part: Skeletons, pending, croles, allowed, stats):
+    """Per pending skeleton, the allowed capacitor indices per role worth combining
+    (None: no combination can meet the request).  One engine call for them all.
+
+    * f_low (assumption A1, a larger capacitor never raises f_low): a value whose
+      stage misses f_low_max_hz with every other capacitor at its largest allowed
+      value misses it in every combination.
+    * Z_in (assumption A3, a smaller capacitor never lowers |Z_in|): when the
+      smallest values left miss zin_min_ohm, every combination does.
+    """
+    idx = {a: [np.flatnonzero(x) for x in allowed[a]] for a in pending}
+    live = [a for a in pending if all(i.size for i in idx[a])]
+    out = {a: None for a in pending}
+    if request.f_low_max_hz is not None and live:
+        rows, vecs = [], []
+        for a in live:
+            top = np.array([i[-1] for i in idx[a]])
+            for k, ik in enumerate(idx[a]):
+                for v in ik:
+                    x = top.copy()
+                    x[k] = v
+                    rows.append(a)
+                    vecs.append(x)
+        ev = _eval_vectors(request, opts, part.take(np.array(rows)), croles, np.array(vecs))
+        stats["full_evaluations"] = stats.get("full_evaluations", 0) + len(rows)
+        f_low = np.asarray(ev.metrics["f_low_hz"], dtype=float)
+        ok = ~(f_low > request.f_low_max_hz * (1 + 1e-9))      # NaN (no edge found) stays
+        at = 0
+        for a in live:
+            kept = []
+            for ik in idx[a]:
+                kept.append(ik[ok[at:at + ik.size]])
+                at += ik.size
+            idx[a] = kept
+        live = [a for a in live if all(i.size for i in idx[a])]
+    if request.zin_min_ohm is not None and live:
+        low = np.array([[i[0] for i in idx[a]] for a in live])
+        ev = _eval_vectors(request, opts, part.take(np.array(live)), croles, low)
+        stats["full_evaluations"] = stats.get("full_evaluations", 0) + len(live)
+        z = np.asarray(ev.metrics["zin_ohm"], dtype=float)
+        live = [a for a, zz in zip(live, z, strict=True)
+                if zz >= request.zin_min_ohm * (1 - 1e-9)]
+    for a in live:
+        out[a] = idx[a]
+    return out
+
+
+def _enumerate_caps(request, opts, one: Skeletons, croles, keep, st, stats):
+    """The first combination, smallest capacitances first, that meets the request."""
+    combos = list(itertools.product(*[list(k) for k in keep]))
     if len(combos) > CAP_ENUM_LIMIT:
         stats["cap_enum_truncated"] = stats.get("cap_enum_truncated", 0) + 1
         stepk = len(combos) / CAP_ENUM_LIMIT
