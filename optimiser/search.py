@@ -379,13 +379,13 @@ class _Job:
             s, lb_s = s[keep], lb_s[keep]
         if s.size == 0:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
-        # B2: drift at a common Early factor, with a margin for the factor's spread
-        q_mid = 0.5 * (self.q_lo + self.q_hi)
+        # B2: drift at a common Early factor (the lowest, so that the nominal current
+        # is ic_lo, already known), with a margin for the factor's spread
         vs, rs_, rb = v_th[s], r_th[s], r_big[s]
-        ic_mid = bias_current(vs, rs_, rb, model, 25.0, None, q_mid)
+        ic_mid = ic_lo[s]
         d = np.zeros_like(ic_mid)
         for tc, b in self.corners:
-            icc = bias_current(vs, rs_, rb, model, tc, b, q_mid)
+            icc = bias_current(vs, rs_, rb, model, tc, b, self.q_lo)
             with np.errstate(divide="ignore", invalid="ignore"):
                 d = np.maximum(d, np.abs(icc - ic_mid) / ic_mid * 100.0)
         d = np.nan_to_num(d, nan=0.0, posinf=np.inf)
