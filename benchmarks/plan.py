@@ -6,7 +6,7 @@ machine) and with HiGHS when highspy is installed.  As a baseline measured in
 the same run, the LP relaxation of the same programme (CBC, integrality
 dropped) is solved too; the MIP times are printed as ratios to it.
 
-    python benchmarks/plan.py [--candidates N] [--time-limit S]
+    python benchmarks/plan.py [--candidates N] [--time-limit S] [--search-time S]
 """
 
 # ruff: noqa: T201  (a script: it prints its figures)
@@ -114,6 +114,9 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--candidates", type=int, default=20, help="search top per source")
     ap.add_argument("--time-limit", type=float, default=None)
+    ap.add_argument("--search-time", type=float, default=60.0,
+                    help="seconds each candidate search may take (0: no limit); a "
+                         "stopped search still offers only designs that meet the request")
     ap.add_argument("--synthetic", type=int, default=0, metavar="N",
                     help="skip the search: N synthetic candidates per request (times the "
                          "solver alone; not the benchmark's real figure)")
@@ -142,11 +145,14 @@ def main(argv=None) -> int:
         print(f"candidates read from {cache} (search took {t_search:.1f} s when made)")
     for b in blist.builds if not items else ():
         t0 = time.perf_counter()
-        designs, note, st = gather_candidates(b.request, snap, augmented, top=args.candidates)
+        designs, note, st = gather_candidates(b.request, snap, augmented, top=args.candidates,
+                                              search_time_s=args.search_time or None)
         dt = time.perf_counter() - t0
         t_search += dt
+        stopped = st.get("searches_stopped_at_time_limit", 0)
         print(f"  {b.name:<11} {len(designs):4d} candidates  ({st['searches']} searches, "
-              f"{dt:6.1f} s){'  ' + note if note else ''}", flush=True)
+              f"{dt:6.1f} s{f', {stopped} stopped at the time limit' if stopped else ''})"
+              f"{'  ' + note if note else ''}", flush=True)
         items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,
                               strict_tolerance=b.request.wants_yield))
     if cache is not None and not cache.is_file():
