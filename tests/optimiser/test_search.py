@@ -254,6 +254,13 @@ def test_drift_bound_holds_against_the_engine(vaf, supply):
     assert np.median(d_lb[mod] / drift[mod]) > 0.6
 
 
+def _random_case(topo, rs, rl, vaf, seed, n=4000):
+    """(rng, n, transistor, its model, request) for a bound-against-engine check."""
+    t = Transistor("GP-N1", 100, 400, ft=250e6, cob=4e-12, vaf=vaf)
+    req = Request(topology=topo, supply_v=12.0, load_ohm=rl, source_ohm=rs)
+    return np.random.default_rng(seed), n, t, device_from_transistor(t), req
+
+
 @pytest.mark.parametrize("rs, rl, vaf", [(10e3, 1e3, 100.0), (600.0, None, 30.0),
                                          (50e3, 10e3, 60.0), (0.0, 2e3, 100.0)])
 def test_follower_gain_bound_holds_against_the_engine(rs, rl, vaf):
@@ -262,11 +269,7 @@ def test_follower_gain_bound_holds_against_the_engine(rs, rl, vaf):
     from optimiser.device import thermal_voltage
     from optimiser.search import skeleton_figures
 
-    rng = np.random.default_rng(2)
-    n = 4000
-    t = Transistor("GP-N1", 100, 400, ft=250e6, cob=4e-12, vaf=vaf)
-    m = device_from_transistor(t)
-    req = Request(topology="cc", supply_v=12.0, load_ohm=rl, source_ohm=rs)
+    rng, n, t, m, req = _random_case("cc", rs, rl, vaf, seed=2)
     b = StageBatch.from_values(
         "cc", R1=10 ** rng.uniform(3.5, 6, n), R2=10 ** rng.uniform(3, 6, n),
         RC=np.where(rng.random(n) < 0.7, 0.0, 10 ** rng.uniform(1, 3, n)),
@@ -291,11 +294,7 @@ def test_common_base_gain_floor_holds_against_the_engine(rs, rl, vaf):
     from optimiser.device import thermal_voltage
     from optimiser.search import GAIN_BOUND_MARGIN
 
-    rng = np.random.default_rng(4)
-    n = 4000
-    t = Transistor("GP-N1", 100, 400, ft=250e6, cob=4e-12, vaf=vaf)
-    m = device_from_transistor(t)
-    req = Request(topology="cb", supply_v=12.0, load_ohm=rl, source_ohm=rs)
+    rng, n, t, m, req = _random_case("cb", rs, rl, vaf, seed=4)
     b = StageBatch.from_values("cb", R1=10 ** rng.uniform(3.5, 5.5, n),
                                R2=10 ** rng.uniform(3, 5, n), RC=10 ** rng.uniform(2, 4.5, n),
                                RE=10 ** rng.uniform(1.5, 4.5, n), C_IN=1.0, C_OUT=1.0, C_B=1.0)
