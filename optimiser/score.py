@@ -2,7 +2,8 @@
 
     score = |G∞ − G_target| / tol        gain:   G∞ the midband gain in dB with every
                                                  capacitor shorted, target and tol in dB
-                                                 (0 when the request sets no gain)
+                                                 (0 when the request sets no gain; a
+                                                 follower without one: 0 dB ± 1 dB)
           + drift / 10 %                 bias drift: ic_drift_pct
           + HD2 / 1 %                    distortion: the second harmonic the junction's
                                          exponential law gives for the midband drive
@@ -36,6 +37,7 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["DRIFT_UNIT_PCT", "THD_UNIT_PCT", "CURRENT_UNIT_A", "STOCK_PENALTY",
+           "FOLLOWER_TOL_DB", "score_gain_target",
            "HEADROOM_FRACTION", "headroom_term", "gain_term", "hd2_pct", "degeneration", "score_terms", "score"]
 
 DRIFT_UNIT_PCT = 10.0
@@ -57,6 +59,25 @@ def headroom_term(vce_v, supply_v):
     want = HEADROOM_FRACTION * float(supply_v)
     v = np.nan_to_num(np.asarray(vce_v, dtype=float), nan=want)
     return np.maximum(0.0, 1.0 - v / want)
+
+
+#: A follower asked for no particular gain is scored against unity (0 dB) with this
+#: tolerance: a buffer that loses a few dB to its source and load is a worse buffer.
+FOLLOWER_TOL_DB = 1.0
+
+
+def score_gain_target(request) -> tuple[float | None, float]:
+    """(target dB, tolerance dB) of the score's gain term for ``request``.
+
+    The request's own gain target when it sets one; for a common-collector
+    stage without one, unity (0 dB) ± FOLLOWER_TOL_DB; otherwise no gain term.
+    Only the score uses this: the request's hard targets are unchanged.
+    """
+    if request.gain_db is not None:
+        return float(request.gain_db), float(request.gain_tol_db)
+    if request.topology == "cc":
+        return 0.0, FOLLOWER_TOL_DB
+    return None, float(request.gain_tol_db)
 
 
 def gain_term(gain_inf_db, target_db: float | None, tol_db: float):

@@ -44,7 +44,7 @@ from optimiser.options import (
     StockOptions,
 )
 from optimiser.request import Request
-from optimiser.score import STOCK_PENALTY, degeneration, hd2_pct, score_terms
+from optimiser.score import STOCK_PENALTY, degeneration, hd2_pct, score_gain_target, score_terms
 from optimiser.stage import PartRatings, StageBatch
 
 __all__ = ["SearchResult", "search", "check_request", "FORMS", "SHORT_F",
@@ -276,7 +276,7 @@ class _Job:
         o = np.argsort(plb, kind="stable")
         self.R1, self.R2, self.vth, self.rth, self.plb = R1[o], R2[o], vth[o], rth[o], plb[o]
         self.win = gain_window(request)
-        if self.topo == "cc" and self.win is not None:
+        if self.topo == "cc":
             # B13 at the pair: the divider alone caps a follower's gain
             short = self._gain_shortfall(self._follower_gain_max(np.arange(self.R1.size)))
             keep = np.isfinite(short)
@@ -350,7 +350,7 @@ class _Job:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
         ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, self.q_hi)
         lb_s = lb[s]
-        if self.topo == "cc" and self.win is not None:
+        if self.topo == "cc":
             # B13: a follower's gain is at most k_in·A_f, the divider's share of the
             # source (Z_in ≤ R_TH) times RE‖RL over r_e + RE‖RL
             g_hi = self._follower_gain_max(P[s], r_big[s], ic_hi[s])
@@ -420,12 +420,17 @@ class _Job:
         return g
 
     def _gain_shortfall(self, g_hi) -> np.ndarray:
-        """Lower bound of the gain term for stages whose gain is at most ``g_hi``
-        (inf where even that misses the bottom of the window)."""
-        r = self.request
+        """Lower bound of the score's gain term for stages whose gain is at most
+        ``g_hi`` (inf where even that misses the bottom of the request's window)."""
+        target, tol = score_gain_target(self.request)
         with np.errstate(divide="ignore"):
             g_db = 20.0 * np.log10(np.maximum(g_hi, 1e-300))
-        term = np.maximum(r.gain_db - g_db, 0.0) / max(r.gain_tol_db, 1e-3)
+        if target is None:
+            term = np.zeros_like(g_db)
+        else:
+            term = np.maximum(target - g_db - GAIN_SLACK_DB, 0.0) / max(tol, 1e-3)
+        if self.win is None:
+            return term
         return np.where(g_db >= 20.0 * math.log10(self.win[0]) - GAIN_SLACK_DB, term, np.inf)
 
     def _cc_needs_rc(self, P, r_e) -> np.ndarray:
@@ -653,13 +658,13 @@ class _Job:
             gwin = (gdb >= lo_db) & (gdb <= hi_db)
             self.count("gain", (good & ~gwin).sum())
             good &= gwin
-        terms = score_terms(gain_inf_db=gdb, target_db=request.gain_db,
-                            tol_db=request.gain_tol_db, drift_pct=0.0, hd2_pct=hd2,
+        terms = score_terms(gain_inf_db=gdb, target_db=score_gain_target(request)[0],
+                            tol_db=score_gain_target(request)[1], drift_pct=0.0, hd2_pct=hd2,
                             supply_a=supply, emptied=0, vce_v=op.vce, supply_v=V)
         # the headroom term is exact here (the nominal DC point); a hair of slack
         # keeps the bound below the confirmed score
         lb = dlb / 10.0 + np.maximum(terms["gain"] - GAIN_SLACK_DB / max(
-            request.gain_tol_db, 1e-3), 0.0) + terms["distortion"] + terms["current"] + stock_lb \
+            score_gain_target(request)[1], 1e-3), 0.0) + terms["distortion"] + terms["current"] + stock_lb \
             + np.maximum(terms["headroom"] - 1e-6, 0.0)
         under = lb < upper
         self.count("score_bound", (good & ~under).sum())
@@ -981,8 +986,8 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap):
             ok = np.isfinite(drift)
             if request.ic_drift_max_pct is not None:
                 ok &= drift <= request.ic_drift_max_pct
-            terms = score_terms(gain_inf_db=sk.gdb, target_db=request.gain_db,
-                                tol_db=request.gain_tol_db, drift_pct=drift, hd2_pct=sk.hd2,
+            terms = score_terms(gain_inf_db=sk.gdb, target_db=score_gain_target(request)[0],
+                                tol_db=score_gain_target(request)[1], drift_pct=drift, hd2_pct=sk.hd2,
                                 supply_a=sk.supply, emptied=0, vce_v=op.vce,
                                 supply_v=request.supply_v)
             lb15 = terms["gain"] + terms["drift"] + terms["distortion"] + terms["current"] \
@@ -1336,8 +1341,8 @@ def _make_design(request, sk: Skeletons, i: int, row: dict, alloc_r, alloc_c, ev
         for k in ("thd_pct", "swing_vpk"):
             mm[k] = ev_first.metrics_of(0).get(k)
     emptied = alloc_r.emptied + t_empty
-    terms = score_terms(gain_inf_db=row["gain_inf_db"], target_db=request.gain_db,
-                        tol_db=request.gain_tol_db, drift_pct=row["drift_pct"],
+    terms = score_terms(gain_inf_db=row["gain_inf_db"], target_db=score_gain_target(request)[0],
+                        tol_db=score_gain_target(request)[1], drift_pct=row["drift_pct"],
                         hd2_pct=row["hd2_pct"], supply_a=row["supply_a"], emptied=emptied,
                         vce_v=row["vce_v"], supply_v=request.supply_v)
     sc = float(sum(float(v) for v in terms.values()))

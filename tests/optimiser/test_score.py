@@ -50,3 +50,17 @@ def test_headroom_term_penalises_a_collector_near_saturation():
     assert abs(float(headroom_term(1.5, 12.0)) - 0.5) < 1e-12
     assert float(headroom_term(0.6, 12.0)) > float(headroom_term(1.2, 12.0)) > 0.0
     assert headroom_term(None, 12.0) == 0.0       # unknown V_CE: a lower bound of 0
+
+
+def test_a_follower_without_a_gain_target_is_scored_against_unity():
+    from optimiser.request import Request
+    from optimiser.score import FOLLOWER_TOL_DB, score_gain_target
+
+    assert score_gain_target(Request(topology="cc", supply_v=12.0)) == (0.0, FOLLOWER_TOL_DB)
+    assert score_gain_target(Request(topology="cc", supply_v=12.0, gain=0.5,
+                                     gain_tol_db=2.0)) == pytest.approx((20 * np.log10(0.5), 2.0))
+    assert score_gain_target(Request(topology="ce", supply_v=12.0))[0] is None
+    # −3 dB of loss costs three tolerances; unity costs nothing
+    t = score_terms(gain_inf_db=np.array([-3.0, 0.0]), target_db=0.0, tol_db=FOLLOWER_TOL_DB,
+                    drift_pct=0, hd2_pct=0, supply_a=0, emptied=0)
+    assert list(t["gain"]) == [3.0, 0.0]

@@ -16,7 +16,7 @@ from hypothesis import strategies as st
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
 from optimiser.evaluate import evaluate
 from optimiser.request import Request
-from optimiser.score import score_terms
+from optimiser.score import score_gain_target, score_terms
 from optimiser.search import FORMS, cap_roles, search_designs, skeleton_figures
 from optimiser.stage import StageBatch
 
@@ -89,9 +89,9 @@ def exhaustive(req: Request, snap: StockSnapshot):
             continue
         fig = skeleton_figures(req, batch.take(ok), t)
         emptied = np.array([keep[i][1] for i in ok]) + (t.qty == req.builds)
-        s = score_terms(gain_inf_db=fig["gain_inf_db"], target_db=req.gain_db,
-                        tol_db=req.gain_tol_db, drift_pct=fig["drift_pct"],
-                        hd2_pct=fig["hd2_pct"], supply_a=fig["supply_a"], emptied=emptied,
+        target_db, tol_db = score_gain_target(req)
+        s = score_terms(gain_inf_db=fig["gain_inf_db"], target_db=target_db, tol_db=tol_db,
+                        drift_pct=fig["drift_pct"], hd2_pct=fig["hd2_pct"], supply_a=fig["supply_a"], emptied=emptied,
                         vce_v=fig["vce_v"], supply_v=req.supply_v)
         total = sum(s.values())
         m = float(np.min(total))
@@ -119,7 +119,8 @@ def cases(draw):
     t = Transistor(T.label, T.hfe_min, T.hfe_max, qty=draw(st.sampled_from([2, 4])), ft=T.ft,
                    cob=T.cob, vceo=T.vceo, ic_max=T.ic_max, pd=draw(st.sampled_from([0.05, T.pd])),
                    id=T.id, location="Q1")
-    gain = draw(st.floats(0.5, 0.95) if topo == "cc" else st.floats(1.5, 40.0))
+    gain = draw(st.one_of(st.none(), st.floats(0.5, 0.95)) if topo == "cc"
+                else st.floats(1.5, 40.0))
     req = Request(
         topology=topo, supply_v=draw(st.sampled_from([9.0, 12.0])),
         load_ohm=draw(st.sampled_from([None, 10e3])),
