@@ -103,8 +103,8 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     :class:`~inventory.errors.InputError` naming ``file``, the line (when the
     TOML ``text`` is given) and the key.
     """
-    from inventory.errors import InputError
     from inventory import values as V
+    from inventory.errors import InputError
 
     def err(key, msg):
         return InputError(msg, file=file, line=_line_of(text, key), field=key)

@@ -222,8 +222,13 @@ def test_gain_distortion_minimum_matches_a_dense_grid(g_lo, target, tol):
 def test_drift_bound_holds_against_the_engine(vaf, supply):
     # bound B2 of docs/search.md: the closed-form drift at a common Early factor, with
     # the search's margins and cap, never above the engine's drift of a valid stage
-    from optimiser.search import (DRIFT_ABS_SLACK, DRIFT_BOUND_CAP_PCT, DRIFT_REL_SLACK,
-                                  _corner_points, skeleton_figures)
+    from optimiser.search import (
+        DRIFT_ABS_SLACK,
+        DRIFT_BOUND_CAP_PCT,
+        DRIFT_REL_SLACK,
+        _corner_points,
+        skeleton_figures,
+    )
 
     rng = np.random.default_rng(5)
     n = 6000
