@@ -833,7 +833,7 @@ def _with_yield(request: Request, snapshot: StockSnapshot, designs: list[Design]
 
 
 QUICK_BATCH = 2000
-CONFIRM_BATCH = 48
+CONFIRM_BATCH = 12
 NODE_BLOCK = 8192
 TOTALS_BLOCK = 16
 #: Aspiration levels of the score (search_designs); the last run is unbounded.
