@@ -170,7 +170,7 @@ def _gain_distortion_min(c, g_lo_db, target_db, tol_db):
 
 def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_lo_db,
                    target_db, tol_db, vce_sat, rc=None, steps=JUNCTION_FLOOR_STEPS,
-                   cut=None):
+                   cut=None, k_in=None):
     """Lower bound of the score's gain + distortion + headroom terms of a ce or cb stage.
 
     For a common-emitter stage whose midband gain with the capacitors shorted
@@ -188,20 +188,26 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
     Arrays broadcast together; volts, amperes, ohms, dB.  Returns the bound
     (inf where no collector resistor leaves the transistor out of saturation).
     With ``cut`` (an array), entries whose cheaper bound already reaches it
-    return that cheaper bound instead of the full one.
+    return that cheaper bound instead of the full one.  ``k_in`` (ce only) is an
+    upper bound of the input divider R_in/(R_in + R_S), e.g. R_TH/(R_TH + R_S):
+    the feedback relation then reads 1 + g_m·R_E ≤ k_in·g_m·Z_c'/G, and the
+    distortion floor grows by 1/k_in.
     """
     V = float(supply_v)
     ic_lo, ic_hi, ve_lo = np.broadcast_arrays(*(np.asarray(a, dtype=float)
                                                 for a in (ic_lo, ic_hi, ve_lo)))
     want = 0.25 * V
     k = 25.0 * float(input_vpk) * thermal_voltage(25.0) / JUNCTION_FLOOR_MARGIN
+    if k_in is not None:
+        k = k / np.broadcast_to(np.clip(np.asarray(k_in, dtype=float), 1e-12, 1.0), ic_lo.shape)
     a = ic_hi * float(load_ohm) if load_ohm else None
 
     def coef(y):
         aa = a if a is None or np.ndim(y) == np.ndim(a) else a[..., None]
+        kk = k if np.ndim(k) in (0, np.ndim(y)) else k[..., None]
         with np.errstate(divide="ignore", invalid="ignore"):
             x = y if aa is None else y * aa / (y + aa)
-            return np.where(x > 0, k / np.where(x > 0, x, 1.0) ** 2, np.inf)
+            return np.where(x > 0, kk / np.where(x > 0, x, 1.0) ** 2, np.inf)
 
     def head(y):
         ve = ve_lo if np.ndim(y) == np.ndim(ve_lo) else ve_lo[..., None]
@@ -232,7 +238,8 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
             out[live] = junction_floor(
                 ic_lo=ic_lo[live], ic_hi=ic_hi[live], ve_lo=ve_lo[live], supply_v=V,
                 load_ohm=load_ohm, input_vpk=input_vpk, gain_lo_db=gain_lo_db,
-                target_db=target_db, tol_db=tol_db, vce_sat=vce_sat, steps=steps)
+                target_db=target_db, tol_db=tol_db, vce_sat=vce_sat, steps=steps,
+                k_in=None if k_in is None else np.broadcast_to(k_in, ic_lo.shape)[live])
         return out
     # segment ends y_0 < y_1 < … < y_steps = y_max of the range with a headroom cost,
     # all at once: shape (n, steps + 1)

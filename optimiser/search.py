@@ -372,7 +372,7 @@ class _Job:
             # B12: gain, distortion and headroom together, over every RC and split
             live = lb_s + h < upper
             h[live] = np.maximum(h[live], self._floor(
-                ic_lo[s[live]], ic_hi[s[live]], ic_lo[s[live]] * r_small[s[live]],
+                P[s[live]], ic_lo[s[live]], ic_hi[s[live]], ic_lo[s[live]] * r_small[s[live]],
                 cut=upper - lb_s[live]))
             lb_s = lb_s + h
             keep = lb_s < upper
@@ -461,14 +461,18 @@ class _Job:
             need[cand] = np.maximum(op.pq, cop.pq.max(axis=1)) > self.model.pd
         return need
 
-    def _floor(self, ic_lo, ic_hi, ve_lo, rc=None, cut=None):
+    def _floor(self, P, ic_lo, ic_hi, ve_lo, rc=None, cut=None):
         from optimiser.prune import junction_floor
         r = self.request
+        k_in = None
+        if self.topo == "ce":     # R_in ≤ R_TH: the input divider is at most this
+            rth = self.rth[P]
+            k_in = rth / (rth + float(r.source_ohm or 0.0))
         return junction_floor(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ve_lo, supply_v=self.V,
                               load_ohm=r.load_ohm, input_vpk=r.input_vpk,
                               gain_lo_db=20 * math.log10(self.win[0]) - GAIN_SLACK_DB,
                               target_db=r.gain_db, tol_db=r.gain_tol_db,
-                              vce_sat=self.model.vce_sat, rc=rc, cut=cut)
+                              vce_sat=self.model.vce_sat, rc=rc, cut=cut, k_in=k_in)
 
     def expand_pairs(self, p: np.ndarray, upper: float):
         """Blocks of emitter totals for the pairs ``p``, sorted by their bound.
@@ -600,7 +604,7 @@ class _Job:
                 h = 25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
                     1.0 + ic_hi[rs_] * rdeg / thermal_voltage(25.0))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
-            h = np.maximum(h, self._floor(ic_lo[rs_], ic_hi[rs_],
+            h = np.maximum(h, self._floor(Pc[sel], ic_lo[rs_], ic_hi[rs_],
                                           ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel]))
             pre[sel] += h
             sel = sel[pre[sel] < upper]

@@ -188,6 +188,8 @@ def test_junction_floor_is_below_the_engine_score_terms(topo, rs, rl, vin, gdb):
     kw = dict(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ic_lo * b.re_total, supply_v=12.0, load_ohm=rl,
               input_vpk=vin, gain_lo_db=20 * np.log10(win[0]) - GAIN_SLACK_DB,
               target_db=req.gain_db, tol_db=req.gain_tol_db, vce_sat=m.vce_sat)
+    if topo == "ce":      # the search's input-divider bound, R_in ≤ R_TH
+        kw["k_in"] = rth / (rth + rs)
     free = junction_floor(**kw)
     known = junction_floor(**kw, rc=b.RC)
     # with a cut, the cheap bound stands in only where it already reaches the cut
