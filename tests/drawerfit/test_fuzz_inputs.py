@@ -24,6 +24,7 @@ from hypothesis import strategies as st
 
 from drawerfit.cli import cli
 from inventory.store import open_store
+from tests.encodings import encode_as
 
 #: Examples per run; DRAWERFIT_FUZZ_EXAMPLES raises it for a long hunt.
 FUZZ_EXAMPLES = int(os.environ.get("DRAWERFIT_FUZZ_EXAMPLES", "150"))
@@ -121,13 +122,7 @@ def toml_files(draw, base: dict) -> bytes:
         text = text.replace("\n", "\r\n")
     elif mangle == "nul":
         text = "\x00" + text
-    if mangle == "bom":
-        return b"\xef\xbb\xbf" + text.encode("utf-8")
-    if mangle == "latin1":
-        return (text + "# Kühlschrank\n").encode("latin-1", errors="replace")
-    if mangle == "utf16":
-        return text.encode("utf-16")
-    return text.encode("utf-8", errors="surrogatepass")
+    return encode_as(text, mangle, "# Kühlschrank\n")
 
 
 def _no_nan(word: str):

@@ -17,6 +17,7 @@ from hypothesis import strategies as st
 
 from drawerfit.cli import cli
 from inventory.store import open_store
+from tests.encodings import encode_as
 
 #: Examples per run; DRAWERFIT_FUZZ_EXAMPLES raises it for a long hunt.
 FUZZ_EXAMPLES = int(os.environ.get("DRAWERFIT_FUZZ_EXAMPLES", "120"))
@@ -88,13 +89,7 @@ def stock_files(draw) -> bytes:
         text += "resistor,1k,1,,,,,,,,,,,,,,,,,,,,,,,,,\n"
     elif mangle == "nul":
         text = text + "\x00"
-    if mangle == "bom":
-        return b"\xef\xbb\xbf" + text.encode("utf-8")
-    if mangle == "latin1":
-        return (text + "resistor,4k7,1,Kühlschrank\n").encode("latin-1", errors="replace")
-    if mangle == "utf16":
-        return text.encode("utf-16")
-    return text.encode("utf-8", errors="surrogatepass")
+    return encode_as(text, mangle, "resistor,4k7,1,Kühlschrank\n")
 
 
 def test_hostile_stock_files_are_refused_cleanly_or_imported(tmp_path_factory):
