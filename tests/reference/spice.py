@@ -83,6 +83,14 @@ def _r(name, a, b, value, k):
     return f"R{name}_{k} {a} {b} {value:.12g}"
 
 
+def _coupling(name, plus, minus, farad, mode, volts, k):
+    """A coupling or bypass capacitor; in the quasi-static mode (``"qs"``) a DC source
+    holding its quiescent voltage ``volts`` (plus minus minus) instead."""
+    if mode == "qs":
+        return f"V{name}_{k} {plus} {minus} dc {volts:.12g}"
+    return f"{name}_{k} {plus} {minus} {farad:.12g}"
+
+
 def stage_netlist(d: SpiceDesign, k: int, *, supply_v: float, source_ohm: float,
                   load_ohm: float | None, mode: str = "ac", op: dict | None = None,
                   emf_node: str = "emf") -> list[str]:
@@ -101,10 +109,7 @@ def stage_netlist(d: SpiceDesign, k: int, *, supply_v: float, source_ohm: float,
     lines.append(f"VM_{k} {s} {sm} dc 0")
     inp = e if t == "cb" else b
     out = e if t == "cc" else c
-    if mode == "qs":
-        lines.append(f"VCIN_{k} {inp} {sm} dc {op['v_in_node']:.12g}")
-    else:
-        lines.append(f"CIN_{k} {sm} {inp} {d.v('C_IN'):.12g}")
+    lines.append(_coupling("CIN", inp, sm, d.v("C_IN"), mode, op and op["v_in_node"], k))
     lines.append(_r("1", vcc, b, d.v("R1"), k))
     lines.append(_r("2", b, "0", d.v("R2"), k))
     if t == "ce":
@@ -112,24 +117,15 @@ def stage_netlist(d: SpiceDesign, k: int, *, supply_v: float, source_ohm: float,
         lines.append(_r("E", e, x, d.v("RE"), k))
         lines.append(_r("EB", x, "0", d.v("RE_BYP"), k))
         if d.v("C_BYP") > 0 and d.v("RE_BYP") > 0:
-            if mode == "qs":
-                lines.append(f"VCBYP_{k} {x} 0 dc {op['vx']:.12g}")
-            else:
-                lines.append(f"CBYP_{k} {x} 0 {d.v('C_BYP'):.12g}")
+            lines.append(_coupling("CBYP", x, "0", d.v("C_BYP"), mode, op and op["vx"], k))
     elif t == "cb":
         lines.append(_r("C", vcc, c, d.v("RC"), k))
         lines.append(_r("E", e, "0", d.v("RE"), k))
-        if mode == "qs":
-            lines.append(f"VCB_{k} {b} 0 dc {op['vb']:.12g}")
-        else:
-            lines.append(f"CB_{k} {b} 0 {d.v('C_B'):.12g}")
+        lines.append(_coupling("CB", b, "0", d.v("C_B"), mode, op and op["vb"], k))
     else:
         lines.append(_r("C", vcc, c, d.v("RC"), k))
         lines.append(_r("E", e, "0", d.v("RE"), k))
-    if mode == "qs":
-        lines.append(f"VCOUT_{k} {out} {lo} dc {op['v_out_node']:.12g}")
-    else:
-        lines.append(f"COUT_{k} {out} {lo} {d.v('C_OUT'):.12g}")
+    lines.append(_coupling("COUT", out, lo, d.v("C_OUT"), mode, op and op["v_out_node"], k))
     if load_ohm is not None and mode != "zout":
         lines.append(f"RL_{k} {lo} 0 {load_ohm:.12g}")
     else:
