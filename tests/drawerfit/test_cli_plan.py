@@ -121,19 +121,23 @@ def test_json_shape_and_stock_respected(env):
     assert all(used[i] <= before[i] for i in used)
 
 
-def test_purchase_order_file_is_a_stock_file(env):
-    # 20 copies of design A alone: 4k7 has 10 (5 %) + 8 (1 %) = 18, so 2 more; 10u has
-    # 12 (25 V) + 2 (63 V) = 14, so 6 more; 10k has 12 + 15 (1 %) = 27, enough.
-    # E24 resistors 0.02 each, E6 capacitors 0.10 each, packs of 10, 0.50 a line:
-    # 10 × 0.02 + 0.50 + 10 × 0.10 + 0.50 = 2.20.
-    text = """
+#: Twenty preamps of design A, buying from E24 (purchase defaults otherwise).
+TWENTY_PREAMPS_E24 = """
 [[build]]
 request = "preamp.toml"
 count = 20
 
 [purchase]
 series = "E24"
-pack = 10
+"""
+
+
+def test_purchase_order_file_is_a_stock_file(env):
+    # 20 copies of design A alone: 4k7 has 10 (5 %) + 8 (1 %) = 18, so 2 more; 10u has
+    # 12 (25 V) + 2 (63 V) = 14, so 6 more; 10k has 12 + 15 (1 %) = 27, enough.
+    # E24 resistors 0.02 each, E6 capacitors 0.10 each, packs of 10, 0.50 a line:
+    # 10 × 0.02 + 0.50 + 10 × 0.10 + 0.50 = 2.20.
+    text = TWENTY_PREAMPS_E24 + """pack = 10
 resistor_price = 0.02
 capacitor_price = 0.10
 line_cost = 0.50
@@ -235,14 +239,7 @@ def test_rich_view_lists_bins_and_total(env):
 def test_commit_with_purchases_records_orders_and_order_file_holds_the_rest(env):
     from inventory.store import open_store
 
-    text = """
-[[build]]
-request = "preamp.toml"
-count = 20
-
-[purchase]
-series = "E24"
-"""
+    text = TWENTY_PREAMPS_E24
     before = env.stock()
     order = env.tmp / "order.csv"
     r = env.run("plan", buildlist(env, text), "--json", "--commit", "--order", str(order))
