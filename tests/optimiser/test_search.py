@@ -321,3 +321,19 @@ def test_common_base_gain_floor_holds_against_the_engine(rs, rl, vaf):
     g = ev.metrics["gain"]
     assert np.all(g[ok] >= low[ok])
     assert np.median(g[ok] / low[ok]) < 1.5             # and it is close
+
+
+def test_returned_designs_carry_the_engines_thd_and_swing():
+    # THD and swing are computed after the ranking (unless thd_max_pct is set); they
+    # must be the engine's own figures for each returned design's values
+    snap = drawer()
+    req = Request(topology="ce", supply_v=12.0, load_ohm=10e3, source_ohm=600.0, gain=10.0,
+                  f_low_max_hz=100.0, input_vpk=0.01)
+    res = search(req, snap, top=3)
+    assert res.designs
+    for d in res.designs:
+        ev = evaluate(req, StageBatch.from_values("ce", **d.values()), T, None,
+                      band_edges=False, large_signal=True)
+        assert d.metrics["thd_pct"] == pytest.approx(float(ev.metrics["thd_pct"][0]), rel=1e-9)
+        assert d.metrics["swing_vpk"] == pytest.approx(float(ev.metrics["swing_vpk"][0]),
+                                                       rel=1e-9)
