@@ -15,7 +15,8 @@ from scipy.special import wrightomega
 
 from .device import DeviceModel, scaled, thermal_voltage
 
-__all__ = ["bias_current", "early_bounds", "midband_estimate", "junction_floor"]
+__all__ = ["bias_current", "early_bounds", "midband_estimate", "junction_floor",
+           "emitter_hd2_floor", "gain_headroom_floor"]
 
 
 def early_bounds(supply_v: float, model: DeviceModel) -> tuple[float, float]:
@@ -250,3 +251,94 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
     seg = fs[..., 1:] + head(ys[..., :-1])
     best = np.minimum(best, seg.min(axis=-1))
     return np.where(y_max > 0, best, np.inf)
+
+
+#: Relative margin of :func:`emitter_hd2_floor` (tests/optimiser/test_search.py
+#: measures the unmargined bound against the engine's HD2).
+EMITTER_HD2_MARGIN = 1.05
+
+
+def emitter_hd2_floor(*, ic_hi, r_th, re_hi, z_max, source_ohm, input_vpk, model: DeviceModel,
+                      q_lo: float, q_hi: float, mid_hz: float):
+    """Lower bound of the score's HD2 term (%) of a common-emitter stage with
+    unbypassed emitter resistance at most ``re_hi`` and I_C at most ``ic_hi``.
+
+    The score's HD2 is 25 %·v̂_in·|v_be/v_emf|/V_T/(1 + g_m·RE).  With the
+    collector AC-grounded the emitter carries (g_m + 1/Z_π)·v_be through
+    RE‖r_o; a collector load only weakens that feedback, so
+    |v_be/v_b| ≥ 1/(1 + g_m·RE·(1 + (1 + ωτ)/β)) with Z_π = r_π/(1 + jωτ),
+    τ = r_π·C_π = β·TF (β = BF·q: g_m·r_π), q in [``q_lo``, ``q_hi``].  The input divider
+    |v_b/v_emf| is at least G_S/(G_S + 1/R_TH + (1 + ωτ)/r_π + ωC_μ(1 + g_m·Z')),
+    Z' ≤ ``z_max`` bounding the collector load (the base draws at most
+    |1/Z_π| as the emitter feedback only raises Z_b; C_μ carries at most the
+    Miller current).  g_m = I_C/V_T ≤ ``ic_hi``/V_T and r_π ≥ BF·q_lo·V_T/ic_hi.
+    With the relative margin :data:`EMITTER_HD2_MARGIN`.
+
+    Arrays broadcast together (A, ohm); returns % (the score's distortion
+    term).
+    """
+    vt = thermal_voltage(25.0)
+    ic_hi, r_th, re_hi, z_max = np.broadcast_arrays(
+        *(np.asarray(a, dtype=float) for a in (ic_hi, r_th, re_hi, z_max)))
+    gm = ic_hi / vt
+    beta_lo = float(model.beta) * float(q_lo)
+    w = 2.0 * np.pi * float(mid_hz)
+    wtau = w * float(model.beta) * float(q_hi) * float(model.tf)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        g_pi = gm / beta_lo
+        rs = float(source_ohm or 0.0)
+        if rs > 0:
+            gs = 1.0 / rs
+            y_in = 1.0 / r_th + (1.0 + wtau) * g_pi + w * float(model.cjc) * (1.0 + gm * z_max)
+            k = gs / (gs + y_in)
+        else:
+            k = np.ones_like(gm)
+        loop = gm * re_hi
+        drive = k / (1.0 + loop * (1.0 + (1.0 + wtau) / beta_lo))
+        h = 25.0 * float(input_vpk) * drive / vt / (1.0 + loop) / EMITTER_HD2_MARGIN
+    return np.nan_to_num(h, nan=0.0, posinf=0.0)
+
+
+def gain_headroom_floor(*, kf, ic_lo, ic_hi, ve_lo, re_lo, supply_v, vce_sat, load_ohm,
+                        gain_lo_db, target_db, tol_db, steps: int = 8):
+    """Lower bound of the score's gain + headroom terms of a common-emitter stage.
+
+    A midband gain G (capacitors shorted) needs Z' = RC‖R_L ≥ G·(V_T/I_C + RE)/``kf``
+    (bound B6 of docs/search.md, ``kf`` = k_in·margin with k_in ≥ the input
+    divider), so with I_C in [``ic_lo``, ``ic_hi``] and RE ≥ ``re_lo`` the collector
+    drop is y ≥ I_C,lo·RC(G) and the quiescent V_CE ≤ V − ``ve_lo`` − y: the
+    headroom term grows with G while the gain term falls towards the target.
+    Over ``steps`` segments of the gain range [``gain_lo_db``, target] the sum is
+    at least the gain term at a segment's top plus the headroom term at its
+    bottom; the least over the segments is the bound (above the target both
+    terms grow).  ``target_db`` None: no gain term.  inf where no gain in the
+    window leaves the transistor out of saturation (or needs Z' ≥ R_L).
+
+    Arrays broadcast together (ohm, A, V); dB.  Bound B15 of docs/search.md.
+    """
+    from .score import HEADROOM_FRACTION
+
+    kf, ic_lo, ic_hi, ve_lo, re_lo = np.broadcast_arrays(
+        *(np.asarray(x, dtype=float) for x in (kf, ic_lo, ic_hi, ve_lo, re_lo)))
+    V = float(supply_v)
+    lo_db = float(gain_lo_db)
+    hi_db = max(lo_db, float(target_db)) if target_db is not None else lo_db
+    tol = max(float(tol_db), 1e-3)
+    want = HEADROOM_FRACTION * V
+    room = V - ve_lo - float(vce_sat)
+    rl = float(load_ohm) if load_ohm else None
+    with np.errstate(divide="ignore", invalid="ignore"):
+        zper = (thermal_voltage(25.0) / ic_hi + re_lo) / kf      # Z' per unit of gain
+    best, prev = np.full(ic_lo.shape, np.inf), None
+    for gd in lo_db + (hi_db - lo_db) * np.arange(steps + 1) / steps:
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            z = 10.0 ** (gd / 20.0) * zper
+            rc = z if rl is None else np.where(z < rl, z * rl / (rl - z), np.inf)
+            y = ic_lo * rc
+            head = np.where(y <= room, np.maximum(0.0, 1.0 - (V - ve_lo - y) / want), np.inf)
+        head = np.nan_to_num(head, nan=np.inf)
+        # 1e-3 dB: the score's G∞ and the engine's agree to ~1e-6 dB
+        gain = 0.0 if target_db is None else max(float(target_db) - gd - 1e-3, 0.0) / tol
+        best = np.minimum(best, (head if prev is None else prev) + gain)
+        prev = head
+    return best
