@@ -236,6 +236,28 @@ def _corner_points(request: Request, t: Transistor):
     return [(tc, b) for tc in temps for b in betas]
 
 
+def _range_table(x: np.ndarray, op) -> list[np.ndarray]:
+    """Sparse table of ``op`` (np.minimum or np.maximum) over runs of 2^k of ``x``."""
+    t = [np.asarray(x, dtype=float)]
+    k = 1
+    while 2 * k <= x.size:
+        t.append(op(t[-1][:-k], t[-1][k:]))
+        k *= 2
+    return t
+
+
+def _range_query(table: list[np.ndarray], a, b, op) -> np.ndarray:
+    """``op`` over x[a..b] (inclusive, arrays) from :func:`_range_table`."""
+    a, b = np.asarray(a), np.asarray(b)
+    n = b - a + 1
+    lev = np.floor(np.log2(np.maximum(n, 1))).astype(int)
+    out = np.empty(a.shape)
+    for k in np.unique(lev):
+        m = lev == k
+        out[m] = op(table[k][a[m]], table[k][b[m] - (1 << int(k)) + 1])
+    return out
+
+
 def _expand(counts: np.ndarray):
     """(repeat index, offset within its block) for blocks of the given sizes."""
     rep = np.repeat(np.arange(counts.size), counts)
@@ -286,12 +308,18 @@ class _Job:
             self.R1, self.R2, self.vth, self.rth = (x[keep][o] for x in
                                                     (self.R1, self.R2, self.vth, self.rth))
             self.plb = plb[o]
+        # the emitter options (RE, RE_BYP), sorted by the DC total (B7) and then RE;
+        # each option is a bias node of its own, so that its unbypassed RE is known
+        # (bounds B6, B14, B15)
         re_a, byp_a = _emitter_options(self.topo, form, rv)
-        etot = re_a + byp_a
-        o = np.argsort(etot, kind="stable")
-        self.re_a, self.byp_a, self.etot = re_a[o], byp_a[o], etot[o]
-        self.utot = np.unique(self.etot)
-        self.tb = TOTALS_BLOCK if self.utot.size > 4 * TOTALS_BLOCK else 1
+        o = np.lexsort((re_a, re_a + byp_a))
+        self.re_a, self.byp_a = re_a[o], byp_a[o]
+        self.etot = self.re_a + self.byp_a
+        self._tables = {k: (_range_table(x, np.minimum), _range_table(x, np.maximum))
+                        for k, x in (("tot", self.etot), ("re", self.re_a))}
+        self.re_vals, self._re_idx = np.unique(self.re_a, return_inverse=True)
+        self._re_keys: dict[int, np.ndarray] = {}
+        self.tb = TOTALS_BLOCK if self.etot.size > 4 * TOTALS_BLOCK else 1
         self.q_lo, self.q_hi = early_bounds(V, model)
         self.corners = _corner_points(request, t)
         self.rel = DRIFT_REL_SLACK * (V + 1.0) / model.vaf if math.isfinite(model.vaf) else 0.0
@@ -312,24 +340,52 @@ class _Job:
                                      for i in opts.rows_of("resistor", v)) for v in rv])
         self.t_empty = float(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
 
+    def span(self, key: str, a, b):
+        """Least and largest of ``key`` ("tot": DC emitter total, "re": unbypassed
+        RE) over the emitter options a..b (inclusive, arrays)."""
+        lo, hi = self._tables[key]
+        return _range_query(lo, a, b, np.minimum), _range_query(hi, a, b, np.maximum)
+
+    def largest_re_below(self, a, width: int, cap) -> np.ndarray:
+        """Largest unbypassed RE at most ``cap`` among the emitter options of the
+        aligned runs ``a .. a + width − 1`` (NaN where there is none).
+
+        One sorted key array per run width (run number × |RE values| + RE rank)
+        answers every query with one ``searchsorted``.
+        """
+        m = self.re_vals.size + 1
+        keys = self._re_keys.get(width)
+        if keys is None:
+            keys = np.sort(np.arange(self.re_a.size) // width * m + self._re_idx)
+            self._re_keys[width] = keys
+        run = np.asarray(a) // width
+        ci = np.searchsorted(self.re_vals, np.asarray(cap) * (1 + 1e-12), side="right") - 1
+        pos = np.searchsorted(keys, run * m + ci, side="right") - 1
+        hit = (ci >= 0) & (pos >= 0)
+        k = keys[np.maximum(pos, 0)]
+        hit &= k // m == run
+        return np.where(hit, self.re_vals[k % m], np.nan)
+
     def count(self, key, n):
         pr = self.stats["pruned"]
         pr[key] = pr.get(key, 0) + int(n)
 
     def pair_blocks(self):
-        nb = min(-(-self.utot.size // self.tb), SPAN_BLOCKS)     # widest spans per pair
+        nb = min(-(-self.etot.size // self.tb), SPAN_BLOCKS)     # widest spans per pair
         step = max(1, CHUNK // (8 * nb))
         for s in range(0, self.R1.size, step):
             yield float(self.plb[s]), np.arange(s, min(s + step, self.R1.size))
 
-    def _bounds(self, P, r_small, r_big, upper: float):
+    def _bounds(self, P, r_small, r_big, upper: float, re_bounds=None):
         """Bounds for pair P with DC emitter totals anywhere in [r_small, r_big].
 
         I_C falls and V_E·I_C-stability rises with the emitter resistance
         (B7), so the smallest current and drift are those at ``r_big`` and the
         largest current the one at ``r_small``.  The bounds are taken in order
         of cost (current, the junction floor, then the drift), each on the
-        nodes the earlier ones left.  Returns (ok, ic_lo, ic_hi, d_lb, nlb) over all
+        nodes the earlier ones left.  ``re_bounds`` = (least, largest) unbypassed
+        RE over the span and the span as (start, width) of an aligned run of
+        emitter options (ce).  Returns (ok, ic_lo, ic_hi, d_lb, nlb) over all
         of ``P``; entries not ok hold nlb = inf.
         """
         from optimiser.device import thermal_voltage
@@ -357,18 +413,29 @@ class _Job:
             lb_s = lb_s + self._gain_shortfall(g_hi)
             keep = lb_s < upper
             s, lb_s = s[keep], lb_s[keep]
+        if s.size and self.topo == "ce":
+            # B6 and B14: what the unbypassed RE allows of gain and distortion
+            e = self._emitter_terms(P[s], ic_lo[s], ic_hi[s], r_small[s],
+                                    re_bounds[0][s], re_bounds[1][s], lb_s, upper,
+                                    re_bounds[2][s], re_bounds[3])
+            keep = lb_s + e < upper
+            s, lb_s, e = s[keep], lb_s[keep], e[keep]
+            if self.win is None or s.size == 0:
+                lb_s = lb_s + e
         # B8: a gain G needs a junction drive v_be ≥ G·v_in·V_T/(I_C·R) with
         # I_C·R ≤ min(I_C·R_L, V − vce_sat), so HD2 ≥ 25 %·G·v_in/min(...)
         if s.size and self.win is not None and self.topo in ("ce", "cb"):
             room = np.full(s.size, V - model.vce_sat)
             if self.request.load_ohm:
                 room = np.minimum(room, ic_hi[s] * self.request.load_ohm)
-            rdeg = (r_big[s] if self.form != "fully bypassed" else 0.0) if self.topo == "ce" \
+            rdeg = re_bounds[1][s] if self.topo == "ce" \
                 else float(self.request.source_ohm or 0.0)
             with np.errstate(divide="ignore", invalid="ignore"):
                 h = 25.0 * self.win[0] * self.request.input_vpk / room / GAIN_BOUND_MARGIN / (
                     1.0 + ic_hi[s] * rdeg / thermal_voltage(25.0))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
+            if self.topo == "ce":
+                h = np.maximum(h, e)
             # B12: gain, distortion and headroom together, over every RC and split
             live = lb_s + h < upper
             h[live] = np.maximum(h[live], self._floor(
@@ -398,6 +465,62 @@ class _Job:
         nlb[s] = lb_s
         ok = nlb < upper
         return ok, ic_lo, ic_hi, d_lb, nlb
+
+    def _emitter_terms(self, P, ic_lo, ic_hi, r_small, re_lo, re_hi, lb, upper, start, width):
+        """Lower bound of the gain + distortion terms an unbypassed RE in
+        [re_lo, re_hi] allows (ce): B6 at the bias level — the gain is at most
+        k_in·Z'/(V_T/I_C + RE) with Z' ≤ R_L‖RC_max — and B14, the distortion
+        the emitter feedback leaves (:func:`optimiser.prune.emitter_hd2_floor`).
+        inf where no gain in the window is possible.  ``lb`` is the bound so far
+        and ``upper`` the score to beat: a gain term that would reach it limits
+        the RE (a valid bound wherever it stays below ``upper``).
+        """
+        from optimiser.device import thermal_voltage
+        from optimiser.prune import emitter_hd2_floor, gain_headroom_floor
+
+        r, model = self.request, self.model
+        rl = r.load_ohm
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rc_max = np.where(ic_lo > 0, (self.V - ic_lo * r_small - model.vce_sat)
+                              / np.where(ic_lo > 0, ic_lo, 1.0), np.inf)
+            rc_max = np.maximum(rc_max, 0.0)
+            z_max = rc_max if not rl else np.where(np.isfinite(rc_max),
+                                                   rc_max * rl / (rc_max + rl), rl)
+        short = 0.0
+        target, tol = score_gain_target(r)
+        if self.win is not None:
+            vt = thermal_voltage(25.0)
+            rth = self.rth[P]
+            a = rth / (rth + float(r.source_ohm or 0.0)) * z_max * GAIN_BOUND_MARGIN
+            with np.errstate(divide="ignore", invalid="ignore"):
+                g_hi = a / (vt / ic_hi + re_lo)
+            short = self._gain_shortfall(np.nan_to_num(g_hi, nan=0.0))
+            # B15: the collector drop that gain needs, against the headroom
+            short = np.maximum(short, gain_headroom_floor(
+                kf=rth / (rth + float(r.source_ohm or 0.0)) * GAIN_BOUND_MARGIN,
+                ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ic_lo * r_small, re_lo=re_lo,
+                supply_v=self.V, vce_sat=model.vce_sat, load_ohm=rl,
+                gain_lo_db=20.0 * math.log10(self.win[0]) - GAIN_SLACK_DB,
+                target_db=target, tol_db=tol))
+            # a split whose RE keeps the gain below what the window (or, with a score
+            # to beat, the gain term) allows cannot be the design: the feedback, and
+            # so the distortion bound, is that of the largest RE reaching it
+            need_db = 20.0 * math.log10(self.win[0])
+            if target is not None and math.isfinite(upper):
+                need_db = np.maximum(need_db, target - (upper - lb) * max(tol, 1e-3))
+            g_need = 10.0 ** ((need_db - GAIN_SLACK_DB) / 20.0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                cap = np.maximum(a / g_need - vt / ic_hi, 0.0)
+            if width == 1:
+                re_hi = np.minimum(re_hi, cap)
+            else:           # the largest RE of the run that can still reach the gain
+                re_hi = self.largest_re_below(start, width, cap)
+                short = np.where(np.isnan(re_hi), np.inf, short)
+                re_hi = np.nan_to_num(re_hi, nan=0.0)
+        h = emitter_hd2_floor(ic_hi=ic_hi, r_th=self.rth[P], re_hi=re_hi, z_max=z_max,
+                              source_ohm=r.source_ohm, input_vpk=r.input_vpk, model=model,
+                              q_lo=self.q_lo, q_hi=self.q_hi, mid_hz=r.mid_hz)
+        return short + h
 
     def _follower_gain_max(self, P, r_e=None, ic_hi=None) -> np.ndarray:
         """Upper bound of a follower's midband gain (B13, with the search's margin).
@@ -481,7 +604,7 @@ class _Job:
         the widest first, each surviving span split in eight — down to blocks
         of 16 (the same bound, B7, on every level).
         """
-        n = self.utot.size
+        n = self.etot.size
         widths = [self.tb]
         while widths[0] * SPAN_BLOCKS < n:
             widths.insert(0, widths[0] * SPAN_BLOCKS)
@@ -493,7 +616,8 @@ class _Job:
             live = a < n
             P, a = P[live], a[live]
             b = np.minimum(a + width, n) - 1
-            ok, _, _, _, lb = self._bounds(P, self.utot[a], self.utot[b], upper)
+            ok, _, _, _, lb = self._bounds(P, *self.span("tot", a, b), upper,
+                                           (*self.span("re", a, b), a, width))
             self.count("bias_blocks", (b - a + 1)[~ok].sum())
             P, a, b, lb = P[ok], a[ok], b[ok], lb[ok]
             span = width
@@ -506,8 +630,8 @@ class _Job:
         rep, offs = _expand(cnt)
         P, E = P[rep], a[rep] + offs
         self.stats["bias_nodes"] = self.stats.get("bias_nodes", 0) + int(P.size)
-        r = self.utot[E]
-        ok, ic_lo, ic_hi, d_lb, nlb = self._bounds(P, r, r, upper)
+        r, re = self.etot[E], self.re_a[E]
+        ok, ic_lo, ic_hi, d_lb, nlb = self._bounds(P, r, r, upper, (re, re, E, 1))
         self.count("bias", (~ok).sum())
         P, E, ic_lo, ic_hi, d_lb, nlb = P[ok], E[ok], ic_lo[ok], ic_hi[ok], d_lb[ok], nlb[ok]
         o = np.argsort(nlb, kind="stable")
@@ -520,12 +644,8 @@ class _Job:
         from optimiser.prune import midband_estimate
 
         model, V, request, topo = self.model, self.V, self.request, self.topo
-        starts = np.searchsorted(self.etot, self.utot[E], side="left")
-        ends = np.searchsorted(self.etot, self.utot[E], side="right")
-        rep, offs = _expand(ends - starts)
-        P, ic_lo, ic_hi, d_lb = P[rep], ic[0][rep], ic[1][rep], d_lb[rep]
-        k = starts[rep] + offs
-        REv, BYv = self.re_a[k], self.byp_a[k]
+        ic_lo, ic_hi = ic[0], ic[1]
+        REv, BYv = self.re_a[E], self.byp_a[E]
         # B3: V_CE ≥ vce_sat needs RC ≤ (V − I_E·R_E − vce_sat)/I_C, with I_C ≥ ic_lo
         ve_lo = ic_lo * (REv + BYv)
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -606,6 +726,12 @@ class _Job:
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
             h = np.maximum(h, self._floor(Pc[sel], ic_lo[rs_], ic_hi[rs_],
                                           ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel]))
+            if topo == "ce":            # B14 with RE and RC known
+                from optimiser.prune import emitter_hd2_floor
+                h = np.maximum(h, emitter_hd2_floor(
+                    ic_hi=ic_hi[rs_], r_th=self.rth[Pc[sel]], re_hi=REc[sel], z_max=zc,
+                    source_ohm=request.source_ohm, input_vpk=request.input_vpk, model=model,
+                    q_lo=self.q_lo, q_hi=self.q_hi, mid_hz=request.mid_hz))
             pre[sel] += h
             sel = sel[pre[sel] < upper]
         self.count("score_bound_pre", Pc.size - sel.size)
