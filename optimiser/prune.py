@@ -299,27 +299,28 @@ def emitter_hd2_floor(*, ic_hi, r_th, re_hi, z_max, source_ohm, input_vpk, model
     return np.nan_to_num(h, nan=0.0, posinf=0.0)
 
 
-def gain_headroom_floor(*, kf, ic_lo, ic_hi, ve_lo, re_lo, supply_v, vce_sat, load_ohm,
+def gain_headroom_floor(*, z_per_gain, ic_lo, ve_lo, supply_v, vce_sat, load_ohm,
                         gain_lo_db, target_db, tol_db, steps: int = 8):
-    """Lower bound of the score's gain + headroom terms of a common-emitter stage.
+    """Lower bound of the score's gain + headroom terms of a ce or cb stage (B15).
 
-    A midband gain G (capacitors shorted) needs Z' = RC‖R_L ≥ G·(V_T/I_C + RE)/``kf``
-    (bound B6 of docs/search.md, ``kf`` = k_in·margin with k_in ≥ the input
-    divider), so with I_C in [``ic_lo``, ``ic_hi``] and RE ≥ ``re_lo`` the collector
-    drop is y ≥ I_C,lo·RC(G) and the quiescent V_CE ≤ V − ``ve_lo`` − y: the
-    headroom term grows with G while the gain term falls towards the target.
-    Over ``steps`` segments of the gain range [``gain_lo_db``, target] the sum is
-    at least the gain term at a segment's top plus the headroom term at its
-    bottom; the least over the segments is the bound (above the target both
-    terms grow).  ``target_db`` None: no gain term.  inf where no gain in the
-    window leaves the transistor out of saturation (or needs Z' ≥ R_L).
+    A midband gain G (capacitors shorted) needs a collector load Z' = RC‖R_L of at
+    least G·``z_per_gain``: for ce (V_T/I_C,hi + RE_lo)/(k_in·margin) (bound B6 of
+    docs/search.md), for cb (V_T/I_C,hi·(1 + R_S/RE_hi) + R_S)/margin (the source
+    against the emitter node).  So the collector drop is y ≥ I_C,lo·RC(G) and the
+    quiescent V_CE ≤ V − ``ve_lo`` − y: the headroom term grows with G while the
+    gain term falls towards the target.  Over ``steps`` segments of the gain
+    range [``gain_lo_db``, target] the sum is at least the gain term at a
+    segment's top plus the headroom term at its bottom; the least over the
+    segments is the bound (above the target both terms grow).  ``target_db``
+    None: no gain term.  inf where no gain in the window leaves the transistor
+    out of saturation (or needs Z' ≥ R_L).
 
-    Arrays broadcast together (ohm, A, V); dB.  Bound B15 of docs/search.md.
+    Arrays broadcast together (ohm, A, V); dB.
     """
     from .score import HEADROOM_FRACTION
 
-    kf, ic_lo, ic_hi, ve_lo, re_lo = np.broadcast_arrays(
-        *(np.asarray(x, dtype=float) for x in (kf, ic_lo, ic_hi, ve_lo, re_lo)))
+    zper, ic_lo, ve_lo = np.broadcast_arrays(
+        *(np.asarray(x, dtype=float) for x in (z_per_gain, ic_lo, ve_lo)))
     V = float(supply_v)
     lo_db = float(gain_lo_db)
     hi_db = max(lo_db, float(target_db)) if target_db is not None else lo_db
@@ -327,8 +328,6 @@ def gain_headroom_floor(*, kf, ic_lo, ic_hi, ve_lo, re_lo, supply_v, vce_sat, lo
     want = HEADROOM_FRACTION * V
     room = V - ve_lo - float(vce_sat)
     rl = float(load_ohm) if load_ohm else None
-    with np.errstate(divide="ignore", invalid="ignore"):
-        zper = (thermal_voltage(25.0) / ic_hi + re_lo) / kf      # Z' per unit of gain
     best, prev = np.full(ic_lo.shape, np.inf), None
     for gd in lo_db + (hi_db - lo_db) * np.arange(steps + 1) / steps:
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -342,3 +341,33 @@ def gain_headroom_floor(*, kf, ic_lo, ic_hi, ve_lo, re_lo, supply_v, vce_sat, lo
         best = np.minimum(best, (head if prev is None else prev) + gain)
         prev = head
     return best
+
+
+def common_base_hd2_floor(*, ic_hi, re_lo, re_hi, source_ohm, input_vpk, model: DeviceModel,
+                          q_lo: float, q_hi: float, mid_hz: float):
+    """Lower bound of the score's HD2 term (%) of a common-base stage with RE in
+    [``re_lo``, ``re_hi``] and I_C at most ``ic_hi`` (bound B16 of docs/search.md).
+
+    The score's HD2 is 25 %·v̂_in·|v_be/v_emf|/V_T/(1 + g_m·(R_S‖RE)).  With the
+    base grounded the emitter node takes the source's G_S against
+    1/RE + g_m + 1/Z_π (the collector, through r_o, only adds to the drive), so
+    |v_be/v_emf| ≥ G_S/(G_S + 1/RE + g_m + g_π·(1 + ωτ)), τ = β·TF; with
+    g_m ≤ ``ic_hi``/V_T, g_π = g_m/(BF·q), q in [``q_lo``, ``q_hi``]; the smallest
+    RE gives the least drive and the largest the most feedback.  With the
+    relative margin :data:`EMITTER_HD2_MARGIN`.  Arrays broadcast (A, ohm).
+    """
+    vt = thermal_voltage(25.0)
+    ic_hi, re_lo, re_hi = np.broadcast_arrays(
+        *(np.asarray(a, dtype=float) for a in (ic_hi, re_lo, re_hi)))
+    gm = ic_hi / vt
+    wtau = 2.0 * np.pi * float(mid_hz) * float(model.beta) * float(q_hi) * float(model.tf)
+    rs = float(source_ohm or 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y_e = 1.0 / re_lo + gm * (1.0 + (1.0 + wtau) / (float(model.beta) * float(q_lo)))
+        if rs > 0:
+            drive = (1.0 / rs) / (1.0 / rs + y_e)
+            rdeg = rs * re_hi / (rs + re_hi)
+        else:
+            drive, rdeg = np.ones_like(gm), np.zeros_like(gm)
+        h = 25.0 * float(input_vpk) * drive / vt / (1.0 + gm * rdeg) / EMITTER_HD2_MARGIN
+    return np.nan_to_num(h, nan=0.0, posinf=0.0)

@@ -59,8 +59,8 @@ GAIN_SLACK_DB = 1e-3         # midband estimate vs engine (agree to ~1e-6 dB)
 HIGH_GAIN_SLACK_DB = 6.0     # how far above the window a stage may sit and still be
                              # pulled into it by small capacitors (assumption A2)
 GAIN_BOUND_MARGIN = 1.05    # closed-form gain bounds B6, B8, B11 widened by this factor
-DRIFT_REL_SLACK = 0.5        # × (V+1)/V_AF, relative margin on the bias drift bound
-DRIFT_ABS_SLACK = 0.2        # percentage points
+DRIFT_REL_SLACK = 0.05       # × (V+1)/V_AF, relative margin on the bias drift bound
+DRIFT_ABS_SLACK = 0.05       # percentage points
 DRIFT_BOUND_CAP_PCT = 20.0   # the bound claims no more than this (B2 fails for huge drifts)
 CHUNK = 400_000
 CAP_ENUM_LIMIT = 4096
@@ -315,8 +315,11 @@ class _Job:
         o = np.lexsort((re_a, re_a + byp_a))
         self.re_a, self.byp_a = re_a[o], byp_a[o]
         self.etot = self.re_a + self.byp_a
-        self._tables = {k: (_range_table(x, np.minimum), _range_table(x, np.maximum))
-                        for k, x in (("tot", self.etot), ("re", self.re_a))}
+        # the totals are sorted, and so is RE where it is the total (or zero): range
+        # tables only for the RE of the partly bypassed form
+        self._re_sorted = bool(np.all(np.diff(self.re_a) >= 0))
+        self._tables = {} if self._re_sorted else {
+            "re": (_range_table(self.re_a, np.minimum), _range_table(self.re_a, np.maximum))}
         self.re_vals, self._re_idx = np.unique(self.re_a, return_inverse=True)
         self._re_keys: dict[int, np.ndarray] = {}
         self.tb = TOTALS_BLOCK if self.etot.size > 4 * TOTALS_BLOCK else 1
@@ -343,6 +346,9 @@ class _Job:
     def span(self, key: str, a, b):
         """Least and largest of ``key`` ("tot": DC emitter total, "re": unbypassed
         RE) over the emitter options a..b (inclusive, arrays)."""
+        if key == "tot" or self._re_sorted:
+            x = self.etot if key == "tot" else self.re_a
+            return x[a], x[b]
         lo, hi = self._tables[key]
         return _range_query(lo, a, b, np.minimum), _range_query(hi, a, b, np.maximum)
 
@@ -422,6 +428,21 @@ class _Job:
             s, lb_s, e = s[keep], lb_s[keep], e[keep]
             if self.win is None or s.size == 0:
                 lb_s = lb_s + e
+        if s.size and self.topo == "cb":
+            # B16: the distortion of a common-base stage is set by I_C and RE; B15:
+            # the collector drop its gain needs, against the headroom
+            e = self._cb_hd2(ic_hi[s], r_small[s], r_big[s])
+            if self.win is not None:
+                from optimiser.device import thermal_voltage
+                rs = float(self.request.source_ohm or 0.0)
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    zper = (thermal_voltage(25.0) / ic_hi[s] * (1.0 + rs / r_big[s]) + rs) \
+                        / GAIN_BOUND_MARGIN
+                e = e + self._gain_headroom(zper, ic_lo[s], ic_lo[s] * r_small[s])
+            keep = lb_s + e < upper
+            s, lb_s, e = s[keep], lb_s[keep], e[keep]
+            if self.win is None or s.size == 0:
+                lb_s = lb_s + e
         # B8: a gain G needs a junction drive v_be ≥ G·v_in·V_T/(I_C·R) with
         # I_C·R ≤ min(I_C·R_L, V − vce_sat), so HD2 ≥ 25 %·G·v_in/min(...)
         if s.size and self.win is not None and self.topo in ("ce", "cb"):
@@ -434,8 +455,7 @@ class _Job:
                 h = 25.0 * self.win[0] * self.request.input_vpk / room / GAIN_BOUND_MARGIN / (
                     1.0 + ic_hi[s] * rdeg / thermal_voltage(25.0))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
-            if self.topo == "ce":
-                h = np.maximum(h, e)
+            h = np.maximum(h, e)
             # B12: gain, distortion and headroom together, over every RC and split
             live = lb_s + h < upper
             h[live] = np.maximum(h[live], self._floor(
@@ -446,13 +466,17 @@ class _Job:
             s, lb_s = s[keep], lb_s[keep]
         if s.size == 0:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
-        # B2: drift at a common Early factor (the lowest, so that the nominal current
-        # is ic_lo, already known), with a margin for the factor's spread
+        # B2: drift at a common Early factor, the highest (the most feedback, so the
+        # least drift), with a margin for the factor's spread between the corners
         vs, rs_, rb = v_th[s], r_th[s], r_big[s]
-        ic_mid = ic_lo[s]
+        ic_mid = ic_hi[s].copy()          # the nominal current at q_hi where RE is one value
+        wide = np.flatnonzero(r_small[s] != rb)
+        if wide.size:
+            ic_mid[wide] = bias_current(vs[wide], rs_[wide], rb[wide], model, 25.0, None,
+                                        self.q_hi)
         d = np.zeros_like(ic_mid)
         for tc, b in self.corners:
-            icc = bias_current(vs, rs_, rb, model, tc, b, self.q_lo)
+            icc = bias_current(vs, rs_, rb, model, tc, b, self.q_hi)
             with np.errstate(divide="ignore", invalid="ignore"):
                 d = np.maximum(d, np.abs(icc - ic_mid) / ic_mid * 100.0)
         d = np.nan_to_num(d, nan=0.0, posinf=np.inf)
@@ -476,7 +500,7 @@ class _Job:
         the RE (a valid bound wherever it stays below ``upper``).
         """
         from optimiser.device import thermal_voltage
-        from optimiser.prune import emitter_hd2_floor, gain_headroom_floor
+        from optimiser.prune import emitter_hd2_floor
 
         r, model = self.request, self.model
         rl = r.load_ohm
@@ -496,12 +520,10 @@ class _Job:
                 g_hi = a / (vt / ic_hi + re_lo)
             short = self._gain_shortfall(np.nan_to_num(g_hi, nan=0.0))
             # B15: the collector drop that gain needs, against the headroom
-            short = np.maximum(short, gain_headroom_floor(
-                kf=rth / (rth + float(r.source_ohm or 0.0)) * GAIN_BOUND_MARGIN,
-                ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ic_lo * r_small, re_lo=re_lo,
-                supply_v=self.V, vce_sat=model.vce_sat, load_ohm=rl,
-                gain_lo_db=20.0 * math.log10(self.win[0]) - GAIN_SLACK_DB,
-                target_db=target, tol_db=tol))
+            kf = rth / (rth + float(r.source_ohm or 0.0)) * GAIN_BOUND_MARGIN
+            with np.errstate(divide="ignore", invalid="ignore"):
+                zper = (vt / ic_hi + re_lo) / kf
+            short = np.maximum(short, self._gain_headroom(zper, ic_lo, ic_lo * r_small))
             # a split whose RE keeps the gain below what the window (or, with a score
             # to beat, the gain term) allows cannot be the design: the feedback, and
             # so the distortion bound, is that of the largest RE reaching it
@@ -521,6 +543,24 @@ class _Job:
                               source_ohm=r.source_ohm, input_vpk=r.input_vpk, model=model,
                               q_lo=self.q_lo, q_hi=self.q_hi, mid_hz=r.mid_hz)
         return short + h
+
+    def _gain_headroom(self, zper, ic_lo, ve_lo):
+        """B15 (:func:`optimiser.prune.gain_headroom_floor`) for this request."""
+        from optimiser.prune import gain_headroom_floor
+        r = self.request
+        target, tol = score_gain_target(r)
+        return gain_headroom_floor(z_per_gain=zper, ic_lo=ic_lo, ve_lo=ve_lo, supply_v=self.V,
+                                   vce_sat=self.model.vce_sat, load_ohm=r.load_ohm,
+                                   gain_lo_db=20.0 * math.log10(self.win[0]) - GAIN_SLACK_DB,
+                                   target_db=target, tol_db=tol)
+
+    def _cb_hd2(self, ic_hi, re_lo, re_hi):
+        from optimiser.prune import common_base_hd2_floor
+        r = self.request
+        return common_base_hd2_floor(ic_hi=ic_hi, re_lo=re_lo, re_hi=re_hi,
+                                     source_ohm=r.source_ohm, input_vpk=r.input_vpk,
+                                     model=self.model, q_lo=self.q_lo, q_hi=self.q_hi,
+                                     mid_hz=r.mid_hz)
 
     def _follower_gain_max(self, P, r_e=None, ic_hi=None) -> np.ndarray:
         """Upper bound of a follower's midband gain (B13, with the search's margin).
@@ -726,6 +766,8 @@ class _Job:
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
             h = np.maximum(h, self._floor(Pc[sel], ic_lo[rs_], ic_hi[rs_],
                                           ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel]))
+            if topo == "cb":            # B16 with RE known
+                h = np.maximum(h, self._cb_hd2(ic_hi[rs_], REc[sel], REc[sel]))
             if topo == "ce":            # B14 with RE and RC known
                 from optimiser.prune import emitter_hd2_floor
                 h = np.maximum(h, emitter_hd2_floor(

@@ -250,6 +250,7 @@ def test_gain_headroom_floor_holds_against_the_engine(rs, rl, gdb):
     # bound B15 of docs/search.md: the collector drop a gain needs, against the
     # headroom — the engine's gain + headroom terms of a stage in the gain window
     # never below it, with the stage's own RE and its current bracket
+    from optimiser.device import thermal_voltage
     from optimiser.prune import gain_headroom_floor
     from optimiser.score import score_terms
     from optimiser.search import GAIN_BOUND_MARGIN, GAIN_SLACK_DB, gain_window
@@ -267,9 +268,10 @@ def test_gain_headroom_floor_holds_against_the_engine(rs, rl, gdb):
     vth, rth = thevenin(12.0, b.R1, b.R2)
     ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
     ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
+    zper = (thermal_voltage(25.0) / ic_hi + b.RE) / (rth / (rth + rs) * GAIN_BOUND_MARGIN)
     floor = gain_headroom_floor(
-        kf=rth / (rth + rs) * GAIN_BOUND_MARGIN, ic_lo=ic_lo, ic_hi=ic_hi,
-        ve_lo=ic_lo * b.re_total, re_lo=b.RE, supply_v=12.0, vce_sat=m.vce_sat, load_ohm=rl,
+        z_per_gain=zper, ic_lo=ic_lo, ve_lo=ic_lo * b.re_total, supply_v=12.0,
+        vce_sat=m.vce_sat, load_ohm=rl,
         gain_lo_db=20 * np.log10(win[0]) - GAIN_SLACK_DB, target_db=req.gain_db,
         tol_db=req.gain_tol_db)
     assert np.all(floor[ok] <= actual[ok] + 1e-12), np.max((floor - actual)[ok])
@@ -294,7 +296,8 @@ def test_gain_distortion_minimum_matches_a_dense_grid(g_lo, target, tol):
     assert np.all(brute - f < 1e-3)
 
 
-@pytest.mark.parametrize("vaf, supply", [(100.0, 12.0), (30.0, 12.0), (50.0, 24.0), (100.0, 5.0)])
+@pytest.mark.parametrize("vaf, supply", [(100.0, 12.0), (30.0, 12.0), (50.0, 24.0), (100.0, 5.0),
+                                         (20.0, 24.0)])
 def test_drift_bound_holds_against_the_engine(vaf, supply):
     # bound B2 of docs/search.md: the closed-form drift at a common Early factor, with
     # the search's margins and cap, never above the engine's drift of a valid stage
@@ -322,7 +325,7 @@ def test_drift_bound_holds_against_the_engine(vaf, supply):
     assert ok.sum() > 2000
     vth, rth = thevenin(supply, b.R1, b.R2)
     lo, hi = early_bounds(supply, m)
-    q = lo                      # the search takes the drift at the lowest Early factor
+    q = hi                      # the search takes the drift at the highest Early factor
     mid = bias_current(vth, rth, b.re_total, m, 25.0, None, q)
     d = np.zeros(n)
     for tc, beta in _corner_points(req, t):
@@ -330,9 +333,9 @@ def test_drift_bound_holds_against_the_engine(vaf, supply):
     rel = DRIFT_REL_SLACK * (supply + 1.0) / vaf
     d_lb = np.clip(d * (1 - rel) - DRIFT_ABS_SLACK, 0.0, DRIFT_BOUND_CAP_PCT)
     assert np.all(d_lb[ok] <= drift[ok]), np.max((d_lb - drift)[ok])
-    # not empty: stages of modest drift keep most of it
+    # not empty: stages of modest drift keep most of it (measured medians 0.85-0.98)
     mod = ok & (drift > 1.0) & (drift < 15.0)
-    assert np.median(d_lb[mod] / drift[mod]) > 0.6
+    assert np.median(d_lb[mod] / drift[mod]) > 0.8
 
 
 def _random_case(topo, rs, rl, vaf, seed, n=4000):
@@ -438,3 +441,40 @@ def test_range_tables_and_largest_re_below_match_brute_force():
             run = job.re_a[s0:s0 + width]
             want = run[run <= c * (1 + 1e-12)]
             assert (np.isnan(g) and want.size == 0) or g == want.max()
+
+
+@pytest.mark.parametrize("rs, rl, vaf, mid, vin", [
+    (50.0, 1e4, 60.0, 1e3, 0.01), (0.0, None, 30.0, 1e3, 0.05), (600.0, 2e3, 100.0, 1e5, 0.01),
+    (50.0, 1e4, 100.0, 1e6, 0.01)])
+def test_common_base_bounds_hold_against_the_engine(rs, rl, vaf, mid, vin):
+    # bound B16 (the distortion a common-base stage's I_C and RE set) and the cb load
+    # a gain needs, Z' ≥ G·(V_T/I_C·(1 + R_S/RE) + R_S) (B15 for cb), against the
+    # engine on random valid stages; B16 is nearly exact (measured median ≥ 0.99)
+    from optimiser.device import thermal_voltage
+    from optimiser.prune import EMITTER_HD2_MARGIN, common_base_hd2_floor
+    from optimiser.search import skeleton_figures
+
+    rng = np.random.default_rng(3)
+    n = 4000
+    t = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=vaf)
+    m = device_from_transistor(t)
+    lo, hi = early_bounds(12.0, m)
+    req = Request(topology="cb", supply_v=12.0, load_ohm=rl, source_ohm=rs, input_vpk=vin,
+                  mid_hz=mid, f_high_min_hz=2 * mid, f_low_max_hz=mid / 10)
+    b = StageBatch.from_values("cb", R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
+                               RC=rng.uniform(200, 3e4, n), C_IN=1.0, C_OUT=1.0, C_B=1.0,
+                               RE=rng.uniform(100, 2e4, n))
+    ok = evaluate(req, b, t, None, band_edges=False, large_signal=False).valid
+    assert ok.sum() > 2000
+    f = skeleton_figures(req, b, t)
+    vth, rth = thevenin(12.0, b.R1, b.R2)
+    ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
+    h = common_base_hd2_floor(ic_hi=ic_hi, re_lo=b.RE, re_hi=b.RE, source_ohm=rs, input_vpk=vin,
+                              model=m, q_lo=lo, q_hi=hi, mid_hz=mid)
+    ratio = (h / f["hd2_pct"])[ok] * EMITTER_HD2_MARGIN
+    assert ratio.max() <= 1.0 + 1e-9, ratio.max()
+    assert np.median(ratio) > 0.95
+    zc = b.RC if rl is None else b.RC * rl / (b.RC + rl)
+    zper = thermal_voltage(25.0) / ic_hi * (1.0 + rs / b.RE) + rs
+    g = 10 ** (f["gain_inf_db"] / 20)
+    assert np.all((g * zper / zc)[ok] <= 1.0), np.max((g * zper / zc)[ok])
