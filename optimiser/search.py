@@ -554,6 +554,52 @@ class _Job:
                                    gain_lo_db=20.0 * math.log10(self.win[0]) - GAIN_SLACK_DB,
                                    target_db=target, tol_db=tol)
 
+    def _gain_head_at(self, P, ic_lo, ic_hi, RE, BY, RC):
+        """Lower bound of the gain + headroom terms of ce/cb candidates with RC known.
+
+        The midband gain lies in [G_lo, G_hi]: G_hi from B6 (ce: k_in·Z'·margin/
+        (V_T/I_C,hi + RE), k_in ≤ R_TH/(R_TH + R_S); cb: Z'·margin/(V_T/I_C,hi·
+        (1 + R_S/RE) + R_S)), G_lo from B11 (every factor at its least favourable
+        end, over the margin); the gain term is at least the distance from the
+        target to that interval.  The headroom term is at least its value at
+        V_CE = V − I_C,lo·(R_E + RC).
+        """
+        from optimiser.device import thermal_voltage
+        from optimiser.score import HEADROOM_FRACTION
+
+        r, model, V = self.request, self.model, self.V
+        vt = thermal_voltage(25.0)
+        rl = r.load_ohm
+        rs = float(r.source_ohm or 0.0)
+        b = float(self.t.beta_nominal)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            zc = RC if not rl else RC * rl / (RC + rl)
+            ro = (model.vaf - 1.0) / ic_hi if math.isfinite(model.vaf) else np.inf
+            zlo = 1.0 / (1.0 / RC + (1.0 / rl if rl else 0.0) + 1.0 / ro)
+            if self.topo == "ce":
+                rth = self.rth[P]
+                g_hi = rth / (rth + rs) * zc * GAIN_BOUND_MARGIN / (vt / ic_hi + RE)
+                rpi_max = b * self.q_hi * vt / ic_lo
+                rpi_min = b * self.q_lo * vt / ic_hi
+                rin = rth * (rpi_min + (b + 1) * RE) / (rth + rpi_min + (b + 1) * RE)
+                g_lo = rin / (rin + rs) * b * zlo / (rpi_max + (b + 1) * RE) / GAIN_BOUND_MARGIN
+            else:
+                g_hi = zc * GAIN_BOUND_MARGIN / (vt / ic_hi * (1.0 + rs / RE) + rs)
+                re_min = vt / ic_hi * b / (b + 1.0)
+                x = RE * re_min / (RE + re_min)
+                g_lo = ic_lo * x * zlo / (vt * (rs + x)) / GAIN_BOUND_MARGIN
+            lo_db = 20.0 * np.log10(np.maximum(g_lo, 1e-300))
+            hi_db = 20.0 * np.log10(np.maximum(g_hi, 1e-300))
+        target, tol = score_gain_target(r)
+        gain = 0.0
+        if target is not None:
+            gain = np.maximum(np.maximum(target - hi_db, lo_db - target) - GAIN_SLACK_DB,
+                              0.0) / max(tol, 1e-3)
+            gain = np.nan_to_num(gain, nan=0.0)
+        want = HEADROOM_FRACTION * V
+        head = np.maximum(0.0, 1.0 - (V - ic_lo * (RE + BY + RC)) / want)
+        return gain + head
+
     def _cb_hd2(self, ic_hi, re_lo, re_hi):
         from optimiser.prune import common_base_hd2_floor
         r = self.request
@@ -764,8 +810,8 @@ class _Job:
                 h = 25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
                     1.0 + ic_hi[rs_] * rdeg / thermal_voltage(25.0))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
-            h = np.maximum(h, self._floor(Pc[sel], ic_lo[rs_], ic_hi[rs_],
-                                          ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel]))
+            floor = self._floor(Pc[sel], ic_lo[rs_], ic_hi[rs_],
+                                ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel])
             if topo == "cb":            # B16 with RE known
                 h = np.maximum(h, self._cb_hd2(ic_hi[rs_], REc[sel], REc[sel]))
             if topo == "ce":            # B14 with RE and RC known
@@ -774,6 +820,10 @@ class _Job:
                     ic_hi=ic_hi[rs_], r_th=self.rth[Pc[sel]], re_hi=REc[sel], z_max=zc,
                     source_ohm=request.source_ohm, input_vpk=request.input_vpk, model=model,
                     q_lo=self.q_lo, q_hi=self.q_hi, mid_hz=request.mid_hz))
+            # the gain and headroom terms of this very RC (B6/B11 and B15 made exact
+            # in RC), added to the distortion bounds; the junction floor stands apart
+            h = np.maximum(floor, h + self._gain_head_at(
+                Pc[sel], ic_lo[rs_], ic_hi[rs_], REc[sel], BYc[sel], RCc[sel]))
             pre[sel] += h
             sel = sel[pre[sel] < upper]
         self.count("score_bound_pre", Pc.size - sel.size)
@@ -1024,15 +1074,19 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     the search runs again with the next, higher level (the last is unbounded).
     This only makes the search faster: the designs returned are the same.
     """
+    t_start = time.perf_counter()
+    seeds = _seed_designs(request, snapshot, top, stats, budget_s)
     opts = StockOptions(snapshot, request.builds, request.allow_combos)
     ts = _transistors(request, snapshot)
     jobs = [_Job(request, opts, t, f, stats) for t in ts for f in FORMS[request.topology]
             if opts.resistor.values.size]
-    t_start = time.perf_counter()
     found, pool = [], []
-    for cap in ASPIRATION + (math.inf,):
+    # with top designs already in hand the score to beat is known: no aspiration
+    levels = (math.inf,) if len(seeds) >= top else ASPIRATION + (math.inf,)
+    for cap in levels:
         left = None if budget_s is None else max(budget_s - (time.perf_counter() - t_start), 0.0)
-        found, pool = _branch_and_bound(request, opts, jobs, top, stats, progress, left, cap)
+        found, pool = _branch_and_bound(request, opts, jobs, top, stats, progress, left, cap,
+                                        seeds)
         if stats.get("stopped_at_budget") or (len(found) >= top and found[top - 1].score <= cap):
             break
         stats["aspiration_rounds"] = stats.get("aspiration_rounds", 0) + 1
@@ -1041,6 +1095,43 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     for r, d in enumerate(found, 1):
         d.rank = r
     return found, pool
+
+
+#: Drawers with more distinct resistor values than this are first searched thinned
+#: to about SEED_VALUES of them (every k-th value): the designs found there are
+#: designs of the whole drawer too and give the full search its score to beat.
+SEED_ABOVE = 160
+SEED_VALUES = 100
+
+
+def _seed_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
+                  budget_s: float | None) -> list[Design]:
+    """The best designs of the drawer thinned to every k-th resistor value (or none).
+
+    Every row of a kept value is kept, so each design found is buildable from
+    the whole drawer with the same pieces and the same score; the full search
+    then starts with these as the ``top`` to beat (exactness is untouched: a
+    node is only dropped when its bound reaches the score of ``top`` real
+    designs).
+    """
+    values = np.unique([r.value for r in snapshot.resistors])
+    if values.size <= SEED_ABOVE:
+        return []
+    k = -(-values.size // SEED_VALUES)
+    keep = set(values[::k].tolist())
+    thin = replace(snapshot, resistors=tuple(r for r in snapshot.resistors if r.value in keep))
+    sub = {"pruned": {}}
+    seeds, _ = search_designs(request, thin, top, sub, None,
+                              None if budget_s is None else budget_s / 4)
+    stats["seed_designs"] = len(seeds)
+    stats["seed_values"] = len(keep)
+    return seeds
+
+
+def _design_key(d: Design) -> tuple:
+    """A design's resistor/transistor network (its score does not depend on the rest)."""
+    return (d.transistor, d.form, tuple(sorted((r, p.value) for r, p in d.parts.items()
+                                               if not r.startswith("C"))))
 
 
 def _large_signal(request: Request, snapshot: StockSnapshot, designs: list[Design]) -> None:
@@ -1067,10 +1158,12 @@ def _large_signal(request: Request, snapshot: StockSnapshot, designs: list[Desig
                            if r.key == "clipping" and bool(r.fail[j])]
 
 
-def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap):
+def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, seeds=()):
     """One run of the branch and bound, dropping nodes whose bound reaches ``cap``.
 
-    Returns every design found (sorted by score) and the pool of evaluated misses.
+    ``seeds`` are designs of this drawer already known (they count towards the
+    ``top`` to beat and are not reported twice).  Returns every design found
+    (sorted by score) and the pool of evaluated misses.
     """
     from optimiser.dc import operating_point
     from optimiser.evaluate import corner_points
@@ -1088,7 +1181,8 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap):
     for j, job in enumerate(jobs):
         for lb, p in job.pair_blocks():
             push((lb, next(seq), "pairs", (j, p)))
-    found: list[Design] = []
+    found: list[Design] = sorted(seeds, key=lambda d: d.score)
+    known = {_design_key(d) for d in found}
     pool: list = []
     win = gain_window(request)
     stats.setdefault("drift_checked", 0)
@@ -1199,7 +1293,10 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap):
                 bad = np.flatnonzero(~ok)
                 if bad.size and len(pool) < 400:
                     pool.append(("quick", sk, li[bad], ev.take(bad)))
-                found.extend(_confirm_group(request, opts, sk, good, stats, pool))
+                for d in _confirm_group(request, opts, sk, good, stats, pool):
+                    if _design_key(d) not in known:
+                        known.add(_design_key(d))
+                        found.append(d)
             found.sort(key=lambda d: d.score)
     stats["heap_steps"] = stats.get("heap_steps", 0) + steps
     found.sort(key=lambda d: d.score)

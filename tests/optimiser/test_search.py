@@ -478,3 +478,27 @@ def test_common_base_bounds_hold_against_the_engine(rs, rl, vaf, mid, vin):
     zper = thermal_voltage(25.0) / ic_hi * (1.0 + rs / b.RE) + rs
     g = 10 ** (f["gain_inf_db"] / 20)
     assert np.all((g * zper / zc)[ok] <= 1.0), np.max((g * zper / zc)[ok])
+
+
+@pytest.mark.parametrize("req", [
+    Request(topology="ce", supply_v=12.0, load_ohm=1e4, source_ohm=600.0, gain=10.0,
+            f_low_max_hz=50.0, ic_drift_max_pct=10.0),
+    Request(topology="cb", supply_v=12.0, load_ohm=1e4, source_ohm=50.0, gain=20.0),
+    Request(topology="cc", supply_v=9.0, load_ohm=1e3, source_ohm=1e4, builds=2),
+], ids=["ce", "cb", "cc"])
+def test_seeding_from_a_thinned_drawer_changes_nothing(monkeypatch, req):
+    # large drawers are first searched thinned to every k-th value, and those designs
+    # are the score to beat; forced here on a 48-value drawer, the ranking must be
+    # the one of the plain search, design for design
+    import optimiser.search as S
+
+    def ranking(res):
+        return [(S._design_key(d), round(d.score, 12)) for d in res.designs]
+
+    snap = drawer()
+    plain = search(req, snap, top=6, misses=0)
+    monkeypatch.setattr(S, "SEED_ABOVE", 20)
+    monkeypatch.setattr(S, "SEED_VALUES", 12)
+    seeded = search(req, snap, top=6, misses=0)
+    assert seeded.stats.get("seed_designs", 0) > 0
+    assert plain.designs and ranking(seeded) == ranking(plain)
