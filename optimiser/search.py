@@ -312,14 +312,18 @@ class _Job:
         # each option is a bias node of its own, so that its unbypassed RE is known
         # (bounds B6, B14, B15)
         re_a, byp_a = _emitter_options(self.topo, form, rv)
-        o = np.lexsort((re_a, re_a + byp_a))
+        tot = re_a + byp_a
+        bins = np.floor(np.log(np.maximum(tot, 1e-300)) / math.log1p(TOTAL_BIN))
+        o = np.lexsort((tot, re_a, bins))
         self.re_a, self.byp_a = re_a[o], byp_a[o]
         self.etot = self.re_a + self.byp_a
         # the totals are sorted, and so is RE where it is the total (or zero): range
         # tables only for the RE of the partly bypassed form
-        self._re_sorted = bool(np.all(np.diff(self.re_a) >= 0))
-        self._tables = {} if self._re_sorted else {
-            "re": (_range_table(self.re_a, np.minimum), _range_table(self.re_a, np.maximum))}
+        self._sorted = {k: bool(np.all(np.diff(x) >= 0))
+                        for k, x in (("tot", self.etot), ("re", self.re_a))}
+        self._tables = {k: (_range_table(x, np.minimum), _range_table(x, np.maximum))
+                        for k, x in (("tot", self.etot), ("re", self.re_a))
+                        if not self._sorted[k]}
         self.re_vals, self._re_idx = np.unique(self.re_a, return_inverse=True)
         self._re_keys: dict[int, np.ndarray] = {}
         self.tb = TOTALS_BLOCK if self.etot.size > 4 * TOTALS_BLOCK else 1
@@ -346,7 +350,7 @@ class _Job:
     def span(self, key: str, a, b):
         """Least and largest of ``key`` ("tot": DC emitter total, "re": unbypassed
         RE) over the emitter options a..b (inclusive, arrays)."""
-        if key == "tot" or self._re_sorted:
+        if self._sorted[key]:
             x = self.etot if key == "tot" else self.re_a
             return x[a], x[b]
         lo, hi = self._tables[key]
@@ -457,7 +461,8 @@ class _Job:
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
             h = np.maximum(h, e)
             # B12: gain, distortion and headroom together, over every RC and split
-            live = lb_s + h < upper
+            # (ce only: for cb, B16 and B15 already hold nearly all of it, measured)
+            live = (lb_s + h < upper) & (self.topo == "ce")
             h[live] = np.maximum(h[live], self._floor(
                 P[s[live]], ic_lo[s[live]], ic_hi[s[live]], ic_lo[s[live]] * r_small[s[live]],
                 cut=upper - lb_s[live]))
@@ -810,8 +815,8 @@ class _Job:
                 h = 25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
                     1.0 + ic_hi[rs_] * rdeg / thermal_voltage(25.0))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
-            floor = self._floor(Pc[sel], ic_lo[rs_], ic_hi[rs_],
-                                ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel])
+            floor = 0.0 if topo == "cb" else self._floor(
+                Pc[sel], ic_lo[rs_], ic_hi[rs_], ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel])
             if topo == "cb":            # B16 with RE known
                 h = np.maximum(h, self._cb_hd2(ic_hi[rs_], REc[sel], REc[sel]))
             if topo == "ce":            # B14 with RE and RC known
@@ -1057,10 +1062,12 @@ def _with_yield(request: Request, snapshot: StockSnapshot, designs: list[Design]
 QUICK_BATCH = 2000
 CONFIRM_BATCH = 12
 NODE_BLOCK = 8192
-TOTALS_BLOCK = 16
+TOTALS_BLOCK = 8
 #: Aspiration levels of the score (search_designs); the last run is unbounded.
 ASPIRATION = (0.5, 1.0, 2.0, 4.0)
 SPAN_BLOCKS = 8
+#: Relative width of the bins of DC emitter totals the options are sorted in.
+TOTAL_BIN = 0.05
 
 
 def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
