@@ -22,9 +22,29 @@ def _demo(tmp_path):
     return store.snapshot(), request
 
 
-def test_stopped_search_says_so_and_returns_only_valid_designs(tmp_path):
-    snap, request = _demo(tmp_path)
-    res = search(request, snap, top=3, misses=0, time_limit_s=0.5)
+def _e24_drawer():
+    # a full E24 drawer (121 values): about a second to a proven ranking here
+    from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
+    from inventory.values import series_values
+
+    t = Transistor("GP-N1", 110, 450, qty=20, ft=250e6, cob=4e-12, vceo=45, ic_max=0.1,
+                   pd=0.5, vaf=100, id=9001, location="T1")
+    res = [Resistor(float(v), 10, id=i, location=f"R{i}")
+           for i, v in enumerate(series_values("E24", 10.0, 1e6))]
+    caps = [Capacitor(float(v), 10, id=1000 + i, location=f"C{i}",
+                      dielectric="electrolytic" if v >= 1e-6 else "ceramic")
+            for i, v in enumerate(series_values("E6", 10e-12, 1000e-6))]
+    return StockSnapshot(tuple(res), tuple(caps), (t,))
+
+
+def test_stopped_search_says_so_and_returns_only_valid_designs():
+    from optimiser.request import Request
+
+    snap = _e24_drawer()
+    request = Request(topology="ce", supply_v=12.0, load_ohm=10e3, source_ohm=600.0, gain=10.0,
+                      f_low_max_hz=50.0, f_high_min_hz=100e3, ic_drift_max_pct=10.0,
+                      temp_c=(0.0, 50.0))
+    res = search(request, snap, top=3, misses=0, time_limit_s=0.2)
     st = res.stats
     assert st["complete"] is False
     assert 0 <= st["proven_ranks"] <= len(res.designs)
