@@ -16,7 +16,8 @@ from scipy.special import wrightomega
 from .device import DeviceModel, scaled, thermal_voltage
 
 __all__ = ["bias_current", "early_bounds", "midband_estimate", "junction_floor",
-           "emitter_hd2_floor", "gain_headroom_floor"]
+           "emitter_hd2_floor", "gain_headroom_floor", "common_base_hd2_floor",
+           "follower_gain_floor"]
 
 
 def early_bounds(supply_v: float, model: DeviceModel) -> tuple[float, float]:
@@ -371,3 +372,26 @@ def common_base_hd2_floor(*, ic_hi, re_lo, re_hi, source_ohm, input_vpk, model: 
             drive, rdeg = np.ones_like(gm), np.zeros_like(gm)
         h = 25.0 * float(input_vpk) * drive / vt / (1.0 + gm * rdeg) / EMITTER_HD2_MARGIN
     return np.nan_to_num(h, nan=0.0, posinf=0.0)
+
+
+def follower_gain_floor(*, ic_lo, ic_hi, r_th, r_out, source_ohm, model: DeviceModel,
+                        q_lo: float, mid_hz: float):
+    """Lower bound of an emitter follower's midband gain |v_load/v_emf| (B17).
+
+    G ≥ k_in·R'/(V_T/I_C,lo + R') with R' ≤ ``r_out`` (= RE‖R_L at its least),
+    k_in = R_in/(R_in + R_S) and R_in ≥ R_TH‖(BF·q_lo·R'); the input capacitance
+    C_μ + C_π (C_π ≤ TF·I_C,hi/V_T) against R_S divides it by at most
+    1 + ωR_S(C_μ + C_π) at ``mid_hz``.  No margin here (the caller divides).
+    Arrays broadcast (A, ohm).
+    """
+    vt = thermal_voltage(25.0)
+    b_lo = float(model.beta) * float(q_lo)
+    rs = float(source_ohm or 0.0)
+    w = 2.0 * np.pi * float(mid_hz)
+    ic_lo, ic_hi, r_th, r_out = np.broadcast_arrays(
+        *(np.asarray(a, dtype=float) for a in (ic_lo, ic_hi, r_th, r_out)))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rin = r_th * b_lo * r_out / (r_th + b_lo * r_out)
+        g = rin / (rin + rs) * r_out / (vt / ic_lo + r_out) / (
+            1.0 + w * rs * (float(model.cjc) + float(model.tf) * ic_hi / vt))
+    return np.nan_to_num(g, nan=0.0)

@@ -423,6 +423,11 @@ class _Job:
             lb_s = lb_s + self._gain_shortfall(g_hi)
             keep = lb_s < upper
             s, lb_s = s[keep], lb_s[keep]
+            if s.size:      # B17: the follower's distortion, gain excess and headroom
+                lb_s = lb_s + self._follower_terms(P[s], ic_lo[s], ic_hi[s], r_small[s],
+                                                   r_big[s])
+                keep = lb_s < upper
+                s, lb_s = s[keep], lb_s[keep]
         if s.size and self.topo == "ce":
             # B6 and B14: what the unbypassed RE allows of gain and distortion
             e = self._emitter_terms(P[s], ic_lo[s], ic_hi[s], r_small[s],
@@ -612,6 +617,42 @@ class _Job:
                                      source_ohm=r.source_ohm, input_vpk=r.input_vpk,
                                      model=self.model, q_lo=self.q_lo, q_hi=self.q_hi,
                                      mid_hz=r.mid_hz)
+
+    def _follower_terms(self, P, ic_lo, ic_hi, re_lo, re_hi):
+        """Lower bound of a follower's distortion + gain-excess + headroom terms (B17).
+
+        The emitter sees R' = RE‖R_L, so the distortion is bounded as for a ce
+        stage with R' unbypassed (B14, collector at AC ground or on RC); the gain
+        is at least k_in·R'/(V_T/I_C,lo + R') with k_in ≥ R_in/(R_in + R_S),
+        R_in ≥ R_TH‖(β_lo·R'), reduced by 1 + ωR_S(C_μ + C_π,max) for the input
+        capacitance at mid_hz and by the margin — a gain above the target costs
+        its distance; and V_CE ≤ V − I_C,lo·RE.  Tested against the engine.
+        """
+        from optimiser.prune import emitter_hd2_floor, follower_gain_floor
+        from optimiser.score import HEADROOM_FRACTION
+
+        r, model, V = self.request, self.model, self.V
+        rl = r.load_ohm
+        rs = float(r.source_ohm or 0.0)
+        rth = self.rth[P]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            p_hi = re_hi if not rl else re_hi * rl / (re_hi + rl)
+            p_lo = re_lo if not rl else re_lo * rl / (re_lo + rl)
+            rc_max = np.maximum((V - ic_lo * re_lo - model.vce_sat) / ic_lo, 0.0)
+        h = emitter_hd2_floor(ic_hi=ic_hi, r_th=rth, re_hi=p_hi, z_max=rc_max, source_ohm=rs,
+                              input_vpk=r.input_vpk, model=model, q_lo=self.q_lo,
+                              q_hi=self.q_hi, mid_hz=r.mid_hz)
+        target, tol = score_gain_target(r)
+        excess = 0.0
+        if target is not None:
+            g_lo = follower_gain_floor(ic_lo=ic_lo, ic_hi=ic_hi, r_th=rth, r_out=p_lo,
+                                       source_ohm=rs, model=model, q_lo=self.q_lo,
+                                       mid_hz=r.mid_hz) / GAIN_BOUND_MARGIN
+            with np.errstate(divide="ignore"):
+                g_db = 20.0 * np.log10(np.maximum(g_lo, 1e-300))
+            excess = np.maximum(g_db - target - GAIN_SLACK_DB, 0.0) / max(tol, 1e-3)
+        head = np.maximum(0.0, 1.0 - (V - ic_lo * re_lo) / (HEADROOM_FRACTION * V))
+        return h + excess + head
 
     def _follower_gain_max(self, P, r_e=None, ic_hi=None) -> np.ndarray:
         """Upper bound of a follower's midband gain (B13, with the search's margin).

@@ -509,3 +509,42 @@ def test_seeding_from_a_thinned_drawer_changes_nothing(monkeypatch, req):
     seeded = search(req, snap, top=6, misses=0)
     assert seeded.stats.get("seed_designs", 0) > 0
     assert plain.designs and ranking(seeded) == ranking(plain)
+
+
+@pytest.mark.parametrize("rs, rl, vaf, mid, vin", [
+    (1e4, 1e3, 60.0, 1e3, 0.01), (0.0, None, 30.0, 1e3, 0.05), (600.0, 2e3, 100.0, 1e5, 0.1),
+    (1e4, 1e4, 100.0, 1e6, 0.01), (50.0, 100.0, 20.0, 1e3, 0.01)])
+def test_follower_bounds_hold_against_the_engine(rs, rl, vaf, mid, vin):
+    # bound B17 of docs/search.md: a follower's HD2 (the B14 form with RE‖R_L) and its
+    # least gain, against the engine on random valid stages (with and without RC)
+    from optimiser.prune import EMITTER_HD2_MARGIN, emitter_hd2_floor, follower_gain_floor
+    from optimiser.search import GAIN_BOUND_MARGIN, skeleton_figures
+
+    rng = np.random.default_rng(3)
+    n = 4000
+    t = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=vaf)
+    m = device_from_transistor(t)
+    lo, hi = early_bounds(12.0, m)
+    req = Request(topology="cc", supply_v=12.0, load_ohm=rl, source_ohm=rs, input_vpk=vin,
+                  mid_hz=mid, f_high_min_hz=2 * mid, f_low_max_hz=mid / 10)
+    rc = rng.uniform(0, 3e3, n) * (rng.random(n) < 0.3)
+    b = StageBatch.from_values("cc", R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
+                               RC=rc, C_IN=1.0, C_OUT=1.0, RE=rng.uniform(100, 2e4, n))
+    ok = evaluate(req, b, t, None, band_edges=False, large_signal=False).valid
+    assert ok.sum() > 2000
+    f = skeleton_figures(req, b, t)
+    vth, rth = thevenin(12.0, b.R1, b.R2)
+    ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
+    ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
+    rp = b.RE if rl is None else b.RE * rl / (b.RE + rl)
+    h = emitter_hd2_floor(ic_hi=ic_hi, r_th=rth, re_hi=rp, z_max=rc, source_ohm=rs,
+                          input_vpk=vin, model=m, q_lo=lo, q_hi=hi, mid_hz=mid)
+    ratio = (h / f["hd2_pct"])[ok] * EMITTER_HD2_MARGIN
+    assert ratio.max() <= 1.0 + 1e-9 and np.median(ratio) > 0.5
+    g_lo = follower_gain_floor(ic_lo=ic_lo, ic_hi=ic_hi, r_th=rth, r_out=rp, source_ohm=rs,
+                               model=m, q_lo=lo, mid_hz=mid) / GAIN_BOUND_MARGIN
+    g = 10 ** (f["gain_inf_db"] / 20)
+    assert np.all(g[ok] >= g_lo[ok]), np.min((g / g_lo)[ok])
+    # not empty: at low frequencies the floor is within a few per cent of the gain
+    if mid <= 1e5:
+        assert np.median((g / g_lo)[ok]) < 1.1
