@@ -610,6 +610,21 @@ class _Job:
         head = np.maximum(0.0, 1.0 - (V - ic_lo * (RE + BY + RC)) / want)
         return gain + head
 
+    def _distortion_lb(self, P, ic_lo, ic_hi, RE):
+        """B14 (ce) or B16 (cb) for bias nodes of unbypassed RE ``RE``."""
+        if self.topo == "cb":
+            return self._cb_hd2(ic_hi, RE, RE)
+        from optimiser.prune import emitter_hd2_floor
+        r = self.request
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = np.where(ic_lo > 0, self.V / np.where(ic_lo > 0, ic_lo, 1.0), np.inf)
+        if r.load_ohm:
+            z = np.minimum(z, r.load_ohm)
+        return emitter_hd2_floor(ic_hi=ic_hi, r_th=self.rth[P], re_hi=RE, z_max=z,
+                                 source_ohm=r.source_ohm, input_vpk=r.input_vpk,
+                                 model=self.model, q_lo=self.q_lo, q_hi=self.q_hi,
+                                 mid_hz=r.mid_hz)
+
     def _cb_hd2(self, ic_hi, re_lo, re_hi):
         from optimiser.prune import common_base_hd2_floor
         r = self.request
@@ -800,9 +815,14 @@ class _Job:
             vt = thermal_voltage(25.0)
             g_lo, g_hi = self.win[0], self.win[1] * 10 ** (HIGH_GAIN_SLACK_DB / 20)
             if math.isfinite(upper):
-                span = upper * request.gain_tol_db / 20.0
-                g_lo = max(g_lo, request.gain / 10 ** span)
-                g_hi = min(g_hi, request.gain * 10 ** span)
+                # B11 with each node's own slack: the gain term is below the score to
+                # beat less the node's other terms (drift, current, distortion bounds)
+                other = d_lb / 10.0 + (V / (self.R1[P] + self.R2[P]) + ic_lo) / 10e-3 \
+                    + self._distortion_lb(P, ic_lo, ic_hi, REv)
+                span = np.maximum(upper - other, 0.0) * request.gain_tol_db / 20.0 \
+                    + GAIN_SLACK_DB / 20.0
+                g_lo = np.maximum(g_lo, request.gain / 10 ** span)
+                g_hi = np.minimum(g_hi, request.gain * 10 ** span)
             rl = request.load_ohm
             with np.errstate(divide="ignore", invalid="ignore"):
                 x = g_lo * (vt / ic_hi + (REv if topo == "ce" else 0.0)) / GAIN_BOUND_MARGIN
