@@ -205,18 +205,29 @@ def test_junction_floor_is_below_the_engine_score_terms(topo, rs, rl, vin, gdb):
     assert np.median(known[near] / actual[near]) > 0.25
 
 
-def _random_ce(rng, n, rs, rl, vaf, mid, vin, gdb=None):
-    """Random common-emitter stages with the engine's score figures (capacitors shorted)."""
+def _random_stages(topo, rng, n, rs, rl, vaf, mid, vin, gdb=None):
+    """Random stages of one topology with the engine's validity and score figures
+    (capacitors shorted): (transistor, request, batch, valid, figures)."""
     from optimiser.search import skeleton_figures
 
     t = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=vaf)
     kw = dict(gain=10 ** (gdb / 20), gain_tol_db=2.0) if gdb is not None else {}
-    req = Request(topology="ce", supply_v=12.0, load_ohm=rl, source_ohm=rs, input_vpk=vin,
+    req = Request(topology=topo, supply_v=12.0, load_ohm=rl, source_ohm=rs, input_vpk=vin,
                   mid_hz=mid, f_low_max_hz=mid / 10, f_high_min_hz=2 * mid, **kw)
-    re = rng.uniform(0, 2e3, n) * (rng.random(n) < 0.8)
-    b = StageBatch.from_values("ce", R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
-                               RC=rng.uniform(200, 3e4, n), C_IN=1.0, C_OUT=1.0, C_BYP=1.0,
-                               RE=re, RE_BYP=rng.uniform(0, 2e3, n))
+    if topo == "ce":
+        re = rng.uniform(0, 2e3, n) * (rng.random(n) < 0.8)
+        vals = dict(R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
+                    RC=rng.uniform(200, 3e4, n), C_IN=1.0, C_OUT=1.0, C_BYP=1.0,
+                    RE=re, RE_BYP=rng.uniform(0, 2e3, n))
+    elif topo == "cb":
+        vals = dict(R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
+                    RC=rng.uniform(200, 3e4, n), C_IN=1.0, C_OUT=1.0, C_B=1.0,
+                    RE=rng.uniform(100, 2e4, n))
+    else:       # followers, some with a collector resistor
+        rc = rng.uniform(0, 3e3, n) * (rng.random(n) < 0.3)
+        vals = dict(R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n), RC=rc,
+                    C_IN=1.0, C_OUT=1.0, RE=rng.uniform(100, 2e4, n))
+    b = StageBatch.from_values(topo, **vals)
     ev = evaluate(req, b, t, None, band_edges=False, large_signal=False)
     return t, req, b, ev.valid, skeleton_figures(req, b, t)
 
@@ -230,7 +241,8 @@ def test_emitter_distortion_floor_holds_against_the_engine(rs, rl, vaf, mid, vin
     # capacitance load the junction — and not empty (equality is the RE = 0 limit)
     from optimiser.prune import EMITTER_HD2_MARGIN, emitter_hd2_floor
 
-    t, req, b, ok, f = _random_ce(np.random.default_rng(3), 5000, rs, rl, vaf, mid, vin)
+    t, req, b, ok, f = _random_stages("ce", np.random.default_rng(3), 5000, rs, rl, vaf, mid,
+                                      vin)
     m = device_from_transistor(t)
     lo, hi = early_bounds(12.0, m)
     vth, rth = thevenin(12.0, b.R1, b.R2)
@@ -255,7 +267,8 @@ def test_gain_headroom_floor_holds_against_the_engine(rs, rl, gdb):
     from optimiser.score import score_terms
     from optimiser.search import GAIN_BOUND_MARGIN, GAIN_SLACK_DB, gain_window
 
-    t, req, b, ok, f = _random_ce(np.random.default_rng(5), 20000, rs, rl, 60.0, 1e3, 0.01, gdb)
+    t, req, b, ok, f = _random_stages("ce", np.random.default_rng(5), 20000, rs, rl, 60.0, 1e3,
+                                      0.01, gdb)
     m = device_from_transistor(t)
     lo, hi = early_bounds(12.0, m)
     win = gain_window(req)
@@ -430,8 +443,8 @@ def test_range_tables_and_largest_re_below_match_brute_force():
     a = rng.integers(0, n, 300)
     b = np.minimum(a + rng.integers(0, 40, 300), n - 1)
     lo, hi = job.span("tot", a, b)
-    assert np.array_equal(lo, [job.etot[i:j + 1].min() for i, j in zip(a, b)])
-    assert np.array_equal(hi, [job.etot[i:j + 1].max() for i, j in zip(a, b)])
+    assert np.array_equal(lo, [job.etot[i:j + 1].min() for i, j in zip(a, b, strict=True)])
+    assert np.array_equal(hi, [job.etot[i:j + 1].max() for i, j in zip(a, b, strict=True)])
     # options run through bins of the DC total in order, by RE within a bin
     import math
 
@@ -444,7 +457,7 @@ def test_range_tables_and_largest_re_below_match_brute_force():
         start = a // width * width
         cap = rng.uniform(0, 1.2e4, a.size)
         got = job.largest_re_below(start, width, cap)
-        for s0, c, g in zip(start, cap, got):
+        for s0, c, g in zip(start, cap, got, strict=True):
             run = job.re_a[s0:s0 + width]
             want = run[run <= c * (1 + 1e-12)]
             assert (np.isnan(g) and want.size == 0) or g == want.max()
@@ -459,21 +472,12 @@ def test_common_base_bounds_hold_against_the_engine(rs, rl, vaf, mid, vin):
     # engine on random valid stages; B16 is nearly exact (measured median ≥ 0.99)
     from optimiser.device import thermal_voltage
     from optimiser.prune import EMITTER_HD2_MARGIN, common_base_hd2_floor
-    from optimiser.search import skeleton_figures
 
-    rng = np.random.default_rng(3)
-    n = 4000
-    t = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=vaf)
+    t, req, b, ok, f = _random_stages("cb", np.random.default_rng(3), 4000, rs, rl, vaf, mid,
+                                      vin)
     m = device_from_transistor(t)
     lo, hi = early_bounds(12.0, m)
-    req = Request(topology="cb", supply_v=12.0, load_ohm=rl, source_ohm=rs, input_vpk=vin,
-                  mid_hz=mid, f_high_min_hz=2 * mid, f_low_max_hz=mid / 10)
-    b = StageBatch.from_values("cb", R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
-                               RC=rng.uniform(200, 3e4, n), C_IN=1.0, C_OUT=1.0, C_B=1.0,
-                               RE=rng.uniform(100, 2e4, n))
-    ok = evaluate(req, b, t, None, band_edges=False, large_signal=False).valid
     assert ok.sum() > 2000
-    f = skeleton_figures(req, b, t)
     vth, rth = thevenin(12.0, b.R1, b.R2)
     ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
     h = common_base_hd2_floor(ic_hi=ic_hi, re_lo=b.RE, re_hi=b.RE, source_ohm=rs, input_vpk=vin,
@@ -518,21 +522,14 @@ def test_follower_bounds_hold_against_the_engine(rs, rl, vaf, mid, vin):
     # bound B17 of docs/search.md: a follower's HD2 (the B14 form with RE‖R_L) and its
     # least gain, against the engine on random valid stages (with and without RC)
     from optimiser.prune import EMITTER_HD2_MARGIN, emitter_hd2_floor, follower_gain_floor
-    from optimiser.search import GAIN_BOUND_MARGIN, skeleton_figures
+    from optimiser.search import GAIN_BOUND_MARGIN
 
-    rng = np.random.default_rng(3)
-    n = 4000
-    t = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=vaf)
+    t, req, b, ok, f = _random_stages("cc", np.random.default_rng(3), 4000, rs, rl, vaf, mid,
+                                      vin)
     m = device_from_transistor(t)
     lo, hi = early_bounds(12.0, m)
-    req = Request(topology="cc", supply_v=12.0, load_ohm=rl, source_ohm=rs, input_vpk=vin,
-                  mid_hz=mid, f_high_min_hz=2 * mid, f_low_max_hz=mid / 10)
-    rc = rng.uniform(0, 3e3, n) * (rng.random(n) < 0.3)
-    b = StageBatch.from_values("cc", R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
-                               RC=rc, C_IN=1.0, C_OUT=1.0, RE=rng.uniform(100, 2e4, n))
-    ok = evaluate(req, b, t, None, band_edges=False, large_signal=False).valid
+    rc = b.RC
     assert ok.sum() > 2000
-    f = skeleton_figures(req, b, t)
     vth, rth = thevenin(12.0, b.R1, b.R2)
     ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
     ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
