@@ -59,6 +59,7 @@ GAIN_SLACK_DB = 1e-3         # midband estimate vs engine (agree to ~1e-6 dB)
 HIGH_GAIN_SLACK_DB = 6.0     # how far above the window a stage may sit and still be
                              # pulled into it by small capacitors (assumption A2)
 GAIN_BOUND_MARGIN = 1.05    # closed-form gain bounds B6, B8, B11 widened by this factor
+B15_MARGIN = 1.01           # the tighter ce gain bound of B6 at the bias level and B15
 DRIFT_REL_SLACK = 0.05       # × (V+1)/V_AF, relative margin on the bias drift bound
 DRIFT_ABS_SLACK = 0.05       # percentage points
 DRIFT_BOUND_CAP_PCT = 20.0   # the bound claims no more than this (B2 fails for huge drifts)
@@ -369,7 +370,8 @@ class _Job:
             keys = np.sort(np.arange(self.re_a.size) // width * m + self._re_idx)
             self._re_keys[width] = keys
         run = np.asarray(a) // width
-        ci = np.searchsorted(self.re_vals, np.asarray(cap) * (1 + 1e-12), side="right") - 1
+        cap = np.minimum(np.asarray(cap, dtype=float), 1e300) * (1 + 1e-12)
+        ci = np.searchsorted(self.re_vals, cap, side="right") - 1
         pos = np.searchsorted(keys, run * m + ci, side="right") - 1
         hit = (ci >= 0) & (pos >= 0)
         k = keys[np.maximum(pos, 0)]
@@ -509,7 +511,6 @@ class _Job:
         and ``upper`` the score to beat: a gain term that would reach it limits
         the RE (a valid bound wherever it stays below ``upper``).
         """
-        from optimiser.device import thermal_voltage
         from optimiser.prune import emitter_hd2_floor
 
         r, model = self.request, self.model
@@ -523,17 +524,14 @@ class _Job:
         short = 0.0
         target, tol = score_gain_target(r)
         if self.win is not None:
-            vt = thermal_voltage(25.0)
-            rth = self.rth[P]
-            a = rth / (rth + float(r.source_ohm or 0.0)) * z_max * GAIN_BOUND_MARGIN
-            with np.errstate(divide="ignore", invalid="ignore"):
-                g_hi = a / (vt / ic_hi + re_lo)
+            per_z = self._ce_per_z(P, ic_lo, ic_hi, re_lo, re_hi)      # G ≤ per_z·Z'
+            with np.errstate(invalid="ignore"):
+                g_hi = per_z * z_max
             short = self._gain_shortfall(np.nan_to_num(g_hi, nan=0.0))
             # B15: the collector drop that gain needs, against the headroom
-            kf = rth / (rth + float(r.source_ohm or 0.0)) * GAIN_BOUND_MARGIN
             with np.errstate(divide="ignore", invalid="ignore"):
-                zper = (vt / ic_hi + re_lo) / kf
-            short = np.maximum(short, self._gain_headroom(zper, ic_lo, ic_lo * r_small))
+                short = np.maximum(short, self._gain_headroom(1.0 / per_z, ic_lo,
+                                                              ic_lo * r_small))
             # a split whose RE keeps the gain below what the window (or, with a score
             # to beat, the gain term) allows cannot be the design: the feedback, and
             # so the distortion bound, is that of the largest RE reaching it
@@ -541,8 +539,7 @@ class _Job:
             if target is not None and math.isfinite(upper):
                 need_db = np.maximum(need_db, target - (upper - lb) * max(tol, 1e-3))
             g_need = 10.0 ** ((need_db - GAIN_SLACK_DB) / 20.0)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                cap = np.maximum(a / g_need - vt / ic_hi, 0.0)
+            cap = self._ce_re_cap(P, ic_lo, ic_hi, re_hi, g_need / z_max)
             if width == 1:
                 re_hi = np.minimum(re_hi, cap)
             else:           # the largest RE of the run that can still reach the gain
@@ -553,6 +550,35 @@ class _Job:
                               source_ohm=r.source_ohm, input_vpk=r.input_vpk, model=model,
                               q_lo=self.q_lo, q_hi=self.q_hi, mid_hz=r.mid_hz)
         return short + h
+
+    def _ce_per_z(self, P, ic_lo, ic_hi, re_lo, re_hi):
+        """Largest ce gain per ohm of collector load, with B15's margin
+        (:func:`optimiser.prune.ce_gain_per_load`)."""
+        from optimiser.prune import ce_gain_per_load
+        r = self.request
+        return ce_gain_per_load(ic_lo=ic_lo, ic_hi=ic_hi, r_th=self.rth[P], re_lo=re_lo,
+                                re_hi=re_hi, source_ohm=r.source_ohm, model=self.model,
+                                q_hi=self.q_hi, mid_hz=r.mid_hz) * B15_MARGIN
+
+    def _ce_re_cap(self, P, ic_lo, ic_hi, re_hi, need_per_z):
+        """Largest unbypassed RE whose gain per ohm of load (with B15's margin) can
+        still reach ``need_per_z``: :func:`optimiser.prune.ce_gain_per_load`
+        inverted in RE, its input divider taken at ``re_hi`` (so an upper bound)."""
+        from optimiser.device import thermal_voltage
+        from optimiser.prune import ce_gain_per_load
+
+        r = self.request
+        gm = ic_hi / thermal_voltage(25.0)
+        w_cmu = 2.0 * math.pi * float(r.mid_hz) * float(self.model.cjc)
+        c = 1.0 + 1.0 / (float(self.model.beta) * self.q_hi)
+        # per_z(RE) = k·(g_m/(1 + g_m·RE·c) + ωC_μ); at RE = 0 it is k·(g_m + ωC_μ)
+        k = ce_gain_per_load(ic_lo=ic_lo, ic_hi=ic_hi, r_th=self.rth[P], re_lo=0.0,
+                             re_hi=re_hi, source_ohm=r.source_ohm, model=self.model,
+                             q_hi=self.q_hi, mid_hz=r.mid_hz) / (gm + w_cmu)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            y = need_per_z / (k * B15_MARGIN) - w_cmu
+            cap = np.where(y > 0, np.maximum((gm / y - 1.0) / (gm * c), 0.0), np.inf)
+        return np.nan_to_num(cap, nan=np.inf)
 
     def _gain_headroom(self, zper, ic_lo, ve_lo):
         """B15 (:func:`optimiser.prune.gain_headroom_floor`) for this request."""
@@ -588,7 +614,7 @@ class _Job:
             zlo = 1.0 / (1.0 / RC + (1.0 / rl if rl else 0.0) + 1.0 / ro)
             if self.topo == "ce":
                 rth = self.rth[P]
-                g_hi = rth / (rth + rs) * zc * GAIN_BOUND_MARGIN / (vt / ic_hi + RE)
+                g_hi = self._ce_per_z(P, ic_lo, ic_hi, RE, RE) * zc
                 rpi_max = b * self.q_hi * vt / ic_lo
                 rpi_min = b * self.q_lo * vt / ic_hi
                 rin = rth * (rpi_min + (b + 1) * RE) / (rth + rpi_min + (b + 1) * RE)
@@ -824,8 +850,13 @@ class _Job:
                 g_lo = np.maximum(g_lo, request.gain / 10 ** span)
                 g_hi = np.minimum(g_hi, request.gain * 10 ** span)
             rl = request.load_ohm
+            # (ce: plus the feed-forward through C_μ at mid_hz, which carries the
+            # gain of heavily degenerated stages at high frequencies)
+            w_cmu = 2.0 * math.pi * float(request.mid_hz) * float(model.cjc) if topo == "ce" \
+                else 0.0
             with np.errstate(divide="ignore", invalid="ignore"):
-                x = g_lo * (vt / ic_hi + (REv if topo == "ce" else 0.0)) / GAIN_BOUND_MARGIN
+                x = g_lo / GAIN_BOUND_MARGIN / (
+                    1.0 / (vt / ic_hi + (REv if topo == "ce" else 0.0)) + w_cmu)
                 rc_min = x if not rl else np.where(x < rl, x * rl / (rl - x), np.inf)
             rc_min = np.nan_to_num(rc_min, nan=np.inf)
             n0 = np.minimum(np.searchsorted(self.rc_vals, rc_min * (1 - 1e-9), side="left"), nrc)
