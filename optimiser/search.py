@@ -551,6 +551,23 @@ class _Job:
                               q_lo=self.q_lo, q_hi=self.q_hi, mid_hz=r.mid_hz)
         return short + h
 
+    def _ce_slowdown(self, P, ic_hi, z):
+        """Largest factor by which a ce stage's gain at mid_hz falls below its
+        low-frequency value (B11 at high frequencies): 1 + ω(R_S‖R_TH)(C_π,max +
+        C_μ(1 + g_m·Z')) + ωZ'C_μ for a collector load up to ``z``; tested against the
+        engine at 1 kHz–3 MHz."""
+        from optimiser.device import thermal_voltage
+        r, model = self.request, self.model
+        vt = thermal_voltage(25.0)
+        rs = float(r.source_ohm or 0.0)
+        rth = self.rth[P]
+        rsrc = rs * rth / (rs + rth) if rs > 0 else 0.0 * rth
+        w = 2.0 * math.pi * float(r.mid_hz)
+        gm = ic_hi / vt
+        with np.errstate(invalid="ignore", over="ignore"):
+            f = 1.0 + w * rsrc * (model.tf * gm + model.cjc * (1.0 + gm * z)) + w * z * model.cjc
+        return np.nan_to_num(f, nan=np.inf, posinf=np.inf)
+
     def _ce_per_z(self, P, ic_lo, ic_hi, re_lo, re_hi):
         """Largest ce gain per ohm of collector load, with B15's margin
         (:func:`optimiser.prune.ce_gain_per_load`)."""
@@ -618,7 +635,8 @@ class _Job:
                 rpi_max = b * self.q_hi * vt / ic_lo
                 rpi_min = b * self.q_lo * vt / ic_hi
                 rin = rth * (rpi_min + (b + 1) * RE) / (rth + rpi_min + (b + 1) * RE)
-                g_lo = rin / (rin + rs) * b * zlo / (rpi_max + (b + 1) * RE) / GAIN_BOUND_MARGIN
+                g_lo = rin / (rin + rs) * b * zlo / (rpi_max + (b + 1) * RE) / GAIN_BOUND_MARGIN \
+                    / self._ce_slowdown(P, ic_hi, zc)
             else:
                 g_hi = zc * GAIN_BOUND_MARGIN / (vt / ic_hi * (1.0 + rs / RE) + rs)
                 re_min = vt / ic_hi * b / (b + 1.0)
@@ -875,6 +893,10 @@ class _Job:
                     rin = rth * (rpi_min + (b + 1) * REv) / (rth + rpi_min + (b + 1) * REv)
                     k_in = rin / (rin + rs)
                     zmax = g_hi * GAIN_BOUND_MARGIN * (rpi_max + (b + 1) * REv) / (k_in * b)
+                    # at mid_hz the input (Miller) and output poles can only lower the
+                    # gain: by at most this factor for any load up to R_L or RC_max
+                    zcap = np.minimum(rc_max, rl) if rl else rc_max
+                    zmax = zmax * self._ce_slowdown(P, ic_hi, zcap)
                 else:
                     re_min = vt / ic_hi * b / (b + 1.0)
                     x = REv * re_min / (REv + re_min)

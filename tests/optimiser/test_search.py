@@ -113,9 +113,11 @@ def test_no_transistor_that_stands_the_supply_is_an_answer():
     assert any("vceo" in u for u in res.unlock)
 
 
-@pytest.mark.parametrize("rs, rl", [(600.0, 1e4), (0.0, None), (50.0, 2e3)])
-def test_closed_form_gain_bounds_hold_against_the_engine(rs, rl):
-    # bounds B6 (upper) and B11 (lower, ce) of docs/search.md, with the search's margin
+@pytest.mark.parametrize("rs, rl, mid", [(600.0, 1e4, 1e3), (0.0, None, 1e3), (50.0, 2e3, 1e3),
+                                         (600.0, 1e4, 1e6), (10e3, 2e3, 1e5), (50.0, 1e3, 3e6)])
+def test_closed_form_gain_bounds_hold_against_the_engine(rs, rl, mid):
+    # bounds B6 (upper, with the feed-forward through C_mu at mid_hz) and B11 (lower,
+    # ce) of docs/search.md, with the search's margin
     from optimiser.device import thermal_voltage
     from optimiser.search import GAIN_BOUND_MARGIN
 
@@ -125,7 +127,8 @@ def test_closed_form_gain_bounds_hold_against_the_engine(rs, rl):
     m = device_from_transistor(t)
     vt = thermal_voltage(25.0)
     lo, hi = early_bounds(12.0, m)
-    req = Request(topology="ce", supply_v=12.0, load_ohm=rl, source_ohm=rs)
+    req = Request(topology="ce", supply_v=12.0, load_ohm=rl, source_ohm=rs, mid_hz=mid,
+                  f_low_max_hz=mid / 10, f_high_min_hz=2 * mid)
     b = StageBatch.from_values("ce", R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
                                RC=rng.uniform(200, 3e4, n), RE=rng.uniform(0, 2e3, n),
                                RE_BYP=rng.uniform(0, 2e3, n), C_IN=1.0, C_OUT=1.0, C_BYP=1.0)
@@ -137,14 +140,17 @@ def test_closed_form_gain_bounds_hold_against_the_engine(rs, rl):
     ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
     g = ev.metrics["gain"]
     zc = b.RC if not rl else b.RC * rl / (b.RC + rl)
-    upper = zc / (vt / ic_hi + b.RE) * GAIN_BOUND_MARGIN
-    assert np.all(g[ok] <= upper[ok])
+    upper = zc * (1 / (vt / ic_hi + b.RE) + 2 * np.pi * mid * m.cjc) * GAIN_BOUND_MARGIN
+    assert np.all(g[ok] <= upper[ok]), np.max((g / upper)[ok])
     beta = t.beta_nominal
     rpi_max, rpi_min = beta * hi * vt / ic_lo, beta * lo * vt / ic_hi
     rin = rth * (rpi_min + (beta + 1) * b.RE) / (rth + rpi_min + (beta + 1) * b.RE)
     z = 1 / (1 / b.RC + (1 / rl if rl else 0.0) + ic_hi / (m.vaf - 1.0))
-    lower = rin / (rin + rs) * beta * z / (rpi_max + (beta + 1) * b.RE) / GAIN_BOUND_MARGIN
-    assert np.all(g[ok] >= lower[ok])
+    w = 2 * np.pi * mid
+    rsrc = rs * rth / (rs + rth)
+    slow = 1 + w * rsrc * (m.tf * ic_hi / vt + m.cjc * (1 + ic_hi / vt * zc)) + w * zc * m.cjc
+    lower = rin / (rin + rs) * beta * z / (rpi_max + (beta + 1) * b.RE) / GAIN_BOUND_MARGIN / slow
+    assert np.all(g[ok] >= lower[ok]), np.min((g / lower)[ok])
 
 
 @pytest.mark.parametrize("topo, rs, rl, vin, gdb", [
@@ -351,22 +357,24 @@ def test_drift_bound_holds_against_the_engine(vaf, supply):
     assert np.median(d_lb[mod] / drift[mod]) > 0.8
 
 
-def _random_case(topo, rs, rl, vaf, seed, n=4000):
+def _random_case(topo, rs, rl, vaf, seed, n=4000, mid=1e3):
     """(rng, n, transistor, its model, request) for a bound-against-engine check."""
     t = Transistor("GP-N1", 100, 400, ft=250e6, cob=4e-12, vaf=vaf)
-    req = Request(topology=topo, supply_v=12.0, load_ohm=rl, source_ohm=rs)
+    req = Request(topology=topo, supply_v=12.0, load_ohm=rl, source_ohm=rs, mid_hz=mid,
+                  f_low_max_hz=mid / 10, f_high_min_hz=2 * mid)
     return np.random.default_rng(seed), n, t, device_from_transistor(t), req
 
 
-@pytest.mark.parametrize("rs, rl, vaf", [(10e3, 1e3, 100.0), (600.0, None, 30.0),
-                                         (50e3, 10e3, 60.0), (0.0, 2e3, 100.0)])
-def test_follower_gain_bound_holds_against_the_engine(rs, rl, vaf):
+@pytest.mark.parametrize("rs, rl, vaf, mid", [(10e3, 1e3, 100.0, 1e3), (600.0, None, 30.0, 1e3),
+                                              (50e3, 10e3, 60.0, 1e3), (0.0, 2e3, 100.0, 1e3),
+                                              (10e3, 1e3, 100.0, 1e6)])
+def test_follower_gain_bound_holds_against_the_engine(rs, rl, vaf, mid):
     # bound B13 of docs/search.md: a follower's shorted-capacitor gain is at most
     # R_TH/(R_TH+R_S) · (RE‖RL)/(r_e + RE‖RL) — without the search's 5 % margin here
     from optimiser.device import thermal_voltage
     from optimiser.search import skeleton_figures
 
-    rng, n, t, m, req = _random_case("cc", rs, rl, vaf, seed=2)
+    rng, n, t, m, req = _random_case("cc", rs, rl, vaf, seed=2, mid=mid)
     b = StageBatch.from_values(
         "cc", R1=10 ** rng.uniform(3.5, 6, n), R2=10 ** rng.uniform(3, 6, n),
         RC=np.where(rng.random(n) < 0.7, 0.0, 10 ** rng.uniform(1, 3, n)),
@@ -383,15 +391,16 @@ def test_follower_gain_bound_holds_against_the_engine(rs, rl, vaf):
     assert np.median(g[ok] / bound[ok]) > 0.9          # and it is close
 
 
-@pytest.mark.parametrize("rs, rl, vaf", [(50.0, 1e4, 100.0), (600.0, None, 30.0),
-                                         (0.0, 2e3, 60.0), (1e3, 1e3, 100.0)])
-def test_common_base_gain_floor_holds_against_the_engine(rs, rl, vaf):
+@pytest.mark.parametrize("rs, rl, vaf, mid", [(50.0, 1e4, 100.0, 1e3), (600.0, None, 30.0, 1e3),
+                                              (0.0, 2e3, 60.0, 1e3), (1e3, 1e3, 100.0, 1e3),
+                                              (50.0, 1e4, 100.0, 1e6)])
+def test_common_base_gain_floor_holds_against_the_engine(rs, rl, vaf, mid):
     # bound B11 for cb (docs/search.md): the least gain an RC can give,
     # g_m,min·(RC‖RL‖r_o,min)·x/(R_S + x) with x = RE‖r_e,min, within the 5 % margin
     from optimiser.device import thermal_voltage
     from optimiser.search import GAIN_BOUND_MARGIN
 
-    rng, n, t, m, req = _random_case("cb", rs, rl, vaf, seed=4)
+    rng, n, t, m, req = _random_case("cb", rs, rl, vaf, seed=4, mid=mid)
     b = StageBatch.from_values("cb", R1=10 ** rng.uniform(3.5, 5.5, n),
                                R2=10 ** rng.uniform(3, 5, n), RC=10 ** rng.uniform(2, 4.5, n),
                                RE=10 ** rng.uniform(1.5, 4.5, n), C_IN=1.0, C_OUT=1.0, C_B=1.0)

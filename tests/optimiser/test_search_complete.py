@@ -129,7 +129,7 @@ def cases(draw):
         f_low_max_hz=draw(st.sampled_from([None, 100.0, 1000.0])),
         ic_drift_max_pct=draw(st.sampled_from([None, 25.0])),
         zin_min_ohm=draw(st.sampled_from([None, None, 2e3, 10e3])),
-        temp_c=(0.0, 50.0), builds=builds,
+        temp_c=(0.0, 50.0), builds=builds, mid_hz=draw(st.sampled_from([1e3, 1e3, 1e5])),
         input_vpk=draw(st.sampled_from([0.001, 0.01, 0.05])))
     return req, StockSnapshot(tuple(res), tuple(caps), (t,))
 
