@@ -505,20 +505,16 @@ class _Job:
     def _emitter_terms(self, P, ic_lo, ic_hi, r_small, re_lo, re_hi, lb, upper, start, width):
         """Lower bound of the gain + distortion terms an unbypassed RE in
         [re_lo, re_hi] allows (ce): B6 at the bias level — the gain is at most
-        k_in·Z'/(V_T/I_C + RE) with Z' ≤ R_L‖RC_max — and B14, the distortion
-        the emitter feedback leaves (:func:`optimiser.prune.emitter_hd2_floor`).
+        per_z·Z' (:func:`optimiser.prune.ce_gain_per_load`) with Z' ≤ R_L‖RC_max —,
+        B15 and B14, the distortion the emitter feedback leaves.
         inf where no gain in the window is possible.  ``lb`` is the bound so far
         and ``upper`` the score to beat: a gain term that would reach it limits
         the RE (a valid bound wherever it stays below ``upper``).
         """
-        from optimiser.prune import emitter_hd2_floor
-
-        r, model = self.request, self.model
+        r = self.request
         rl = r.load_ohm
+        rc_max = np.maximum(self._rc_max(ic_lo, ic_lo * r_small), 0.0)
         with np.errstate(divide="ignore", invalid="ignore"):
-            rc_max = np.where(ic_lo > 0, (self.V - ic_lo * r_small - model.vce_sat)
-                              / np.where(ic_lo > 0, ic_lo, 1.0), np.inf)
-            rc_max = np.maximum(rc_max, 0.0)
             z_max = rc_max if not rl else np.where(np.isfinite(rc_max),
                                                    rc_max * rl / (rc_max + rl), rl)
         short = 0.0
@@ -546,10 +542,7 @@ class _Job:
                 re_hi = self.largest_re_below(start, width, cap)
                 short = np.where(np.isnan(re_hi), np.inf, short)
                 re_hi = np.nan_to_num(re_hi, nan=0.0)
-        h = emitter_hd2_floor(ic_hi=ic_hi, r_th=self.rth[P], re_hi=re_hi, z_max=z_max,
-                              source_ohm=r.source_ohm, input_vpk=r.input_vpk, model=model,
-                              q_lo=self.q_lo, q_hi=self.q_hi, mid_hz=r.mid_hz)
-        return short + h
+        return short + self._junction_hd2(P, ic_hi, re_hi, z_max)
 
     def _ce_slowdown(self, P, ic_hi, z):
         """Largest factor by which a ce stage's gain at mid_hz falls below its
@@ -582,16 +575,16 @@ class _Job:
         still reach ``need_per_z``: :func:`optimiser.prune.ce_gain_per_load`
         inverted in RE, its input divider taken at ``re_hi`` (so an upper bound)."""
         from optimiser.device import thermal_voltage
-        from optimiser.prune import ce_gain_per_load
+        from optimiser.prune import ce_input_divider_max
 
         r = self.request
         gm = ic_hi / thermal_voltage(25.0)
         w_cmu = 2.0 * math.pi * float(r.mid_hz) * float(self.model.cjc)
         c = 1.0 + 1.0 / (float(self.model.beta) * self.q_hi)
-        # per_z(RE) = k·(g_m/(1 + g_m·RE·c) + ωC_μ); at RE = 0 it is k·(g_m + ωC_μ)
-        k = ce_gain_per_load(ic_lo=ic_lo, ic_hi=ic_hi, r_th=self.rth[P], re_lo=0.0,
-                             re_hi=re_hi, source_ohm=r.source_ohm, model=self.model,
-                             q_hi=self.q_hi, mid_hz=r.mid_hz) / (gm + w_cmu)
+        # per_z(RE) = k·(g_m/(1 + g_m·RE·c) + ωC_μ), solved for RE
+        k = ce_input_divider_max(ic_lo=ic_lo, r_th=self.rth[P], re_hi=re_hi,
+                                 source_ohm=r.source_ohm, model=self.model, q_hi=self.q_hi)
+        k = np.nan_to_num(k, nan=0.0)
         with np.errstate(divide="ignore", invalid="ignore"):
             y = need_per_z / (k * B15_MARGIN) - w_cmu
             cap = np.where(y > 0, np.maximum((gm / y - 1.0) / (gm * c), 0.0), np.inf)
@@ -658,16 +651,28 @@ class _Job:
         """B14 (ce) or B16 (cb) for bias nodes of unbypassed RE ``RE``."""
         if self.topo == "cb":
             return self._cb_hd2(ic_hi, RE, RE)
-        from optimiser.prune import emitter_hd2_floor
-        r = self.request
         with np.errstate(divide="ignore", invalid="ignore"):
             z = np.where(ic_lo > 0, self.V / np.where(ic_lo > 0, ic_lo, 1.0), np.inf)
-        if r.load_ohm:
-            z = np.minimum(z, r.load_ohm)
-        return emitter_hd2_floor(ic_hi=ic_hi, r_th=self.rth[P], re_hi=RE, z_max=z,
+        if self.request.load_ohm:
+            z = np.minimum(z, self.request.load_ohm)
+        return self._junction_hd2(P, ic_hi, RE, z)
+
+    def _junction_hd2(self, P, ic_hi, re, z):
+        """B14 (:func:`optimiser.prune.emitter_hd2_floor`) for this request: the HD2
+        an unbypassed emitter resistance ``re`` leaves, collector load up to ``z``."""
+        from optimiser.prune import emitter_hd2_floor
+        r = self.request
+        return emitter_hd2_floor(ic_hi=ic_hi, r_th=self.rth[P], re_hi=re, z_max=z,
                                  source_ohm=r.source_ohm, input_vpk=r.input_vpk,
                                  model=self.model, q_lo=self.q_lo, q_hi=self.q_hi,
                                  mid_hz=r.mid_hz)
+
+    def _rc_max(self, ic_lo, ve_lo):
+        """B3: the largest RC that keeps V_CE ≥ vce_sat with I_C ≥ ``ic_lo`` and
+        V_E ≥ ``ve_lo`` (inf where ic_lo is 0; negative where none does)."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.where(ic_lo > 0, (self.V - ve_lo - self.model.vce_sat)
+                            / np.where(ic_lo > 0, ic_lo, 1.0), np.inf)
 
     def _cb_hd2(self, ic_hi, re_lo, re_hi):
         from optimiser.prune import common_base_hd2_floor
@@ -687,7 +692,7 @@ class _Job:
         capacitance at mid_hz and by the margin — a gain above the target costs
         its distance; and V_CE ≤ V − I_C,lo·RE.  Tested against the engine.
         """
-        from optimiser.prune import emitter_hd2_floor, follower_gain_floor
+        from optimiser.prune import follower_gain_floor
         from optimiser.score import HEADROOM_FRACTION
 
         r, model, V = self.request, self.model, self.V
@@ -697,10 +702,7 @@ class _Job:
         with np.errstate(divide="ignore", invalid="ignore"):
             p_hi = re_hi if not rl else re_hi * rl / (re_hi + rl)
             p_lo = re_lo if not rl else re_lo * rl / (re_lo + rl)
-            rc_max = np.maximum((V - ic_lo * re_lo - model.vce_sat) / ic_lo, 0.0)
-        h = emitter_hd2_floor(ic_hi=ic_hi, r_th=rth, re_hi=p_hi, z_max=rc_max, source_ohm=rs,
-                              input_vpk=r.input_vpk, model=model, q_lo=self.q_lo,
-                              q_hi=self.q_hi, mid_hz=r.mid_hz)
+        h = self._junction_hd2(P, ic_hi, p_hi, np.maximum(self._rc_max(ic_lo, ic_lo * re_lo), 0.0))
         target, tol = score_gain_target(r)
         excess = 0.0
         if target is not None:
@@ -839,8 +841,7 @@ class _Job:
         REv, BYv = self.re_a[E], self.byp_a[E]
         # B3: V_CE ≥ vce_sat needs RC ≤ (V − I_E·R_E − vce_sat)/I_C, with I_C ≥ ic_lo
         ve_lo = ic_lo * (REv + BYv)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            rc_max = np.where(ic_lo > 0, (V - ve_lo - model.vce_sat) / ic_lo, np.inf)
+        rc_max = self._rc_max(ic_lo, ve_lo)
         nrc = np.searchsorted(self.rc_vals, rc_max * (1 + 1e-9), side="right")
         self.count("headroom", (self.rc_vals.size - nrc).sum())
         if topo == "cc":
@@ -934,11 +935,7 @@ class _Job:
             if topo == "cb":            # B16 with RE known
                 h = np.maximum(h, self._cb_hd2(ic_hi[rs_], REc[sel], REc[sel]))
             if topo == "ce":            # B14 with RE and RC known
-                from optimiser.prune import emitter_hd2_floor
-                h = np.maximum(h, emitter_hd2_floor(
-                    ic_hi=ic_hi[rs_], r_th=self.rth[Pc[sel]], re_hi=REc[sel], z_max=zc,
-                    source_ohm=request.source_ohm, input_vpk=request.input_vpk, model=model,
-                    q_lo=self.q_lo, q_hi=self.q_hi, mid_hz=request.mid_hz))
+                h = np.maximum(h, self._junction_hd2(Pc[sel], ic_hi[rs_], REc[sel], zc))
             # the gain and headroom terms of this very RC (B6/B11 and B15 made exact
             # in RC), added to the distortion bounds; the junction floor stands apart
             h = np.maximum(floor, h + self._gain_head_at(
