@@ -15,7 +15,7 @@ from scipy.special import wrightomega
 
 from .device import DeviceModel, scaled, thermal_voltage
 
-__all__ = ["bias_current", "early_bounds", "midband_estimate", "junction_floor",
+__all__ = ["bias_current", "early_bounds", "early_factor_max", "midband_estimate", "junction_floor",
            "emitter_hd2_floor", "gain_headroom_floor", "common_base_hd2_floor",
            "follower_gain_floor", "ce_input_divider_max", "ce_gain_per_load"]
 
@@ -28,6 +28,28 @@ def early_bounds(supply_v: float, model: DeviceModel) -> tuple[float, float]:
     if not np.isfinite(model.vaf):
         return 1.0, 1.0
     return 1.0 + (model.vce_sat - 1.0) / model.vaf, 1.0 + supply_v / model.vaf
+
+
+def early_factor_max(supply_v: float, ic_lo, re_lo, model: DeviceModel, q_hi: float):
+    """Largest Early factor of a stage whose I_C ≥ ``ic_lo`` and DC emitter
+    resistance ≥ ``re_lo`` (at 25 °C, as :func:`bias_current`).
+
+    The collector is at most at the supply, so ``V_CB ≤ V − V_B`` with
+    ``V_B = V_BE + I_E·R_E ≥ V_BE + I_C·R_E``, and ``V_BE ≥ V_T·ln(x/I_S)``
+    with ``x ≥ (I_C − I_S)/q_hi`` (``I_C ≤ q·x + I_S`` in the model of
+    interface.md).  ``q_hi`` is the factor of :func:`early_bounds`, which the
+    result never exceeds.  A tighter top of the collector-current bracket (B1)
+    for nodes whose emitter already takes a part of the supply.
+    """
+    if not np.isfinite(model.vaf):
+        return np.ones_like(np.asarray(ic_lo, dtype=float))
+    is_t, _ = scaled(model, 25.0, None)
+    ic_lo = np.asarray(ic_lo, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        vbe = thermal_voltage(25.0) * np.log(np.maximum(ic_lo - is_t, 0.0) / (q_hi * is_t))
+    vbe = np.clip(np.nan_to_num(vbe, nan=0.0, neginf=0.0), 0.0, None)
+    q = 1.0 + (supply_v - vbe - ic_lo * np.asarray(re_lo, dtype=float)) / model.vaf
+    return np.minimum(q, q_hi)
 
 
 def bias_current(v_th, r_th, r_e, model: DeviceModel, temp_c=25.0, beta=None, q=1.0):

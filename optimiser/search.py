@@ -46,6 +46,7 @@ from optimiser.options import (
 from optimiser.request import Request
 from optimiser.score import STOCK_PENALTY, degeneration, hd2_pct, score_gain_target, score_terms
 from optimiser.stage import PartRatings, StageBatch
+from optimiser.workers import split_branch_and_bound, worker_count
 
 __all__ = ["SearchResult", "search", "check_request", "FORMS", "SHORT_F",
            "gain_window", "Skeletons"]
@@ -401,7 +402,7 @@ class _Job:
         of ``P``; entries not ok hold nlb = inf.
         """
         from optimiser.device import thermal_voltage
-        from optimiser.prune import bias_current
+        from optimiser.prune import bias_current, early_factor_max
 
         model, V = self.model, self.V
         n = P.size
@@ -416,7 +417,11 @@ class _Job:
         s = np.flatnonzero((ic_lo <= model.ic_max * (1 + 1e-9)) & (lb < upper))
         if s.size == 0:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
-        ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, self.q_hi)
+        # the top of the bracket at the largest Early factor this span allows
+        # (the emitter takes a part of the supply: early_factor_max)
+        q_top = np.zeros(n)
+        q_top[s] = early_factor_max(V, ic_lo[s], r_small[s], model, self.q_hi)
+        ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, q_top[s])
         lb_s = lb[s]
         if self.topo == "cc":
             # B13: a follower's gain is at most k_in·A_f, the divider's share of the
@@ -481,14 +486,11 @@ class _Job:
         # B2: drift at a common Early factor, the highest (the most feedback, so the
         # least drift), with a margin for the factor's spread between the corners
         vs, rs_, rb = v_th[s], r_th[s], r_big[s]
-        ic_mid = ic_hi[s].copy()          # the nominal current at q_hi where RE is one value
-        wide = np.flatnonzero(r_small[s] != rb)
-        if wide.size:
-            ic_mid[wide] = bias_current(vs[wide], rs_[wide], rb[wide], model, 25.0, None,
-                                        self.q_hi)
+        q_d = q_top[s]              # (from the current at the least Early factor: B2 tested so)
+        ic_mid = bias_current(vs, rs_, rb, model, 25.0, None, q_d)
         d = np.zeros_like(ic_mid)
         for tc, b in self.corners:
-            icc = bias_current(vs, rs_, rb, model, tc, b, self.q_hi)
+            icc = bias_current(vs, rs_, rb, model, tc, b, q_d)
             with np.errstate(divide="ignore", invalid="ignore"):
                 d = np.maximum(d, np.abs(icc - ic_mid) / ic_mid * 100.0)
         d = np.nan_to_num(d, nan=0.0, posinf=np.inf)
@@ -1202,10 +1204,21 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     found, pool = [], []
     # with top designs already in hand the score to beat is known: no aspiration
     levels = (math.inf,) if len(seeds) >= top else ASPIRATION + (math.inf,)
+    n_values = np.unique([r.value for r in snapshot.resistors]).size
+    workers = worker_count(n_values, PARALLEL_ABOVE)
     for cap in levels:
         left = None if budget_s is None else max(budget_s - (time.perf_counter() - t_start), 0.0)
-        found, pool = _branch_and_bound(request, opts, jobs, top, stats, progress, left, cap,
-                                        seeds)
+
+        def run(part, shared, st, cap=cap, left=left):
+            return _branch_and_bound(request, opts, jobs, top, st,
+                                     progress if part[0] == 0 else None, left, cap, seeds,
+                                     part, shared)
+
+        if workers > 1:
+            found, pool = split_branch_and_bound(run, workers, stats)
+            found = _distinct(found)
+        else:
+            found, pool = run((0, 1), None, stats)
         if stats.get("stopped_at_budget") or (len(found) >= top and found[top - 1].score <= cap):
             break
         stats["aspiration_rounds"] = stats.get("aspiration_rounds", 0) + 1
@@ -1214,6 +1227,22 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     for r, d in enumerate(found, 1):
         d.rank = r
     return found, pool
+
+
+#: Drawers with more distinct resistor values than this are searched on all cores
+#: (:mod:`optimiser.workers`); below it starting processes costs more than it saves.
+PARALLEL_ABOVE = 160
+
+
+def _distinct(designs: list[Design]) -> list[Design]:
+    """Designs of distinct networks, best first (shares of a split search may
+    both hold a seed)."""
+    out, seen = [], set()
+    for d in sorted(designs, key=_rank_key):
+        if _design_key(d) not in seen:
+            seen.add(_design_key(d))
+            out.append(d)
+    return out
 
 
 #: Drawers with more distinct resistor values than this are first searched thinned
@@ -1277,12 +1306,19 @@ def _large_signal(request: Request, snapshot: StockSnapshot, designs: list[Desig
                            if r.key == "clipping" and bool(r.fail[j])]
 
 
-def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, seeds=()):
+def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, seeds=(),
+                      part=(0, 1), shared=None):
     """One run of the branch and bound, dropping nodes whose bound reaches ``cap``.
 
     ``seeds`` are designs of this drawer already known (they count towards the
     ``top`` to beat and are not reported twice).  Returns every design found
     (sorted by score) and the pool of evaluated misses.
+
+    ``part`` = (k, n): search only every n-th (R1, R2) pair from the k-th on
+    (one share of a search split over n processes, :mod:`optimiser.workers`).
+    ``shared``: an array of n scores, slot k this run's ``top``-th best score
+    and the others those of the other shares — each is the score of ``top``
+    real designs, so any of them is a score to beat.
     """
     from optimiser.dc import operating_point
     from optimiser.evaluate import corner_points
@@ -1297,10 +1333,13 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
         return min((h[0][0] for h in heaps.values() if h), default=math.inf)
 
     seq = itertools.count()
+    k_part, n_part = part
     for j, job in enumerate(jobs):
         for lb, p in job.pair_blocks():
-            push((lb, next(seq), "pairs", (j, p)))
-    found: list[Design] = sorted(seeds, key=lambda d: d.score)
+            p = p[k_part::n_part]
+            if p.size:
+                push((lb, next(seq), "pairs", (j, p)))
+    found: list[Design] = sorted(seeds, key=_rank_key)
     known = {_design_key(d) for d in found}
     pool: list = []
     win = gain_window(request)
@@ -1316,6 +1355,9 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             stats["open_bound"] = min(smallest(), cap)
             break
         kth = min(found[top - 1].score if len(found) >= top else math.inf, cap)
+        if shared is not None:
+            shared[k_part] = kth
+            kth = min(kth, min(shared))
         low = smallest()
         if low >= kth:
             break
@@ -1416,10 +1458,16 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                     if _design_key(d) not in known:
                         known.add(_design_key(d))
                         found.append(d)
-            found.sort(key=lambda d: d.score)
+            found.sort(key=_rank_key)
     stats["heap_steps"] = stats.get("heap_steps", 0) + steps
-    found.sort(key=lambda d: d.score)
+    found.sort(key=_rank_key)
     return found, pool
+
+
+def _rank_key(d: Design) -> tuple:
+    """Order of the ranking: score, then the network (so that ties rank the same
+    however the search was split)."""
+    return (d.score, _design_key(d))
 
 
 def _take_all(c: Skeletons, idx) -> Skeletons:

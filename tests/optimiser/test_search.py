@@ -10,7 +10,7 @@ from optimiser.ac import small_signal
 from optimiser.dc import operating_point, solve_bias, thevenin
 from optimiser.device import device_from_transistor
 from optimiser.evaluate import evaluate
-from optimiser.prune import bias_current, early_bounds, midband_estimate
+from optimiser.prune import bias_current, early_bounds, early_factor_max, midband_estimate
 from optimiser.request import Request
 from optimiser.search import check_request, search
 from optimiser.stage import StageBatch
@@ -65,6 +65,13 @@ def test_bias_current_brackets_the_engine():
     assert ok.sum() > 1000
     assert np.all(op.ic[ok] >= ic_lo[ok] * (1 - 1e-9))
     assert np.all(op.ic[ok] <= ic_hi[ok] * (1 + 1e-9))
+    # the top of the bracket from the node's own largest Early factor (the emitter
+    # takes I_C·R_E of the supply): still above the engine's current, and below hi
+    q_top = early_factor_max(12.0, ic_lo, re, m, hi)
+    ic_top = bias_current(vth, rth, re, m, 25.0, None, q_top)
+    assert np.all(op.ic[ok] <= ic_top[ok] * (1 + 1e-9))
+    assert np.all(ic_top <= ic_hi * (1 + 1e-12))
+    assert np.median(hi - q_top[ok]) * m.vaf > 1.0      # it does tighten: V_B ≥ 1 V off V_CB
 
 
 @pytest.mark.parametrize("topo", ["ce", "cb", "cc"])
@@ -344,7 +351,9 @@ def test_drift_bound_holds_against_the_engine(vaf, supply):
     assert ok.sum() > 2000
     vth, rth = thevenin(supply, b.R1, b.R2)
     lo, hi = early_bounds(supply, m)
-    q = hi                      # the search takes the drift at the highest Early factor
+    # the search takes the drift at the highest Early factor the node allows
+    ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
+    q = early_factor_max(supply, ic_lo, b.re_total, m, hi)
     mid = bias_current(vth, rth, b.re_total, m, 25.0, None, q)
     d = np.zeros(n)
     for tc, beta in _corner_points(req, t):
@@ -498,6 +507,33 @@ def test_common_base_bounds_hold_against_the_engine(rs, rl, vaf, mid, vin):
     zper = thermal_voltage(25.0) / ic_hi * (1.0 + rs / b.RE) + rs
     g = 10 ** (f["gain_inf_db"] / 20)
     assert np.all((g * zper / zc)[ok] <= 1.0), np.max((g * zper / zc)[ok])
+
+
+@pytest.mark.parametrize("req", [
+    Request(topology="ce", supply_v=12.0, load_ohm=1e4, source_ohm=600.0, gain=10.0,
+            f_low_max_hz=50.0, ic_drift_max_pct=10.0),
+    Request(topology="cb", supply_v=12.0, load_ohm=1e4, source_ohm=50.0, gain=20.0),
+    Request(topology="cc", supply_v=9.0, load_ohm=1e3, source_ohm=1e4, builds=2),
+], ids=["ce", "cb", "cc"])
+def test_a_search_split_over_processes_ranks_the_same(monkeypatch, req):
+    # large drawers are searched on two processes, the (R1, R2) pairs dealt out in
+    # turn (optimiser/workers.py); forced here on a 48-value drawer, the ranking must
+    # be the one of the single-process search, design for design
+    import optimiser.search as S
+
+    def ranking(res):
+        return [(S._design_key(d), round(d.score, 12)) for d in res.designs]
+
+    snap = drawer()
+    monkeypatch.setenv("DRAWERFIT_WORKERS", "1")
+    monkeypatch.setattr(S, "PARALLEL_ABOVE", 20)
+    plain = search(req, snap, top=6, misses=0)
+    assert "workers" not in plain.stats
+    monkeypatch.setenv("DRAWERFIT_WORKERS", "2")
+    split = search(req, snap, top=6, misses=0)
+    assert split.stats.get("workers") == 2
+    assert plain.designs and ranking(split) == ranking(plain)
+    assert split.stats["complete"] and split.stats["proven_ranks"] == len(plain.designs)
 
 
 @pytest.mark.parametrize("req", [

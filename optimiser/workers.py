@@ -1,0 +1,120 @@
+"""The branch and bound split over the machine's cores.
+
+The (R1, R2) pairs are dealt out in turn to ``n`` processes (pairs are
+sorted by their bound, so each share holds as many promising pairs as the
+next).  Each process runs the whole branch and bound on its share and keeps
+its ``top``-th best score in a shared array; every process prunes against the
+smallest of them.  That is exact: each entry is the score of ``top`` real
+designs of the drawer, so a node whose bound reaches it holds none of the
+``top`` best, and the best ``top`` of the shares together are the best of the
+drawer.
+
+Processes are started by ``fork`` (the search's arrays are shared, not
+copied); where the platform has no ``fork``, or the drawer is small, the
+search runs in one process.  ``DRAWERFIT_WORKERS`` caps the number of
+processes (1 turns the split off).
+"""
+
+from __future__ import annotations
+
+import math
+import multiprocessing
+import os
+import traceback
+
+__all__ = ["worker_count", "split_branch_and_bound", "merge_stats"]
+
+#: Most processes the split uses unless ``DRAWERFIT_WORKERS`` says otherwise.
+MAX_WORKERS = 2
+
+
+def worker_count(n_values: int, threshold: int) -> int:
+    """How many processes to search a drawer of ``n_values`` resistor values with.
+
+    One below ``threshold`` values (starting processes costs more than it
+    saves on a small drawer), else the usable cores, at most
+    :data:`MAX_WORKERS` or ``DRAWERFIT_WORKERS``.
+    """
+    if n_values <= threshold or "fork" not in multiprocessing.get_all_start_methods():
+        return 1
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except AttributeError:          # not on Linux
+        cores = os.cpu_count() or 1
+    cap = MAX_WORKERS
+    env = os.environ.get("DRAWERFIT_WORKERS", "").strip()
+    if env:
+        try:
+            cap = max(1, int(env))
+        except ValueError:
+            cap = MAX_WORKERS
+    return max(1, min(cores, cap))
+
+
+def merge_stats(into: dict, other: dict) -> None:
+    """Add the counters of ``other`` to ``into`` (in place): numbers are summed,
+    ``pruned`` per key, ``stopped_at_budget`` or-ed, ``open_bound`` the least."""
+    for k, v in other.items():
+        if k == "pruned":
+            pr = into.setdefault("pruned", {})
+            for kk, vv in v.items():
+                pr[kk] = pr.get(kk, 0) + vv
+        elif k == "stopped_at_budget":
+            into[k] = bool(into.get(k)) or bool(v)
+        elif k == "open_bound":
+            into[k] = min(into.get(k, math.inf), v)
+        elif isinstance(v, (int, float)) and not isinstance(v, bool):
+            into[k] = into.get(k, 0) + v
+        else:
+            into.setdefault(k, v)
+
+
+def split_branch_and_bound(run, n: int, stats: dict):
+    """Run ``run(part, shared, stats)`` on ``n`` processes; (designs, pool).
+
+    ``run`` is the branch and bound of one share, ``part`` = (k, n); share 0
+    runs in this process (it drives the progress display), the others in
+    forked children that send back their designs and counters.  A child that
+    fails is re-run here, so a lost process costs time, never a design.
+    The pool of evaluated misses is that of share 0 only (misses are only
+    reported when nothing meets the request, and then all shares are short).
+    """
+    ctx = multiprocessing.get_context("fork")
+    shared = ctx.RawArray("d", [math.inf] * n)
+    children = []
+    for k in range(1, n):
+        recv, send = ctx.Pipe(duplex=False)
+        p = ctx.Process(target=_child, args=(run, (k, n), shared, send), daemon=True)
+        p.start()
+        send.close()
+        children.append((k, p, recv))
+    found, pool = run((0, n), shared, stats)
+    found = list(found)
+    for k, p, recv in children:
+        try:
+            got = recv.recv()
+        except (EOFError, OSError):
+            got = None
+        p.join()
+        if isinstance(got, tuple) and got[0] == "ok":
+            _, designs, sub = got
+        elif isinstance(got, tuple) and got[0] == "error":
+            raise RuntimeError(f"search share {k} of {n} failed:\n{got[1]}")
+        else:                       # the child died: search its share here
+            sub = {"pruned": {}}
+            designs, _ = run((k, n), None, sub)
+        found.extend(designs)
+        merge_stats(stats, sub)
+    stats["workers"] = n
+    return found, pool
+
+
+def _child(run, part, shared, conn) -> None:
+    try:
+        sub: dict = {"pruned": {}}
+        designs, _ = run(part, shared, sub)
+        conn.send(("ok", designs, sub))
+    except BaseException:               # noqa: BLE001 (reported to the parent)
+        conn.send(("error", traceback.format_exc()))
+    finally:
+        conn.close()
