@@ -331,6 +331,11 @@ class _Job:
         self.tb = TOTALS_BLOCK if self.etot.size > 4 * TOTALS_BLOCK else 1
         self.q_lo, self.q_hi = early_bounds(V, model)
         self.corners = _corner_points(request, t)
+        # the bias current rises with the temperature and with β, so every corner's
+        # current lies between those of the (coldest, β_min) and (hottest, β_max)
+        # corners, and so does its distance from any value between them: the drift
+        # bound needs only these two
+        self.drift_corners = [self.corners[0], self.corners[-1]]
         self.rel = DRIFT_REL_SLACK * (V + 1.0) / model.vaf if math.isfinite(model.vaf) else 0.0
         self.rc_vals = rv if self.topo != "cc" else np.concatenate([[0.0], rv])
         self.rc_best = rbest if self.topo != "cc" else np.concatenate([[np.inf], rbest])
@@ -449,6 +454,9 @@ class _Job:
             # the collector drop its gain needs, against the headroom
             e = self._cb_hd2(ic_hi[s], r_small[s], r_big[s])
             if self.win is not None:
+                # (B16 alone first: it is the cheaper, and it discards most)
+                keep = lb_s + e < upper
+                s, lb_s, e = s[keep], lb_s[keep], e[keep]
                 from optimiser.device import thermal_voltage
                 rs = float(self.request.source_ohm or 0.0)
                 with np.errstate(divide="ignore", invalid="ignore"):
@@ -489,7 +497,7 @@ class _Job:
         q_d = q_top[s]              # (from the current at the least Early factor: B2 tested so)
         ic_mid = bias_current(vs, rs_, rb, model, 25.0, None, q_d)
         d = np.zeros_like(ic_mid)
-        for tc, b in self.corners:
+        for tc, b in self.drift_corners:
             icc = bias_current(vs, rs_, rb, model, tc, b, q_d)
             with np.errstate(divide="ignore", invalid="ignore"):
                 d = np.maximum(d, np.abs(icc - ic_mid) / ic_mid * 100.0)
@@ -1185,7 +1193,7 @@ TOTAL_BIN = 0.05
 
 
 def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
-                   progress=None, budget_s: float | None = None):
+                   progress=None, budget_s: float | None = None, given=None, workers=None):
     """Steps 2–5 as a best-first branch and bound; (designs, pool of evaluated misses).
 
     The branch and bound runs first with an aspiration level: every node whose
@@ -1196,7 +1204,8 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     This only makes the search faster: the designs returned are the same.
     """
     t_start = time.perf_counter()
-    seeds = _seed_designs(request, snapshot, top, stats, budget_s)
+    seeds = list(given) if given is not None else _seed_designs(request, snapshot, top, stats,
+                                                                budget_s)
     opts = StockOptions(snapshot, request.builds, request.allow_combos)
     ts = _transistors(request, snapshot)
     jobs = [_Job(request, opts, t, f, stats) for t in ts for f in FORMS[request.topology]
@@ -1204,8 +1213,9 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     found, pool = [], []
     # with top designs already in hand the score to beat is known: no aspiration
     levels = (math.inf,) if len(seeds) >= top else ASPIRATION + (math.inf,)
-    n_values = np.unique([r.value for r in snapshot.resistors]).size
-    workers = worker_count(n_values, PARALLEL_ABOVE)
+    if workers is None:
+        n_values = np.unique([r.value for r in snapshot.resistors]).size
+        workers = worker_count(n_values, PARALLEL_ABOVE)
     for cap in levels:
         left = None if budget_s is None else max(budget_s - (time.perf_counter() - t_start), 0.0)
 
@@ -1250,6 +1260,8 @@ def _distinct(designs: list[Design]) -> list[Design]:
 #: designs of the whole drawer too and give the full search its score to beat.
 SEED_ABOVE = 160
 SEED_VALUES = 100
+#: ... and then around the designs found there, within this many values of theirs.
+POLISH_STEPS = 2
 
 
 def _seed_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
@@ -1269,10 +1281,27 @@ def _seed_designs(request: Request, snapshot: StockSnapshot, top: int, stats: di
     keep = set(values[::k].tolist())
     thin = replace(snapshot, resistors=tuple(r for r in snapshot.resistors if r.value in keep))
     sub = {"pruned": {}}
+    workers = worker_count(values.size, PARALLEL_ABOVE)
     seeds, _ = search_designs(request, thin, top, sub, None,
-                              None if budget_s is None else budget_s / 4)
+                              None if budget_s is None else budget_s / 4, workers=workers)
     stats["seed_designs"] = len(seeds)
     stats["seed_values"] = len(keep)
+    if len(seeds) >= top:
+        # then the drawer around them: every value within POLISH_STEPS of a value
+        # the seeds use, searched with the seeds as the score to beat
+        used = np.array(sorted({v for d in seeds for r, v in d.values().items()
+                                if not r.startswith("C")}))
+        at = np.searchsorted(values, used)
+        near = set()
+        for i in at:
+            near.update(values[max(i - POLISH_STEPS, 0):i + POLISH_STEPS + 1].tolist())
+        if len(near) < values.size:
+            local = replace(snapshot, resistors=tuple(r for r in snapshot.resistors
+                                                      if r.value in near))
+            seeds, _ = search_designs(request, local, top, {"pruned": {}}, None,
+                                      None if budget_s is None else budget_s / 4, given=seeds,
+                                      workers=workers)
+            stats["seed_polish_values"] = len(near)
     return seeds
 
 
