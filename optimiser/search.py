@@ -482,7 +482,11 @@ class _Job:
             h = np.maximum(h, e)
             # B12: gain, distortion and headroom together, over every RC and split
             # (ce only: for cb, B16 and B15 already hold nearly all of it, measured)
-            live = (lb_s + h < upper) & (self.topo == "ce")
+            # (and only on wide spans: where the unbypassed RE is nearly known, B14 and
+            # B15 hold all of it — measured on the E96 drawer, B12 then discarded nothing)
+            wide = self.topo == "ce" and (np.ndim(re_bounds[3]) > 0
+                                          or re_bounds[3] > B12_WIDTH)
+            live = (lb_s + h < upper) & wide
             h[live] = np.maximum(h[live], self._floor(
                 P[s[live]], ic_lo[s[live]], ic_hi[s[live]], ic_lo[s[live]] * r_small[s[live]],
                 cut=upper - lb_s[live]))
@@ -534,6 +538,14 @@ class _Job:
             with np.errstate(invalid="ignore"):
                 g_hi = per_z * z_max
             short = self._gain_shortfall(np.nan_to_num(g_hi, nan=0.0))
+            # the rest only where this cheap part leaves the node under ``upper``
+            out = np.full(short.shape, np.inf)
+            li = np.flatnonzero(lb + short < upper)
+            if li.size == 0:
+                return out
+            P, ic_lo, ic_hi, re_lo, re_hi, lb, r_small, z_max, per_z, short, start = (
+                np.asarray(x)[li] for x in (P, ic_lo, ic_hi, re_lo, re_hi, lb, r_small, z_max,
+                                            per_z, short, start))
             # B15: the collector drop that gain needs, against the headroom
             with np.errstate(divide="ignore", invalid="ignore"):
                 short = np.maximum(short, self._gain_headroom(1.0 / per_z, ic_lo,
@@ -552,6 +564,8 @@ class _Job:
                 re_hi = self.largest_re_below(start, width, cap)
                 short = np.where(np.isnan(re_hi), np.inf, short)
                 re_hi = np.nan_to_num(re_hi, nan=0.0)
+            out[li] = short + self._junction_hd2(P, ic_hi, re_hi, z_max)
+            return out
         return short + self._junction_hd2(P, ic_hi, re_hi, z_max)
 
     def _ce_slowdown(self, P, ic_hi, z):
@@ -879,13 +893,16 @@ class _Job:
                 g_lo = np.maximum(g_lo, request.gain / 10 ** span)
                 g_hi = np.minimum(g_hi, request.gain * 10 ** span)
             rl = request.load_ohm
-            # (ce: plus the feed-forward through C_μ at mid_hz, which carries the
-            # gain of heavily degenerated stages at high frequencies)
-            w_cmu = 2.0 * math.pi * float(request.mid_hz) * float(model.cjc) if topo == "ce" \
-                else 0.0
+            # the gain per ohm of collector load is at most that of _gain_head_at (B6;
+            # ce: with the input divider and the feed-forward through C_μ at mid_hz,
+            # cb: with the source against the emitter node), so Z' ≥ g_lo/per_z
+            rs0 = float(request.source_ohm or 0.0)
             with np.errstate(divide="ignore", invalid="ignore"):
-                x = g_lo / GAIN_BOUND_MARGIN / (
-                    1.0 / (vt / ic_hi + (REv if topo == "ce" else 0.0)) + w_cmu)
+                if topo == "ce":
+                    per_z = self._ce_per_z(P, ic_lo, ic_hi, REv, REv)
+                else:
+                    per_z = GAIN_BOUND_MARGIN / (vt / ic_hi * (1.0 + rs0 / REv) + rs0)
+                x = g_lo / per_z
                 rc_min = x if not rl else np.where(x < rl, x * rl / (rl - x), np.inf)
             rc_min = np.nan_to_num(rc_min, nan=np.inf)
             n0 = np.minimum(np.searchsorted(self.rc_vals, rc_min * (1 - 1e-9), side="left"), nrc)
@@ -1188,12 +1205,16 @@ TOTALS_BLOCK = 8
 #: Aspiration levels of the score (search_designs); the last run is unbounded.
 ASPIRATION = (0.5, 1.0, 2.0, 4.0)
 SPAN_BLOCKS = 8
+#: B12 (the junction floor over every RC and split) only on spans of more emitter
+#: options than this.
+B12_WIDTH = 64
 #: Relative width of the bins of DC emitter totals the options are sorted in.
 TOTAL_BIN = 0.05
 
 
 def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
-                   progress=None, budget_s: float | None = None, given=None, workers=None):
+                   progress=None, budget_s: float | None = None, given=None, workers=None,
+                   finish: bool = True):
     """Steps 2–5 as a best-first branch and bound; (designs, pool of evaluated misses).
 
     The branch and bound runs first with an aspiration level: every node whose
@@ -1233,7 +1254,8 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
             break
         stats["aspiration_rounds"] = stats.get("aspiration_rounds", 0) + 1
     found = found[:top]
-    _large_signal(request, snapshot, found)
+    if finish:              # (seed searches leave it to the search they seed)
+        _large_signal(request, snapshot, found)
     for r, d in enumerate(found, 1):
         d.rank = r
     return found, pool
@@ -1283,7 +1305,8 @@ def _seed_designs(request: Request, snapshot: StockSnapshot, top: int, stats: di
     sub = {"pruned": {}}
     workers = worker_count(values.size, PARALLEL_ABOVE)
     seeds, _ = search_designs(request, thin, top, sub, None,
-                              None if budget_s is None else budget_s / 4, workers=workers)
+                              None if budget_s is None else budget_s / 4, workers=workers,
+                              finish=False)
     stats["seed_designs"] = len(seeds)
     stats["seed_values"] = len(keep)
     if len(seeds) >= top:
@@ -1300,7 +1323,7 @@ def _seed_designs(request: Request, snapshot: StockSnapshot, top: int, stats: di
                                                       if r.value in near))
             seeds, _ = search_designs(request, local, top, {"pruned": {}}, None,
                                       None if budget_s is None else budget_s / 4, given=seeds,
-                                      workers=workers)
+                                      workers=workers, finish=False)
             stats["seed_polish_values"] = len(near)
     return seeds
 
