@@ -49,6 +49,23 @@ def test_sensible_request_passes_the_checks():
                           f_low_max_hz=50, f_high_min_hz=1e5), drawer())
 
 
+def test_wright_omega_matches_scipy():
+    # the bias solves' omega function (two Newton steps above z = 8) against
+    # scipy.special.wrightomega, a general-purpose reference, from -40 to 2000
+    from scipy.special import wrightomega
+
+    from optimiser.prune import wright_omega
+
+    z = np.concatenate([np.linspace(-40.0, 2000.0, 200001), [7.999, 8.0, 8.001]])
+    ref = np.real(wrightomega(z))
+    got = wright_omega(z)
+    assert np.max(np.abs(got / ref - 1.0)) < 1e-14
+    # shapes and the non-finite ends as scipy has them
+    assert wright_omega(np.full((2, 3), 50.0)).shape == (2, 3)
+    assert wright_omega(np.inf) == np.inf and np.isnan(wright_omega(np.nan))
+    assert wright_omega(-np.inf) == 0.0
+
+
 def test_bias_current_brackets_the_engine():
     # bound B1: I_C at the two extreme Early factors brackets the full model's I_C
     rng = np.random.default_rng(3)
