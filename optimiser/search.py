@@ -253,10 +253,19 @@ def _range_query(table: list[np.ndarray], a, b, op) -> np.ndarray:
     a, b = np.asarray(a), np.asarray(b)
     n = b - a + 1
     lev = np.floor(np.log2(np.maximum(n, 1))).astype(int)
-    out = np.empty(a.shape)
-    for k in np.unique(lev):
-        m = lev == k
-        out[m] = op(table[k][a[m]], table[k][b[m] - (1 << int(k)) + 1])
+    if lev.size == 0:
+        return np.empty(a.shape)
+    # the spans of one call nearly all have one length (aligned runs; only the last
+    # run of a pair is shorter): that level at once, the few others one by one
+    k = int(lev.max())
+    out = op(table[k][np.minimum(a, table[k].size - 1)],
+             table[k][np.clip(b - (1 << k) + 1, 0, table[k].size - 1)])
+    rest = np.flatnonzero(lev != k)
+    if rest.size:
+        lr = lev[rest]
+        for kk in np.unique(lr):
+            m = rest[lr == kk]
+            out[m] = op(table[kk][a[m]], table[kk][b[m] - (1 << int(kk)) + 1])
     return out
 
 
