@@ -5,6 +5,7 @@ from __future__ import annotations
 from importlib import resources
 
 import numpy as np
+import pytest
 
 from inventory.store import open_store
 from optimiser.evaluate import evaluate
@@ -37,9 +38,14 @@ def _e24_drawer():
     return StockSnapshot(tuple(res), tuple(caps), (t,))
 
 
-def test_stopped_search_says_so_and_returns_only_valid_designs():
+@pytest.mark.parametrize("split", [False, True], ids=["one process", "two processes"])
+def test_stopped_search_says_so_and_returns_only_valid_designs(monkeypatch, split):
+    import optimiser.search as S
     from optimiser.request import Request
 
+    if split:       # the drawer searched on two processes (optimiser/workers.py)
+        monkeypatch.setattr(S, "PARALLEL_ABOVE", 20)
+        monkeypatch.setenv("DRAWERFIT_WORKERS", "2")
     snap = _e24_drawer()
     request = Request(topology="ce", supply_v=12.0, load_ohm=10e3, source_ohm=600.0, gain=10.0,
                       f_low_max_hz=50.0, f_high_min_hz=100e3, ic_drift_max_pct=10.0,
@@ -47,6 +53,7 @@ def test_stopped_search_says_so_and_returns_only_valid_designs():
     res = search(request, snap, top=3, misses=0, time_limit_s=0.2)
     st = res.stats
     assert st["complete"] is False
+    assert st.get("workers", 1) == (2 if split else 1)
     assert 0 <= st["proven_ranks"] <= len(res.designs)
     js = res.to_json()["search"]
     assert js["complete"] is False and js["proven_ranks"] == st["proven_ranks"]
