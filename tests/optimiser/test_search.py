@@ -534,20 +534,27 @@ def test_common_base_bounds_hold_against_the_engine(rs, rl, vaf, mid, vin):
     assert np.all((g * zper / zc)[ok] <= 1.0), np.max((g * zper / zc)[ok])
 
 
-@pytest.mark.parametrize("req", [
+#: One request per topology for the checks that a faster way of searching (seeds,
+#: two processes) ranks exactly as the plain search does.
+SAME_RANKING_REQUESTS = pytest.mark.parametrize("req", [
     Request(topology="ce", supply_v=12.0, load_ohm=1e4, source_ohm=600.0, gain=10.0,
             f_low_max_hz=50.0, ic_drift_max_pct=10.0),
     Request(topology="cb", supply_v=12.0, load_ohm=1e4, source_ohm=50.0, gain=20.0),
     Request(topology="cc", supply_v=9.0, load_ohm=1e3, source_ohm=1e4, builds=2),
 ], ids=["ce", "cb", "cc"])
+
+
+def _ranking(res):
+    import optimiser.search as S
+    return [(S._design_key(d), round(d.score, 12)) for d in res.designs]
+
+
+@SAME_RANKING_REQUESTS
 def test_a_search_split_over_processes_ranks_the_same(monkeypatch, req):
     # large drawers are searched on two processes, the (R1, R2) pairs dealt out in
     # turn (optimiser/workers.py); forced here on a 48-value drawer, the ranking must
     # be the one of the single-process search, design for design
     import optimiser.search as S
-
-    def ranking(res):
-        return [(S._design_key(d), round(d.score, 12)) for d in res.designs]
 
     snap = drawer()
     monkeypatch.setenv("DRAWERFIT_WORKERS", "1")
@@ -557,24 +564,16 @@ def test_a_search_split_over_processes_ranks_the_same(monkeypatch, req):
     monkeypatch.setenv("DRAWERFIT_WORKERS", "2")
     split = search(req, snap, top=6, misses=0)
     assert split.stats.get("workers") == 2
-    assert plain.designs and ranking(split) == ranking(plain)
+    assert plain.designs and _ranking(split) == _ranking(plain)
     assert split.stats["complete"] and split.stats["proven_ranks"] == len(plain.designs)
 
 
-@pytest.mark.parametrize("req", [
-    Request(topology="ce", supply_v=12.0, load_ohm=1e4, source_ohm=600.0, gain=10.0,
-            f_low_max_hz=50.0, ic_drift_max_pct=10.0),
-    Request(topology="cb", supply_v=12.0, load_ohm=1e4, source_ohm=50.0, gain=20.0),
-    Request(topology="cc", supply_v=9.0, load_ohm=1e3, source_ohm=1e4, builds=2),
-], ids=["ce", "cb", "cc"])
+@SAME_RANKING_REQUESTS
 def test_seeding_from_a_thinned_drawer_changes_nothing(monkeypatch, req):
     # large drawers are first searched thinned to every k-th value, and those designs
     # are the score to beat; forced here on a 48-value drawer, the ranking must be
     # the one of the plain search, design for design
     import optimiser.search as S
-
-    def ranking(res):
-        return [(S._design_key(d), round(d.score, 12)) for d in res.designs]
 
     snap = drawer()
     plain = search(req, snap, top=6, misses=0)
@@ -582,7 +581,7 @@ def test_seeding_from_a_thinned_drawer_changes_nothing(monkeypatch, req):
     monkeypatch.setattr(S, "SEED_VALUES", 12)
     seeded = search(req, snap, top=6, misses=0)
     assert seeded.stats.get("seed_designs", 0) > 0
-    assert plain.designs and ranking(seeded) == ranking(plain)
+    assert plain.designs and _ranking(seeded) == _ranking(plain)
 
 
 @pytest.mark.parametrize("rs, rl, vaf, mid, vin", [
