@@ -22,6 +22,8 @@ import multiprocessing
 import os
 import traceback
 
+from inventory.errors import InputError
+
 __all__ = ["worker_count", "split_branch_and_bound", "merge_stats"]
 
 #: Most processes the split uses unless ``DRAWERFIT_WORKERS`` says otherwise.
@@ -35,20 +37,29 @@ def worker_count(n_values: int, threshold: int) -> int:
     saves on a small drawer), else the usable cores, at most
     :data:`MAX_WORKERS` or ``DRAWERFIT_WORKERS``.
     """
+    cap = _env_cap()
     if n_values <= threshold or "fork" not in multiprocessing.get_all_start_methods():
         return 1
     try:
         cores = len(os.sched_getaffinity(0))
     except AttributeError:          # not on Linux
         cores = os.cpu_count() or 1
-    cap = MAX_WORKERS
-    env = os.environ.get("DRAWERFIT_WORKERS", "").strip()
-    if env:
-        try:
-            cap = max(1, int(env))
-        except ValueError:
-            cap = MAX_WORKERS
     return max(1, min(cores, cap))
+
+
+def _env_cap() -> int:
+    """``DRAWERFIT_WORKERS`` (a whole number ≥ 1), else :data:`MAX_WORKERS`."""
+    env = os.environ.get("DRAWERFIT_WORKERS", "").strip()
+    if not env:
+        return MAX_WORKERS
+    try:
+        cap = int(env)
+    except ValueError:
+        cap = 0
+    if cap < 1:
+        raise InputError(f"{env!r} is not a number of processes (a whole number, 1 or more)",
+                         field="DRAWERFIT_WORKERS")
+    return cap
 
 
 def merge_stats(into: dict, other: dict) -> None:
