@@ -285,8 +285,8 @@ class _Job:
     (docs/search.md, bounds B1–B6).
     """
 
-    def __init__(self, request: Request, opts: StockOptions, t: Transistor, form, stats: dict):
-        from optimiser.dc import thevenin
+    def __init__(self, request: Request, opts: StockOptions, t: Transistor, form, stats: dict,
+                 cache: dict | None = None):
         from optimiser.device import device_from_transistor
         from optimiser.prune import early_bounds
 
@@ -296,47 +296,20 @@ class _Job:
         self.model = model = device_from_transistor(t)
         rv = self.rv = opts.resistor.values
         rbest = opts.resistor.best_rating
-        i1, i2 = np.meshgrid(np.arange(rv.size), np.arange(rv.size), indexing="ij")
-        i1, i2 = i1.ravel(), i2.ravel()
-        R1, R2 = rv[i1], rv[i2]
-        vth, rth = thevenin(V, R1, R2)
-        # B4: R1 dissipates at least (V − V_TH)²/R1 because V_B ≤ V_TH
-        keep = (V - vth) ** 2 / R1 <= RESISTOR_DERATING * rbest[i1] * (1 + 1e-9)
-        self.count("pairs", (~keep).sum())
-        R1, R2, vth, rth = R1[keep], R2[keep], vth[keep], rth[keep]
-        # B5: the divider current alone costs V/(R1+R2)/10 mA of score
-        plb = V / (R1 + R2) / 10e-3
-        o = np.argsort(plb, kind="stable")
-        self.R1, self.R2, self.vth, self.rth, self.plb = R1[o], R2[o], vth[o], rth[o], plb[o]
         self.win = gain_window(request)
-        if self.topo == "cc":
-            # B13 at the pair: the divider alone caps a follower's gain
-            short = self._gain_shortfall(self._follower_gain_max(np.arange(self.R1.size)))
-            keep = np.isfinite(short)
-            self.count("pairs", (~keep).sum())
-            plb = self.plb[keep] + short[keep]
-            o = np.argsort(plb, kind="stable")
-            self.R1, self.R2, self.vth, self.rth = (x[keep][o] for x in
-                                                    (self.R1, self.R2, self.vth, self.rth))
-            self.plb = plb[o]
-        # the emitter options (RE, RE_BYP), sorted by the DC total (B7) and then RE;
-        # each option is a bias node of its own, so that its unbypassed RE is known
-        # (bounds B6, B14, B15)
-        re_a, byp_a = _emitter_options(self.topo, form, rv)
-        tot = re_a + byp_a
-        bins = np.floor(np.log(np.maximum(tot, 1e-300)) / math.log1p(TOTAL_BIN))
-        o = np.lexsort((tot, re_a, bins))
-        self.re_a, self.byp_a = re_a[o], byp_a[o]
-        self.etot = self.re_a + self.byp_a
-        # the totals are sorted, and so is RE where it is the total (or zero): range
-        # tables only for the RE of the partly bypassed form
-        self._sorted = {k: bool(np.all(np.diff(x) >= 0))
-                        for k, x in (("tot", self.etot), ("re", self.re_a))}
-        self._tables = {k: (_range_table(x, np.minimum), _range_table(x, np.maximum))
-                        for k, x in (("tot", self.etot), ("re", self.re_a))
-                        if not self._sorted[k]}
-        self.re_vals, self._re_idx = np.unique(self.re_a, return_inverse=True)
-        self._re_keys: dict[int, np.ndarray] = {}
+        # what does not depend on the transistor is built once per search (``cache``)
+        cache = {} if cache is None else cache
+        if "pairs" not in cache:
+            cache["pairs"] = self._pairs()
+        self.R1, self.R2, self.vth, self.rth, self.plb, pruned = cache["pairs"]
+        self.count("pairs", pruned)
+        if ("options", form) not in cache:
+            cache[("options", form)] = self._options(form)
+        (self.re_a, self.byp_a, self.etot, self._sorted, self._tables, self.re_vals,
+         self._re_idx, self._re_keys) = cache[("options", form)]
+        if "stock" not in cache:
+            cache["stock"] = self._stock()
+        self.units, self.maxq, self.virtual = cache["stock"]
         self.tb = TOTALS_BLOCK if self.etot.size > 4 * TOTALS_BLOCK else 1
         self.q_lo, self.q_hi = early_bounds(V, model)
         self.corners = _corner_points(request, t)
@@ -348,20 +321,71 @@ class _Job:
         self.rel = DRIFT_REL_SLACK * (V + 1.0) / model.vaf if math.isfinite(model.vaf) else 0.0
         self.rc_vals = rv if self.topo != "cc" else np.concatenate([[0.0], rv])
         self.rc_best = rbest if self.topo != "cc" else np.concatenate([[np.inf], rbest])
-        # pieces-per-copy each resistor value can give (single pieces; rows pooled)
+        self.t_empty = float(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
+
+    def _pairs(self):
+        """(R1, R2, V_TH, R_TH, bound, pairs pruned): the (R1, R2) pairs the ratings
+        allow, sorted by their bound (B4, B5; B13 for a follower)."""
+        from optimiser.dc import thevenin
+
+        V, rv, rbest = self.V, self.rv, self.opts.resistor.best_rating
+        i1, i2 = np.meshgrid(np.arange(rv.size), np.arange(rv.size), indexing="ij")
+        i1, i2 = i1.ravel(), i2.ravel()
+        R1, R2 = rv[i1], rv[i2]
+        vth, rth = thevenin(V, R1, R2)
+        # B4: R1 dissipates at least (V − V_TH)²/R1 because V_B ≤ V_TH
+        keep = (V - vth) ** 2 / R1 <= RESISTOR_DERATING * rbest[i1] * (1 + 1e-9)
+        pruned = int((~keep).sum())
+        R1, R2, vth, rth = R1[keep], R2[keep], vth[keep], rth[keep]
+        # B5: the divider current alone costs V/(R1+R2)/10 mA of score
+        plb = V / (R1 + R2) / 10e-3
+        o = np.argsort(plb, kind="stable")
+        R1, R2, vth, rth, plb = R1[o], R2[o], vth[o], rth[o], plb[o]
+        if self.topo == "cc":
+            # B13 at the pair: the divider alone caps a follower's gain
+            self.rth = rth
+            short = self._gain_shortfall(self._follower_gain_max(np.arange(R1.size)))
+            keep = np.isfinite(short)
+            pruned += int((~keep).sum())
+            plb = plb[keep] + short[keep]
+            o = np.argsort(plb, kind="stable")
+            R1, R2, vth, rth = (x[keep][o] for x in (R1, R2, vth, rth))
+            plb = plb[o]
+        return R1, R2, vth, rth, plb, pruned
+
+    def _options(self, form):
+        """The emitter options (RE, RE_BYP) of ``form``, sorted by the DC total (B7)
+        and then RE, with what the span queries need.  Each option is a bias node of
+        its own, so that its unbypassed RE is known (bounds B6, B14, B15)."""
+        re_a, byp_a = _emitter_options(self.topo, form, self.rv)
+        tot = re_a + byp_a
+        bins = np.floor(np.log(np.maximum(tot, 1e-300)) / math.log1p(TOTAL_BIN))
+        o = np.lexsort((tot, re_a, bins))
+        re_a, byp_a = re_a[o], byp_a[o]
+        etot = re_a + byp_a
+        # the totals are sorted, and so is RE where it is the total (or zero): range
+        # tables only for the RE of the partly bypassed form
+        srt = {k: bool(np.all(np.diff(x) >= 0)) for k, x in (("tot", etot), ("re", re_a))}
+        tables = {k: (_range_table(x, np.minimum), _range_table(x, np.maximum))
+                  for k, x in (("tot", etot), ("re", re_a)) if not srt[k]}
+        re_vals, re_idx = np.unique(re_a, return_inverse=True)
+        return re_a, byp_a, etot, srt, tables, re_vals, re_idx, {}
+
+    def _stock(self):
+        """Per resistor value: pieces per copy (rows pooled; inf with joined pairs),
+        the largest row, and whether it may be bought (a virtual row)."""
+        opts, rv = self.opts, self.rv
         units = np.zeros(rv.size)
         for k, v in enumerate(rv):
             rows = opts.rows_of("resistor", v)
             units[k] = sum(opts.rows[i].qty // opts.builds for i in rows) if rows else np.inf
             if opts.allow_combos:
                 units[k] = np.inf       # a joined pair may stand in: no cheap count
-        self.units = units
-        # largest row of each value, and whether a value may be bought (virtual row)
-        self.maxq = np.array([max((opts.rows[i].qty for i in opts.rows_of("resistor", v)),
-                                  default=0) for v in rv], dtype=float)
-        self.virtual = np.array([any((opts.rows[i].id is not None and opts.rows[i].id < 0)
-                                     for i in opts.rows_of("resistor", v)) for v in rv])
-        self.t_empty = float(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
+        maxq = np.array([max((opts.rows[i].qty for i in opts.rows_of("resistor", v)),
+                             default=0) for v in rv], dtype=float)
+        virtual = np.array([any((opts.rows[i].id is not None and opts.rows[i].id < 0)
+                                for i in opts.rows_of("resistor", v)) for v in rv])
+        return units, maxq, virtual
 
     def span(self, key: str, a, b):
         """Least and largest of ``key`` ("tot": DC emitter total, "re": unbypassed
@@ -1241,7 +1265,8 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
                                                                 budget_s)
     opts = StockOptions(snapshot, request.builds, request.allow_combos)
     ts = _transistors(request, snapshot)
-    jobs = [_Job(request, opts, t, f, stats) for t in ts for f in FORMS[request.topology]
+    cache: dict = {}            # what the jobs share (pairs, emitter options, stock)
+    jobs = [_Job(request, opts, t, f, stats, cache) for t in ts for f in FORMS[request.topology]
             if opts.resistor.values.size]
     found, pool = [], []
     # with top designs already in hand the score to beat is known: no aspiration
