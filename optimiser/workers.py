@@ -10,8 +10,8 @@ designs of the drawer, so a node whose bound reaches it holds none of the
 drawer.
 
 Processes are started by ``fork`` (the search's arrays are shared, not
-copied); where the platform has no ``fork``, or the drawer is small, the
-search runs in one process.  ``DRAWERFIT_WORKERS`` caps the number of
+copied), on Linux only; elsewhere, or when the drawer is small, the search
+runs in one process.  ``DRAWERFIT_WORKERS`` caps the number of
 processes (1 turns the split off).
 """
 
@@ -20,6 +20,7 @@ from __future__ import annotations
 import math
 import multiprocessing
 import os
+import sys
 import traceback
 
 from inventory.errors import InputError
@@ -38,7 +39,9 @@ def worker_count(n_values: int, threshold: int) -> int:
     :data:`MAX_WORKERS` or ``DRAWERFIT_WORKERS``.
     """
     cap = _env_cap()
-    if n_values <= threshold or "fork" not in multiprocessing.get_all_start_methods():
+    # fork only on Linux (macOS system libraries are not safe to fork; Windows has none)
+    if n_values <= threshold or not sys.platform.startswith("linux") \
+            or "fork" not in multiprocessing.get_all_start_methods():
         return 1
     try:
         cores = len(os.sched_getaffinity(0))
