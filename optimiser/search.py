@@ -1319,8 +1319,11 @@ def _distinct(designs: list[Design]) -> list[Design]:
 #: designs of the whole drawer too and give the full search its score to beat.
 SEED_ABOVE = 160
 SEED_VALUES = 100
-#: ... and then around the designs found there, within this many values of theirs.
+#: ... and then around the best POLISH_AROUND designs found there, within
+#: POLISH_STEPS values of theirs (around the best 3 rather than all 10: E96 medians
+#: ce 12.0 -> 10.2 s, cb 2.28 -> 2.12 s).
 POLISH_STEPS = 2
+POLISH_AROUND = 3
 
 
 def _seed_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
@@ -1347,10 +1350,11 @@ def _seed_designs(request: Request, snapshot: StockSnapshot, top: int, stats: di
     stats["seed_designs"] = len(seeds)
     stats["seed_values"] = len(keep)
     if len(seeds) >= top:
-        # then the drawer around them: every value within POLISH_STEPS of a value
-        # the seeds use, searched with the seeds as the score to beat
-        used = np.array(sorted({v for d in seeds for r, v in d.values().items()
-                                if not r.startswith("C")}))
+        # then the drawer around the best of them: every value within POLISH_STEPS
+        # of a value they use, searched with all the seeds as the score to beat
+        # (each is a design of the whole drawer, in that drawer or not)
+        used = np.array(sorted({v for d in seeds[:POLISH_AROUND]
+                                for r, v in d.values().items() if not r.startswith("C")}))
         at = np.searchsorted(values, used)
         near = set()
         for i in at:
