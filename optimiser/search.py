@@ -490,11 +490,8 @@ class _Job:
                 # (B16 alone first: it is the cheaper, and it discards most)
                 keep = lb_s + e < upper
                 s, lb_s, e = s[keep], lb_s[keep], e[keep]
-                from optimiser.device import thermal_voltage
-                rs = float(self.request.source_ohm or 0.0)
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    zper = (thermal_voltage(25.0) / ic_hi[s] * (1.0 + rs / r_big[s]) + rs) \
-                        / GAIN_BOUND_MARGIN
+                with np.errstate(divide="ignore"):
+                    zper = 1.0 / self._cb_per_z(ic_hi[s], r_big[s])
                 e = e + self._gain_headroom(zper, ic_lo[s], ic_lo[s] * r_small[s])
             keep = lb_s + e < upper
             s, lb_s, e = s[keep], lb_s[keep], e[keep]
@@ -627,6 +624,21 @@ class _Job:
                                 re_hi=re_hi, source_ohm=r.source_ohm, model=self.model,
                                 q_hi=self.q_hi, mid_hz=r.mid_hz) * B15_MARGIN
 
+    def _cb_per_z(self, ic_hi, re):
+        """Largest cb gain per ohm of collector load, with the search's margin:
+        G ≤ Z'/(V_T/I_C,hi·(1 + R_S/RE) + R_S) (the source against the emitter node;
+        tested with the common-base bounds against the engine)."""
+        from optimiser.device import thermal_voltage
+        rs = float(self.request.source_ohm or 0.0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return GAIN_BOUND_MARGIN / (thermal_voltage(25.0) / ic_hi * (1.0 + rs / re) + rs)
+
+    def _per_z(self, P, ic_lo, ic_hi, re):
+        """Largest gain per ohm of collector load of a ce or cb node of unbypassed RE."""
+        if self.topo == "ce":
+            return self._ce_per_z(P, ic_lo, ic_hi, re, re)
+        return self._cb_per_z(ic_hi, re)
+
     def _ce_re_cap(self, P, ic_lo, ic_hi, re_hi, need_per_z):
         """Largest unbypassed RE whose gain per ohm of load (with B15's margin) can
         still reach ``need_per_z``: :func:`optimiser.prune.ce_gain_per_load`
@@ -679,16 +691,15 @@ class _Job:
             zc = RC if not rl else RC * rl / (RC + rl)
             ro = (model.vaf - 1.0) / ic_hi if math.isfinite(model.vaf) else np.inf
             zlo = 1.0 / (1.0 / RC + (1.0 / rl if rl else 0.0) + 1.0 / ro)
+            g_hi = self._per_z(P, ic_lo, ic_hi, RE) * zc
             if self.topo == "ce":
                 rth = self.rth[P]
-                g_hi = self._ce_per_z(P, ic_lo, ic_hi, RE, RE) * zc
                 rpi_max = b * self.q_hi * vt / ic_lo
                 rpi_min = b * self.q_lo * vt / ic_hi
                 rin = rth * (rpi_min + (b + 1) * RE) / (rth + rpi_min + (b + 1) * RE)
                 g_lo = rin / (rin + rs) * b * zlo / (rpi_max + (b + 1) * RE) / GAIN_BOUND_MARGIN \
                     / self._ce_slowdown(P, ic_hi, zc)
             else:
-                g_hi = zc * GAIN_BOUND_MARGIN / (vt / ic_hi * (1.0 + rs / RE) + rs)
                 re_min = vt / ic_hi * b / (b + 1.0)
                 x = RE * re_min / (RE + re_min)
                 g_lo = ic_lo * x * zlo / (vt * (rs + x)) / GAIN_BOUND_MARGIN
@@ -930,13 +941,8 @@ class _Job:
             # the gain per ohm of collector load is at most that of _gain_head_at (B6;
             # ce: with the input divider and the feed-forward through C_μ at mid_hz,
             # cb: with the source against the emitter node), so Z' ≥ g_lo/per_z
-            rs0 = float(request.source_ohm or 0.0)
             with np.errstate(divide="ignore", invalid="ignore"):
-                if topo == "ce":
-                    per_z = self._ce_per_z(P, ic_lo, ic_hi, REv, REv)
-                else:
-                    per_z = GAIN_BOUND_MARGIN / (vt / ic_hi * (1.0 + rs0 / REv) + rs0)
-                x = g_lo / per_z
+                x = g_lo / self._per_z(P, ic_lo, ic_hi, REv)
                 rc_min = x if not rl else np.where(x < rl, x * rl / (rl - x), np.inf)
             rc_min = np.nan_to_num(rc_min, nan=np.inf)
             n0 = np.minimum(np.searchsorted(self.rc_vals, rc_min * (1 - 1e-9), side="left"), nrc)
