@@ -143,7 +143,7 @@ def test_closed_form_gain_bounds_hold_against_the_engine(rs, rl, mid):
     # bounds B6 (upper, with the feed-forward through C_mu at mid_hz) and B11 (lower,
     # ce) of docs/search.md, with the search's margin
     from optimiser.device import thermal_voltage
-    from optimiser.search import GAIN_BOUND_MARGIN
+    from optimiser.search import GAIN_BOUND_MARGIN, LEAST_GAIN_MARGIN
 
     rng = np.random.default_rng(11)
     n = 1500
@@ -173,8 +173,10 @@ def test_closed_form_gain_bounds_hold_against_the_engine(rs, rl, mid):
     w = 2 * np.pi * mid
     rsrc = rs * rth / (rs + rth)
     slow = 1 + w * rsrc * (m.tf * ic_hi / vt + m.cjc * (1 + ic_hi / vt * zc)) + w * zc * m.cjc
-    lower = rin / (rin + rs) * beta * z / (rpi_max + (beta + 1) * b.RE) / GAIN_BOUND_MARGIN / slow
+    lower = rin / (rin + rs) * beta * z / (rpi_max + (beta + 1) * b.RE) / slow
+    # B11 holds without the search's margin (measured: at least 1.0078 of it at 1 kHz)
     assert np.all(g[ok] >= lower[ok]), np.min((g / lower)[ok])
+    assert LEAST_GAIN_MARGIN > 1.0
 
 
 @pytest.mark.parametrize("topo, rs, rl, vin, gdb", [
