@@ -866,13 +866,13 @@ class _Job:
         """Blocks of emitter totals for the pairs ``p``, sorted by their bound.
 
         Runs of emitter options are bounded coarse to fine — runs of
-        TOTALS_BLOCK·SPAN_BLOCKS^k options, the widest first, each surviving run
-        split in SPAN_BLOCKS — down to runs of TOTALS_BLOCK (the same bounds on
-        every level).
+        TOTALS_BLOCK·SPAN_BLOCKS^k options, the widest first (one run holding
+        every option of the form), each surviving run split in SPAN_BLOCKS — down
+        to runs of TOTALS_BLOCK (the same bounds on every level).
         """
         n = self.etot.size
         widths = [self.tb]
-        while widths[0] * SPAN_BLOCKS < n:
+        while widths[0] < n:
             widths.insert(0, widths[0] * SPAN_BLOCKS)
         P, a, span = p, np.zeros(p.size, dtype=int), n
         for width in widths:
