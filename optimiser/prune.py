@@ -69,11 +69,19 @@ def wright_omega(z):
     shape = z.shape
     z = z.ravel()
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        # (in place: on the search's arrays the temporaries cost more than the logs)
         zc = np.clip(z, OMEGA_ITERATE_ABOVE, 1e300)
-        lz = np.log(zc)
-        w = zc - lz + lz / zc
-        for _ in range(2):
-            w = w * (1.0 + zc - np.log(w)) / (1.0 + w)
+        t = np.log(zc)
+        w = t / zc
+        w += zc
+        w -= t
+        for _ in range(2):          # w ← w·(1 + z − ln w)/(1 + w)
+            np.log(w, out=t)
+            np.subtract(zc, t, out=t)
+            t += 1.0
+            t *= w
+            w += 1.0
+            np.divide(t, w, out=w)
     low = ~((z > OMEGA_ITERATE_ABOVE) & np.isfinite(z))
     if low.any():
         w[low] = np.real(wrightomega(z[low]))
@@ -97,14 +105,26 @@ def bias_current(v_th, r_th, r_e, model: DeviceModel, temp_c=25.0, beta=None, q=
     """
     is_t, beta_t = scaled(model, temp_c, beta)
     vt = thermal_voltage(temp_c)
-    v_th = np.asarray(v_th, dtype=float)
-    reff = np.asarray(r_th, dtype=float) / beta_t + np.asarray(r_e, dtype=float) * (q + 1.0 / beta_t)
-    reff = np.maximum(reff, 1e-9)
+    v_th, r_th, r_e, q = (np.asarray(a, dtype=float) for a in (v_th, r_th, r_e, q))
+    shape = np.broadcast_shapes(v_th.shape, r_th.shape, r_e.shape, q.shape, np.shape(is_t),
+                                np.shape(beta_t), np.shape(vt))
+    # (in place where it can be: this runs on every node of the search)
+    reff = np.empty(shape)
+    np.multiply(r_e, q + 1.0 / beta_t, out=reff)
+    reff += r_th / beta_t
+    np.maximum(reff, 1e-9, out=reff)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        z = np.log(reff * is_t / vt) + v_th / vt
-        x = vt / reff * wright_omega(z)
-    x = np.where(np.isfinite(x), x, 0.0)
-    return q * np.maximum(x, 0.0)
+        z = np.multiply(reff, is_t, out=np.empty(shape))
+        z /= vt
+        np.log(z, out=z)
+        z += v_th / vt
+        x = wright_omega(z)
+        np.divide(vt, reff, out=reff)
+        x *= reff
+    x[~np.isfinite(x)] = 0.0
+    np.maximum(x, 0.0, out=x)
+    x *= q
+    return x
 
 
 def midband_estimate(topology: str, *, r1, r2, rc, re, source_ohm, load_ohm, mid_hz, ss):
@@ -385,18 +405,33 @@ def gain_headroom_floor(*, z_per_gain, ic_lo, ve_lo, supply_v, vce_sat, load_ohm
     tol = max(float(tol_db), 1e-3)
     want = HEADROOM_FRACTION * V
     room = V - ve_lo - float(vce_sat)
+    y0 = V - ve_lo - want                   # the drop above which headroom costs
     rl = float(load_ohm) if load_ohm else None
-    best, prev = np.full(ic_lo.shape, np.inf), None
-    for gd in lo_db + (hi_db - lo_db) * np.arange(steps + 1) / steps:
+    # the collector drop at gain G: y = I_C,lo·RC, RC = Z'·R_L/(R_L − Z'), Z' = G·zper,
+    # written y = I_C,lo·R_L/(R_L/(G·zper) − 1) so that each segment end costs little
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        if rl is not None:
+            g = rl / zper
+            top = ic_lo * rl
+        else:
+            inv = 1.0 / zper
+    best, prev = None, None
+    for k in range(steps + 1):
+        gd = lo_db + (hi_db - lo_db) * k / steps
+        c = 10.0 ** (gd / 20.0)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            z = 10.0 ** (gd / 20.0) * zper
-            rc = z if rl is None else np.where(z < rl, z * rl / (rl - z), np.inf)
-            y = ic_lo * rc
-            head = np.where(y <= room, np.maximum(0.0, 1.0 - (V - ve_lo - y) / want), np.inf)
-        head = np.nan_to_num(head, nan=np.inf)
+            if rl is not None:
+                t = g / c - 1.0
+                y = top / t
+                ok = (t > 0) & (y <= room)
+            else:
+                y = ic_lo * c / inv
+                ok = y <= room
+            head = np.where(ok, np.maximum(y - y0, 0.0) / want, np.inf)
         # 1e-3 dB: the score's G∞ and the engine's agree to ~1e-6 dB
         gain = 0.0 if target_db is None else max(float(target_db) - gd - 1e-3, 0.0) / tol
-        best = np.minimum(best, (head if prev is None else prev) + gain)
+        cand = (head if prev is None else prev) + gain
+        best = cand if best is None else np.minimum(best, cand)
         prev = head
     return best
 
