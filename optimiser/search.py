@@ -464,15 +464,15 @@ class _Job:
         # (the emitter takes a part of the supply: early_factor_max)
         q_top = np.zeros(n)
         q_top[s] = early_factor_max(V, ic_lo[s], r_small[s], model, self.q_hi)
-        ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, q_top[s])
         lb_s = lb[s]
         # B2, the drift: three closed-form solves; for ce cheaper than the emitter and
         # junction bounds below and on fine runs the one that discards the most, so
-        # first (measured: a tenth off the E96 search); for cb and cc last, after
-        # their own cheaper bounds
+        # first, before even the top of the current bracket (measured: a tenth off
+        # the E96 search); for cb and cc last, after their own cheaper bounds
         drift_first = self.topo == "ce"
         if drift_first:
             s, lb_s = self._drift_stage(s, lb_s, v_th, r_th, r_big, q_top, d_lb, upper)
+        ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, q_top[s])
         if self.topo == "cc":
             # B13: a follower's gain is at most k_in·A_f, the divider's share of the
             # source (Z_in ≤ R_TH) times RE‖RL over r_e + RE‖RL
