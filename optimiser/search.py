@@ -242,37 +242,6 @@ def _corner_points(request: Request, t: Transistor):
     return [(tc, b) for tc in temps for b in betas]
 
 
-def _range_table(x: np.ndarray, op) -> list[np.ndarray]:
-    """Sparse table of ``op`` (np.minimum or np.maximum) over runs of 2^k of ``x``."""
-    t = [np.asarray(x, dtype=float)]
-    k = 1
-    while 2 * k <= x.size:
-        t.append(op(t[-1][:-k], t[-1][k:]))
-        k *= 2
-    return t
-
-
-def _range_query(table: list[np.ndarray], a, b, op) -> np.ndarray:
-    """``op`` over x[a..b] (inclusive, arrays) from :func:`_range_table`."""
-    a, b = np.asarray(a), np.asarray(b)
-    n = b - a + 1
-    lev = np.floor(np.log2(np.maximum(n, 1))).astype(int)
-    if lev.size == 0:
-        return np.empty(a.shape)
-    # the spans of one call nearly all have one length (aligned runs; only the last
-    # run of a pair is shorter): that level at once, the few others one by one
-    k = int(lev.max())
-    out = op(table[k][np.minimum(a, table[k].size - 1)],
-             table[k][np.clip(b - (1 << k) + 1, 0, table[k].size - 1)])
-    rest = np.flatnonzero(lev != k)
-    if rest.size:
-        lr = lev[rest]
-        for kk in np.unique(lr):
-            m = rest[lr == kk]
-            out[m] = op(table[kk][a[m]], table[kk][b[m] - (1 << int(kk)) + 1])
-    return out
-
-
 def _expand(counts: np.ndarray):
     """(repeat index, offset within its block) for blocks of the given sizes."""
     rep = np.repeat(np.arange(counts.size), counts)
@@ -367,11 +336,10 @@ class _Job:
         o = np.lexsort((tot, re_a, bins))
         re_a, byp_a = re_a[o], byp_a[o]
         etot = re_a + byp_a
-        # the totals are sorted, and so is RE where it is the total (or zero): range
-        # tables only for the RE of the partly bypassed form
+        # where a key is sorted a run's ends are its least and largest; elsewhere
+        # per-run tables, made for each run width when first asked (run_span)
         srt = {k: bool(np.all(np.diff(x) >= 0)) for k, x in (("tot", etot), ("re", re_a))}
-        tables = {k: (_range_table(x, np.minimum), _range_table(x, np.maximum))
-                  for k, x in (("tot", etot), ("re", re_a)) if not srt[k]}
+        tables = {"tot": {}, "re": {}}
         re_vals, re_idx = np.unique(re_a, return_inverse=True)
         return re_a, byp_a, etot, srt, tables, re_vals, re_idx, {}
 
@@ -391,14 +359,20 @@ class _Job:
                                 for i in opts.rows_of("resistor", v)) for v in rv])
         return units, maxq, virtual
 
-    def span(self, key: str, a, b):
+    def run_span(self, key: str, a, width: int):
         """Least and largest of ``key`` ("tot": DC emitter total, "re": unbypassed
-        RE) over the emitter options a..b (inclusive, arrays)."""
+        RE) over the aligned runs of emitter options a .. a + width − 1 (``a`` a
+        multiple of ``width``; the last run may be shorter)."""
+        x = self.etot if key == "tot" else self.re_a
         if self._sorted[key]:
-            x = self.etot if key == "tot" else self.re_a
-            return x[a], x[b]
-        lo, hi = self._tables[key]
-        return _range_query(lo, a, b, np.minimum), _range_query(hi, a, b, np.maximum)
+            return x[a], x[np.minimum(np.asarray(a) + width, x.size) - 1]
+        t = self._tables[key].get(width)
+        if t is None:
+            starts = np.arange(0, x.size, width)
+            t = (np.minimum.reduceat(x, starts), np.maximum.reduceat(x, starts))
+            self._tables[key][width] = t
+        k = np.asarray(a) // width
+        return t[0][k], t[1][k]
 
     def largest_re_below(self, a, width: int, cap) -> np.ndarray:
         """Largest unbypassed RE at most ``cap`` among the emitter options of the
@@ -899,8 +873,8 @@ class _Job:
             live = a < n
             P, a = P[live], a[live]
             b = np.minimum(a + width, n) - 1
-            ok, _, _, _, lb = self._bounds(P, *self.span("tot", a, b), upper,
-                                           (*self.span("re", a, b), a, width))
+            ok, _, _, _, lb = self._bounds(P, *self.run_span("tot", a, width), upper,
+                                           (*self.run_span("re", a, width), a, width))
             self.count("bias_blocks", (b - a + 1)[~ok].sum())
             P, a, b, lb = P[ok], a[ok], b[ok], lb[ok]
             span = width

@@ -474,7 +474,7 @@ def test_returned_designs_carry_the_engines_thd_and_swing():
                                                        rel=1e-9)
 
 
-def test_range_tables_and_largest_re_below_match_brute_force():
+def test_run_spans_and_largest_re_below_match_brute_force():
     # the span queries the bias-level bounds rest on (least/largest over a run of
     # emitter options; the largest unbypassed RE at most a cap in an aligned run)
     from optimiser.options import StockOptions
@@ -486,10 +486,13 @@ def test_range_tables_and_largest_re_below_match_brute_force():
     rng = np.random.default_rng(2)
     n = job.etot.size
     a = rng.integers(0, n, 300)
-    b = np.minimum(a + rng.integers(0, 40, 300), n - 1)
-    lo, hi = job.span("tot", a, b)
-    assert np.array_equal(lo, [job.etot[i:j + 1].min() for i, j in zip(a, b, strict=True)])
-    assert np.array_equal(hi, [job.etot[i:j + 1].max() for i, j in zip(a, b, strict=True)])
+    for width in (8, 32, 512, n):
+        start = a // width * width
+        end = np.minimum(start + width, n)
+        for key, x in (("tot", job.etot), ("re", job.re_a)):
+            lo, hi = job.run_span(key, start, width)
+            assert np.array_equal(lo, [x[i:j].min() for i, j in zip(start, end, strict=True)])
+            assert np.array_equal(hi, [x[i:j].max() for i, j in zip(start, end, strict=True)])
     # options run through bins of the DC total in order, by RE within a bin
     import math
 
