@@ -286,7 +286,10 @@ def test_emitter_distortion_floor_holds_against_the_engine(rs, rl, vaf, mid, vin
     ratio = (h / f["hd2_pct"])[ok] * EMITTER_HD2_MARGIN
     assert ratio.max() <= 1.0 + 1e-9, ratio.max()       # unmargined, to rounding
     assert ratio.max() > 0.99               # tight where there is no feedback
-    assert np.median(ratio) > 0.45
+    # and tight with it: the base current taken at v_be/Z_pi (the emitter's
+    # bootstrapping counted) keeps medians of 0.90-0.97 here, where taking it at
+    # v_b/Z_pi kept 0.49-0.91
+    assert np.median(ratio[b.RE[ok] > 0]) > 0.85
 
 
 @pytest.mark.parametrize("rs, rl, gdb", [(600.0, 1e4, 20.0), (0.0, None, 26.0), (50.0, 2e3, 14.0)])
