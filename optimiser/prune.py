@@ -409,12 +409,10 @@ def gain_headroom_floor(*, z_per_gain, ic_lo, ve_lo, supply_v, vce_sat, load_ohm
     rl = float(load_ohm) if load_ohm else None
     # the collector drop at gain G: y = I_C,lo·RC, RC = Z'·R_L/(R_L − Z'), Z' = G·zper,
     # written y = I_C,lo·R_L/(R_L/(G·zper) − 1) so that each segment end costs little
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        if rl is not None:
+    if rl is not None:
+        with np.errstate(divide="ignore", invalid="ignore"):
             g = rl / zper
-            top = ic_lo * rl
-        else:
-            inv = 1.0 / zper
+        top = ic_lo * rl
     best, prev = None, None
     for k in range(steps + 1):
         gd = lo_db + (hi_db - lo_db) * k / steps
@@ -425,7 +423,7 @@ def gain_headroom_floor(*, z_per_gain, ic_lo, ve_lo, supply_v, vce_sat, load_ohm
                 y = top / t
                 ok = (t > 0) & (y <= room)
             else:
-                y = ic_lo * c / inv
+                y = ic_lo * c * zper
                 ok = y <= room
             head = np.where(ok, np.maximum(y - y0, 0.0) / want, np.inf)
         # 1e-3 dB: the score's G∞ and the engine's agree to ~1e-6 dB
