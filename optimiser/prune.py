@@ -378,20 +378,25 @@ def emitter_hd2_floor(*, ic_hi, r_th, re_hi, z_max, source_ohm, input_vpk, model
 
 
 def gain_headroom_floor(*, z_per_gain, ic_lo, ve_lo, supply_v, vce_sat, load_ohm,
-                        gain_lo_db, target_db, tol_db, steps: int = 8):
+                        gain_lo_db, target_db, tol_db):
     """Lower bound of the score's gain + headroom terms of a ce or cb stage (B15).
 
     A midband gain G (capacitors shorted) needs a collector load Z' = RC‖R_L of at
-    least G·``z_per_gain``: for ce (V_T/I_C,hi + RE_lo)/(k_in·margin) (bound B6 of
+    least X = G·``z_per_gain``: for ce (V_T/I_C,hi + RE_lo)/(k_in·margin) (bound B6 of
     docs/search.md), for cb (V_T/I_C,hi·(1 + R_S/RE_hi) + R_S)/margin (the source
-    against the emitter node).  So the collector drop is y ≥ I_C,lo·RC(G) and the
+    against the emitter node).  So the collector drop is y ≥ I_C,lo·RC(G), and the
     quiescent V_CE ≤ V − ``ve_lo`` − y: the headroom term grows with G while the
-    gain term falls towards the target.  Over ``steps`` segments of the gain
-    range [``gain_lo_db``, target] the sum is at least the gain term at a
-    segment's top plus the headroom term at its bottom; the least over the
-    segments is the bound (above the target both terms grow).  ``target_db``
-    None: no gain term.  inf where no gain in the window leaves the transistor
-    out of saturation (or needs Z' ≥ R_L).
+    gain term falls towards the target.  In the gain g in dB the sum
+    H(g) = max(target − g − 10⁻³ dB, 0)/tol + max(y(g) − y_0, 0)/want is convex
+    (y = I_C,lo·R_L·X/(R_L − X) with X = zper·10^(g/20) is convex in g), so its
+    least value on [``gain_lo_db``, max(gain_lo_db, target)] is taken where
+    dy/dg = want/tol — X_s = 2Q·R_L/(2Q + R_L + √(R_L² + 4Q·R_L)),
+    Q = 20·want/(tol·ln 10·I_C,lo) (X_s = Q without a load) — or where the
+    headroom starts to cost, clipped to the range (above the target both terms
+    grow).  ``target_db`` None: no gain term, the least gain.  inf where no gain
+    in the window leaves the transistor out of saturation (or needs Z' ≥ R_L).
+    (Until 2026-12-02 the least over eight segments of the range, each bounded at
+    its ends: up to 0.02 below this exact least value.)
 
     Arrays broadcast together (ohm, A, V); dB.
     """
@@ -401,37 +406,39 @@ def gain_headroom_floor(*, z_per_gain, ic_lo, ve_lo, supply_v, vce_sat, load_ohm
         *(np.asarray(x, dtype=float) for x in (z_per_gain, ic_lo, ve_lo)))
     V = float(supply_v)
     lo_db = float(gain_lo_db)
-    hi_db = max(lo_db, float(target_db)) if target_db is not None else lo_db
     tol = max(float(tol_db), 1e-3)
     want = HEADROOM_FRACTION * V
-    room = V - ve_lo - float(vce_sat)
+    room = V - ve_lo - float(vce_sat)       # the largest drop: V_CE at vce_sat
     y0 = V - ve_lo - want                   # the drop above which headroom costs
     rl = float(load_ohm) if load_ohm else None
-    # the collector drop at gain G: y = I_C,lo·RC, RC = Z'·R_L/(R_L − Z'), Z' = G·zper,
-    # written y = I_C,lo·R_L/(R_L/(G·zper) − 1) so that each segment end costs little
-    if rl is not None:
-        with np.errstate(divide="ignore", invalid="ignore"):
-            g = rl / zper
-        top = ic_lo * rl
-    best, prev = None, None
-    for k in range(steps + 1):
-        gd = lo_db + (hi_db - lo_db) * k / steps
-        c = 10.0 ** (gd / 20.0)
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            if rl is not None:
-                t = g / c - 1.0
-                y = top / t
-                ok = (t > 0) & (y <= room)
-            else:
-                y = ic_lo * c * zper
-                ok = y <= room
-            head = np.where(ok, np.maximum(y - y0, 0.0) / want, np.inf)
-        # 1e-3 dB: the score's G∞ and the engine's agree to ~1e-6 dB
-        gain = 0.0 if target_db is None else max(float(target_db) - gd - 1e-3, 0.0) / tol
-        cand = (head if prev is None else prev) + gain
-        best = cand if best is None else np.minimum(best, cand)
-        prev = head
-    return best
+    # the gain term is 0 from the target (less the 10^-3 dB slack of the score's G∞
+    # against the engine) on, and the headroom term only grows with the gain
+    top_db = lo_db if target_db is None else max(lo_db, float(target_db) - 1e-3)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        # load X (ohm) at the least gain, at the top of the range, where the drop
+        # reaches y_0 and the room, and where H is stationary
+        x_lo = zper * 10.0 ** (lo_db / 20.0)
+        x_top = zper * 10.0 ** (top_db / 20.0)
+        if rl is None:
+            x0, x_room = y0 / ic_lo, room / ic_lo
+        else:
+            x0 = y0 * rl / (ic_lo * rl + y0)
+            x_room = room * rl / (ic_lo * rl + room)
+        x = np.maximum(x0, x_lo)
+        if target_db is not None:
+            q = 20.0 * want / (tol * np.log(10.0) * ic_lo)
+            x_s = q if rl is None else 2.0 * q * rl / (2.0 * q + rl + np.sqrt(rl * rl + 4.0 * q * rl))
+            x = np.maximum(x, x_s)
+        x = np.minimum(x, np.minimum(x_top, x_room))
+        y = ic_lo * x if rl is None else ic_lo * rl * x / (rl - x)
+        head = np.maximum(y - y0, 0.0) / want
+        gain = 0.0
+        if target_db is not None:
+            gain = np.maximum(float(target_db) - 20.0 * np.log10(x / zper) - 1e-3, 0.0) / tol
+        out = np.maximum(gain + head - 1e-12, 0.0)
+        bad = ~((x_lo <= x_room) & (room > 0) & np.isfinite(x_lo) & (x_lo > 0))
+    # (no current, no drop: only the gain term, 0 at the target)
+    return np.where(ic_lo > 0, np.where(bad, np.inf, out), np.where(room > 0, 0.0, np.inf))
 
 
 def common_base_hd2_floor(*, ic_hi, re_lo, re_hi, source_ohm, input_vpk, model: DeviceModel,

@@ -329,6 +329,39 @@ def test_gain_headroom_floor_holds_against_the_engine(rs, rl, gdb):
     assert (floor[ok] > 0.2).sum() >= 5
 
 
+@pytest.mark.parametrize("rl", [None, 1e4, 2e3])
+@pytest.mark.parametrize("target, g_lo, tol", [(20.0, 19.0, 1.0), (26.0, 14.0, 2.0),
+                                               (None, 18.0, 1.0), (20.0, 20.5, 1.0)])
+def test_gain_headroom_floor_is_the_least_value_over_the_gain_range(rl, target, g_lo, tol):
+    # B15 in closed form (the sum is convex in the gain in dB) against brute force on
+    # 4001 gains: never above any gain's value, never below the bound of 4000
+    # segments (gain term at a segment's top plus headroom at its bottom)
+    from optimiser.prune import gain_headroom_floor
+
+    rng = np.random.default_rng(1)
+    n, V, sat = 2000, 12.0, 0.2
+    zper, ic = 10 ** rng.uniform(1, 3.5, n), 10 ** rng.uniform(-5, -2, n)
+    ve = rng.uniform(0, 8, n)
+    got = gain_headroom_floor(z_per_gain=zper, ic_lo=ic, ve_lo=ve, supply_v=V, vce_sat=sat,
+                              load_ohm=rl, gain_lo_db=g_lo, target_db=target, tol_db=tol)
+    g = np.linspace(g_lo, g_lo if target is None else max(g_lo, target), 4001)
+    x = zper[:, None] * 10 ** (g / 20)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = ic[:, None] * x if rl is None else ic[:, None] * rl * x / (rl - x)
+    ok = (y <= (V - ve - sat)[:, None]) & (x < (rl or np.inf))
+    head = np.where(ok, np.maximum(y - (V - ve - V / 4)[:, None], 0) / (V / 4), np.inf)
+    gain = 0.0 if target is None else np.maximum(target - g - 1e-3, 0) / tol
+    values = head + gain
+    gain_top = 0.0 if target is None else gain[1:]
+    segments = np.minimum(values[:, 0], (head[:, :-1] + gain_top).min(axis=1))
+    fin = np.isfinite(segments)
+    assert np.array_equal(np.isfinite(got), fin)
+    assert fin.sum() > 500
+    assert np.all(got[fin] <= values.min(axis=1)[fin] + 1e-12)
+    assert np.all(got[fin] >= segments[fin] - 1e-12)
+    assert (got[fin] > 0.1).sum() > 50          # and not empty
+
+
 @pytest.mark.parametrize("g_lo, target, tol", [(18.9, 20.0, 1.0), (5.0, 20.0, 3.0),
                                                (21.0, 20.0, 1.0), (19.999, 20.0, 0.5)])
 def test_gain_distortion_minimum_matches_a_dense_grid(g_lo, target, tol):
