@@ -359,7 +359,7 @@ def test_gain_headroom_floor_is_the_least_value_over_the_gain_range(rl, target, 
     assert fin.sum() > 500
     assert np.all(got[fin] <= values.min(axis=1)[fin] + 1e-12)
     assert np.all(got[fin] >= segments[fin] - 1e-12)
-    assert (got[fin] > 0.1).sum() > 50          # and not empty
+    assert (got[fin] > 0.1).sum() > 20          # and not empty
 
 
 @pytest.mark.parametrize("g_lo, target, tol", [(18.9, 20.0, 1.0), (5.0, 20.0, 3.0),
