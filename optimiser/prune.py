@@ -215,8 +215,9 @@ def _solve3(Y, J):
 #: (equality is the limit without feedback); tests/optimiser/test_search.py.
 #: (1.05 until 2026-12-02.)
 JUNCTION_FLOOR_MARGIN = 1.01
-#: Segments of the collector-voltage range that the floor is taken over.
-JUNCTION_FLOOR_STEPS = 8
+#: Newton steps on the cubic of :func:`junction_floor`'s stationary point (from an
+#: upper bound of its root; the tangent there keeps the result a lower bound anyway).
+JUNCTION_FLOOR_NEWTON = 5
 
 
 def _gain_distortion_min(c, g_lo_db, target_db, tol_db):
@@ -242,8 +243,7 @@ def _gain_distortion_min(c, g_lo_db, target_db, tol_db):
 
 
 def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_lo_db,
-                   target_db, tol_db, vce_sat, rc=None, steps=JUNCTION_FLOOR_STEPS,
-                   cut=None, k_in=None):
+                   target_db, tol_db, vce_sat, rc=None, k_in=None):
     """Lower bound of the score's gain + distortion + headroom terms of a ce or cb stage.
 
     For a common-emitter stage whose midband gain with the capacitors shorted
@@ -253,18 +253,28 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
     ``25 %·v̂_in·G²·V_T/(I_C·(R_C‖R_L))²`` — whatever split of the emitter
     resistance gives that gain.  The same holds for a common-base stage, whose
     feedback 1 + g_m·(R_S‖R_E) is at most 1 + R_S/r_e ≈ g_m·Z_c'/G.  A larger
-    I_C·R_C lowers it but eats the headroom V_CE = V − V_E − I_C·R_C.  This function takes the least of the
-    three terms together over every gain G ≥ ``gain_lo_db`` and every
-    collector drop y = I_C·R_C the supply allows (or the given ``rc``), with
-    I_C in [ic_lo, ic_hi] and V_E ≥ ``ve_lo`` (docs/search.md, bound B12).
+    I_C·R_C lowers it but eats the headroom V_CE = V − V_E − I_C·R_C.  This
+    function takes the least of the three terms together over every gain
+    G ≥ ``gain_lo_db`` and every collector drop y = I_C·R_C the supply allows (or
+    the given ``rc``), with I_C in [ic_lo, ic_hi] and V_E ≥ ``ve_lo``
+    (docs/search.md, bound B12).
+
+    Over the gain the least is :func:`_gain_distortion_min` of
+    c(y) = k·(1/y + 1/a)² (a = I_C,hi·R_L), f(c); F(y) = f(c(y)) + headroom(y) is
+    convex in y (f' = u*(c) = clip(K/c, u_lo, u_t) falls with c, and c is
+    log-convex), so its least value is where F' = 0: in closed form where u* = K/c,
+    y² + a·y = 2K·want·a, else the root of the cubic s²(s + 1/a) = 1/(2u·k·want),
+    s = 1/y, with u fixed at u_t or u_lo (Newton from above).  The result is
+    F(y_a) + F'(y_a)·(y − y_a) at the worse end of the range, y_a that point
+    clipped to it — the tangent of a convex function lies below it, so it is a
+    lower bound even where the root is not exact.  (Until 2026-12-02 the least
+    over eight segments of y, each bounded at its ends.)
 
     Arrays broadcast together; volts, amperes, ohms, dB.  Returns the bound
     (inf where no collector resistor leaves the transistor out of saturation).
-    With ``cut`` (an array), entries whose cheaper bound already reaches it
-    return that cheaper bound instead of the full one.  ``k_in`` (ce only) is an
-    upper bound of the input divider R_in/(R_in + R_S), e.g. R_TH/(R_TH + R_S):
-    the feedback relation then reads 1 + g_m·R_E ≤ k_in·g_m·Z_c'/G, and the
-    distortion floor grows by 1/k_in.
+    ``k_in`` (ce only) is an upper bound of the input divider R_in/(R_in + R_S),
+    e.g. R_TH/(R_TH + R_S): the feedback relation then reads
+    1 + g_m·R_E ≤ k_in·g_m·Z_c'/G, and the distortion floor grows by 1/k_in.
     """
     V = float(supply_v)
     ic_lo, ic_hi, ve_lo = np.broadcast_arrays(*(np.asarray(a, dtype=float)
@@ -276,15 +286,9 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
     a = ic_hi * float(load_ohm) if load_ohm else None
 
     def coef(y):
-        aa = a if a is None or np.ndim(y) == np.ndim(a) else a[..., None]
-        kk = k if np.ndim(k) in (0, np.ndim(y)) else k[..., None]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            x = y if aa is None else y * aa / (y + aa)
-            return np.where(x > 0, kk / np.where(x > 0, x, 1.0) ** 2, np.inf)
-
-    def head(y):
-        ve = ve_lo if np.ndim(y) == np.ndim(ve_lo) else ve_lo[..., None]
-        return np.maximum(0.0, 1.0 - (V - y - ve) / want)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            x = y if a is None else y * a / (y + a)
+            return np.where(x > 0, k / np.where(x > 0, x, 1.0) ** 2, np.inf)
 
     def f(c):
         out = np.full(c.shape, np.inf)
@@ -298,31 +302,44 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
         with np.errstate(invalid="ignore"):
             x_hi = ic_hi * rc if a is None else ic_hi * rc * float(load_ohm) / (rc + float(load_ohm))
         c = np.where(x_hi > 0, k / np.where(x_hi > 0, x_hi, 1.0) ** 2, np.inf)
-        return np.where(ic_lo * rc <= y_max, f(c) + head(ic_lo * rc), np.inf)
-    y0 = np.clip(V - want - ve_lo, 0.0, np.maximum(y_max, 0.0))
-    if cut is not None:
-        # cheap first: the floor is at least its value at the largest drop, where the
-        # distortion is least and the headroom not counted; only nodes that this
-        # leaves under ``cut`` get the full floor
-        quick = f(coef(np.maximum(y_max, 0.0)))
-        live = np.flatnonzero((quick < cut) & (y_max > 0))
-        out = np.where(y_max > 0, quick, np.inf)
-        if live.size:
-            out[live] = junction_floor(
-                ic_lo=ic_lo[live], ic_hi=ic_hi[live], ve_lo=ve_lo[live], supply_v=V,
-                load_ohm=load_ohm, input_vpk=input_vpk, gain_lo_db=gain_lo_db,
-                target_db=target_db, tol_db=tol_db, vce_sat=vce_sat, steps=steps,
-                k_in=None if k_in is None else np.broadcast_to(k_in, ic_lo.shape)[live])
-        return out
-    # segment ends y_0 < y_1 < … < y_steps = y_max of the range with a headroom cost,
-    # all at once: shape (n, steps + 1)
-    frac = np.arange(steps + 1) / steps
-    ys = y0[..., None] + (y_max - y0)[..., None] * frac
-    fs = f(coef(ys))
-    best = np.where(y0 > 0, fs[..., 0], np.inf)       # below y_0: no headroom cost
-    seg = fs[..., 1:] + head(ys[..., :-1])
-    best = np.minimum(best, seg.min(axis=-1))
-    return np.where(y_max > 0, best, np.inf)
+        return np.where(ic_lo * rc <= y_max, f(c) + np.maximum(
+            0.0, 1.0 - (V - ic_lo * rc - ve_lo) / want), np.inf)
+    # f's slope u*(c) = clip(K/c, u_lo, u_t) (:func:`_gain_distortion_min`)
+    tol = max(float(tol_db), 1e-3)
+    t = float(target_db)
+    K = 10.0 / (tol * np.log(10.0))
+    u_lo, u_t = 10.0 ** (min(float(gain_lo_db), t) / 10.0), 10.0 ** (t / 10.0)
+    if float(gain_lo_db) > t:           # the whole window above the target: f linear
+        u_lo = u_t = 10.0 ** (float(gain_lo_db) / 10.0)
+    y_head = V - want - ve_lo               # the drop above which headroom costs
+    y0 = np.clip(y_head, 0.0, np.maximum(y_max, 0.0))     # below it F only falls
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        # where F' = 0 with u* = K/c: y² + a·y = 2K·want·a (y = 2K·want without a load)
+        ym = 2.0 * K * want if a is None else \
+            4.0 * K * want * a / (a + np.sqrt(a * a + 8.0 * K * want * a))
+        ym = np.broadcast_to(ym, ic_lo.shape)
+        cm = coef(ym)
+        middle = (cm >= K / u_t) & (cm <= K / u_lo)
+        # elsewhere u* is u_t (small c, large y) or u_lo: s²(s + b) = r, s = 1/y
+        u = np.where(cm < K / u_t, u_t, u_lo)
+        r = 1.0 / (2.0 * u * k * want)
+        s = np.cbrt(r)
+        if a is not None:
+            b = 1.0 / a
+            s = np.minimum(s, np.sqrt(r * a))       # both above the root
+        else:
+            b = 0.0
+        for _ in range(JUNCTION_FLOOR_NEWTON):      # from above: falls to the root
+            s = s - (s * s * (s + b) - r) / (s * (3.0 * s + 2.0 * b))
+        ya = np.clip(np.where(middle, ym, 1.0 / s), y0, np.maximum(y_max, 0.0))
+        ca = coef(ya)
+        fa = f(ca) + np.maximum(ya - y_head, 0.0) / want
+        slope = np.clip(K / ca, u_lo, u_t)
+        inv = 1.0 / ya if a is None else 1.0 / ya + 1.0 / a
+        dfa = 1.0 / want - slope * 2.0 * k * inv / (ya * ya)
+        lb = fa + np.minimum(0.0, np.minimum(dfa * (y0 - ya), dfa * (y_max - ya)))
+        lb = np.where(np.isnan(lb), -np.inf, lb)
+    return np.where(y_max > 0, np.maximum(lb, 0.0), np.inf)
 
 
 #: Relative margin of :func:`emitter_hd2_floor` and :func:`common_base_hd2_floor`

@@ -504,8 +504,7 @@ class _Job:
                                           or B12_TOP >= re_bounds[3] > B12_WIDTH)
             live = (lb_s + h < upper) & wide
             h[live] = np.maximum(h[live], self._floor(
-                P[s[live]], ic_lo[s[live]], ic_hi[s[live]], ic_lo[s[live]] * r_small[s[live]],
-                cut=upper - lb_s[live]))
+                P[s[live]], ic_lo[s[live]], ic_hi[s[live]], ic_lo[s[live]] * r_small[s[live]]))
             lb_s = lb_s + h
             keep = lb_s < upper
             s, lb_s = s[keep], lb_s[keep]
@@ -840,7 +839,7 @@ class _Job:
             need[cand] = np.maximum(op.pq, cop.pq.max(axis=1)) > self.model.pd
         return need
 
-    def _floor(self, P, ic_lo, ic_hi, ve_lo, rc=None, cut=None):
+    def _floor(self, P, ic_lo, ic_hi, ve_lo, rc=None):
         from optimiser.prune import junction_floor
         r = self.request
         k_in = None
@@ -851,7 +850,7 @@ class _Job:
                               load_ohm=r.load_ohm, input_vpk=r.input_vpk,
                               gain_lo_db=20 * math.log10(self.win[0]) - GAIN_SLACK_DB,
                               target_db=r.gain_db, tol_db=r.gain_tol_db,
-                              vce_sat=self.model.vce_sat, rc=rc, cut=cut, k_in=k_in)
+                              vce_sat=self.model.vce_sat, rc=rc, k_in=k_in)
 
     def expand_pairs(self, p: np.ndarray, upper: float):
         """Blocks of emitter totals for the pairs ``p``, sorted by their bound.
