@@ -216,8 +216,9 @@ def _solve3(Y, J):
 #: (1.05 until 2026-12-02.)
 JUNCTION_FLOOR_MARGIN = 1.01
 #: Newton steps on the cubic of :func:`junction_floor`'s stationary point (from an
-#: upper bound of its root; the tangent there keeps the result a lower bound anyway).
-JUNCTION_FLOOR_NEWTON = 5
+#: upper bound of its root; the tangent there keeps the result a lower bound anyway;
+#: on random stages four steps leave it within 1e-10 of eight, three within 1e-5).
+JUNCTION_FLOOR_NEWTON = 4
 
 
 def _gain_distortion_min(c, g_lo_db, target_db, tol_db):
@@ -329,8 +330,8 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
             s = np.minimum(s, np.sqrt(r * a))       # both above the root
         else:
             b = 0.0
-        for _ in range(JUNCTION_FLOOR_NEWTON):      # from above: falls to the root
-            s = s - (s * s * (s + b) - r) / (s * (3.0 * s + 2.0 * b))
+        for _ in range(JUNCTION_FLOOR_NEWTON if a is not None else 0):
+            s = s - (s * s * (s + b) - r) / (s * (3.0 * s + 2.0 * b))    # from above
         ya = np.clip(np.where(middle, ym, 1.0 / s), y0, np.maximum(y_max, 0.0))
         ca = coef(ya)
         fa = f(ca) + np.maximum(ya - y_head, 0.0) / want
