@@ -30,9 +30,11 @@ def early_bounds(supply_v: float, model: DeviceModel) -> tuple[float, float]:
     return 1.0 + (model.vce_sat - 1.0) / model.vaf, 1.0 + supply_v / model.vaf
 
 
-def early_factor_max(supply_v: float, ic_lo, re_lo, model: DeviceModel, q_hi: float):
+def early_factor_max(supply_v: float, ic_lo, re_lo, model: DeviceModel, q_hi: float,
+                     ve_lo=None):
     """Largest Early factor of a stage whose I_C ≥ ``ic_lo`` and DC emitter
-    resistance ≥ ``re_lo`` (at 25 °C, as :func:`bias_current`).
+    resistance ≥ ``re_lo`` (at 25 °C, as :func:`bias_current`); with ``ve_lo``, a
+    lower bound of its emitter voltage taken instead of ``ic_lo``·``re_lo``.
 
     The collector is at most at the supply, so ``V_CB ≤ V − V_B`` with
     ``V_B = V_BE + I_E·R_E ≥ V_BE + I_C·R_E``, and ``V_BE ≥ V_T·ln(x/I_S)``
@@ -48,7 +50,8 @@ def early_factor_max(supply_v: float, ic_lo, re_lo, model: DeviceModel, q_hi: fl
     with np.errstate(divide="ignore", invalid="ignore"):
         vbe = thermal_voltage(25.0) * np.log(np.maximum(ic_lo - is_t, 0.0) / (q_hi * is_t))
     vbe = np.clip(np.nan_to_num(vbe, nan=0.0, neginf=0.0), 0.0, None)
-    q = 1.0 + (supply_v - vbe - ic_lo * np.asarray(re_lo, dtype=float)) / model.vaf
+    ve = ic_lo * np.asarray(re_lo, dtype=float) if ve_lo is None else np.asarray(ve_lo, dtype=float)
+    q = 1.0 + (supply_v - vbe - ve) / model.vaf
     return np.minimum(q, q_hi)
 
 

@@ -434,10 +434,19 @@ class _Job:
         s = np.flatnonzero((ic_lo <= model.ic_max * (1 + 1e-9)) & (lb < upper))
         if s.size == 0:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
+        # the emitter voltage V_E = I_E·R = V_TH − V_BE − I_B·R_TH grows with the
+        # emitter total R (V_BE and I_B fall), so over the span it is least at
+        # r_small: at least I_C,lo(r_small)·r_small (B19; until 2026-12-02 the much
+        # smaller I_C,lo(r_big)·r_small on runs of options)
+        ve_lo = ic_lo * r_small
+        wide = s[r_small[s] < r_big[s]]
+        if wide.size:
+            ve_lo[wide] = bias_current(v_th[wide], r_th[wide], r_small[wide], model, 25.0, None,
+                                       self.q_lo) * r_small[wide]
         # the top of the bracket at the largest Early factor this span allows
         # (the emitter takes a part of the supply: early_factor_max)
         q_top = np.zeros(n)
-        q_top[s] = early_factor_max(V, ic_lo[s], r_small[s], model, self.q_hi)
+        q_top[s] = early_factor_max(V, ic_lo[s], r_small[s], model, self.q_hi, ve_lo=ve_lo[s])
         lb_s = lb[s]
         # B2, the drift: three closed-form solves; for ce cheaper than the emitter and
         # junction bounds below and on fine runs the one that discards the most, so
@@ -456,7 +465,7 @@ class _Job:
             s, lb_s = s[keep], lb_s[keep]
             if s.size:      # B17: the follower's distortion, gain excess and headroom
                 lb_s = lb_s + self._follower_terms(P[s], ic_lo[s], ic_hi[s], r_small[s],
-                                                   r_big[s])
+                                                   r_big[s], ve_lo[s])
                 keep = lb_s < upper
                 s, lb_s = s[keep], lb_s[keep]
         fl = None
@@ -467,12 +476,12 @@ class _Job:
             # closed form it is cheap, so on every level and before the emitter terms
             # (until 2026-12-02 after them and only on runs of 128–8192 emitter options;
             # E96 ce: CPU 8.7 -> 7.5 s, three interleaved runs)
-            fl = self._floor(P[s], ic_lo[s], ic_hi[s], ic_lo[s] * r_small[s])
+            fl = self._floor(P[s], ic_lo[s], ic_hi[s], ve_lo[s])
             keep = lb_s + fl < upper
             s, lb_s, fl = s[keep], lb_s[keep], fl[keep]
         if s.size and self.topo == "ce":
             # B6 and B14: what the unbypassed RE allows of gain and distortion
-            e = self._emitter_terms(P[s], ic_lo[s], ic_hi[s], r_small[s],
+            e = self._emitter_terms(P[s], ic_lo[s], ic_hi[s], ve_lo[s],
                                     re_bounds[0][s], re_bounds[1][s], lb_s, upper,
                                     re_bounds[2][s], re_bounds[3])
             keep = lb_s + e < upper
@@ -491,7 +500,7 @@ class _Job:
                 s, lb_s, e = s[keep], lb_s[keep], e[keep]
                 with np.errstate(divide="ignore"):
                     zper = 1.0 / self._cb_per_z(ic_hi[s], r_big[s])
-                e = e + self._gain_headroom(zper, ic_lo[s], ic_lo[s] * r_small[s])
+                e = e + self._gain_headroom(zper, ic_lo[s], ve_lo[s])
             keep = lb_s + e < upper
             s, lb_s, e = s[keep], lb_s[keep], e[keep]
             if self.win is None or s.size == 0:
@@ -546,7 +555,7 @@ class _Job:
             keep &= d_lb[s] <= self.request.ic_drift_max_pct
         return s[keep], lb_s[keep]
 
-    def _emitter_terms(self, P, ic_lo, ic_hi, r_small, re_lo, re_hi, lb, upper, start, width):
+    def _emitter_terms(self, P, ic_lo, ic_hi, ve_lo, re_lo, re_hi, lb, upper, start, width):
         """Lower bound of the gain + distortion terms an unbypassed RE in
         [re_lo, re_hi] allows (ce): B6 at the bias level — the gain is at most
         per_z·Z' (:func:`optimiser.prune.ce_gain_per_load`) with Z' ≤ R_L‖RC_max —,
@@ -557,7 +566,7 @@ class _Job:
         """
         r = self.request
         rl = r.load_ohm
-        rc_max = np.maximum(self._rc_max(ic_lo, ic_lo * r_small), 0.0)
+        rc_max = np.maximum(self._rc_max(ic_lo, ve_lo), 0.0)
         with np.errstate(divide="ignore", invalid="ignore"):
             z_max = rc_max if not rl else np.where(np.isfinite(rc_max),
                                                    rc_max * rl / (rc_max + rl), rl)
@@ -573,13 +582,12 @@ class _Job:
             li = np.flatnonzero(lb + short < upper)
             if li.size == 0:
                 return out
-            P, ic_lo, ic_hi, re_lo, re_hi, lb, r_small, z_max, per_z, short, start = (
-                np.asarray(x)[li] for x in (P, ic_lo, ic_hi, re_lo, re_hi, lb, r_small, z_max,
+            P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max, per_z, short, start = (
+                np.asarray(x)[li] for x in (P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max,
                                             per_z, short, start))
             # B15: the collector drop that gain needs, against the headroom
             with np.errstate(divide="ignore", invalid="ignore"):
-                short = np.maximum(short, self._gain_headroom(1.0 / per_z, ic_lo,
-                                                              ic_lo * r_small))
+                short = np.maximum(short, self._gain_headroom(1.0 / per_z, ic_lo, ve_lo))
             # a split whose RE keeps the gain below what the window (or, with a score
             # to beat, the gain term) allows cannot be the design: the feedback, and
             # so the distortion bound, is that of the largest RE reaching it
@@ -750,7 +758,7 @@ class _Job:
                                      model=self.model, q_lo=self.q_lo, q_hi=self.q_hi,
                                      mid_hz=r.mid_hz)
 
-    def _follower_terms(self, P, ic_lo, ic_hi, re_lo, re_hi):
+    def _follower_terms(self, P, ic_lo, ic_hi, re_lo, re_hi, ve_lo):
         """Lower bound of a follower's distortion + gain-excess + headroom terms (B17).
 
         The emitter sees R' = RE‖R_L, so the distortion is bounded as for a ce
@@ -758,7 +766,8 @@ class _Job:
         is at least k_in·R'/(V_T/I_C,lo + R') with k_in ≥ R_in/(R_in + R_S),
         R_in ≥ R_TH‖(β_lo·R'), reduced by 1 + ωR_S(C_μ + C_π,max) for the input
         capacitance at mid_hz and by the margin — a gain above the target costs
-        its distance; and V_CE ≤ V − I_C,lo·RE.  Tested against the engine.
+        its distance; and V_CE ≤ V − ``ve_lo`` (V_E ≥ ve_lo, B19).  Tested against
+        the engine.
         """
         from optimiser.prune import follower_gain_floor
         from optimiser.score import HEADROOM_FRACTION
@@ -770,7 +779,7 @@ class _Job:
         with np.errstate(divide="ignore", invalid="ignore"):
             p_hi = re_hi if not rl else re_hi * rl / (re_hi + rl)
             p_lo = re_lo if not rl else re_lo * rl / (re_lo + rl)
-        h = self._junction_hd2(P, ic_hi, p_hi, np.maximum(self._rc_max(ic_lo, ic_lo * re_lo), 0.0))
+        h = self._junction_hd2(P, ic_hi, p_hi, np.maximum(self._rc_max(ic_lo, ve_lo), 0.0))
         target, tol = score_gain_target(r)
         excess = 0.0
         if target is not None:
@@ -780,7 +789,7 @@ class _Job:
             with np.errstate(divide="ignore"):
                 g_db = 20.0 * np.log10(np.maximum(g_lo, 1e-300))
             excess = np.maximum(g_db - target - GAIN_SLACK_DB, 0.0) / max(tol, 1e-3)
-        head = np.maximum(0.0, 1.0 - (V - ic_lo * re_lo) / (HEADROOM_FRACTION * V))
+        head = np.maximum(0.0, 1.0 - (V - ve_lo) / (HEADROOM_FRACTION * V))
         return h + excess + head
 
     def _follower_gain_max(self, P, r_e=None, ic_hi=None) -> np.ndarray:

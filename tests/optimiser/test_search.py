@@ -89,6 +89,18 @@ def test_bias_current_brackets_the_engine():
     assert np.all(op.ic[ok] <= ic_top[ok] * (1 + 1e-9))
     assert np.all(ic_top <= ic_hi * (1 + 1e-12))
     assert np.median(hi - q_top[ok]) * m.vaf > 1.0      # it does tighten: V_B ≥ 1 V off V_CB
+    # B19: over a span of emitter totals [r_small, R] the emitter voltage is at least
+    # I_C,lo(r_small)·r_small (V_E = V_TH − V_BE − I_B·R_TH grows with the total), and
+    # the Early factor from that V_E still tops the engine's current
+    r_small = re * rng.uniform(0.05, 1.0, n)
+    ve_lo = bias_current(vth, rth, r_small, m, 25.0, None, lo) * r_small
+    assert np.all(op.ve[ok] >= ve_lo[ok] * (1 - 1e-9))
+    assert np.all(ve_lo[ok] >= ic_lo[ok] * r_small[ok] * (1 - 1e-12))
+    assert np.median(ve_lo[ok] / (ic_lo[ok] * r_small[ok])) > 1.5     # it does tighten
+    ic_lo_span = bias_current(vth, rth, re, m, 25.0, None, lo)     # at the span's top end
+    q_span = early_factor_max(12.0, ic_lo_span, r_small, m, hi, ve_lo=ve_lo)
+    ic_span = bias_current(vth, rth, r_small, m, 25.0, None, q_span)
+    assert np.all(op.ic[ok] <= ic_span[ok] * (1 + 1e-9))
 
 
 @pytest.mark.parametrize("topo", ["ce", "cb", "cc"])
