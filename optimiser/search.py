@@ -1419,11 +1419,12 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
     ``top`` to beat and are not reported twice).  Returns every design found
     (sorted by score) and the pool of evaluated misses.
 
-    ``part`` = (k, n): search only every n-th (R1, R2) pair from the k-th on
-    (one share of a search split over n processes, :mod:`optimiser.workers`).
-    ``shared``: an array of n scores, slot k this run's ``top``-th best score
-    and the others those of the other shares — each is the score of ``top``
-    real designs, so any of them is a score to beat.
+    ``part`` = (k, n): this is process k of a search split over n
+    (:mod:`optimiser.workers`); ``shared`` (a :class:`optimiser.workers.Shared`)
+    then says which blocks of (R1, R2) pairs another process has taken — this
+    one searches only the blocks it takes itself — and holds each process's
+    ``top``-th best score, slot k this one's: each is the score of ``top`` real
+    designs, so any of them is a score to beat.
     """
     from optimiser.dc import operating_point
     from optimiser.evaluate import corner_points
@@ -1439,11 +1440,10 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
 
     seq = itertools.count()
     k_part, n_part = part
+    block = itertools.count()       # (the same numbers in every process: same jobs)
     for j, job in enumerate(jobs):
         for lb, p in job.pair_blocks():
-            p = p[k_part::n_part]
-            if p.size:
-                push((lb, next(seq), "pairs", (j, p)))
+            push((lb, next(seq), "pairs", (j, p, next(block))))
     found: list[Design] = sorted(seeds, key=_rank_key)
     known = {_design_key(d) for d in found}
     pool: list = []
@@ -1461,8 +1461,8 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             break
         kth = min(found[top - 1].score if len(found) >= top else math.inf, cap)
         if shared is not None:
-            shared[k_part] = kth
-            kth = min(kth, min(shared))
+            shared.kth[k_part] = kth
+            kth = min(kth, min(shared.kth))
         low = smallest()
         if low >= kth:
             break
@@ -1473,13 +1473,18 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             # dive: the deepest level first, so that a bound to beat is known early
             level = next(k for k in reversed(levels) if heaps[k])
         else:
-            # best first: the level holding the smallest bound
-            level = min((k for k in levels if heaps[k]), key=lambda k: heaps[k][0][0])
+            # best first: the level holding the smallest bound — but in a split
+            # search a new block of pairs only once this process's own work is done,
+            # so that blocks are taken as the processes free up (they balance)
+            open_ = [k for k in levels if heaps[k] and not (shared is not None and k == "pairs")]
+            level = min(open_ or ["pairs"], key=lambda k: heaps[k][0][0])
         lb, _, kind, payload = heapq.heappop(heaps[level])
         if lb >= kth:
             continue
         if kind == "pairs":
-            j, p = payload
+            j, p, blk = payload
+            if shared is not None and not shared.claim(blk, k_part):
+                continue                # another process searches this block
             P, a, b, blb = jobs[j].expand_pairs(p, kth)
             for s0 in range(0, P.size, NODE_BLOCK):
                 sl = slice(s0, s0 + NODE_BLOCK)

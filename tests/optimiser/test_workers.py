@@ -25,7 +25,7 @@ def _fake_run(fail_in_child=None):
         if os.getpid() != parent and fail_in_child == "die":
             os._exit(3)
         if shared is not None:
-            shared[k] = float(k)
+            shared.kth[k] = float(k)
         stats["heap_steps"] = stats.get("heap_steps", 0) + 1
         stats.setdefault("pruned", {})["bias"] = stats.get("pruned", {}).get("bias", 0) + 10
         return [f"share {k} of {n}"], ["pool"]
@@ -33,7 +33,7 @@ def _fake_run(fail_in_child=None):
     return run
 
 
-def test_every_share_is_searched_once_and_the_counters_add_up():
+def test_every_process_runs_once_and_the_counters_add_up():
     stats = {"pruned": {}}
     found, pool = split_branch_and_bound(_fake_run(), 3, stats)
     assert sorted(found) == ["share 0 of 3", "share 1 of 3", "share 2 of 3"]
@@ -42,10 +42,12 @@ def test_every_share_is_searched_once_and_the_counters_add_up():
     assert stats["workers"] == 3
 
 
-def test_a_share_that_dies_is_searched_again_here():
+def test_a_process_that_dies_has_the_whole_search_run_again_here():
+    # which blocks it had taken is not known here, so everything is searched again
+    # in one process (a lost process costs time, never a design)
     stats = {"pruned": {}}
     found, _ = split_branch_and_bound(_fake_run("die"), 2, stats)
-    assert sorted(found) == ["share 0 of 2", "share 1 of 2"]
+    assert sorted(found) == ["share 0 of 1", "share 0 of 2"]
     assert stats["heap_steps"] == 2
 
 
@@ -77,3 +79,24 @@ def test_worker_count_follows_the_drawer_and_the_environment(monkeypatch):
         monkeypatch.setenv("DRAWERFIT_WORKERS", bad)
         with pytest.raises(InputError, match="DRAWERFIT_WORKERS"):
             worker_count(50, 160)                   # said even where one process would do
+
+
+def test_each_block_is_taken_by_exactly_one_process():
+    import multiprocessing
+
+    from optimiser.workers import Shared
+
+    ctx = multiprocessing.get_context("fork")
+    shared = Shared(ctx, 2, slots=64)
+    taken = ctx.RawArray("i", 200)
+
+    def grab(k):
+        for b in range(200):
+            if shared.claim(b, k):
+                taken[b] += 1
+
+    p = ctx.Process(target=grab, args=(1,))
+    p.start()
+    grab(0)
+    p.join()
+    assert list(taken) == [1] * 200          # claimed slots and dealt-out ones alike
