@@ -405,7 +405,7 @@ class _Job:
         for s in range(0, self.R1.size, step):
             yield float(self.plb[s]), np.arange(s, min(s + step, self.R1.size))
 
-    def _bounds(self, P, r_small, r_big, upper: float, re_bounds=None):
+    def _bounds(self, P, r_small, r_big, upper: float, re_bounds=None, dc=None):
         """Bounds for pair P with DC emitter totals anywhere in [r_small, r_big].
 
         I_C falls and V_E·I_C-stability rises with the emitter resistance
@@ -415,70 +415,25 @@ class _Job:
         for ce the drift right after the current), each on the nodes the earlier
         ones left.  ``re_bounds`` = (least, largest) unbypassed
         RE over the span and the span as (start, width) of an aligned run of
-        emitter options (ce).  Returns (ok, ic_lo, ic_hi, d_lb, nlb) over all
-        of ``P``; entries not ok hold nlb = inf.
+        emitter options (ce).  ``dc``: what :meth:`_span_dc` gave for these
+        pairs over a span of totals holding this one (the forms of a ce search
+        share it at their first level).  Returns (ok, ic_lo, ic_hi, d_lb, nlb)
+        over all of ``P``; entries not ok hold nlb = inf.
         """
         from optimiser.device import thermal_voltage
-        from optimiser.prune import bias_current, early_factor_max
 
         model, V = self.model, self.V
         n = P.size
         r_small = np.broadcast_to(np.asarray(r_small, dtype=float), (n,))
         r_big = np.broadcast_to(np.asarray(r_big, dtype=float), (n,))
-        ic_lo, ic_hi, d_lb = np.zeros(n), np.zeros(n), np.zeros(n)
         nlb = np.full(n, np.inf)
-        v_th, r_th = self.vth[P], self.rth[P]
-        # B1: I_C lies between its values at the extreme Early factors
-        ic_lo[:] = bias_current(v_th, r_th, r_big, model, 25.0, None, self.q_lo)
-        lb = (V / (self.R1[P] + self.R2[P]) + ic_lo) / 10e-3          # B5
-        s = np.flatnonzero((ic_lo <= model.ic_max * (1 + 1e-9)) & (lb < upper))
+        if dc is None:
+            dc = self._span_dc(P, r_small, r_big, upper)
+        s, lb_s, ic_lo, ic_hi, ve_lo, q_top, d_lb, fl = dc
         if s.size == 0:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
-        # the emitter voltage V_E = I_E·R = V_TH − V_BE − I_B·R_TH grows with the
-        # emitter total R (V_BE and I_B fall), so over the span it is least at
-        # r_small: at least I_C,lo(r_small)·r_small (B19; until 2026-12-02 the much
-        # smaller I_C,lo(r_big)·r_small on runs of options)
-        ve_lo = ic_lo * r_small
-        wide = s[r_small[s] < r_big[s]]
-        if wide.size:
-            ve_lo[wide] = bias_current(v_th[wide], r_th[wide], r_small[wide], model, 25.0, None,
-                                       self.q_lo) * r_small[wide]
-        # the top of the bracket at the largest Early factor this span allows
-        # (the emitter takes a part of the supply: early_factor_max)
-        q_top = np.zeros(n)
-        q_top[s] = early_factor_max(V, ic_lo[s], r_small[s], model, self.q_hi, ve_lo=ve_lo[s])
-        lb_s = lb[s]
-        # B2, the drift: three closed-form solves; for ce cheaper than the emitter and
-        # junction bounds below and on fine runs the one that discards the most, so
-        # first, before even the top of the current bracket (measured: a tenth off
-        # the E96 search); for cb and cc last, after their own cheaper bounds
         drift_first = self.topo == "ce"
-        if drift_first:
-            s, lb_s = self._drift_stage(s, lb_s, v_th, r_th, r_big, q_top, d_lb, upper)
-        ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, q_top[s])
-        if self.topo == "cc":
-            # B13: a follower's gain is at most k_in·A_f, the divider's share of the
-            # source (Z_in ≤ R_TH) times RE‖RL over r_e + RE‖RL
-            g_hi = self._follower_gain_max(P[s], r_big[s], ic_hi[s])
-            lb_s = lb_s + self._gain_shortfall(g_hi)
-            keep = lb_s < upper
-            s, lb_s = s[keep], lb_s[keep]
-            if s.size:      # B17: the follower's distortion, gain excess and headroom
-                lb_s = lb_s + self._follower_terms(P[s], ic_lo[s], ic_hi[s], r_small[s],
-                                                   r_big[s], ve_lo[s])
-                keep = lb_s < upper
-                s, lb_s = s[keep], lb_s[keep]
-        fl = None
-        if s.size and self.topo == "ce" and self.win is not None:
-            # B12: gain, distortion and headroom together, over every RC and split
-            # (ce only: for cb, B16 and B15 already hold nearly all of it — measured
-            # again with B12 in closed form: a fifth fewer nodes, 5 % more time).  In
-            # closed form it is cheap, so on every level and before the emitter terms
-            # (until 2026-12-02 after them and only on runs of 128–8192 emitter options;
-            # E96 ce: CPU 8.7 -> 7.5 s, three interleaved runs)
-            fl = self._floor(P[s], ic_lo[s], ic_hi[s], ve_lo[s])
-            keep = lb_s + fl < upper
-            s, lb_s, fl = s[keep], lb_s[keep], fl[keep]
+        v_th, r_th = self.vth[P], self.rth[P]
         if s.size and self.topo == "ce":
             # B6 and B14: what the unbypassed RE allows of gain and distortion
             e = self._emitter_terms(P[s], ic_lo[s], ic_hi[s], ve_lo[s],
@@ -530,6 +485,75 @@ class _Job:
         nlb[s] = lb_s
         ok = nlb < upper
         return ok, ic_lo, ic_hi, d_lb, nlb
+
+    def _span_dc(self, P, r_small, r_big, upper: float):
+        """The bounds of pairs ``P`` that depend on the emitter total only, over
+        totals in [``r_small``, ``r_big``]: the current bracket (B1, B5), the least
+        emitter voltage (B19), the top Early factor, for ce the drift (B2) and the
+        junction floor (B12), for cc B13 and B17.  Returns (s, lb_s, ic_lo, ic_hi,
+        ve_lo, q_top, d_lb, fl): the nodes still under ``upper`` and their bound so
+        far, the arrays over all of ``P``, and B12 over ``s`` (None without it).
+        """
+        from optimiser.prune import bias_current, early_factor_max
+
+        model, V = self.model, self.V
+        n = P.size
+        r_small = np.broadcast_to(np.asarray(r_small, dtype=float), (n,))
+        r_big = np.broadcast_to(np.asarray(r_big, dtype=float), (n,))
+        ic_lo, ic_hi, d_lb = np.zeros(n), np.zeros(n), np.zeros(n)
+        v_th, r_th = self.vth[P], self.rth[P]
+        # B1: I_C lies between its values at the extreme Early factors
+        ic_lo[:] = bias_current(v_th, r_th, r_big, model, 25.0, None, self.q_lo)
+        lb = (V / (self.R1[P] + self.R2[P]) + ic_lo) / 10e-3          # B5
+        s = np.flatnonzero((ic_lo <= model.ic_max * (1 + 1e-9)) & (lb < upper))
+        if s.size == 0:
+            return s, lb[s], ic_lo, ic_hi, ic_lo * r_small, None, d_lb, None
+        # the emitter voltage V_E = I_E·R = V_TH − V_BE − I_B·R_TH grows with the
+        # emitter total R (V_BE and I_B fall), so over the span it is least at
+        # r_small: at least I_C,lo(r_small)·r_small (B19; until 2026-12-02 the much
+        # smaller I_C,lo(r_big)·r_small on runs of options)
+        ve_lo = ic_lo * r_small
+        wide = s[r_small[s] < r_big[s]]
+        if wide.size:
+            ve_lo[wide] = bias_current(v_th[wide], r_th[wide], r_small[wide], model, 25.0, None,
+                                       self.q_lo) * r_small[wide]
+        # the top of the bracket at the largest Early factor this span allows
+        # (the emitter takes a part of the supply: early_factor_max)
+        q_top = np.zeros(n)
+        q_top[s] = early_factor_max(V, ic_lo[s], r_small[s], model, self.q_hi, ve_lo=ve_lo[s])
+        lb_s = lb[s]
+        # B2, the drift: three closed-form solves; for ce cheaper than the emitter and
+        # junction bounds below and on fine runs the one that discards the most, so
+        # first, before even the top of the current bracket (measured: a tenth off
+        # the E96 search); for cb and cc last, after their own cheaper bounds
+        drift_first = self.topo == "ce"
+        if drift_first:
+            s, lb_s = self._drift_stage(s, lb_s, v_th, r_th, r_big, q_top, d_lb, upper)
+        ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, q_top[s])
+        if self.topo == "cc":
+            # B13: a follower's gain is at most k_in·A_f, the divider's share of the
+            # source (Z_in ≤ R_TH) times RE‖RL over r_e + RE‖RL
+            g_hi = self._follower_gain_max(P[s], r_big[s], ic_hi[s])
+            lb_s = lb_s + self._gain_shortfall(g_hi)
+            keep = lb_s < upper
+            s, lb_s = s[keep], lb_s[keep]
+            if s.size:      # B17: the follower's distortion, gain excess and headroom
+                lb_s = lb_s + self._follower_terms(P[s], ic_lo[s], ic_hi[s], r_small[s],
+                                                   r_big[s], ve_lo[s])
+                keep = lb_s < upper
+                s, lb_s = s[keep], lb_s[keep]
+        fl = None
+        if s.size and self.topo == "ce" and self.win is not None:
+            # B12: gain, distortion and headroom together, over every RC and split
+            # (ce only: for cb, B16 and B15 already hold nearly all of it — measured
+            # again with B12 in closed form: a fifth fewer nodes, 5 % more time).  In
+            # closed form it is cheap, so on every level and before the emitter terms
+            # (until 2026-12-02 after them and only on runs of 128–8192 emitter options;
+            # E96 ce: CPU 8.7 -> 7.5 s, three interleaved runs)
+            fl = self._floor(P[s], ic_lo[s], ic_hi[s], ve_lo[s])
+            keep = lb_s + fl < upper
+            s, lb_s, fl = s[keep], lb_s[keep], fl[keep]
+        return s, lb_s, ic_lo, ic_hi, ve_lo, q_top, d_lb, fl
 
     def _drift_stage(self, s, lb_s, v_th, r_th, r_big, q_top, d_lb, upper):
         """B2 on the nodes ``s`` whose bound so far is ``lb_s``: fills ``d_lb[s]``
