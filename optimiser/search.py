@@ -891,13 +891,15 @@ class _Job:
                               target_db=r.gain_db, tol_db=r.gain_tol_db,
                               vce_sat=self.model.vce_sat, rc=rc, k_in=k_in)
 
-    def expand_pairs(self, p: np.ndarray, upper: float):
+    def expand_pairs(self, p: np.ndarray, upper: float, dc=None):
         """Blocks of emitter totals for the pairs ``p``, sorted by their bound.
 
         Runs of emitter options are bounded coarse to fine — runs of
         TOTALS_BLOCK·SPAN_BLOCKS^k options, the widest first (one run holding
         every option of the form), each surviving run split in SPAN_BLOCKS — down
-        to runs of TOTALS_BLOCK (the same bounds on every level).
+        to runs of TOTALS_BLOCK (the same bounds on every level).  ``dc``: the
+        DC bounds of ``p`` over a span of totals holding every option of the
+        form (:meth:`span_dc_of`), taken for the first level.
         """
         n = self.etot.size
         widths = [self.tb]
@@ -912,12 +914,22 @@ class _Job:
             P, a = P[live], a[live]
             b = np.minimum(a + width, n) - 1
             ok, _, _, _, lb = self._bounds(P, *self.run_span("tot", a, width), upper,
-                                           (*self.run_span("re", a, width), a, width))
+                                           (*self.run_span("re", a, width), a, width),
+                                           dc if width == widths[0] else None)
             self.count("bias_blocks", (b - a + 1)[~ok].sum())
             P, a, b, lb = P[ok], a[ok], b[ok], lb[ok]
             span = width
         o = np.argsort(lb, kind="stable")
         return P[o], a[o], b[o], lb[o]
+
+    def span_dc_of(self, p: np.ndarray, upper: float, jobs) -> tuple:
+        """:meth:`_span_dc` of the pairs ``p`` over every emitter total of
+        ``jobs`` (the forms of this transistor): one computation that each form's
+        first level takes — its own span lies inside, and each bound there is
+        monotone in the span's ends (B7, B19), so it stays a lower bound."""
+        lo = min(float(j.etot.min()) for j in jobs)
+        hi = max(float(j.etot.max()) for j in jobs)
+        return self._span_dc(p, np.full(p.size, lo), np.full(p.size, hi), upper)
 
     def expand_blocks(self, P, a, b, upper: float):
         """Bias nodes (pair × each total of its block), sorted by their bound."""
@@ -1465,9 +1477,14 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
     seq = itertools.count()
     k_part, n_part = part
     block = itertools.count()       # (the same numbers in every process: same jobs)
+    # the forms of one transistor share their pairs and the DC bounds of their first
+    # level (_Job.span_dc_of): one heap entry per transistor and block of pairs
+    groups: dict[str, list[int]] = {}
     for j, job in enumerate(jobs):
-        for lb, p in job.pair_blocks():
-            push((lb, next(seq), "pairs", (j, p, next(block))))
+        groups.setdefault(job.t.label, []).append(j)
+    for js in groups.values():
+        for lb, p in jobs[js[0]].pair_blocks():
+            push((lb, next(seq), "pairs", (tuple(js), p, next(block))))
     found: list[Design] = sorted(seeds, key=_rank_key)
     known = {_design_key(d) for d in found}
     pool: list = []
@@ -1506,14 +1523,17 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
         if lb >= kth:
             continue
         if kind == "pairs":
-            j, p, blk = payload
+            js, p, blk = payload
             if shared is not None and not shared.claim(blk, k_part):
                 continue                # another process searches this block
-            P, a, b, blb = jobs[j].expand_pairs(p, kth)
-            for s0 in range(0, P.size, NODE_BLOCK):
-                sl = slice(s0, s0 + NODE_BLOCK)
-                push((float(blb[s0]), next(seq), "blocks",
-                                      (j, P[sl], a[sl], b[sl])))
+            dc = None
+            if len(js) > 1 and request.topology == "ce":
+                dc = jobs[js[0]].span_dc_of(p, kth, [jobs[j] for j in js])
+            for j in js:
+                P, a, b, blb = jobs[j].expand_pairs(p, kth, dc)
+                for s0 in range(0, P.size, NODE_BLOCK):
+                    sl = slice(s0, s0 + NODE_BLOCK)
+                    push((float(blb[s0]), next(seq), "blocks", (j, P[sl], a[sl], b[sl])))
         elif kind == "blocks":
             j, P, a, b = payload
             P, E, ic_lo, d_lb, nlb = jobs[j].expand_blocks(P, a, b, kth)
