@@ -411,9 +411,9 @@ class _Job:
         I_C falls and V_E·I_C-stability rises with the emitter resistance
         (B7), so the smallest current and drift are those at ``r_big`` and the
         largest current the one at ``r_small``.  The bounds are taken in order
-        of cost (current, the topology's own terms, the junction floor, the drift;
-        for ce the drift right after the current), each on the nodes the earlier
-        ones left.  ``re_bounds`` = (least, largest) unbypassed
+        of cost, each on the nodes the earlier ones left: those of the total alone
+        (:meth:`_span_dc`: current, for ce the drift and the junction floor), then
+        the topology's own terms, then (cb, cc) the drift.  ``re_bounds`` = (least, largest) unbypassed
         RE over the span and the span as (start, width) of an aligned run of
         emitter options (ce).  ``dc``: what :meth:`_span_dc` gave for these
         pairs over a span of totals holding this one (the forms of a ce search
