@@ -303,10 +303,7 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
     y_max = V - ve_lo - float(vce_sat)
     if rc is not None:
         rc = np.broadcast_to(np.asarray(rc, dtype=float), ic_lo.shape)
-        with np.errstate(invalid="ignore"):
-            x_hi = ic_hi * rc if a is None else ic_hi * rc * float(load_ohm) / (rc + float(load_ohm))
-        c = np.where(x_hi > 0, k / np.where(x_hi > 0, x_hi, 1.0) ** 2, np.inf)
-        return np.where(ic_lo * rc <= y_max, f(c) + np.maximum(
+        return np.where(ic_lo * rc <= y_max, f(coef(ic_hi * rc)) + np.maximum(
             0.0, 1.0 - (V - ic_lo * rc - ve_lo) / want), np.inf)
     # f's slope u*(c) = clip(K/c, u_lo, u_t) (:func:`_gain_distortion_min`)
     tol = max(float(tol_db), 1e-3)
@@ -417,7 +414,7 @@ def gain_headroom_floor(*, z_per_gain, ic_lo, ve_lo, supply_v, vce_sat, load_ohm
     grow).  ``target_db`` None: no gain term, the least gain.  inf where no gain
     in the window leaves the transistor out of saturation (or needs Z' ≥ R_L).
     (Until 2026-12-02 the least over eight segments of the range, each bounded at
-    its ends: up to 0.02 below this exact least value.)
+    its ends: up to 0.125 below this exact least value.)
 
     Arrays broadcast together (ohm, A, V); dB.
     """

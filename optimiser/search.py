@@ -295,6 +295,11 @@ class _Job:
         self.rc_vals = rv if self.topo != "cc" else np.concatenate([[0.0], rv])
         self.rc_best = rbest if self.topo != "cc" else np.concatenate([[np.inf], rbest])
         self.t_empty = float(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
+        # B2, the drift: three closed-form solves; for ce cheaper than the emitter and
+        # junction bounds and on fine runs the one that discards the most, so first,
+        # before even the top of the current bracket (measured: a tenth off the E96
+        # search; :meth:`_span_dc`); for cb and cc last, after their own cheaper bounds
+        self.drift_first = self.topo == "ce"
 
     def _pairs(self):
         """(R1, R2, V_TH, R_TH, bound, pairs pruned): the (R1, R2) pairs the ratings
@@ -413,9 +418,9 @@ class _Job:
         largest current the one at ``r_small``.  The bounds are taken in order
         of cost, each on the nodes the earlier ones left: those of the total alone
         (:meth:`_span_dc`: current, for ce the drift and the junction floor), then
-        the topology's own terms, then (cb, cc) the drift.  ``re_bounds`` = (least, largest) unbypassed
-        RE over the span and the span as (start, width) of an aligned run of
-        emitter options (ce).  ``dc``: what :meth:`_span_dc` gave for these
+        the topology's own terms, then (cb, cc) the drift.  ``re_bounds`` =
+        (least, largest) unbypassed RE over the span and the span as
+        (start, width) of an aligned run of emitter options (ce).  ``dc``: what :meth:`_span_dc` gave for these
         pairs over a span of totals holding this one (the forms of a ce search
         share it at their first level).  Returns (ok, ic_lo, ic_hi, d_lb, nlb)
         over all of ``P``; entries not ok hold nlb = inf.
@@ -432,9 +437,8 @@ class _Job:
         s, lb_s, ic_lo, ic_hi, ve_lo, q_top, d_lb, fl = dc
         if s.size == 0:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
-        drift_first = self.topo == "ce"
         v_th, r_th = self.vth[P], self.rth[P]
-        if s.size and self.topo == "ce":
+        if self.topo == "ce":
             # B6 and B14: what the unbypassed RE allows of gain and distortion
             e = self._emitter_terms(P[s], ic_lo[s], ic_hi[s], ve_lo[s],
                                     re_bounds[0][s], re_bounds[1][s], lb_s, upper,
@@ -478,7 +482,7 @@ class _Job:
             lb_s = lb_s + h
             keep = lb_s < upper
             s, lb_s = s[keep], lb_s[keep]
-        if not drift_first:
+        if not self.drift_first:
             s, lb_s = self._drift_stage(s, lb_s, v_th, r_th, r_big, q_top, d_lb, upper)
         if s.size == 0:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
@@ -522,12 +526,7 @@ class _Job:
         q_top = np.zeros(n)
         q_top[s] = early_factor_max(V, ic_lo[s], r_small[s], model, self.q_hi, ve_lo=ve_lo[s])
         lb_s = lb[s]
-        # B2, the drift: three closed-form solves; for ce cheaper than the emitter and
-        # junction bounds below and on fine runs the one that discards the most, so
-        # first, before even the top of the current bracket (measured: a tenth off
-        # the E96 search); for cb and cc last, after their own cheaper bounds
-        drift_first = self.topo == "ce"
-        if drift_first:
+        if self.drift_first:        # (B2: ce only, see __init__)
             s, lb_s = self._drift_stage(s, lb_s, v_th, r_th, r_big, q_top, d_lb, upper)
         ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, q_top[s])
         if self.topo == "cc":
@@ -1475,7 +1474,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
         return min((h[0][0] for h in heaps.values() if h), default=math.inf)
 
     seq = itertools.count()
-    k_part, n_part = part
+    k_part = part[0]
     block = itertools.count()       # (the same numbers in every process: same jobs)
     # the forms of one transistor share their pairs and the DC bounds of their first
     # level (_Job.span_dc_of): one heap entry per transistor and block of pairs
