@@ -16,6 +16,10 @@ Which values are offered (a choice of this program, documented in docs/plan.md):
 
 Bought capacitors below 1 µF are taken as ceramic, from 1 µF up as
 electrolytic (polarised) — common practice for through-hole parts at 50 V.
+Their tolerance is ``capacitor_tolerance`` when the ``[purchase]`` table gives
+it; otherwise it follows the dielectric: 20 % for electrolytics (the usual
+tolerance of aluminium electrolytics, common practice) and 10 % for the
+non-polarised ones.
 
 Units are SI: ohm, farad, volt, watt; tolerances are fractions.
 """
@@ -34,6 +38,7 @@ __all__ = [
     "VIRTUAL_QTY",
     "TO_ORDER",
     "ELECTROLYTIC_FROM_F",
+    "CAPACITOR_TOLERANCE",
     "DEFAULT_RESISTOR_RANGE",
     "DEFAULT_CAPACITOR_RANGE",
 ]
@@ -44,6 +49,10 @@ VIRTUAL_QTY = 10**9
 TO_ORDER = "to order"
 #: Bought capacitors from this value up are electrolytic (F); common practice.
 ELECTROLYTIC_FROM_F = 1e-6
+#: Tolerance of a bought capacitor by dielectric when ``[purchase]`` gives no
+#: ``capacitor_tolerance`` (fractions; common practice: aluminium electrolytics
+#: are sold at ±20 %, small non-polarised capacitors at ±10 %).
+CAPACITOR_TOLERANCE = {"electrolytic": 0.20, "ceramic": 0.10}
 #: Ranges offered when the drawer holds no part of the kind (ohm, farad).
 DEFAULT_RESISTOR_RANGE = (10.0, 1e6)
 DEFAULT_CAPACITOR_RANGE = (10e-12, 1000e-6)
@@ -56,6 +65,8 @@ class PurchaseOptions:
     Prices are per piece (any currency); ``line_cost`` is the fixed cost of
     each distinct value ordered; parts come in whole packs of ``pack`` pieces.
     Tolerances are fractions, power in W, voltage in V.
+    ``capacitor_tolerance`` ``None`` (not given) means by dielectric, see
+    :data:`CAPACITOR_TOLERANCE`; a number applies to every bought capacitor.
     """
 
     series: str = "E24"
@@ -66,12 +77,18 @@ class PurchaseOptions:
     pack: int = 10
     resistor_tolerance: float = 0.01
     resistor_power: float = 0.25
-    capacitor_tolerance: float = 0.10
+    capacitor_tolerance: float | None = None
     capacitor_voltage: float = 50.0
 
     def price(self, kind: str) -> float:
         """Price of one piece of ``kind`` (resistor or capacitor)."""
         return self.resistor_price if kind == "resistor" else self.capacitor_price
+
+    def tolerance_of_capacitor(self, dielectric: str) -> float:
+        """Tolerance of a bought capacitor of ``dielectric`` (a fraction)."""
+        if self.capacitor_tolerance is not None:
+            return self.capacitor_tolerance
+        return CAPACITOR_TOLERANCE[dielectric]
 
 
 @dataclass(frozen=True)
@@ -160,7 +177,8 @@ def augment(snapshot: StockSnapshot, options: PurchaseOptions | None
         diel = "electrolytic" if v >= ELECTROLYTIC_FROM_F * (1 - 1e-9) else "ceramic"
         p = Purchasable(next_id, "capacitor", v, format_value(v, "capacitor"),
                         options.capacitor_price, options.pack,
-                        options.capacitor_tolerance, options.capacitor_voltage, diel)
+                        options.tolerance_of_capacitor(diel), options.capacitor_voltage,
+                        diel)
         items[next_id] = p
         new_c.append(Capacitor(value=v, qty=VIRTUAL_QTY, tolerance=p.tolerance,
                                voltage_v=p.rating, dielectric=diel, location=TO_ORDER,

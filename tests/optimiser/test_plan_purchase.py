@@ -74,3 +74,29 @@ def test_prices():
     _, cat = augment(drawer(), opts)
     for p in cat.items.values():
         assert p.pack_price == pytest.approx(0.2 if p.kind == "resistor" else 1.0)
+
+
+def test_bought_electrolytics_default_to_20_percent_and_others_keep_10():
+    """Common practice: aluminium electrolytics are sold at ±20 % (IEC 60062 letter M),
+    small non-polarised capacitors at ±10 % (letter K)."""
+    snap, cat = augment(drawer(), PurchaseOptions())
+    bought = [c for c in snap.capacitors if c.id < 0]
+    assert {c.polarised for c in bought} == {True, False}
+    for c in bought:
+        assert c.tolerance == pytest.approx(0.20 if c.polarised else 0.10), c
+        assert cat.items[c.id].tolerance == c.tolerance
+
+
+def test_a_stated_capacitor_tolerance_applies_to_every_bought_capacitor(tmp_path):
+    from optimiser.buildlist import load_buildlist
+
+    req = 'topology = "cc"\nsupply_v = 9\n'
+    for extra, want_e, want_c in (("", 0.20, 0.10), ('capacitor_tolerance = "5%"\n', 0.05, 0.05)):
+        p = tmp_path / "list.toml"
+        p.write_text(f'[[build]]\ncount = 1\n[build.request]\n{req}\n[purchase]\n{extra}')
+        snap, _ = augment(drawer(), load_buildlist(p).purchase)
+        bought = [c for c in snap.capacitors if c.id < 0]
+        assert [c.tolerance for c in bought if c.polarised] == \
+            pytest.approx([want_e] * sum(c.polarised for c in bought))
+        assert [c.tolerance for c in bought if not c.polarised] == \
+            pytest.approx([want_c] * sum(not c.polarised for c in bought))
