@@ -4,7 +4,13 @@ Pure functions over a :class:`~optimiser.design.Design` (its parts, their
 ratings and its DC node voltages), the :class:`~optimiser.request.Request` and
 the transistor's data.  No I/O.  Each condition compares a figure with a
 threshold that is a named setting of :class:`CautionSettings`; the defaults are
-rules of thumb (common practice) and are documented in docs/sheet.md.
+rules of thumb (common practice) and are documented in docs/sheet.md.  The
+capacitor and resistor deratings are the engine's (:data:`optimiser.evaluate.DERATING`).
+
+Each caution carries a severity (:data:`SEVERITIES`): ``danger`` (it can hurt
+the builder: mains or high voltage, a capacitor that can burst, a part hot
+enough to burn), ``warning`` (it can damage a part) or ``note`` (advice).  How a
+severity looks is the business of the renderers, not of this module.
 
 DC voltages across the capacitors follow from the node voltages (interface.md
 "Roles"): C_IN sits between the base (ce, cc) or the emitter (cb) and a source
@@ -26,13 +32,17 @@ from inventory.parts import (
     POLARISED_DIELECTRICS,
 )
 from optimiser.design import Design, RolePick
+from optimiser.evaluate import DERATING
 from optimiser.request import Request
 
 __all__ = [
     "Caution",
     "CautionSettings",
     "CapacitorBias",
+    "CapacitorRating",
+    "SEVERITIES",
     "capacitor_bias",
+    "capacitor_ratings",
     "resistor_piece_power",
     "transistor_power",
     "cautions",
@@ -49,23 +59,37 @@ NODE_WORDS = {
 }
 
 
+#: The severities, most serious first.
+SEVERITIES = ("danger", "warning", "note")
+
+
 @dataclass(frozen=True)
 class Caution:
     """One line of advice for the builder.
 
     ``kind`` names the condition (``capacitor_voltage``, ``polarity``,
     ``resistor_power``, ``transistor_power``, ``transistor_voltage``, ``hot``,
-    ``mains``, ``verify``); ``role`` the part it concerns, if any; ``level`` is
-    ``"caution"`` (something to act on) or ``"note"``.
+    ``mains``, ``verify``); ``role`` the part it concerns, if any;
+    ``severity`` one of :data:`SEVERITIES`.  ``level`` is ``"caution"``
+    (something to act on: danger or warning) or ``"note"``.
     """
 
     kind: str
     text: str
     role: str | None = None
-    level: str = "caution"
+    severity: str = "warning"
+
+    def __post_init__(self):
+        if self.severity not in SEVERITIES:
+            raise ValueError(f"severity must be one of {SEVERITIES}, not {self.severity!r}")
+
+    @property
+    def level(self) -> str:
+        return "note" if self.severity == "note" else "caution"
 
     def to_json(self) -> dict:
-        return {"kind": self.kind, "text": self.text, "role": self.role, "level": self.level}
+        return {"kind": self.kind, "text": self.text, "role": self.role, "level": self.level,
+                "severity": self.severity}
 
 
 @dataclass(frozen=True)
@@ -75,11 +99,11 @@ class CautionSettings:
     Attributes
     ----------
     capacitor_derating : float
-        Largest |DC voltage| as a fraction of a capacitor's voltage rating (0.8;
-        interface.md "Validity").
+        Largest |DC voltage| as a fraction of a capacitor's voltage rating (the
+        engine's validity rule, ``DERATING["capacitor_voltage"]``).
     resistor_derating : float
         Largest dissipation of one resistor piece as a fraction of its power
-        rating (0.5; interface.md "Validity").
+        rating (the engine's ``DERATING["resistor_power"]``).
     transistor_derating : float
         Largest transistor dissipation as a fraction of its ``pd`` (1.0: the
         rating itself).
@@ -97,8 +121,8 @@ class CautionSettings:
         are commonly electrolytic) gets a note naming the side for + .
     """
 
-    capacitor_derating: float = 0.80
-    resistor_derating: float = 0.50
+    capacitor_derating: float = DERATING["capacitor_voltage"]
+    resistor_derating: float = DERATING["resistor_power"]
     transistor_derating: float = 1.00
     hot_fraction_of_pd: float = 0.50
     hot_w: float = 0.25
@@ -184,6 +208,53 @@ def capacitor_bias(design: Design, request: Request) -> dict[str, CapacitorBias]
             out[role] = CapacitorBias(role, a, b, va - vb)
         else:
             out[role] = CapacitorBias(role, b, a, vb - va)
+    return out
+
+
+@dataclass(frozen=True)
+class CapacitorRating:
+    """The DC voltage across one capacitor role and the rating it needs.
+
+    ``volts`` the |DC voltage| (V), ``plus`` the node facing + (see
+    ``NODE_WORDS``), ``needed_v`` = ``volts`` / derating, ``rating_v`` the
+    lowest rating of its pieces (the stock default when no piece states one,
+    then ``stated`` is False), ``ok`` whether ``rating_v`` ≥ ``needed_v``.
+    """
+
+    role: str
+    volts: float
+    plus: str
+    needed_v: float
+    rating_v: float
+    stated: bool
+    derating: float
+
+    @property
+    def ok(self) -> bool:
+        return self.rating_v >= self.needed_v * (1 - 1e-9)
+
+    def to_json(self) -> dict:
+        return {"role": self.role, "dc_v": self.volts, "plus": self.plus,
+                "needed_v": self.needed_v, "rating_v": self.rating_v,
+                "rating_stated": self.stated, "ok": self.ok}
+
+
+def capacitor_ratings(design: Design, request: Request, *,
+                      settings: CautionSettings | None = None) -> list[CapacitorRating]:
+    """Each capacitor role's DC voltage and the voltage rating it needs (role order).
+
+    The whole role's voltage is set against ``settings.capacitor_derating`` of
+    its lowest-rated piece (pieces in series share the voltage, so this errs
+    on the safe side).
+    """
+    s = settings or DEFAULT_SETTINGS
+    out = []
+    for role, bias in capacitor_bias(design, request).items():
+        stated = [pc.rating for pc in design.parts[role].pieces if pc.rating]
+        rating = min(stated) if stated else DEFAULT_CAPACITOR_VOLTAGE_V
+        out.append(CapacitorRating(role, bias.volts, bias.plus,
+                                   bias.volts / s.capacitor_derating, rating, bool(stated),
+                                   s.capacitor_derating))
     return out
 
 
@@ -303,8 +374,9 @@ def cautions(design: Design, request: Request, transistor=None, *,
     Returns
     -------
     list of Caution
-        Cautions first (in role order), the notes last; the bench note is
-        always there.
+        The mains / high-voltage caution first when it applies, then the
+        dangers, the warnings and the notes, each in role order; the bench
+        note is always there.
     """
     out: list[Caution] = []
     s = settings
@@ -320,7 +392,8 @@ def cautions(design: Design, request: Request, transistor=None, *,
                 "capacitor_voltage",
                 f"{role}: {_fmt_v(bias.volts)} DC across a {_fmt_v(rating)} part, above "
                 f"{s.capacitor_derating:.0%} of its rating ({_fmt_v(limit)}); use a part rated "
-                f"at least {_fmt_v(bias.volts / s.capacitor_derating)}.", role))
+                f"at least {_fmt_v(bias.volts / s.capacitor_derating)}; an over-stressed "
+                f"capacitor can fail, and an electrolytic can burst.", role, "danger"))
         # The side follows from the DC voltages (the higher node gets +).
         polar = _polarised(pick)
         if polar:
@@ -328,7 +401,7 @@ def cautions(design: Design, request: Request, transistor=None, *,
                 "polarity",
                 f"{role}: polarised; + toward {NODE_WORDS[bias.high]}, − toward "
                 f"{NODE_WORDS[bias.low]} ({_fmt_v(bias.volts)} DC across it). "
-                f"Reversed, it heats and can burst.", role))
+                f"Reversed, it heats and can burst.", role, "danger"))
         elif polar is None and pick.value >= s.polarity_hint_f:
             out.append(Caution(
                 "polarity",
@@ -347,7 +420,7 @@ def cautions(design: Design, request: Request, transistor=None, *,
                 "resistor_power",
                 f"{role}: a piece dissipates {_fmt_w(piece_w)}, above {s.resistor_derating:.0%} "
                 f"of its {_fmt_w(rating)} rating ({_fmt_w(limit)}); use a higher-rated part.",
-                role))
+                role, "warning"))
 
     # Transistor: dissipation, heat, voltage.
     p_q = transistor_power(design, corners)
@@ -357,36 +430,41 @@ def cautions(design: Design, request: Request, transistor=None, *,
             out.append(Caution(
                 "transistor_power",
                 f"Q: dissipates {_fmt_w(p_q)}, above its {_fmt_w(pd)} rating; it will overheat.",
-                "Q"))
+                "Q", "warning"))
         hot_limit = s.hot_w if pd is None else min(s.hot_w, s.hot_fraction_of_pd * pd)
         if p_q > hot_limit:
             out.append(Caution(
                 "hot",
                 f"Q: dissipates {_fmt_w(p_q)} and runs hot to the touch; do not touch it while "
                 f"powered, keep it clear of other parts and wires, give it air (or a heat sink).",
-                "Q"))
+                "Q", "danger"))
     vceo = getattr(transistor, "vceo", None)
     if vceo is not None and request.supply_v > vceo:
         out.append(Caution(
             "transistor_voltage",
             f"Q: supply {_fmt_v(request.supply_v)} is above the transistor's V_CEO "
-            f"({_fmt_v(vceo)}); it can break down.", "Q"))
+            f"({_fmt_v(vceo)}); it can break down.", "Q", "warning"))
 
-    # Supply.
+    # Supply: first of all, when it applies.
     if request.mains or request.supply_v > s.mains_supply_v:
         why = "is derived from the mains" if request.mains else \
             f"is {_fmt_v(request.supply_v)} (above {_fmt_v(s.mains_supply_v)})"
-        out.append(Caution(
+        out.insert(0, Caution(
             "mains",
             f"The supply {why}. Mains wiring and high-voltage supplies are work for qualified "
             f"people under local codes and licensed practice; power the stage from a finished, "
-            f"isolated, fused supply and switch it off before touching the board.", None))
+            f"isolated, fused supply and switch it off before touching the board. Capacitors "
+            f"can hold a charge after the power is off: discharge each one through a resistor "
+            f"(and check with a meter) before you touch it.", None, "danger"))
 
     out.append(Caution(
         "verify",
         "The figures are computed from models and nominal data (ideal parts, data-sheet "
         "transistor figures); verify them on the bench with a meter before relying on the stage.",
         None, "note"))
+    # Most serious first; the sort is stable, so the mains caution stays first and
+    # the rest keep their role order within a severity.
+    out.sort(key=lambda c: SEVERITIES.index(c.severity))
     return out
 
 

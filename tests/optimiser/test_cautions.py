@@ -215,3 +215,58 @@ def test_fully_bypassed_c_byp_faces_the_emitter():
     pol = [c.text for c in cautions(d, REQ) if c.kind == "polarity"]
     assert len(pol) == 1 and "+ toward the emitter," in pol[0]
     assert capacitor_bias(d, REQ)["C_BYP"].volts == pytest.approx(1.35)
+
+
+def test_mains_caution_comes_first_with_discharge_advice():
+    # 48 V (above the 30 V threshold, common practice), a hot transistor, a polarised
+    # C_OUT and an over-stressed C_IN: the supply caution still leads.
+    req = Request("ce", 48.0)
+    d = ce_design(vb=40.0, ve=39.35, vc=45.0, pd_q=0.4, parts={
+        "C_IN": pick("C_IN", 1e-6, rating=35.0),
+        "C_OUT": pick("C_OUT", 10e-6, dielectric="electrolytic")})
+    out = cautions(d, req)
+    assert {"hot", "polarity", "capacitor_voltage"} <= set(kinds(out))
+    assert out[0].kind == "mains" and out[0].severity == "danger"
+    text = out[0].text
+    assert "discharge" in text and "resistor" in text and "after the power is off" in text
+    assert "local codes" in text and "licensed practice" in text
+
+
+def test_severities_run_from_danger_to_note():
+    from optimiser.cautions import SEVERITIES
+
+    req = Request("ce", 12.0)
+    d = ce_design(pd_q=0.3, parts={"RC": pick("RC", 100.0, rating=0.25),
+                                   "C_OUT": pick("C_OUT", 10e-6, dielectric="electrolytic"),
+                                   "C_BYP": RolePick("C_BYP", 47e-6, "x", ())})
+    out = cautions(d, req, Transistor("GP-N1", 100, 300, vceo=10.0, pd=0.5))
+    sev = [c.severity for c in out]
+    assert set(sev) == set(SEVERITIES)                # all three occur in this design
+    assert sev == sorted(sev, key=SEVERITIES.index)
+    assert all((c.level == "note") == (c.severity == "note") for c in out)
+    assert all(c.to_json()["severity"] == c.severity for c in out)
+
+
+@pytest.mark.parametrize("rating,ok", [(10.0, True), (6.3, False)])
+def test_capacitor_ratings_give_the_dc_voltage_and_the_rating_it_needs(rating, ok):
+    from optimiser.cautions import capacitor_ratings
+    from optimiser.evaluate import DERATING
+
+    # C_OUT sits between the collector (7 V) and a load at 0 V: 7 V DC (Kirchhoff).
+    d = ce_design(vc=7.0, parts={"C_OUT": pick("C_OUT", 1e-6, rating=rating)})
+    got = {r.role: r for r in capacitor_ratings(d, REQ)}
+    r = got["C_OUT"]
+    assert r.volts == pytest.approx(7.0) and r.plus == "collector"
+    assert r.needed_v == pytest.approx(7.0 / DERATING["capacitor_voltage"])
+    assert (r.rating_v, r.stated, r.ok) == (rating, True, ok)
+    # the caution and the table agree
+    assert ("capacitor_voltage" in kinds(cautions(d, REQ), "C_OUT")) is (not ok)
+    assert got["C_IN"].stated is False               # no stated rating: the stock default
+
+
+def test_the_caution_derating_is_the_engines():
+    from optimiser.evaluate import DERATING
+
+    s = CautionSettings()
+    assert (s.capacitor_derating, s.resistor_derating) == (
+        DERATING["capacitor_voltage"], DERATING["resistor_power"])
