@@ -7,9 +7,11 @@ threshold that is a named setting of :class:`CautionSettings`; the defaults are
 rules of thumb (common practice) and are documented in docs/sheet.md.  The
 capacitor and resistor deratings are the engine's (:data:`optimiser.evaluate.DERATING`).
 
-Each caution carries a severity (:data:`SEVERITIES`): ``danger`` (it can hurt
-the builder: mains or high voltage, a capacitor that can burst, a part hot
-enough to burn), ``warning`` (it can damage a part) or ``note`` (advice).  How a
+Each caution carries a severity (:data:`SEVERITIES`): ``danger`` when the
+design as chosen can hurt the builder (mains or high voltage, a capacitor above
+its derated voltage, a transistor hot enough to burn), ``warning`` for what must
+be done right or a part suffers (the + side of a polarised capacitor, a
+resistor or transistor over its rating), ``note`` for advice.  How a
 severity looks is the business of the renderers, not of this module.
 
 DC voltages across the capacitors follow from the node voltages (interface.md
@@ -401,7 +403,7 @@ def cautions(design: Design, request: Request, transistor=None, *,
                 "polarity",
                 f"{role}: polarised; + toward {NODE_WORDS[bias.high]}, − toward "
                 f"{NODE_WORDS[bias.low]} ({_fmt_v(bias.volts)} DC across it). "
-                f"Reversed, it heats and can burst.", role, "danger"))
+                f"Reversed, it heats and can burst.", role, "warning"))
         elif polar is None and pick.value >= s.polarity_hint_f:
             out.append(Caution(
                 "polarity",

@@ -58,11 +58,9 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> N
 
 
 def _show_cautions(notes) -> None:
-    from drawerfit.console import out
+    from drawerfit.render.analysis import show_cautions
 
-    for n in notes:
-        mark = "[yellow]caution:[/yellow]" if n.level == "caution" else "note:"
-        out.print(f"{mark} {n.text}")
+    show_cautions(notes)
 
 
 def _stock_picks(c):

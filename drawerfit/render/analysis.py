@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import math
 
+from rich.markup import escape
 from rich.table import Table
 
-from drawerfit.console import out
+from drawerfit.console import SEVERITY_STYLE, caution_line
+from drawerfit.console import out as _out
 from inventory.values import format_si
 
-__all__ = ["show_analysis"]
+__all__ = ["show_analysis", "show_cautions", "drift_rows", "capacitor_table"]
 
 _ROLE_KIND = {"R1": "resistor", "R2": "resistor", "RC": "resistor", "RE": "resistor",
               "RE_BYP": "resistor"}
@@ -27,8 +29,53 @@ def _num(x, fmt="{:.3g}"):
     return fmt.format(x)
 
 
-def show_analysis(design, ev, i: int, circuit, yield_result=None) -> None:
+_PLUS_WORDS = {"junction": "RE/RE_BYP joint"}
+
+
+def drift_rows(corners: dict) -> list[tuple[str, ...]]:
+    """The drift corners as printed rows, each distinct corner once.
+
+    A temperature range of one point (``temp_c = [25, 25]``) makes the engine
+    evaluate each hFE corner twice; the repeats are the same corner and print once.
+    """
+    rows, seen = [], set()
+    for k in range(len(corners["ic_a"])):
+        row = (_num(corners["beta25"][k], "{:.0f}"), f"{corners['temp_c'][k]:g} °C",
+               _si(corners["ic_a"][k], "A"), _si(corners["vce_v"][k], "V"),
+               _num(corners["gain"][k]) if "gain" in corners else "—")
+        key = (float(corners["beta25"][k]), float(corners["temp_c"][k]))
+        if key not in seen:
+            seen.add(key)
+            rows.append(row)
+    return rows
+
+
+def capacitor_table(design, request) -> Table | None:
+    """Each capacitor's DC voltage, its + side, the rating it needs and the part's."""
+    from optimiser.cautions import capacitor_ratings
+
+    rows = capacitor_ratings(design, request)
+    if not rows:
+        return None
+    t = Table(title=f"Capacitor voltages (rating needed: DC ÷ {rows[0].derating:g})",
+              header_style="bold")
+    t.add_column("role")
+    t.add_column("DC across", justify="right")
+    t.add_column("+ side")
+    t.add_column("needs ≥", justify="right")
+    t.add_column("part", justify="right")
+    for r in rows:
+        part = _si(r.rating_v, "V") if r.stated else f"{_si(r.rating_v, 'V')} assumed"
+        if not r.ok:
+            part = f"[{SEVERITY_STYLE['danger']}]{part}: too low[/]"
+        t.add_row(r.role, _si(r.volts, "V"), _PLUS_WORDS.get(r.plus, r.plus),
+                  _si(r.needed_v, "V"), part)
+    return t
+
+
+def show_analysis(design, ev, i: int, circuit, yield_result=None, console=None) -> None:
     """Print the figures, the drift corners, violations and warnings of candidate ``i``."""
+    out = console or _out
     m = design.metrics
     req = circuit.request
     title = {"ce": "common emitter", "cb": "common base", "cc": "common collector"}[req.topology]
@@ -84,25 +131,27 @@ def show_analysis(design, ev, i: int, circuit, yield_result=None) -> None:
         fig.add_row(a, b)
     out.print(fig)
 
+    caps = capacitor_table(design, req)
+    if caps is not None:
+        out.print(caps)
+
     c = design.extra.get("drift", {})
     if c:
         ct = Table(title="Drift corners", header_style="bold")
         for h in ("hFE (25 °C)", "T", "I_C", "V_CE", "gain"):
             ct.add_column(h, justify="right")
-        for k in range(len(c["ic_a"])):
-            ct.add_row(_num(c["beta25"][k], "{:.0f}"), f"{c['temp_c'][k]:g} °C",
-                       _si(c["ic_a"][k], "A"), _si(c["vce_v"][k], "V"),
-                       _num(c["gain"][k]) if "gain" in c else "—")
+        for row in drift_rows(c):
+            ct.add_row(*row)
         out.print(ct)
 
     if yield_result is not None:
         from drawerfit.render.yield_view import show_yield
-        show_yield(yield_result)
+        show_yield(yield_result, console=out)
         wc = design.extra.get("worst_case")
         if wc:
             r = wc["ranges"]
-            out.print(f"worst case over the tolerance corners: gain {r['gain_db'][0]:.2f} … "
-                      f"{r['gain_db'][1]:.2f} dB, I_C {_si(r['ic_a'][0], 'A')} … "
+            out.print(f"worst case over the tolerance corners: gain {r['gain_db'][0]:.2f} to "
+                      f"{r['gain_db'][1]:.2f} dB, I_C {_si(r['ic_a'][0], 'A')} to "
                       f"{_si(r['ic_a'][1], 'A')}; "
                       + ("every target holds at every corner" if wc["meets"] else
                          "misses at some corner: " + ", ".join(wc["failing"])))
@@ -110,6 +159,12 @@ def show_analysis(design, ev, i: int, circuit, yield_result=None) -> None:
     if design.meets_spec:
         out.print("[green]Valid, and meets every target given.[/green]")
     for v in design.violations:
-        out.print(f"[red]✗[/red] {v}")
+        out.print(f"[red]✗[/red] {escape(v)}")
     for w in design.warnings:
-        out.print(f"[yellow]![/yellow] {w}")
+        out.print(f"[{SEVERITY_STYLE['note']}]note:[/] {escape(w)}")
+
+
+def show_cautions(notes, console=None) -> None:
+    """Print the cautions, most serious first, each in its severity's style."""
+    for n in notes:
+        (console or _out).print(caution_line(n))

@@ -4,13 +4,17 @@ from __future__ import annotations
 
 import math
 
-from rich.console import Console
+from rich.console import Console, ConsoleOptions
+from rich.markup import escape
+from rich.measure import Measurement
 from rich.table import Table
 
+from drawerfit.console import SEVERITY_STYLE, caution_line
 from inventory.values import format_si
 from optimiser.design import Design
 
-__all__ = ["show_result", "why_first", "parts_cell"]
+__all__ = ["show_result", "why_first", "parts_cell", "figure_text", "capacitor_line",
+           "capacitor_rating_text"]
 
 _TERM_WORDS = {"gain": "distance to the gain target", "drift": "bias drift",
                "distortion": "junction distortion (HD2)", "current": "supply current",
@@ -45,28 +49,104 @@ def parts_cell(d: Design) -> str:
     return "\n".join(lines)
 
 
-def _table(designs: list[Design], title: str, misses: bool = False) -> Table:
+#: The figure columns: (metric key, header, how it is printed).  The wide layout
+#: gives each its own column; the folded one stacks them in pairs (see _PAIRS).
+_FIGURES = {
+    "gain_db": ("gain dB", lambda v: _num(v, "{:.2f}")),
+    "f_low_hz": ("f_low", lambda v: _si(v, "Hz")),
+    "f_high_hz": ("f_high", lambda v: _si(v, "Hz")),
+    "ic_a": ("I_C", lambda v: _si(v, "A")),
+    "vce_v": ("V_CE", lambda v: _si(v, "V")),
+    "ic_drift_pct": ("drift", lambda v: _num(v, "{:.2f} %")),
+    "thd_pct": ("THD", lambda v: _num(v, "{:.3g} %")),
+    "swing_vpk": ("swing", lambda v: _si(v, "V")),
+    "yield_pct": ("yield", lambda v: _num(v, "{:.1f} %")),
+}
+#: The folded layout: two figures per cell, one above the other.
+_PAIRS = (("gain_db", "swing_vpk"), ("f_low_hz", "f_high_hz"), ("ic_a", "vce_v"),
+          ("ic_drift_pct", "thd_pct"))
+
+
+def figure_text(d: Design, key: str) -> str:
+    """A design's figure ``key`` as the design table prints it."""
+    return _FIGURES[key][1](d.metrics.get(key))
+
+
+def _has_yield(designs: list[Design]) -> bool:
+    return any(d.metrics.get("yield_pct") is not None for d in designs)
+
+
+def _wide_table(designs: list[Design], title: str, misses: bool) -> Table:
+    """One line of figures per design, one column per figure."""
+    keys = [k for k in _FIGURES if k != "yield_pct" or _has_yield(designs)]
     t = Table(title=title, show_lines=True, title_justify="left")
-    t.add_column("#", justify="right")
+    t.add_column("#", justify="right", no_wrap=True)
     t.add_column("parts @ bin", no_wrap=True)
-    t.add_column("gain dB", justify="right")
-    t.add_column("f_low", justify="right")
-    t.add_column("f_high", justify="right")
-    t.add_column("I_C", justify="right")
-    t.add_column("V_CE", justify="right")
-    t.add_column("drift", justify="right")
-    t.add_column("THD", justify="right")
-    t.add_column("swing", justify="right")
-    t.add_column("why not" if misses else "score", justify="left" if misses else "right")
+    for k in keys:
+        t.add_column(_FIGURES[k][0], justify="right", no_wrap=True)
+    t.add_column("why not" if misses else "score", justify="left" if misses else "right",
+                 no_wrap=not misses)
     for d in designs:
-        m = d.metrics
         last = "\n".join(d.violations) if misses else _num(d.score, "{:.3f}")
-        t.add_row(str(d.rank or ""), parts_cell(d), _num(m.get("gain_db"), "{:.2f}"),
-                  _si(m.get("f_low_hz"), "Hz"), _si(m.get("f_high_hz"), "Hz"),
-                  _si(m.get("ic_a"), "A"), _si(m.get("vce_v"), "V"),
-                  _num(m.get("ic_drift_pct"), "{:.2f} %"), _num(m.get("thd_pct"), "{:.3g} %"),
-                  _si(m.get("swing_vpk"), "V"), last)
+        t.add_row(str(d.rank or ""), parts_cell(d), *(figure_text(d, k) for k in keys), last)
     return t
+
+
+def _folded_table(designs: list[Design], title: str, misses: bool) -> Table:
+    """Two figures per cell (see _PAIRS); a miss's reasons under its parts."""
+    t = Table(title=title, show_lines=True, title_justify="left")
+    t.add_column("#", justify="right", no_wrap=True)
+    t.add_column("parts @ bin" + (" / why not" if misses else ""), overflow="fold")
+    for a, b in _PAIRS:
+        t.add_column(f"{_FIGURES[a][0]}\n{_FIGURES[b][0]}", justify="right", no_wrap=True)
+    last = ["yield"] if _has_yield(designs) else []
+    if not misses:
+        last.insert(0, "score")
+    if last:
+        t.add_column("\n".join(last), justify="right", no_wrap=True)
+    for d in designs:
+        parts = parts_cell(d)
+        if misses and d.violations:
+            parts += "\n" + "\n".join(f"[red]✗[/red] {escape(v)}" for v in d.violations)
+        cells = [f"{figure_text(d, a)}\n{figure_text(d, b)}" for a, b in _PAIRS]
+        if last:
+            tail = [] if misses else [_num(d.score, "{:.3f}")]
+            if "yield" in last:
+                tail.append(figure_text(d, "yield_pct"))
+            cells.append("\n".join(tail))
+        t.add_row(str(d.rank or ""), parts, *cells)
+    return t
+
+
+class _DesignTable:
+    """The ranked designs, laid out for the width they are printed at.
+
+    The wide layout (one column per figure) when it fits without cutting a
+    figure; otherwise the folded one (two figures per cell), which fits 80
+    columns with the parts column wrapping if need be.
+    """
+
+    def __init__(self, designs: list[Design], title: str, misses: bool):
+        self.designs, self.title, self.misses = designs, title, misses
+
+    #: Width the wide layout leaves at least for a miss's reasons (they wrap).
+    WHY_NOT_MIN = 24
+
+    def __rich_console__(self, console: Console, options: ConsoleOptions):
+        # Every figure and part line at full length; a miss's reasons may wrap.
+        wide = _wide_table(self.designs, self.title, misses=False)
+        need = Measurement.get(console, options.update(width=10_000), wide).maximum
+        if self.misses:
+            need += self.WHY_NOT_MIN - max(5, *(len(_num(d.score, "{:.3f}"))
+                                                for d in self.designs))
+        if need <= options.max_width:
+            yield _wide_table(self.designs, self.title, self.misses)
+        else:
+            yield _folded_table(self.designs, self.title, self.misses)
+
+
+def _table(designs: list[Design], title: str, misses: bool = False) -> _DesignTable:
+    return _DesignTable(designs, title, misses)
 
 
 def why_first(a: Design, b: Design) -> str:
@@ -102,6 +182,26 @@ def _op_line(d: Design) -> str:
             f"Z_out {_si(m.get('zout_ohm'), 'Ω')}")
 
 
+def capacitor_rating_text(r) -> str:
+    """One capacitor's DC voltage, the rating it needs and the part's (Rich markup)."""
+    part = (f"part {_si(r.rating_v, 'V')}" if r.stated else
+            f"no rating given, {_si(r.rating_v, 'V')} assumed")
+    if not r.ok:
+        part = f"[{SEVERITY_STYLE['danger']}]{part}: too low[/]"
+    return f"{r.role} {_si(r.volts, 'V')} DC, needs ≥ {_si(r.needed_v, 'V')} ({part})"
+
+
+def capacitor_line(d: Design, request) -> str:
+    """The line of #1's capacitor voltages and the ratings they need ("" without capacitors)."""
+    from optimiser.cautions import capacitor_ratings
+
+    rows = capacitor_ratings(d, request)
+    if not rows:
+        return ""
+    return (f"#1 capacitor voltages (a part must be rated at least DC ÷ {rows[0].derating:g}): "
+            + "; ".join(capacitor_rating_text(r) for r in rows))
+
+
 def show_result(console: Console, result, cautions_for=None) -> None:
     """Print a :class:`~optimiser.search.SearchResult` as tables and lines."""
     req = result.request
@@ -112,11 +212,14 @@ def show_result(console: Console, result, cautions_for=None) -> None:
         console.print(_op_line(first))
         if len(result.designs) > 1:
             console.print(why_first(first, result.designs[1]))
+        cap_line = capacitor_line(first, req)
+        if cap_line:
+            console.print(cap_line)
         for w in first.warnings:
-            console.print(f"[yellow]note:[/yellow] {w}")
+            console.print(f"[{SEVERITY_STYLE['note']}]note:[/] {escape(w)}")
         if cautions_for is not None:
             for c in cautions_for(first):
-                console.print(f"[yellow]{c.level}:[/yellow] {c.text}")
+                console.print(caution_line(c))
     elif not st_complete(result):
         console.print("[bold]No design found before the time limit.[/bold] "
                       "The search was stopped, so this is not a proof that none exists; "

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from rich.table import Table
 
-from drawerfit.console import out
+from drawerfit.console import out as _out
 
 __all__ = ["show_yield", "gain_histogram"]
 
@@ -23,7 +23,9 @@ def gain_histogram(gain_db: np.ndarray, bins: int = 12, width: int = 40) -> list
             for i, c in enumerate(counts)]
 
 
-def show_yield(res) -> None:
+def show_yield(res, console=None) -> None:
+    """Print a Monte Carlo yield: failing checks, the figure, spreads and a gain histogram."""
+    out = console or _out
     t = Table(title=f"Yield over {res.n} samples (seed {res.seed})", header_style="bold")
     t.add_column("check")
     t.add_column("samples failing", justify="right")
@@ -35,8 +37,8 @@ def show_yield(res) -> None:
               + (f"; most frequent miss: {worst}" if worst else ""))
     p = res.percentiles
     if "gain_db" in p:
-        out.print(f"gain 5–95 %: {p['gain_db'][0]:.2f} … {p['gain_db'][1]:.2f} dB; "
-                  f"I_C {1e3 * p['ic_a'][0]:.3g} … {1e3 * p['ic_a'][1]:.3g} mA; "
-                  f"V_CE {p['vce_v'][0]:.3g} … {p['vce_v'][1]:.3g} V")
+        out.print(f"gain 5–95 %: {p['gain_db'][0]:.2f} to {p['gain_db'][1]:.2f} dB; "
+                  f"I_C {1e3 * p['ic_a'][0]:.3g} to {1e3 * p['ic_a'][1]:.3g} mA; "
+                  f"V_CE {p['vce_v'][0]:.3g} to {p['vce_v'][1]:.3g} V")
     for line in gain_histogram(res.samples["gain_db"]):
         out.print(line)

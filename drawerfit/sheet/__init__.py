@@ -199,13 +199,12 @@ def echo_sheet(written: WrittenSheet, console=None, *, show_cautions: bool = Tru
     stdout stays clean.  ``show_cautions=False`` when the command's own view
     has just printed the same cautions.
     """
-    from rich.markup import escape as rich_escape
+    from drawerfit.console import caution_line
 
     if console is None:
         from drawerfit.console import err as console
     for c in (written.cautions if show_cautions else []):
-        mark = "[bold red]caution[/]" if c.level == "caution" else "[dim]note[/]"
-        console.print(f"{mark}: {rich_escape(c.text)}", markup=True, highlight=False)
+        console.print(caution_line(c), markup=True, highlight=False)
     console.print(title, markup=False, highlight=False)
     for p in written:
         console.print(f"  {p}", markup=False, highlight=False, soft_wrap=True)

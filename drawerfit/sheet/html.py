@@ -15,6 +15,7 @@ from pathlib import Path
 
 from drawerfit.sheet import fmt
 from drawerfit.sheet.spread import Probe
+from drawerfit.console import severity_css
 from optimiser.cautions import Caution
 from optimiser.design import Design
 from optimiser.request import Request
@@ -226,7 +227,8 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
     items = []
     for c in cautions:
         who = f"<b>{escape(c.role)}</b> " if c.role and not c.text.startswith(c.role) else ""
-        items.append(f'<li class="{c.level}" data-kind="{c.kind}">{who}{escape(c.text)}</li>')
+        items.append(f'<li class="{c.level} {c.severity}" data-kind="{c.kind}">{who}'
+                     f'{escape(c.text)}</li>')
     caution_list = f'<ul class="cautions">{"".join(items)}</ul>'
 
     sch = data_uri(schematic_svg, "image/svg+xml")
@@ -237,7 +239,7 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
 <head>
 <meta charset="utf-8">
 <title>{escape(title)}</title>
-<style>{CSS}</style>
+<style>{CSS}{severity_css("li")}</style>
 </head>
 <body>
 <h1>{escape(title)}</h1>
