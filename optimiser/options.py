@@ -24,6 +24,7 @@ import numpy as np
 from inventory.parts import Capacitor, Resistor, StockSnapshot
 from inventory.values import format_value
 from optimiser.design import Piece, RolePick
+from optimiser.evaluate import DERATING
 
 __all__ = [
     "RESISTOR_DERATING",
@@ -36,11 +37,11 @@ __all__ = [
     "value_key",
 ]
 
-#: A resistor piece may dissipate at most this share of its rating (interface.md
-#: "Validity", common practice).
-RESISTOR_DERATING = 0.5
-#: A capacitor's |DC voltage| may be at most this share of its rating.
-CAPACITOR_DERATING = 0.8
+#: A resistor piece may dissipate at most this share of its rating, and a capacitor's
+#: |DC voltage| at most this share of its rating: the engine's validity rule
+#: (:data:`optimiser.evaluate.DERATING`, its one home), read here for the search.
+RESISTOR_DERATING = DERATING["resistor_power"]
+CAPACITOR_DERATING = DERATING["capacitor_voltage"]
 #: Score penalty for each stock row a design empties (see docs/search.md).
 LAST_PIECES_PENALTY = 0.25
 
