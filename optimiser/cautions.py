@@ -6,7 +6,7 @@ the transistor's data.  No I/O.  Each condition compares a figure with a
 threshold that is a named setting of :class:`CautionSettings`; the defaults are
 rules of thumb (common practice) and are documented in docs/sheet.md.
 
-DC voltages across the capacitors follow from the node voltages (interface.md
+DC voltages across the capacitors follow from the node voltages (docs/requests.md,
 "Roles"): C_IN sits between the base (ce, cc) or the emitter (cb) and a source
 at 0 V; C_OUT between the collector (ce, cb) or the emitter (cc) and a load at
 0 V (taken at 0 V with no load, too); C_BYP across RE_BYP, i.e. from the
@@ -76,10 +76,10 @@ class CautionSettings:
     ----------
     capacitor_derating : float
         Largest |DC voltage| as a fraction of a capacitor's voltage rating (0.8;
-        interface.md "Validity").
+        docs/model.md, "Validity").
     resistor_derating : float
         Largest dissipation of one resistor piece as a fraction of its power
-        rating (0.5; interface.md "Validity").
+        rating (0.5; docs/model.md, "Validity").
     transistor_derating : float
         Largest transistor dissipation as a fraction of its ``pd`` (1.0: the
         rating itself).

@@ -36,8 +36,8 @@ __all__ = [
     "value_key",
 ]
 
-#: A resistor piece may dissipate at most this share of its rating (interface.md
-#: "Validity", common practice).
+#: A resistor piece may dissipate at most this share of its rating (docs/model.md,
+#: "Validity"; common practice).
 RESISTOR_DERATING = 0.5
 #: A capacitor's |DC voltage| may be at most this share of its rating.
 CAPACITOR_DERATING = 0.8

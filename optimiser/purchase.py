@@ -1,6 +1,6 @@
 """Values that may be bought, as virtual stock rows the search and the planner can use.
 
-A ``[purchase]`` table in a build list (interface.md "Build list") says which
+A ``[purchase]`` table in a build list (docs/requests.md) says which
 preferred series may be ordered, at what price and in which packs.  This module
 turns it into *virtual* stock rows: negative ids, a quantity so large that it
 never limits the search, location ``"to order"`` and the ratings the

@@ -26,7 +26,7 @@ import pytest
 ROOT = Path(__file__).resolve().parents[1]
 
 #: Files whose text is not prose or code of the product: `.gitignore` holds patterns
-#: relative to the repository root ("/tmp/" there is a folder of the checkout).
+#: relative to the repository root (a leading slash there means the checkout's own folder).
 SKIP_FILES = {".gitignore"}
 SKIP_DIRS = (".ci/",)
 
@@ -37,7 +37,8 @@ OUTSIDE_DOCS = re.compile(
     + r"|\bshared" + _S + r"[\w.-]+\.md\b")
 HISTORY = re.compile(
     r"\bissue\s*#?\d+|\b(?:first|second|third|fourth|fifth|sixth|seventh|eighth|ninth|"
-    r"tenth|\d+(?:st|nd|rd|th))\s+session\b|\btargets?\b[^.\n]{0,30}?:\s*met\b",
+    r"tenth|\d+(?:st|nd|rd|th)|earlier|previous|last|next)\s+session\b"
+    r"|\btargets?\b[^.\n]{0,40}?\bmet\b",
     re.I)
 MD_LINK = re.compile(r"\]\(([^)\s]+)\)")
 
@@ -121,4 +122,5 @@ def test_the_checks_can_fail():
     assert HISTORY.search("Hostile files (" + "issue" + " 8)")
     assert HISTORY.search("at the end of the " + "sixth" + " session")
     assert HISTORY.search("target 1 s: " + "met")
+    assert HISTORY.search("The target (10 s) is " + "met on the benchmark")
     assert not HISTORY.search("sessionmaker(engine)")

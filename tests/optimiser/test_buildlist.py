@@ -61,7 +61,7 @@ def test_good_list_with_file_and_inline_requests(folder):
     assert (pu.series, pu.cap_series, pu.pack, pu.line_cost) == ("E12", "E6", 25, 0.0)
     assert pu.resistor_tolerance == pytest.approx(0.05)
     assert pu.capacitor_voltage == pytest.approx(25.0)
-    # defaults from interface.md
+    # defaults from docs/requests.md ("The build list")
     assert pu.capacitor_tolerance == pytest.approx(0.10)
     assert pu.resistor_power == pytest.approx(0.25)
 

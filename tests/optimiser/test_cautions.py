@@ -1,7 +1,7 @@
 """Cautions appear exactly when their condition holds (both sides of every threshold).
 
 The thresholds are rules of thumb (common practice): capacitors at ≤ 80 % of their
-voltage rating and resistor pieces at ≤ 50 % of their power rating (interface.md
+voltage rating and resistor pieces at ≤ 50 % of their power rating (docs/model.md,
 "Validity"), a transistor hot to the touch above 50 % of pd or 0.25 W, the
 high-voltage/mains note above 30 V.  The node voltages in these hand-made designs
 are chosen to sit just either side of each threshold; the expected dissipations are
@@ -61,7 +61,7 @@ def test_always_the_bench_note_and_nothing_else_for_a_gentle_design():
 @pytest.mark.parametrize("vc,expect", [(7.9, False), (8.1, True)])
 def test_capacitor_voltage_against_80_percent_of_rating(vc, expect):
     # C_OUT sits between the collector and the load at 0 V: its DC voltage is vc.
-    # A 10 V part may carry 8 V (80 %, interface.md Validity, common practice).
+    # A 10 V part may carry 8 V (80 %, docs/model.md, "Validity", common practice).
     d = ce_design(vc=vc, parts={"C_OUT": pick("C_OUT", 1e-6, rating=10.0)})
     out = cautions(d, REQ)
     assert ("capacitor_voltage" in kinds(out, "C_OUT")) is expect
