@@ -7,7 +7,7 @@ read as text and checked for
 - documents that are not in the repository (a design note, an interface note or a list
   of reference values kept elsewhere, or a folder shared beside the checkout);
 - the history of the work instead of the product (issue numbers, numbered sessions,
-  "target met");
+  goals declared reached);
 
 and every relative link in the Markdown files must name a tracked file inside the
 repository.  The patterns are assembled from pieces so that this file does not match
@@ -121,6 +121,6 @@ def test_the_checks_can_fail():
     assert OUTSIDE_DOCS.search("as " + "interface" + ".md says")
     assert HISTORY.search("Hostile files (" + "issue" + " 8)")
     assert HISTORY.search("at the end of the " + "sixth" + " session")
-    assert HISTORY.search("target 1 s: " + "met")
-    assert HISTORY.search("The target (10 s) is " + "met on the benchmark")
+    assert HISTORY.search("tar" + "get 1 s: met")
+    assert HISTORY.search("The tar" + "get (10 s) is met on the benchmark")
     assert not HISTORY.search("sessionmaker(engine)")
