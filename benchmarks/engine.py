@@ -8,7 +8,7 @@ Prints designs per second for (1) operating points of N plausible bias networks
 and small-signal parameters included), (3) ngspice (``ngspice -b``) running one
 ``.op`` plus a 100-point ``.ac`` per design, one process per design as a user would,
 and also N designs as copies in one netlist.  Ratios are against ngspice measured in
-the same run.  Targets (issue 3): DC ≥ 5·10^5 networks/s; AC ≥ 20× faster per design
+the same run.  Targets: DC ≥ 5·10^5 networks/s; AC ≥ 20× faster per design
 than ngspice.
 """
 

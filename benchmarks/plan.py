@@ -36,7 +36,7 @@ from optimiser.plan import (
 from optimiser.purchase import PurchaseOptions, augment
 from optimiser.request import parse_request
 
-#: Five invented requests a small club might build ten of each.
+#: Five invented requests of which a small (invented) club might build ten each.
 REQUESTS = {
     "mic-pre": {"topology": "ce", "supply_v": 12.0, "source_ohm": "600", "load_ohm": "10k",
                 "gain_db": 20.0, "f_low_max_hz": 50, "ic_drift_max_pct": 10,
@@ -183,7 +183,7 @@ def main(argv=None) -> int:
     cbc = results.get("cbc")
     if cbc is not None:
         ok = cbc.solver.status == "Optimal" and cbc.solver.seconds <= 10.0
-        print(f"target: CBC optimal within 10 s: {'met' if ok else 'NOT met'} "
+        print(f"CBC proven optimal within 10 s: {'yes' if ok else 'no'} "
               f"({cbc.solver.status}, {cbc.solver.seconds:.2f} s)")
     if "cbc" in results and "highs" in results and results["cbc"].feasible \
             and results["highs"].feasible:

@@ -4,7 +4,7 @@
     python benchmarks/yield.py [--samples N] [--loop M]
 
 Prints samples per second and the ratio to running the nominal engine once per sample
-in a Python loop (M samples timed, measured in the same run).  Target (issue 6):
+in a Python loop (M samples timed, measured in the same run).  Target:
 10^4 samples in ≤ 0.1 s.
 """
 

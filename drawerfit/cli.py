@@ -67,7 +67,11 @@ class _Group(click.Group):
 @click.version_option(package_name="drawerfit")
 @click.pass_context
 def cli(ctx: click.Context, db: str | None) -> None:
-    """drawerfit: design BJT amplifier stages from the parts in your drawer."""
+    """drawerfit: design BJT amplifier stages from the parts in your drawer.
+
+    Reference: docs/requests.md (request, circuit and build-list files),
+    docs/json.md (--json output, exit codes), docs/model.md (how figures are defined).
+    """
     ctx.obj = AppContext(db=db)
 
 

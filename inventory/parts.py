@@ -100,7 +100,7 @@ class Transistor:
 
     @property
     def beta_nominal(self) -> float:
-        """hfe_typ, else the geometric mean of hfe_min and hfe_max (interface.md)."""
+        """hfe_typ, else the geometric mean of hfe_min and hfe_max (docs/model.md)."""
         if self.hfe_typ is not None:
             return float(self.hfe_typ)
         return math.sqrt(self.hfe_min * self.hfe_max)

@@ -1,6 +1,6 @@
 """The stock file (CSV) read and written through pandas, with row-level checks.
 
-The columns are those of interface.md ("Stock file"); names are matched without
+The columns are those of docs/stock.md ("The stock file"); names are matched without
 regard to case.  Reading checks every row and reports every bad one with its
 line number as an editor counts it (the header is line 1), the column and the
 reason, and raises before anything is handed to the store: an import is all
@@ -105,7 +105,7 @@ def _k(x: float | None) -> float | None:
 
 
 def part_key(part) -> tuple:
-    """What makes two stock rows the same item (interface.md: same kind, value, ratings, location).
+    """What makes two stock rows the same item (docs/stock.md: same kind, value, ratings, location).
 
     Transistor types are the same item when they carry the same label.
     """

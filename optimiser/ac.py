@@ -65,7 +65,7 @@ class SmallSignal(dict):
 
 
 def small_signal(op: OperatingPoint, model: DeviceModel) -> SmallSignal:
-    """Linearise the device model of interface.md at ``op`` (arrays of op's shape)."""
+    """Linearise the device model of docs/model.md at ``op`` (arrays of op's shape)."""
     inv_vaf = 0.0 if not np.isfinite(model.vaf) else 1.0 / model.vaf
     ic, ib, dcu, dcw, dbu, dbw = junction_currents(op.vbe, op.vbc, op.is_, op.beta, op.vt,
                                                    inv_vaf)

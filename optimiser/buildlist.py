@@ -1,4 +1,4 @@
-"""The build list (interface.md "Build list"): several requests, their counts, what may be bought.
+"""The build list (docs/requests.md): several requests, their counts, what may be bought.
 
     [[build]]
     request = "preamp.toml"   # a request file relative to the list, or a [build.request] table

@@ -15,7 +15,7 @@ resistor or transistor over its rating), ``note`` for advice.  How a
 severity looks is the business of the renderers, not of this module.
 
 DC voltages across the capacitors follow from the node voltages and the roles
-(optimiser/stage.py): C_IN sits between the base (ce, cc) or the emitter (cb) and a source
+(docs/requests.md, "Roles"): C_IN sits between the base (ce, cc) or the emitter (cb) and a source
 at 0 V; C_OUT between the collector (ce, cb) or the emitter (cc) and a load at
 0 V (taken at 0 V with no load, too); C_BYP across RE_BYP, i.e. from the
 junction of RE and RE_BYP to ground; C_B from the base to ground.

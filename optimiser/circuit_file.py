@@ -1,4 +1,4 @@
-"""A given circuit for ``analyse`` (interface.md "A given circuit"), read from TOML.
+"""A given circuit for ``analyse`` (docs/requests.md), read from TOML.
 
 The file holds the request keys (``topology`` and ``supply_v`` required; any
 targets), plus::

@@ -1,8 +1,8 @@
-"""One evaluated stage as the rest of the program sees it (interface.md JSON).
+"""One evaluated stage as the rest of the program sees it (docs/json.md).
 
 A :class:`Design` is what ``design``, ``analyse`` and ``plan`` print, and what
 the build sheet is drawn from.  ``to_json`` gives exactly one entry of
-``designs`` in interface.md.
+``designs`` in docs/json.md.
 """
 
 from __future__ import annotations

@@ -1,4 +1,4 @@
-"""The BJT device model of interface.md ("Device model").
+"""The BJT device model of docs/model.md.
 
 The forward part of the SPICE Gummel–Poon model: saturation current ``I_S``,
 forward current gain ``β`` (BF), Early voltage ``V_AF``, transit time ``TF``
@@ -40,7 +40,7 @@ __all__ = [
 
 #: Nominal temperature of the model, kelvin (25 °C).
 T0_K = zero_Celsius + 25.0
-#: SPICE temperature exponents and band gap (interface.md).
+#: SPICE temperature exponents and band gap (docs/model.md).
 XTI = 3.0
 EG_EV = 1.11
 XTB = 1.5
@@ -120,7 +120,7 @@ def _or_inf(x) -> float:
 
 
 def device_from_transistor(t: Transistor, beta: float | None = None) -> DeviceModel:
-    """The :class:`DeviceModel` of a stock transistor (interface.md mapping).
+    """The :class:`DeviceModel` of a stock transistor (docs/model.md, "From the stock figures").
 
     ``I_S = ic_ref / (exp(vbe/V_T) − 1)`` at 25 °C; β = ``beta`` if given, else
     hfe_typ, else sqrt(hfe_min·hfe_max); TF = 1/(2π·ft) (0 without ft);
@@ -161,7 +161,7 @@ def scaled(model: DeviceModel, temp_c, beta=None):
 
 
 def spice_model_line(model: DeviceModel, name: str = "QX", beta: float | None = None) -> str:
-    """The ``.model`` line of interface.md for ``model`` (used by the ngspice checks)."""
+    """The ``.model`` line of docs/model.md for ``model`` (used by the ngspice checks)."""
     b = model.beta if beta is None else beta
     vaf = "" if math.isinf(model.vaf) else f" VAF={model.vaf:.12g}"
     return (f".model {name} NPN(IS={model.is_:.12e} BF={b:.12g} NF=1{vaf} BR=1 "
@@ -180,7 +180,7 @@ def _exp_lim(x):
 
 
 def junction_currents(vbe, vbc, is_, beta, vt, inv_vaf):
-    """Collector and base currents and their derivatives (interface.md equations).
+    """Collector and base currents and their derivatives (docs/model.md, "Currents").
 
     ``I_C = I_S(e^{V_BE/V_T} − e^{V_BC/V_T})(1 − V_BC/V_AF) − I_S(e^{V_BC/V_T} − 1)``,
     ``I_B = (I_S/β)(e^{V_BE/V_T} − 1) + I_S(e^{V_BC/V_T} − 1)``.

@@ -1,4 +1,4 @@
-"""Quasi-static midband large-signal figures: THD and output swing (interface.md).
+"""Quasi-static midband large-signal figures: THD and output swing (docs/model.md).
 
 At midband every capacitor is replaced by a DC source holding its operating-point
 voltage and the device charges are ignored (TF = 0, CJC = 0), so the stage is a

@@ -1,4 +1,4 @@
-"""Every figure, validity rule and target check of interface.md for a batch of stages.
+"""Every figure, validity rule and target check of docs/model.md for a batch of stages.
 
 :func:`evaluate` is the one entry point the rest of the program uses (search,
 yield, analyse, the build sheet): it runs the DC solver (nominal point and the
@@ -89,7 +89,7 @@ class Evaluation:
     Attributes
     ----------
     metrics : dict[str, ndarray]
-        Every metric key of interface.md (NaN = null).
+        Every metric key of docs/model.md (NaN = null).
     valid : ndarray[bool]
         Passes every "Validity" rule.
     meets : ndarray[bool]
@@ -204,7 +204,7 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
              ratings: PartRatings | None = None, *, band_edges: bool = True,
              large_signal: bool = True, derating: dict | None = None,
              corner_gain: bool = True) -> Evaluation:
-    """All figures and verdicts of interface.md for the candidates of ``batch``.
+    """All figures and verdicts of docs/model.md for the candidates of ``batch``.
 
     Parameters
     ----------
@@ -450,7 +450,7 @@ def ce_form(values: dict[str, float]) -> str | None:
 
 
 def design_of(ev: Evaluation, i: int, picks: dict | None = None, label: str | None = None):
-    """Candidate ``i`` of ``ev`` as an :class:`optimiser.design.Design` (interface.md JSON).
+    """Candidate ``i`` of ``ev`` as an :class:`optimiser.design.Design` (docs/json.md).
 
     ``picks`` maps role -> :class:`~optimiser.design.RolePick`; roles without a pick get
     one with the value alone (no stock pieces).  Capacitor picks get their ``plus`` side.

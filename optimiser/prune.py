@@ -39,7 +39,7 @@ def early_factor_max(supply_v: float, ic_lo, re_lo, model: DeviceModel, q_hi: fl
     The collector is at most at the supply, so ``V_CB ≤ V − V_B`` with
     ``V_B = V_BE + I_E·R_E ≥ V_BE + I_C·R_E``, and ``V_BE ≥ V_T·ln(x/I_S)``
     with ``x ≥ (I_C − I_S)/q_hi`` (``I_C ≤ q·x + I_S`` in the model of
-    interface.md).  ``q_hi`` is the factor of :func:`early_bounds`, which the
+    docs/model.md).  ``q_hi`` is the factor of :func:`early_bounds`, which the
     result never exceeds.  A tighter top of the collector-current bracket (B1)
     for nodes whose emitter already takes a part of the supply.
     """

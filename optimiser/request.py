@@ -1,4 +1,4 @@
-"""A design request (interface.md "Design request") as a typed, validated object.
+"""A design request (docs/requests.md) as a typed, validated object.
 
 All values are SI: ohm, hertz, volt; temperatures in °C as the user gives them
 (the device model converts to kelvin).  ``None`` means "unconstrained".
@@ -58,7 +58,7 @@ class Request:
 
 
 # --------------------------------------------------------------------------------------
-# Reading a request from TOML (interface.md "Design request")
+# Reading a request from TOML (docs/requests.md)
 # --------------------------------------------------------------------------------------
 
 #: Keys a request file may hold; ``parts``, ``tolerances`` and a ``[transistor]`` table

@@ -146,7 +146,7 @@ def check_request(request: Request, snapshot: StockSnapshot | None = None) -> No
 # ---------------------------------------------------------------------------
 @dataclass
 class SearchResult:
-    """What :func:`search` returns (interface.md "JSON printed by design --json")."""
+    """What :func:`search` returns (docs/json.md)."""
 
     request: Request
     feasible: bool
@@ -1257,7 +1257,7 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
 
 def _with_yield(request: Request, snapshot: StockSnapshot, designs: list[Design], top: int,
                 stats: dict) -> list[Design]:
-    """Monte Carlo yield of the shortlist (interface.md "Yield"); drops designs below
+    """Monte Carlo yield of the shortlist (docs/model.md); drops designs below
     min_yield_pct.  The yield is computed after ranking, on up to 3·top designs."""
     try:
         from optimiser.yield_ import apply_yield, monte_carlo

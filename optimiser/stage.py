@@ -24,7 +24,7 @@ __all__ = ["RESISTOR_ROLES", "CAPACITOR_ROLES", "ROLES", "REQUIRED", "StageBatch
 RESISTOR_ROLES = ("R1", "R2", "RC", "RE", "RE_BYP")
 CAPACITOR_ROLES = ("C_IN", "C_OUT", "C_BYP", "C_B")
 
-#: Roles each topology may use (interface.md "Roles").
+#: Roles each topology may use (docs/requests.md, "Roles").
 ROLES: dict[str, tuple[str, ...]] = {
     "ce": ("R1", "R2", "RC", "RE", "RE_BYP", "C_BYP", "C_IN", "C_OUT"),
     "cb": ("R1", "R2", "RC", "RE", "C_B", "C_IN", "C_OUT"),

@@ -1,4 +1,4 @@
-"""Tolerances, hFE spread and temperature: Monte Carlo yield and worst case (interface.md "Yield").
+"""Tolerances, hFE spread and temperature: Monte Carlo yield and worst case (docs/model.md).
 
 Each sample draws every resistor and capacitor uniformly within ± its tolerance,
 hFE log-uniformly between hfe_min and hfe_max (a value at 25 °C, then scaled to the
@@ -150,7 +150,7 @@ def _target_fails(request: Request, fig: dict, model) -> dict[str, np.ndarray]:
 def monte_carlo(request: Request, values: dict[str, float], transistor: Transistor,
                 tolerances: dict[str, float] | None = None, samples: int | None = None,
                 seed: int | None = None) -> YieldResult:
-    """Monte Carlo yield of one design (interface.md "Yield").
+    """Monte Carlo yield of one design (docs/model.md).
 
     Parameters
     ----------

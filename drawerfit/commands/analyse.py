@@ -22,7 +22,8 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> N
 
     CIRCUIT is a TOML file with the request keys, a [parts] table (role = value, or
     "#id" for a stock item) and a [transistor] table (or transistor = "LABEL" from stock).
-    The store is opened only when the file refers to stock.
+    The store is opened only when the file refers to stock. The file's format:
+    docs/requests.md; the figures: docs/model.md.
     """
     from optimiser.circuit_file import load_circuit
     from optimiser.evaluate import design_of, evaluate

@@ -17,7 +17,7 @@ def command() -> None:
 
 
 @command.command(name="list")
-@click.option("--json", "as_json", is_flag=True, help="Print JSON.")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON (shape: docs/json.md).")
 @pass_app
 def list_(app, as_json: bool) -> None:
     """Every build, oldest first."""

@@ -47,14 +47,14 @@ def demo_store() -> Iterator[Store]:
 def show_demo_stock(store: Store) -> None:
     """Print the demo drawer as the stock tables."""
     print_stock(out, store.parts(),
-                title="The demo drawer: an electronics club's parts cabinet (invented)")
+                title="The demo drawer: the Millbrook Street electronics club's cabinet (invented)")
 
 
 @click.command(name="demo")
 @click.option("--save-csv", type=click.Path(dir_okay=False), default=None,
               help="Also write the demo stock file here, to import into your own store.")
 def command(save_csv: str | None) -> None:
-    """Show what drawerfit does on an invented club drawer (your store is not touched)."""
+    """Show what drawerfit does on an invented club's drawer (your store is not touched)."""
     if save_csv:
         with demo_csv_path() as src:
             shutil.copyfile(src, save_csv)

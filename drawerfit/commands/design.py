@@ -56,7 +56,7 @@ def run_design(request, snapshot, *, top: int, progress: bool,
 @click.argument("request_file", metavar="REQUEST.toml", type=click.Path())
 @click.option("--top", "top", type=click.IntRange(1, 100), default=5, show_default=True,
               help="How many ranked designs to show.")
-@click.option("--json", "as_json", is_flag=True, help="Print JSON (interface.md) instead of tables.")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON instead of tables (shape: docs/json.md).")
 @click.option("--time-limit", "time_limit", type=click.FloatRange(0), default=DEFAULT_TIME_LIMIT_S,
               show_default=True, metavar="SECONDS",
               help="Stop the search after this long and say how much of the ranking is "
@@ -70,6 +70,7 @@ def command(app, request_file: str, top: int, as_json: bool, time_limit: float =
 
     Prints the ranked designs with the bin of every part, or, when nothing in
     stock meets the request, the nearest misses and what would unlock it.
+    Request keys and defaults: docs/requests.md; the figures: docs/model.md.
     """
     from inventory.errors import InputError
     from optimiser.request import load_request, read_toml

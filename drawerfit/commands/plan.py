@@ -40,7 +40,7 @@ def write_order(plan, path: str, *, committed: bool = False) -> None:
 
 @click.command(name="plan")
 @click.argument("buildlist", metavar="BUILDLIST.toml", type=click.Path(dir_okay=False))
-@click.option("--json", "as_json", is_flag=True, help="Print JSON (interface.md).")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON (shape: docs/json.md).")
 @click.option("--solver", type=click.Choice(["cbc", "highs"]), default="cbc", show_default=True,
               help="Mixed-integer solver: CBC (shipped with PuLP) or HiGHS (needs highspy).")
 @click.option("--order", "order_path", metavar="FILE.csv", type=click.Path(dir_okay=False),
@@ -64,7 +64,7 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
 
     BUILDLIST.toml lists [[build]] entries (a request file or table, a count,
     identical = true/false) and an optional [purchase] table saying which
-    values may be bought and at what price.
+    values may be bought and at what price (docs/requests.md, docs/plan.md).
     """
     from optimiser.buildlist import load_buildlist
     from optimiser.plan import commit_entries, make_plan

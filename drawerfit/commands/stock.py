@@ -26,7 +26,8 @@ def import_(app, file: str) -> None:
     """Add the rows of a stock file (CSV) to the store: all rows or none.
 
     Rows naming an item already in stock (same kind, value, ratings and
-    location; for transistors the same label) add to its quantity.
+    location; for transistors the same label) add to its quantity. The columns:
+    docs/stock.md.
     """
     store = app.store()
     batch = store.import_csv(file)
@@ -50,7 +51,7 @@ def export(app, file: str) -> None:
               help="Only this kind of part.")
 @click.option("--min", "vmin", metavar="VALUE", help="Smallest value shown (e.g. 1k, 10n).")
 @click.option("--max", "vmax", metavar="VALUE", help="Largest value shown (e.g. 100k, 1u).")
-@click.option("--json", "as_json", is_flag=True, help="Print a JSON list instead of tables.")
+@click.option("--json", "as_json", is_flag=True, help="Print a JSON list instead of tables (shape: docs/json.md).")
 @pass_app
 def list_(app, kind: str | None, vmin: str | None, vmax: str | None, as_json: bool) -> None:
     """Show the stock, grouped by kind and sorted by value."""

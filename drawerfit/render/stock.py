@@ -25,7 +25,7 @@ _TRANSISTOR_FIELDS = ("hfe_min", "hfe_max", "hfe_typ", "vbe", "ic_ref", "vaf", "
 
 
 def part_json(part: Part) -> dict:
-    """One stock row as the JSON object of ``stock list --json`` (interface.md).
+    """One stock row as the JSON object of ``stock list --json`` (docs/json.md).
 
     Keys: id, kind, value (SI float; null for transistors), label (the type's label,
     or the value as written for resistors and capacitors), qty, min_qty, location,

@@ -1,6 +1,6 @@
 """Rebuild a :class:`Design` from its JSON (a stored build), with ratings from stock.
 
-The design JSON (interface.md) names each piece's stock row by ``id``; the
+The design JSON (docs/json.md) names each piece's stock row by ``id``; the
 ratings, tolerances and dielectrics the sheet needs come from those rows.  A
 row that no longer exists keeps the stock defaults.
 """

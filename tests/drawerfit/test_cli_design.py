@@ -46,7 +46,7 @@ def run(store, tmp_path, text, *args):
 
 
 def check_design_shape(d, meets):
-    # interface.md "JSON printed by design --json"
+    # docs/json.md
     assert set(d) >= {"rank", "topology", "transistor", "parts", "metrics", "meets_spec", "score"}
     assert d["meets_spec"] is meets
     for _role, p in d["parts"].items():

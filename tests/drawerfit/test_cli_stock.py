@@ -1,5 +1,5 @@
 """The stock, builds and db commands through Click's test runner: exit codes, key lines,
-the JSON shape of interface.md, and bad input that changes nothing."""
+the JSON shape of docs/json.md, and bad input that changes nothing."""
 
 from __future__ import annotations
 

@@ -70,6 +70,11 @@ def test_demo_capacitors_and_transistors_are_the_invented_scenario(demo_parts):
     for t in trs:
         # invented labels only: letters, a dash, a letter and digit (no real type numbers)
         assert re.fullmatch(r"[A-Z]{2}-N\d", t.label)
+        # figures that make sense for a small-signal NPN (common practice) ...
         assert 100 <= t.hfe_min < t.hfe_max <= 500
-        assert 150e6 <= t.ft <= 300e6 and 2e-12 <= t.cob <= 4e-12
+        assert 50e6 <= t.ft <= 500e6 and 1e-12 <= t.cob <= 10e-12
         assert 60 <= t.vaf <= 120
+        assert 20 <= t.vceo <= 60 and 0.05 <= t.ic_max <= 0.3 and 0.2 <= t.pd <= 0.6
+        # ... but invented: not the hFE groups or the limit set of a widely sold type
+        assert (t.hfe_min, t.hfe_max) not in {(110, 220), (200, 450), (420, 800)}
+        assert (t.vceo, t.ic_max) != (40, 0.2) and (t.ft, t.cob) != (300e6, 4e-12)

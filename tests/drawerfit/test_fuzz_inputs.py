@@ -1,4 +1,4 @@
-"""Hostile request and circuit files (issue 8): Hypothesis-made TOML through the real CLI.
+"""Hostile request and circuit files: Hypothesis-made TOML through the real CLI.
 
 `drawerfit analyse FILE --json` and `drawerfit design FILE --json` are run in-process
 (Click's runner on ``drawerfit.cli.cli``) on files made by mutating a good circuit or

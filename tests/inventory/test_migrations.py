@@ -55,7 +55,7 @@ def test_revisions_create_exactly_the_orm_schema(tmp_path):
 
 
 def test_store_made_at_revision_0001_opens_and_works(tmp_path):
-    """A real store file written by the program at revision 0001 (design.md: migrations
+    """A real store file written by the program at revision 0001 (migrations are
     tested on real old stores)."""
     path = tmp_path / "old.sqlite"
     shutil.copyfile(DATA / "store_0001.sqlite", path)

@@ -1,4 +1,4 @@
-"""Backup and restore (issue 8): a restore into an empty store reproduces stock,
+"""Backup and restore: a restore into an empty store reproduces stock,
 transistor types, builds, orders and the history, ids included."""
 
 from __future__ import annotations

@@ -1,4 +1,4 @@
-"""Hostile stock files (issue 8): Hypothesis-made CSV bytes through `drawerfit stock import`.
+"""Hostile stock files: Hypothesis-made CSV bytes through `drawerfit stock import`.
 
 Every input either imports (exit 0, the store still sound) or is refused with
 exit 2, one `drawerfit: …` line per problem on stderr, no traceback, and the

@@ -1,4 +1,4 @@
-"""Kill safety (issue 8): an import or a build commit killed with SIGKILL part-way leaves
+"""Kill safety: an import or a build commit killed with SIGKILL part-way leaves
 the store exactly as it was.
 
 The child is a real process (forked from the test) that opens its own store and

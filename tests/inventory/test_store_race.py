@@ -1,4 +1,4 @@
-"""Real processes racing for the last pieces of a value (issue 8).
+"""Real processes racing for the last pieces of a value.
 
 Workers are separate OS processes (multiprocessing, spawn start method), each
 with its own store connection, released together at a barrier for every round.

@@ -38,7 +38,7 @@ def test_header_case_blank_lines_and_bom(tmp_path):
 
 
 def test_three_digit_code_is_for_capacitors(tmp_path):
-    """Common practice (and interface.md): three bare digits on a capacitor are pF code."""
+    """Common practice (and docs/values.md): three bare digits on a capacitor are pF code."""
     rows = read_stock_csv(_write(tmp_path, "kind,value,qty\ncapacitor,104,1\ncapacitor,100,1\n"
                                            "resistor,100,1\n"))
     assert [r.part.value for r in rows] == pytest.approx([100e-9, 10e-12, 100.0])

@@ -2,9 +2,10 @@
 
 Outside sources, named beside each check:
 - IEC 60062:2016+A1:2019, letter-and-digit (RKM) code and tolerance letters
-  (examples confirmed on the Wikipedia "RKM code" page; see reference-checks §2.1).
+  (examples confirmed on the Wikipedia "RKM code" page) [IEC60062, W-RKM].
 - The three-digit capacitor code: common practice (EIA-198 style code, from memory;
-  examples confirmed on several marking pages, reference-checks §2.2).
+  examples confirmed on several marking pages) [EIA198, W-CAPCODE].
+Keys in brackets are entries of tests/reference/SOURCES.md.
 """
 
 from __future__ import annotations
@@ -50,9 +51,9 @@ def test_public_names_exported():
 
 # --- IEC 60062 letter-and-digit code -----------------------------------------------------
 
-# IEC 60062:2016+A1:2019 letter-and-digit code; rows from reference-checks §2.1
-# (4K7, 47K, 47K3, R47, 4R7, 470R, 470K, 4M7 confirmed on the Wikipedia RKM code page;
-# 5p6, 10p, 2n2, 10n on a capacitor-marking page; the rest from memory).
+# IEC 60062:2016+A1:2019 letter-and-digit code [IEC60062]
+# (4K7, 47K, 47K3, R47, 4R7, 470R, 470K, 4M7 printed on [W-RKM];
+# 5p6, 10p, 2n2, 10n on [W-ANTENTOP]; the rest from memory).
 IEC_60062_RESISTORS = [
     ("4K7", 4700.0), ("2R2", 2.2), ("R47", 0.47), ("1M0", 1.0e6), ("470R", 470.0),
     ("47K3", 47300.0), ("1K", 1000.0), ("2G2", 2.2e9), ("4R7", 4.7), ("47K", 47e3),
@@ -77,7 +78,7 @@ def test_iec_60062_capacitor_codes(text, value):
 
 
 def test_iec_60062_milliohm_letter_l():
-    # IEC 60062 L = milliohm for resistors (from memory, reference-checks §2.1)
+    # IEC 60062 L = milliohm for resistors (from memory) [IEC60062]
     assert close(parse_value("5L6", R), 5.6e-3)
 
 
@@ -116,7 +117,7 @@ def test_case_matters_m_milli_big_m_mega():
 # --- capacitor three-digit code ----------------------------------------------------------
 
 # common practice (EIA-198 style code, from memory); values confirmed on the marking
-# pages listed in reference-checks §2.2
+# pages [W-CAPCODE]
 EIA_CODES = [
     ("104", 100e-9), ("101", 100e-12), ("473", 47e-9), ("102", 1e-9), ("223", 22e-9),
     ("105", 1e-6), ("229", 2.2e-12), ("109", 1.0e-12), ("478", 0.47e-12), ("479", 4.7e-12),
@@ -217,7 +218,7 @@ def test_unknown_kind_is_a_programming_error():
 
 # --- tolerance letters, IEC 60062 --------------------------------------------------------
 
-# IEC 60062 tolerance code (reference-checks §2.1; B from memory, the others confirmed on
+# IEC 60062 tolerance code ([IEC60062]; B from memory, the others confirmed on
 # a capacitor-marking page).  Z is +80/-20 %: we take the wider side, 0.8.
 IEC_LETTERS = {"B": 0.001, "C": 0.0025, "D": 0.005, "F": 0.01, "G": 0.02, "J": 0.05,
                "K": 0.10, "M": 0.20, "Z": 0.80}
@@ -235,11 +236,11 @@ def test_tolerance_letter_on_capacitor_code(letter, tol):
 
 
 @pytest.mark.parametrize("text,kind,value,tol", [
-    ("22K", C, 22e-12, 0.10),      # reference-checks §2.1: 22K on a capacitor = 22 pF ±10 %
+    ("22K", C, 22e-12, 0.10),      # [W-EESTUDENT]: 22K on a capacitor = 22 pF ±10 %
     ("22K", R, 22e3, None),        # the same text on a resistor is 22 kΩ (IEC 60062 RKM)
     ("22M", C, 22e-12, 0.20),
     ("22M", R, 22e6, None),
-    ("474J", C, 470e-9, 0.05),     # reference-checks §2.2
+    ("474J", C, 470e-9, 0.05),     # [W-CAPCODE]
     ("104J", C, 100e-9, 0.05),
     ("4n7K", C, 4.7e-9, 0.10),
     ("4n7 K", C, 4.7e-9, 0.10),
@@ -259,7 +260,7 @@ def test_value_with_tolerance(text, kind, value, tol):
 
 
 def test_small_capacitor_letters_are_absolute_picofarads():
-    # IEC 60062 (reference-checks §2.1): below 10 pF, C = ±0.25 pF and D = ±0.5 pF
+    # IEC 60062 [IEC60062, W-EESTUDENT]: below 10 pF, C = ±0.25 pF and D = ±0.5 pF
     v, t = parse_value_tolerance("3R9C", C)
     assert close(v, 3.9e-12) and t == pytest.approx(0.25 / 3.9)
     v, t = parse_value_tolerance("4p7D", C)

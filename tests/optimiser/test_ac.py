@@ -14,7 +14,7 @@ from optimiser.device import device_from_transistor
 from optimiser.request import Request
 from optimiser.stage import StageBatch
 
-BIG = 1.0   # farad: a midband short at 1 kHz (reference-checks §6.4 uses the same trick)
+BIG = 1.0   # farad: a midband short at 1 kHz (as in the recorded [NGSPICE] textbook runs)
 
 
 def _setup(topology, req, t, **vals):
@@ -57,7 +57,7 @@ def test_cc_zout_closed_form():
 
 
 def test_single_output_pole():
-    """Only C_OUT finite, no r_o: f_low = 1/(2π·C_OUT·(R_C + R_L)) [B&N Ch. 9 f_LC formula, from memory]."""
+    """Only C_OUT finite, no r_o: f_low = 1/(2π·C_OUT·(R_C + R_L)) [BN Ch. 9 f_LC, from memory]."""
     t = Transistor("T", hfe_min=100, hfe_max=100, vaf=None)
     req = Request("ce", 20.0, load_ohm=2.2e3, source_ohm=1e3, mid_hz=10e3)
     m, b, op, ss = _setup("ce", req, t, R1=40e3, R2=10e3, RC=4e3, RE_BYP=2e3, C_BYP=BIG,

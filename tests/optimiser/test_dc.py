@@ -49,7 +49,7 @@ def test_vectorised_equals_one_by_one():
 
 
 def test_early_effect_raises_ic_not_ib():
-    """interface.md: the Early effect raises I_C, not I_B (forward-active)."""
+    """docs/model.md: the Early effect raises I_C, not I_B (forward-active)."""
     no_early = device_from_transistor(Transistor("T", hfe_min=100, hfe_max=100, vaf=None))
     early = device_from_transistor(Transistor("T", hfe_min=100, hfe_max=100, vaf=50))
     # base and emitter forced (R_TH = R_E = 0), collector 10 V through 0 Ω

@@ -20,7 +20,7 @@ from optimiser.device import (
 )
 
 
-# reference-checks §3 / §6.2: CODATA constants through scipy.constants
+# [CODATA2018] exact constants through scipy.constants [SCIPY] (keys: tests/reference/SOURCES.md)
 @pytest.mark.parametrize("temp_c, expected", [(25.0, 0.025692579), (27.0, 0.025864926),
                                               (300.0 - 273.15, 0.025852000)])
 def test_thermal_voltage_against_scipy_constants(temp_c, expected):
@@ -53,7 +53,7 @@ def test_transit_time_and_cob():
 def test_re_rule_of_thumb_against_gm_at_1mA():
     """r'e ≈ 25 mV / I_E (common practice) vs the engine's 1/g_m at I_C = 1 mA, 25 °C.
 
-    reference-checks §3: exact r_e = 25.693 Ω; the 25 mV rule is 2.70 % low, so
+    Recomputed from [CODATA2018]: exact r_e = 25.693 Ω; the 25 mV rule is 2.70 % low, so
     the check allows 4 % as that section advises.
     """
     from optimiser.ac import small_signal
@@ -82,9 +82,9 @@ def test_temperature_scaling_spice_formulas():
 
 @pytest.mark.parametrize("vbe", [0.65, 0.70])
 def test_vbe_temperature_coefficient(vbe):
-    """dV_BE/dT at constant I_C: about −2 mV/°C [S&S, confirmed quote; H&H −2.1, from
-    memory]; the SPICE defaults give −1.6…−1.8 (reference-checks §5.2, which advises
-    accepting −1.6 to −2.5 mV/°C)."""
+    """dV_BE/dT at constant I_C: about −2 mV/°C [SS, quoted on W-SE; HH −2.1, from
+    memory]; the SPICE defaults give −1.6…−1.8 [NGSPICE, recomputed], so −1.6 to
+    −2.5 mV/°C is accepted."""
     t = Transistor("T", hfe_min=100, hfe_max=100, vbe=vbe, ic_ref=1e-3)
     m = device_from_transistor(t)
 
@@ -94,7 +94,7 @@ def test_vbe_temperature_coefficient(vbe):
 
     slope = (vbe_at(35.0) - vbe_at(15.0)) / 20.0
     assert -2.5e-3 <= slope <= -1.6e-3
-    # the physics formula (V_BE − E_G − X_TI·V_T)/T quoted in §5.2
+    # the physics formula (V_BE − E_G − X_TI·V_T)/T quoted on [W-SE]
     formula = (vbe - 1.11 - 3 * thermal_voltage(25.0)) / (zero_Celsius + 25.0)
     assert math.isclose(slope, formula, rel_tol=0.03)
 

@@ -39,8 +39,8 @@ def test_thd_of_the_exponential_law_is_the_bessel_series(vpk):
 
 
 def test_small_signal_rule_second_harmonic():
-    """HD2 ≈ a/4 for a small drive a = V_pk/V_T [Gray & Meyer, Analysis and Design of
-    Analog Integrated Circuits, Ch. 5, from memory]."""
+    """HD2 ≈ a/4 for a small drive a = V_pk/V_T [GM Ch. 5, from memory; the Bessel
+    form [AS] is checked in test_score.py]."""
     req, b, m, op = _stage(1e-3)
     a = 1e-3 / thermal_voltage(25.0)
     assert thd_pct(req, b, m, op)[0] == pytest.approx(100 * a / 4, rel=0.01)

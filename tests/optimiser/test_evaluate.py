@@ -117,7 +117,7 @@ def test_take_keeps_figures_and_messages():
 
 
 def test_divider_rule_warning_names_the_factor():
-    """The 10:1 rule R_TH ≤ 0.1·β·R_E [B&N Ch. 4, from memory; M&B call 10:1 "firm"]."""
+    """The 10:1 rule R_TH ≤ 0.1·β·R_E [BN Ch. 4, from memory; MB call 10:1 "firm", W-CDH]."""
     vals = dict(R1=470e3, R2=100e3, RC=4.7e3, RE=1e3, C_IN=1e-6, C_OUT=1e-6)
     ev = _ev(**vals)
     assert any("10:1 rule" in w for w in ev.warnings(0))

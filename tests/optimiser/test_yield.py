@@ -19,8 +19,8 @@ REQ = Request("ce", 12.0, load_ohm=10e3, temp_c=(25.0, 25.0))
 
 
 def test_divider_spread_matches_first_order_propagation():
-    """σ_V² = Σ(∂V/∂R_i·σ_i)² with σ_i = R_i·tol/√3 for a uniform spread [J. R. Taylor,
-    An Introduction to Error Analysis, 2nd ed., Ch. 3, from memory]; within 10 %."""
+    """σ_V² = Σ(∂V/∂R_i·σ_i)² with σ_i = R_i·tol/√3 for a uniform spread [TAYLOR Ch. 3,
+    from memory]; within 10 %."""
     batch, _, _ = draw("ce", CE, T, {"R1": 0.05, "R2": 0.05}, (25, 25), 20000, seed=3)
     r1, r2 = batch.R1, batch.R2
     v = 12 * r2 / (r1 + r2)

@@ -1,7 +1,7 @@
 """The shared ngspice harness: netlists for stages, batch runs, result parsing.
 
 ngspice (Debian's package, ``ngspice -b``) is the outside reference for the
-engine's figures.  The device is interface.md's ``.model`` line
+engine's figures.  The device is the ``.model`` line of docs/model.md
 (:func:`optimiser.device.spice_model_line`), simulated at
 ``.options TEMP=25 TNOM=25``.  Several designs go into ONE netlist as
 independent copies (node names carry a ``_k`` suffix, all share ground), so a
@@ -282,7 +282,8 @@ def thd_from_curve(emf, v_load, amplitude: float, n: int = 256, harmonics=range(
 
 def swing_from_curve(emf, v_load, vce, ic, ic0: float, vce_sat: float,
                      ic_floor: float = 0.01) -> float:
-    """Swing (V peak) per interface.md from a ``.dc`` sweep over ±supply; NaN if no limit."""
+    """Swing (V peak) as docs/model.md defines it, from a ``.dc`` sweep over ±supply;
+    NaN if no limit."""
     ok = (vce >= vce_sat) & (ic >= ic_floor * ic0)
     pos = emf >= 0
     neg = emf <= 0

@@ -1,10 +1,10 @@
-"""The engine's nodal analysis against lcapy's symbolic MNA (reference-checks §6.3).
+"""The engine's nodal analysis against lcapy's symbolic MNA [LCAPY].
 
 lcapy (PyPI, symbolic modified nodal analysis) derives the hybrid-π gain expressions;
 they are evaluated at random positive element values and compared with the engine's
 numeric MNA (r_o infinite, no device capacitances, coupling capacitors of 1 kF so
 that their impedance is negligible at 1 kHz).  This checks the algebra of the stamps,
-not the model.  lcapy's controlled-source sign differs from SPICE's (noted in §6.3):
+not the model.  lcapy's controlled-source sign differs from SPICE's (see [LCAPY] in SOURCES.md):
 ``G E C B E gm`` puts the collector current in.
 """
 
@@ -91,7 +91,8 @@ def test_ce_and_follower_gain_against_lcapy(expressions):
 
 
 def test_bn_unbypassed_example_numbers(expressions):
-    """reference-checks §6.3: B&N 4.5 with g_m = αI_E/26 mV gives −3.85489 in lcapy."""
+    """[BN Ch. 5, unbypassed emitter-bias example] with g_m = αI_E/26 mV: −3.85489 in
+    lcapy [LCAPY, recomputed]."""
     h_ce, _ = expressions
     ie, beta = 4.3426e-3, 120
     gm = beta / (beta + 1) * ie / 0.026

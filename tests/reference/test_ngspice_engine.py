@@ -1,7 +1,7 @@
 """The engine against ngspice (Debian's package, batch mode) on seeded random stages.
 
-Reference: ngspice with interface.md's ``.model`` line, TEMP = TNOM = 25 °C.
-Tolerances (issue 3): I_C and V_CE 0.5 %, midband gain 1 %, f_low, f_high, Zin,
+Reference: ngspice with the ``.model`` line of docs/model.md, TEMP = TNOM = 25 °C.
+Tolerances: I_C and V_CE 0.5 %, midband gain 1 %, f_low, f_high, Zin,
 Zout 3 %; THD and swing 10 % relative (THD below 0.5 %: 0.05 percentage points).
 At least 20 designs of each variant.
 """

@@ -2,8 +2,8 @@
 
 References:
 - IEC 60063 value tables (E6/E12/E24 exact lists, E48/E96/E192 spot values), as
-  collected in /work/shared/reference-checks.md §1.1-1.2 (standard from memory,
-  confirmed against pages and the ``eseries`` package).
+  [IEC60063] (the standard's tables from memory, confirmed against the ``eseries``
+  package [ESERIES]); keys are entries of tests/reference/SOURCES.md.
 - The ``eseries`` package from PyPI (checked with eseries 1.2.1), an independent
   implementation of the same tables.  Its ``find_nearest`` measures LINEAR distance;
   ours is logarithmic, so nearest answers are compared only away from both midpoints.
@@ -49,7 +49,7 @@ def _key(eseries, name):
     return getattr(eseries, name)
 
 
-# --- exact tables, IEC 60063 as listed in reference-checks §1.1 ------------------------
+# --- exact tables, IEC 60063 tables [IEC60063] --------------------------------------
 
 IEC_60063 = {
     "E3": [10, 22, 47],
@@ -62,12 +62,12 @@ IEC_60063 = {
 
 @pytest.mark.parametrize("name", list(IEC_60063))
 def test_e3_to_e24_equal_the_iec_60063_tables(name):
-    # IEC 60063 (reference-checks §1.1): compared exactly, not by a rounding formula.
+    # IEC 60063 [IEC60063]: compared exactly, not by a rounding formula.
     assert list(SERIES[name]) == IEC_60063[name]
 
 
 def test_the_rounding_formula_would_be_wrong_for_e12():
-    # IEC 60063 (reference-checks §1.1): round(10**(i/12), 1) gives 26, 32, 38, 46, 83
+    # IEC 60063 [IEC60063]: round(10**(i/12), 1) gives 26, 32, 38, 46, 83
     # where the standard has 27, 33, 39, 47, 82.  Our table must be the standard's.
     formula = [round(10 * 10 ** (i / 12)) for i in range(12)]
     assert formula != list(SERIES["E12"])
@@ -75,7 +75,7 @@ def test_the_rounding_formula_would_be_wrong_for_e12():
         assert wrong in formula and wrong not in SERIES["E12"] and right in SERIES["E12"]
 
 
-# IEC 60063 spot values (reference-checks §1.2).
+# IEC 60063 spot values [IEC60063].
 E48_SPOT = [100, 105, 110, 115, 121, 127, 133, 140, 147, 154, 162, 169, 178, 187, 196, 205,
             215, 226, 237, 249, 261, 274, 287, 301, 316, 332, 348, 365, 383, 402, 422, 442,
             464, 487, 511, 536, 562, 590, 619, 649, 681, 715, 750, 787, 825, 866, 909, 953]
@@ -88,7 +88,7 @@ E96_NOT_MEMBERS = [120, 180, 220, 270, 330, 390, 470, 560, 680, 820]
 
 
 def test_e48_e96_e192_spot_values():
-    # IEC 60063 (reference-checks §1.2)
+    # IEC 60063 [IEC60063]
     assert list(SERIES["E48"]) == E48_SPOT
     assert sorted(E48_SPOT + E96_EXTRA) == list(SERIES["E96"])
     for v in E192_MEMBERS:
@@ -104,14 +104,14 @@ def test_e48_e96_e192_spot_values():
 
 
 def test_e192_index_185_is_920():
-    # IEC 60063 irregular value (reference-checks §1.2): 10**(185/192) = 9.1948 -> 920, not 919
+    # IEC 60063 irregular value [IEC60063]: 10**(185/192) = 9.1948 -> 920, not 919
     assert round(100 * 10 ** (185 / 192)) == 919
     assert SERIES["E192"][185] == 920
 
 
 def test_nesting():
     # IEC 60063: E6 ⊂ E12 ⊂ E24 and E48 ⊂ E96 ⊂ E192, each every other value of the next.
-    # E24 ⊄ E192 (reference-checks §1.2), so no nesting across the two families is assumed.
+    # E24 ⊄ E192 [IEC60063], so no nesting across the two families is assumed.
     for small, big in (("E3", "E6"), ("E6", "E12"), ("E12", "E24"),
                        ("E48", "E96"), ("E96", "E192")):
         assert SERIES[big][::2] == SERIES[small]
@@ -150,19 +150,19 @@ def test_e48_e96_e192_ranges_equal_eseries(eseries, name, lo, hi):
 
 @pytest.mark.parametrize("name", NAMES)
 def test_tolerances_equal_eseries(eseries, name):
-    # eseries (PyPI) tolerance(): E3 0.4, E6 0.2 … E192 0.005 (reference-checks §1.1/1.2)
+    # eseries (PyPI) tolerance(): E3 0.4, E6 0.2 … E192 0.005 [ESERIES]
     assert series_tolerance(name) == pytest.approx(eseries.tolerance(_key(eseries, name)))
 
 
 def test_eseries_readme_examples(eseries):
-    # eseries README examples (reference-checks §1.3), answered by our functions
+    # eseries README examples [ESERIES], answered by our functions
     assert nearest_preferred(319, "E24") == 330.0 == eseries.find_nearest(eseries.E24, 319)
     assert min(v for v in series_values("E96", 184, 1000) if v >= 184) == 187.0
     assert eseries.find_greater_than_or_equal(eseries.E96, 184) == 187
 
 
 def test_nearest_convention_differs_from_eseries_between_midpoints(eseries):
-    # reference-checks §1.3: eseries' find_nearest is LINEAR (4290 -> 3900); ours is
+    # [ESERIES]: eseries' find_nearest is LINEAR (4290 -> 3900); ours is
     # geometric: √(3900·4700) = 4281.4 < 4290, so 4700.
     assert eseries.find_nearest(eseries.E12, 4290) == 3900
     assert nearest_preferred(4290, "E12") == 4700.0

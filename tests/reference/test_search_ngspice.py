@@ -1,6 +1,6 @@
 """The search's top designs re-checked in ngspice (Debian's package, batch mode).
 
-Reference: ngspice with interface.md's ``.model`` line, TEMP = TNOM = 25 °C, through
+Reference: ngspice with the ``.model`` line of docs/model.md, TEMP = TNOM = 25 °C, through
 the shared harness tests/reference/spice.py.  For the best design of several
 requests: I_C within 0.5 %, the midband gain within 1 % and inside the request's
 window (with the same 1 % allowance), f_low within 3 % and at or below the target.

@@ -1,4 +1,4 @@
-"""Small-signal worked examples from reference-checks.md §4 (gain, Zin, Zout, cut-offs).
+"""Small-signal worked examples [BN, MB] (gain, Zin, Zout, cut-offs); sources in SOURCES.md.
 
 The engine runs with the model of those ngspice runs (27 °C, IS for V_BE = 0.70 V,
 no VAF, no capacitances; tests/reference/textbook.py).  Its figures are compared with
@@ -19,7 +19,7 @@ MB = dict(R1=10e3, R2=2.2e3, RC=3.6e3, C_IN=SHORT_C, C_OUT=SHORT_C)
 
 
 def test_mb_ce_gain_bypassed_and_swamped():
-    """[M&B "Voltage Amplifiers", from memory]: the circuit of 4.2 with R_L 10k, β 100.
+    """[MB "Voltage Amplifiers", from memory]: the circuit of 4.2 with R_L 10k, β 100.
     Fully bypassed: book 117 (25 mV rule), ngspice 109.8; swamped (180 Ω unbypassed,
     820 Ω bypassed): book 13.1, ngspice 12.86.  Swamping makes the gain far less
     sensitive to the model, which the book-vs-engine gaps show."""
@@ -38,7 +38,7 @@ def test_mb_ce_gain_bypassed_and_swamped():
 
 
 def test_bn_ce_unbypassed_emitter_resistor():
-    """[B&N Ch. 5, "CE emitter-bias configuration", unbypassed, from memory]: V_CC 20 V,
+    """[BN Ch. 5, "CE emitter-bias configuration", unbypassed, from memory]: V_CC 20 V,
     R_B 470k, R_C 2.2k, R_E 0.56k, β 120: A_v −3.855 (ngspice and lcapy), book −3.89;
     Z_i 59.77k (ngspice), book 59.34k."""
     m = book_model(120, 4.3426e-3 * 120 / 121)
@@ -52,7 +52,7 @@ def test_bn_ce_unbypassed_emitter_resistor():
 
 
 def test_bn_common_base():
-    """[B&N Ch. 5, "Common-base configuration", from memory]: I_E 1.3 mA, R_C 5k, α 0.98
+    """[BN Ch. 5, "Common-base configuration", from memory]: I_E 1.3 mA, R_C 5k, α 0.98
     (β 49): Z_i = R_E‖r_e 19.61 Ω (ngspice 19.51 Ω), A_v +246.3 (ngspice; book 245–250).
     The book's split supply (V_EE 2 V, V_CC 8 V) is shifted to one 10 V supply with the
     base held at 2 V by a stiff divider and a large C_B."""
@@ -68,7 +68,7 @@ def test_bn_common_base():
 
 
 def test_bn_emitter_follower():
-    """[B&N Ch. 5, "Emitter-follower configuration"; inputs confirmed, results from memory]:
+    """[BN Ch. 5, "Emitter-follower configuration"; inputs confirmed, results from memory]:
     V_CC 12 V, R_B 220k, R_E 3.3k, β 100: A_v 0.99621 (ngspice; book 0.996), Z_i 132.72k
     (ngspice; book 132.2k), Z_o 12.49 Ω (ngspice; book 12.56 Ω)."""
     m = book_model(100, 2.0628e-3 * 100 / 101)
@@ -92,7 +92,7 @@ BN9 = dict(R1=40e3, R2=10e3, RC=4e3, RE_BYP=2e3)
     (dict(C_IN=10e-6, C_OUT=1e-6, C_BYP=20e-6), 328.0, 327.0),          # all three
 ])
 def test_bn_low_frequency_cutoffs(caps, ngspice, book):
-    """[B&N Ch. 9, "Low-frequency response—BJT amplifier", from memory]: V_CC 20 V, 40k/10k,
+    """[BN Ch. 9, "Low-frequency response—BJT amplifier", from memory]: V_CC 20 V, 40k/10k,
     R_C 4k, R_E 2k bypassed, R_L 2.2k, R_s 1k, β 100: f_Ls 6.86, f_LC 25.68, f_LE 327 Hz
     (book, each capacitor alone); ngspice 6.735 / 25.670 / 321.06 and 328.0 Hz with all three.
     The book's r_e = 26 mV/I_E is why f_Ls and f_LE are 2–3 % off the book."""

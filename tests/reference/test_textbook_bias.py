@@ -1,9 +1,10 @@
-"""Bias (DC) worked examples and facts of the trade, from reference-checks.md §4–§5.
+"""Bias (DC) worked examples and facts of the trade [BN, MB, SS, MH].
 
-Each row names its source.  "ngspice" figures are those of reference-checks.md (ngspice-39,
-TEMP = 27 °C, IS for V_BE = 0.70 V); the engine is set up with the same model
-(tests/reference/textbook.py), so it must agree closely with them; the printed book
-figures carry the book's shortcuts and get the tolerance the tables state.
+Each row names its source by its key in tests/reference/SOURCES.md.  "ngspice" figures
+were recorded from ngspice-39 runs [NGSPICE] (TEMP = 27 °C, IS for V_BE = 0.70 V); the
+engine is set up with the same model (tests/reference/textbook.py), so it must agree
+closely with them; the printed book figures carry the book's shortcuts and get the
+tolerance the tables state.
 """
 
 from __future__ import annotations
@@ -24,7 +25,7 @@ pytestmark = pytest.mark.reference
 
 
 def test_bn_voltage_divider_bias_exact():
-    """[B&N Ch. 4, Sec. "Voltage-divider bias", exact analysis; inputs confirmed, results
+    """[BN Ch. 4, Sec. "Voltage-divider bias", exact analysis; inputs confirmed, results
     from memory]: V_CC 22 V, 39k/3.9k, R_C 10k, R_E 1.5k, β 140."""
     m = book_model(140, 0.8463e-3)
     _, op = op_at_27("ce", 22.0, m, R1=39e3, R2=3.9e3, RC=10e3, RE=1.5e3)
@@ -36,7 +37,7 @@ def test_bn_voltage_divider_bias_exact():
 
 
 def test_mb_voltage_divider_firm_solution():
-    """[M&B "Transistor Biasing", VDB example; confirmed: malvino.com biasans2 page]:
+    """[MB "Transistor Biasing", VDB example; confirmed: malvino.com biasans2 page]:
     V_CC 10 V, 10k/2.2k, R_C 3.6k, R_E 1k, β 100: V_B 1.78, V_E 1.08, V_C 6.14 V."""
     m = book_model(100, 1.0839e-3 * 100 / 101)
     _, op = op_at_27("ce", 10.0, m, R1=10e3, R2=2.2e3, RC=3.6e3, RE=1e3)
@@ -49,7 +50,7 @@ def test_mb_voltage_divider_firm_solution():
 @pytest.mark.parametrize("r1, r2, ngspice, book", [(80e3, 40e3, 0.9308e-3, 0.93e-3),
                                                    (8e3, 4e3, 0.9956e-3, 0.99e-3)])
 def test_ss_divider_current_vs_beta_sensitivity(r1, r2, ngspice, book):
-    """[S&S, BJT chapter, bias design "I_E = 1 mA from V_CC = 12 V", from memory]:
+    """[SS, BJT chapter, bias design "I_E = 1 mA from V_CC = 12 V", from memory]:
     V_B = 4 V by the one-third rule, R_E 3.3k, β 100; a stiffer divider holds I_E nearer 1 mA."""
     m = book_model(100, 1e-3 * 100 / 101)
     _, op = op_at_27("ce", 12.0, m, R1=r1, R2=r2, RC=1e3, RE=3.3e3)
@@ -58,7 +59,7 @@ def test_ss_divider_current_vs_beta_sensitivity(r1, r2, ngspice, book):
 
 
 def test_bn_fixed_bias_with_emitter_resistor():
-    """[B&N Ch. 5, "CE emitter-bias configuration", from memory]: V_CC 20 V, R_B 470k to
+    """[BN Ch. 5, "CE emitter-bias configuration", from memory]: V_CC 20 V, R_B 470k to
     V_CC (no R2), R_C 2.2k, R_E 0.56k, β 120: I_B 35.89 µA, I_E 4.3426 mA (ngspice)."""
     m = book_model(120, 4.3426e-3 * 120 / 121)
     _, op = op_at_27("ce", 20.0, m, R1=470e3, R2=OPEN, RC=2.2e3, RE=560.0)
@@ -67,7 +68,7 @@ def test_bn_fixed_bias_with_emitter_resistor():
 
 
 def test_bn_emitter_follower_bias():
-    """[B&N Ch. 5, "Emitter-follower configuration"; inputs confirmed]: V_CC 12 V,
+    """[BN Ch. 5, "Emitter-follower configuration"; inputs confirmed]: V_CC 12 V,
     R_B 220k, R_E 3.3k, β 100: I_B 20.42 µA, I_E 2.0628 mA (ngspice), book 2.062 mA."""
     m = book_model(100, 2.0628e-3 * 100 / 101)
     _, op = op_at_27("cc", 12.0, m, R1=220e3, R2=OPEN, RE=3.3e3)
@@ -75,7 +76,7 @@ def test_bn_emitter_follower_bias():
     assert op.ie[0] == pytest.approx(2.062e-3, rel=1e-3)
 
 
-# --- §5.1 the 10:1 divider rule --------------------------------------------------------
+# --- [BN, MB] the 10:1 divider rule -----------------------------------------------------
 
 def _divider_stage(ratio, beta_ref=100.0, re=1e3, vth=3.0, vcc=12.0):
     """A divider with R_TH = ratio·β·R_E and Thevenin voltage vth."""
@@ -87,7 +88,7 @@ def _divider_stage(ratio, beta_ref=100.0, re=1e3, vth=3.0, vcc=12.0):
 
 @pytest.mark.parametrize("ratio, error_pct", [(0.01, 0.98), (0.1, 9.0)])
 def test_ignoring_base_current_error(ratio, error_pct):
-    """Ignoring I_B overstates I_E by R_TH/((β+1)R_E + R_TH) [reference-checks §5.1, py]:
+    """Ignoring I_B overstates I_E by R_TH/((β+1)R_E + R_TH) [BN Ch. 4; recomputed, py]:
     0.98 % at R_TH = 0.01·β·R_E (M&B "stiff") and 9.0 % at 0.1·β·R_E (the 10:1 rule:
     B&N's condition, M&B's "firm").  The engine's own V_BE moves a little with I_E,
     (V_T·ln of the current ratio, 2.4 mV at 9 %), so the check allows 0.2 percentage points and
@@ -124,13 +125,13 @@ def test_ten_to_one_rule_predicts_hfe_sensitivity(ratio, holds):
         assert any("10:1 rule" in w for w in ev.warnings(0))
 
 
-# --- §5.3 stability factors against the engine's corners --------------------------------
+# --- [BN, MH] stability factors against the engine's corners --------------------------
 
 CIRCUIT_41 = dict(R1=39e3, R2=3.9e3, RC=10e3, RE=1.5e3, C_IN=1e-6, C_OUT=1e-6)
 
 
 def test_stability_factor_beta_against_the_corners():
-    """S(β) = I_C1(1 + R_TH/R_E)/(β1(1 + β2 + R_TH/R_E)) [B&N Ch. 4 "Bias stabilization",
+    """S(β) = I_C1(1 + R_TH/R_E)/(β1(1 + β2 + R_TH/R_E)) [BN Ch. 4 "Bias stabilization",
     from memory]; on the circuit of 4.1 for β 140 → 280: ΔI_C = 10.046 µA (py, exact for the
     constant-V_BE model).  The engine's corners (hFE 140 and 280 at 25 °C) move V_BE by
     V_T·ln(I_C2/I_C1) ≈ 0.3 mV as well, so the check allows 3 %."""
@@ -147,9 +148,9 @@ def test_stability_factor_beta_against_the_corners():
 
 
 def test_stability_factor_vbe():
-    """S(V_BE) = −β/(R_TH + (β+1)R_E) = −0.65103 mA/V [B&N Ch. 4, from memory]; ngspice with
+    """S(V_BE) = −β/(R_TH + (β+1)R_E) = −0.65103 mA/V [BN Ch. 4, from memory]; ngspice with
     a 10 mV source in the base lead gives −0.6383 mA/V, i.e. with r_e in series with R_E
-    (reference-checks §5.3).  The engine shifts V_BE by 10 mV through I_S."""
+    [NGSPICE, recorded].  The engine shifts V_BE by 10 mV through I_S."""
     m = book_model(140, 0.8463e-3)
     b = StageBatch.from_values("ce", **CIRCUIT_41)
     base = operating_point("ce", 22.0, b, m, temp_c=27.0).ic[0]

@@ -1,4 +1,4 @@
-"""Helpers for the textbook checks: the engine set up as reference-checks.md's ngspice runs.
+"""Helpers for the textbook checks: the engine set up as the recorded ngspice runs.
 
 Those runs used ngspice's default TEMP = TNOM = 27 °C, ``BF`` = the book's β at 27 °C,
 ``IS`` chosen for V_BE = 0.70 V at the example's current, no VAF and no capacitances.
@@ -21,7 +21,7 @@ from optimiser.stage import StageBatch
 
 T_BOOK = 27.0
 OPEN = 1e15        # ohm: a resistor role the book's circuit does not have (base divider R2)
-SHORT_C = 1.0      # farad: a capacitor the book treats as a short (reference-checks §6.4)
+SHORT_C = 1.0      # farad: a capacitor the book treats as a short (as the [NGSPICE] runs did)
 
 
 def book_model(beta: float, ic_at_0v7: float) -> DeviceModel:
