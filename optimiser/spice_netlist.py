@@ -76,6 +76,12 @@ def spice_number(x: float, digits: int = 6) -> str:
     return m + suffix
 
 
+def _comment(text: str) -> str:
+    """Free text (labels, bins) made safe for one line of a deck: one line, plain ASCII."""
+    text = " ".join(str(text).split()).replace("µ", "u")
+    return text.encode("ascii", "replace").decode("ascii")
+
+
 class _Nodes:
     """Node names with joins (a short joins two nodes; ground and supply win)."""
 
@@ -127,14 +133,14 @@ def spice_netlist(design: Design, request: Request, transistor) -> str:
     title = (f"drawerfit {design.topology} stage"
              + (f", rank {design.rank}" if design.rank else "")
              + f", transistor {design.transistor}, supply {format_si(request.supply_v, 'V')}")
-    lines = [title.replace("\n", " "), "*"]
+    lines = [_comment(title), "*"]
 
     parts: list[str] = []
     used: set[str] = set()
 
     def element(name: str, a: str, b: str, value: str, note: str) -> None:
         na, nb = nodes.spice(a), nodes.spice(b)
-        parts.append(f"* {note}")
+        parts.append(f"* {_comment(note)}")
         parts.append(f"{name} {na} {nb} {value}")
         used.update((na, nb))
 
@@ -159,7 +165,7 @@ def spice_netlist(design: Design, request: Request, transistor) -> str:
         if pick is None or v == 0.0 or nodes.find(a) == nodes.find(b):
             continue
         kind = "resistor" if role.startswith("R") else "capacitor"
-        note = f"{role}: {pick.label or format_value(v, kind)}"
+        note = f"{role}: {format_value(v, kind)}"
         if pick.joined:
             sep = " + " if pick.joined == "series" else " || "
             note += " = " + sep.join(format_value(pc.value, kind)
@@ -183,7 +189,7 @@ def spice_netlist(design: Design, request: Request, transistor) -> str:
 
     # The transistor.
     c, b, e = (nodes.spice(n) for n in ("collector", "base", "emitter"))
-    parts.append(f"* Q: {design.transistor} (nominal hFE, 25 degC)")
+    parts.append(f"* Q: {_comment(design.transistor)} (nominal hFE, 25 degC)")
     parts.append(f"Q {c} {b} {e} Q")
     used.update((c, b, e))
 
