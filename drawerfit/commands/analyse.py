@@ -6,7 +6,7 @@ import click
 
 from drawerfit.cli import pass_app
 from drawerfit.console import emit_json
-from drawerfit.sheet.cli import sheet_for_circuit, sheet_option
+from drawerfit.sheet.cli import sheet_for_circuit, sheet_option, spice_for_design, spice_option
 
 __all__ = ["command"]
 
@@ -15,8 +15,10 @@ __all__ = ["command"]
 @click.argument("circuit", type=click.Path())
 @click.option("--json", "as_json", is_flag=True, help="Print JSON: the request and the design.")
 @sheet_option
+@spice_option
 @pass_app
-def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> None:
+def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None,
+            spice_file: str | None = None) -> None:
     """Analyse a stage with given values: operating point, gain, band edges, Zin, Zout,
     drift, swing, distortion, and every rule it breaks.
 
@@ -49,6 +51,8 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> N
         emit_json({"request": c.request.to_json(), "design": design.to_json()})
         if sheet_dir is not None:
             sheet_for_circuit(sheet_dir, design, ev, c, yres, quiet=True)
+        if spice_file is not None:
+            spice_for_design(spice_file, design, c.request, c.transistor, quiet=True)
         return
     from drawerfit.render.analysis import show_analysis
 
@@ -56,6 +60,8 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None) -> N
     _show_cautions(notes)
     if sheet_dir is not None:
         sheet_for_circuit(sheet_dir, design, ev, c, yres)
+    if spice_file is not None:
+        spice_for_design(spice_file, design, c.request, c.transistor)
 
 
 def _show_cautions(notes) -> None:

@@ -6,7 +6,8 @@ import click
 
 from drawerfit.cli import pass_app
 from drawerfit.console import emit_json, err, out
-from drawerfit.sheet.cli import rank_option, sheet_for_search, sheet_option
+from drawerfit.sheet.cli import (rank_option, sheet_for_search, sheet_option, spice_for_search,
+                                 spice_option)
 
 __all__ = ["command", "run_design"]
 
@@ -62,15 +63,18 @@ def run_design(request, snapshot, *, top: int, progress: bool,
               help="Stop the search after this long and say how much of the ranking is "
                    "proven; 0 searches to the end.")
 @sheet_option
+@spice_option
 @rank_option
 @pass_app
 def command(app, request_file: str, top: int, as_json: bool, time_limit: float = DEFAULT_TIME_LIMIT_S,
-            sheet_dir: str | None = None, sheet_rank: int = 1) -> None:
+            sheet_dir: str | None = None, sheet_rank: int = 1,
+            spice_file: str | None = None) -> None:
     """Find the best stages you can build from your drawer for REQUEST.toml.
 
     Prints the ranked designs with the bin of every part, or, when nothing in
     stock meets the request, the nearest misses and what would unlock it.
     Request keys and defaults: docs/requests.md; the figures: docs/model.md.
+    --sheet and --spice write the design chosen with --rank (default 1).
     """
     from inventory.errors import InputError
     from optimiser.request import load_request, read_toml
@@ -94,12 +98,16 @@ def command(app, request_file: str, top: int, as_json: bool, time_limit: float =
         emit_json(result.to_json())
         if sheet_dir is not None:
             sheet_for_search(sheet_dir, result, sheet_rank, snapshot, quiet=True)
+        if spice_file is not None:
+            spice_for_search(spice_file, result, sheet_rank, snapshot, quiet=True)
         return
     from drawerfit.render.designs import show_result
 
     show_result(out, result, cautions_for=_cautions(request, snapshot))
     if sheet_dir is not None:
         sheet_for_search(sheet_dir, result, sheet_rank, snapshot)
+    if spice_file is not None:
+        spice_for_search(spice_file, result, sheet_rank, snapshot)
 
 
 def _cautions(request, snapshot):

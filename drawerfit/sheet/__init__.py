@@ -4,6 +4,7 @@
 
 * ``sheet.html``    one self-contained printable page,
 * ``schematic.svg`` the stage drawn with schemdraw (text kept as SVG text),
+* ``stage.cir``     the stage as a plain SPICE netlist (:mod:`optimiser.spice_netlist`),
 * ``response.png`` and ``response.svg``  Bode magnitude and phase,
 * ``drift.png``     I_C and gain at the drift corners (and the yield histogram),
 * ``parts.csv``     one row per role.
@@ -26,8 +27,8 @@ from optimiser.stage import CAPACITOR_ROLES, RESISTOR_ROLES, PartRatings, StageB
 
 __all__ = ["write_sheet", "WrittenSheet", "ratings_of", "echo_sheet", "SHEET_FILES"]
 
-SHEET_FILES = ("sheet.html", "schematic.svg", "response.png", "response.svg", "drift.png",
-               "parts.csv")
+SHEET_FILES = ("sheet.html", "schematic.svg", "stage.cir", "response.png", "response.svg",
+               "drift.png", "parts.csv")
 
 
 class WrittenSheet(list):
@@ -138,6 +139,7 @@ def write_sheet(directory, design: Design, request: Request, transistor, *,
     """
     from drawerfit.sheet import html, parts_csv, plots, schematic, spread
     from optimiser.evaluate import evaluate, frequency_response_of
+    from optimiser.spice_netlist import spice_netlist
 
     out_dir = Path(directory)
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -164,6 +166,9 @@ def write_sheet(directory, design: Design, request: Request, transistor, *,
     sch_path = schematic.write_schematic(out_dir / "schematic.svg", design, request,
                                          {p.node: p.volts for p in probes})
     written.append(sch_path)
+    cir_path = out_dir / "stage.cir"
+    cir_path.write_text(spice_netlist(design, request, transistor), encoding="utf-8")
+    written.append(cir_path)
 
     freqs = plots.frequency_grid(request, design.metrics)
     h = np.asarray(frequency_response_of(request, batch, transistor, freqs))[:, 0]

@@ -13,12 +13,13 @@ import click
 from drawerfit.sheet import WrittenSheet, echo_sheet, write_sheet
 from inventory.errors import InputError
 
-__all__ = ["sheet_option", "sheet_for_design", "sheet_for_build"]
+__all__ = ["sheet_option", "sheet_for_design", "sheet_for_build", "spice_option",
+           "spice_for_design", "spice_for_search", "write_spice"]
 
 sheet_option = click.option(
     "--sheet", "sheet_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
     help="Also write the build sheet here: sheet.html (printable), schematic.svg, "
-         "response.png/.svg, drift.png, parts.csv.")
+         "stage.cir, response.png/.svg, drift.png, parts.csv.")
 
 
 def sheet_for_design(directory, design, request, transistor, *, evaluation=None,
@@ -117,7 +118,7 @@ def sheet_for_circuit(directory, design, evaluation, circuit, yield_result=None,
 
 rank_option = click.option(
     "--rank", "sheet_rank", type=click.IntRange(1, 100), default=1, show_default=True,
-    help="Which ranked design --sheet draws.")
+    help="Which ranked design --sheet draws and --spice writes.")
 
 
 def sheet_for_search(directory, result, rank: int, snapshot, *, quiet: bool = False):
@@ -132,14 +133,85 @@ def sheet_for_search(directory, result, rank: int, snapshot, *, quiet: bool = Fa
     if not designs:
         err.print("--sheet: no design meets the request, so no build sheet was written.")
         return None
-    if rank > len(designs):
-        raise InputError(f"there {'is' if len(designs) == 1 else 'are'} only {len(designs)} "
-                         f"design{'s' if len(designs) != 1 else ''}; choose a rank from 1 to "
-                         f"{len(designs)} (or raise --top)", field="--rank")
-    design = next((d for d in designs if d.rank == rank), designs[rank - 1])
+    design = _ranked(designs, rank)
     transistor = snapshot.transistor(design.transistor)
     if transistor is None:
         raise InputError(f"transistor {design.transistor!r} is not in stock", field="--sheet")
     # The ranked view prints the cautions of design #1 itself.
     return sheet_for_design(directory, design, result.request, transistor, quiet=quiet,
                             cautions_shown=design is designs[0])
+
+
+def _checked_spice_path(ctx, param, value):
+    """``--spice FILE``: refused (one line, exit 2) before any work when it cannot be written."""
+    if value is None:
+        return None
+    path = Path(value)
+    if not value.strip():
+        raise InputError("no file name given", field="--spice")
+    if path.is_dir():
+        raise InputError(f"{value} is a folder; give a file name such as stage.cir",
+                         field="--spice")
+    parent = path.parent if str(path.parent) else Path(".")
+    if not parent.is_dir():
+        raise InputError(f"cannot write {value}: the folder {parent} does not exist",
+                         field="--spice")
+    return value
+
+
+spice_option = click.option(
+    "--spice", "spice_file", default=None, metavar="FILE", callback=_checked_spice_path,
+    help="Also write the stage as a plain SPICE netlist (title, the device's .model line, "
+         "supply, source, every part by role, load, .op and .ac) to FILE; replaced if it "
+         "exists.")
+
+
+def write_spice(path, design, request, transistor) -> Path:
+    """Write ``design``'s SPICE netlist to ``path`` (bad path: InputError, exit 2)."""
+    from optimiser.spice_netlist import spice_netlist
+
+    text = spice_netlist(design, request, transistor)
+    path = Path(path)
+    try:
+        path.write_text(text, encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"cannot write {path}: {exc.strerror or exc}", field="--spice") from None
+    return path
+
+
+def spice_for_design(path, design, request, transistor, *, quiet: bool = False) -> Path:
+    """Write the netlist and say so (on stderr when ``--json`` owns stdout)."""
+    from drawerfit.console import err, out
+
+    written = write_spice(path, design, request, transistor)
+    title = "SPICE netlist" + (f" of design #{design.rank}" if design.rank else "")
+    (err if quiet else out).print(f"{title} written: {written}", markup=False, highlight=False,
+                                  soft_wrap=True)
+    return written
+
+
+def spice_for_search(path, result, rank: int, snapshot, *, quiet: bool = False):
+    """``design --spice FILE``: the netlist of the design ranked ``rank`` (the one
+    ``--sheet`` draws; rank 1 unless ``--rank`` says otherwise).
+
+    Returns the path, or None when no design meets the request (a line on stderr).
+    """
+    from drawerfit.console import err
+
+    designs = list(result.designs)
+    if not designs:
+        err.print("--spice: no design meets the request, so no netlist was written.")
+        return None
+    design = _ranked(designs, rank)
+    transistor = snapshot.transistor(design.transistor)
+    if transistor is None:
+        raise InputError(f"transistor {design.transistor!r} is not in stock", field="--spice")
+    return spice_for_design(path, design, result.request, transistor, quiet=quiet)
+
+
+def _ranked(designs, rank: int):
+    if rank > len(designs):
+        raise InputError(f"there {'is' if len(designs) == 1 else 'are'} only {len(designs)} "
+                         f"design{'s' if len(designs) != 1 else ''}; choose a rank from 1 to "
+                         f"{len(designs)} (or raise --top)", field="--rank")
+    return next((d for d in designs if d.rank == rank), designs[rank - 1])

@@ -6,6 +6,11 @@ Layout, read left to right: supply, signal source, bias divider, transistor,
 output coupling and load; the supply rail across the top, a ground rail across
 the bottom.  The common-base stage takes its input at the emitter from the
 lower right, so that no wire crosses another.
+
+Each label stands beside its part, placed from the part's symbol box, so that
+no label crosses a symbol, a wire or another label (the tests check this on the
+SVG).  Polarised capacitors are schemdraw's polarised symbol (curved plate and
++), with the + at the end the design says and on the side away from the label.
 """
 
 from __future__ import annotations
@@ -45,13 +50,72 @@ def _label(d: Design, role: str) -> str:
     return role_label(d, role, "capacitor" if role.startswith("C_") else "resistor")
 
 
-def _cap(d: Design, role: str):
-    """A capacitor element: polarised parts get the curved plate and a + mark."""
-    pick = d.parts[role]
+#: Height of one text line in drawing units (schemdraw's SVG is 36 points a unit).
+LINE_U = FONT / 36.0
+#: Space between a part and its label, drawing units.
+GAP = 0.15
+#: Where the ``+`` of schemdraw's polarised capacitor falls for each drawing
+#: direction (unflipped): the left of the direction of travel.
+_PLUS_SIDE = {"right": "above", "left": "below", "down": "right", "up": "left"}
+_OPPOSITE = {"above": "below", "below": "above", "left": "right", "right": "left"}
+#: Nodes on the far side of a capacitor from the transistor.
+_FAR_NODES = ("source", "load", "ground")
+
+
+def _polarised(d: Design, role: str) -> bool:
     from inventory.parts import POLARISED_DIELECTRICS
 
-    polar = any((pc.dielectric or "").lower() in POLARISED_DIELECTRICS for pc in pick.pieces)
-    return elm.Capacitor(polar=polar)
+    return any((pc.dielectric or "").lower() in POLARISED_DIELECTRICS
+               for pc in d.parts[role].pieces)
+
+
+def _plus_at_far_side(d: Design, request: Request, role: str) -> bool:
+    """True when the design puts the + of ``role`` on its far side (source, load, ground).
+
+    The design's own ``plus`` when it has one, else the side at the higher DC
+    voltage (:func:`optimiser.cautions.capacitor_bias`); the transistor's side when
+    neither is known.
+    """
+    plus = d.parts[role].plus
+    if plus is None:
+        from optimiser.cautions import capacitor_bias
+
+        bias = capacitor_bias(d, request).get(role)
+        plus = bias.plus if bias is not None else None
+    return plus in _FAR_NODES
+
+
+def _cap(d: Design, request: Request, role: str, direction: str, label_side: str):
+    """A capacitor drawn from its transistor side toward ``direction``.
+
+    Polarised parts are schemdraw's polarised capacitor (curved plate and +), the
+    + at the end the design says and on the side away from the label.
+    """
+    if not _polarised(d, role):
+        return getattr(elm.Capacitor(), direction)(L)
+    cap = getattr(elm.Capacitor2(polar=True), direction)(L)
+    if _plus_at_far_side(d, request, role):
+        cap = cap.reverse()
+    if _PLUS_SIDE[direction] == label_side:
+        cap = cap.flip()
+    return cap
+
+
+def _tag(dw: schemdraw.Drawing, element, text: str, side: str, gap: float = GAP, **style):
+    """Write ``text`` beside ``element`` (above, below, left or right of its symbol).
+
+    The anchor keeps the text clear of the symbol whether or not the viewer
+    honours ``dominant-baseline`` on the text's lines (renderers that do not set
+    each line on its baseline: up to 0.8 of a line higher, 0.2 lower).
+    """
+    bb = element.get_bbox(transform=True, includetext=False)
+    cx, cy = (bb.xmin + bb.xmax) / 2, (bb.ymin + bb.ymax) / 2
+    where = {"above": ((cx, bb.ymax + gap + 0.2 * LINE_U), "center", "bottom"),
+             "below": ((cx, bb.ymin - gap - 0.8 * LINE_U), "center", "top"),
+             "left": ((bb.xmin - gap, cy), "right", "center"),
+             "right": ((bb.xmax + gap, cy), "left", "center")}[side]
+    xy, ha, va = where
+    dw.add(elm.Label().at(xy).label(text, halign=ha, valign=va, **style))
 
 
 PROBE_COLOUR = "#1f4fbf"
@@ -62,7 +126,8 @@ def draw(design: Design, request: Request,
     """The schematic as a schemdraw Drawing (SVG canvas, text kept as <text>).
 
     ``probes`` maps "base", "emitter", "collector" to the DC volts to expect
-    there; they are written beside those nodes (blue), to ground.
+    there; they are written beside those nodes (blue), to ground.  Every label
+    stands beside its part, clear of every symbol, wire and other label.
     """
     schemdraw.svgconfig.text = "text"
     p = design.parts
@@ -70,9 +135,14 @@ def draw(design: Design, request: Request,
     dw = schemdraw.Drawing(canvas="svg", show=False)
     dw.config(fontsize=FONT, unit=L, lw=1.4)
 
+    def part(element, text: str, side: str, gap: float = GAP):
+        dw.add(element)
+        _tag(dw, element, text, side, gap)
+        return element
+
     # --- transistor and the vertical stack on its emitter -------------------
-    q = dw.add(elm.BjtNpn(circle=True).at((0, 0)).anchor("base")
-               .label(f"Q\n{design.transistor}", loc="right", ofst=(0.15, -0.1)))
+    q = dw.add(elm.BjtNpn(circle=True).at((0, 0)).anchor("base"))
+    _tag(dw, q, f"Q\n{design.transistor}", "right", gap=0.1)
     emitter_parts: list[str] = [r for r in ("RE", "RE_BYP") if r in p]
     stack_h = L * max(1, len(emitter_parts)) + 0.8
     y_gnd = q.emitter[1] - stack_h - 0.4
@@ -82,7 +152,7 @@ def draw(design: Design, request: Request,
     # Collector: RC to the rail, or straight to the rail (cc without RC).
     if "RC" in p:
         dw.add(elm.Line().at(q.collector).up(0.6))
-        dw.add(elm.Resistor().up(L).label(_label(design, "RC"), loc="top", ofst=0.15))
+        part(elm.Resistor().up(L), _label(design, "RC"), "left")
         dw.add(elm.Line().toy(y_top))
     else:
         dw.add(elm.Line().at(q.collector).toy(y_top))
@@ -93,13 +163,12 @@ def draw(design: Design, request: Request,
     dw.add(elm.Line().at(q.emitter).to(e_node))
     here = e_node
     for r in emitter_parts:
-        res = dw.add(elm.Resistor().at(here).down(L).label(_label(design, r), loc="bottom",
-                                                            ofst=0.15))
+        res = part(elm.Resistor().at(here).down(L), _label(design, r), "right")
         if r == "RE_BYP" and "C_BYP" in p:
             dw.add(elm.Dot().at(res.start))
             dw.add(elm.Line().at(res.start).right(2.8))
-            dw.add(_cap(design, "C_BYP").down(L).label(_label(design, "C_BYP"), loc="bottom",
-                                                       ofst=0.15))
+            part(_cap(design, request, "C_BYP", "down", "right"), _label(design, "C_BYP"),
+                 "right")
             dw.add(elm.Line().toy(y_gnd))
             dw.add(elm.Line().tox(res.end[0]))
             dw.add(elm.Dot())
@@ -110,52 +179,53 @@ def draw(design: Design, request: Request,
     b_node = (x_div, 0.0)
     dw.add(elm.Line().at(q.base).tox(x_div))
     dw.add(elm.Dot())
-    dw.add(elm.Resistor().at(b_node).up(L).label(_label(design, "R1"), loc="bottom", ofst=0.15))
+    part(elm.Resistor().at(b_node).up(L), _label(design, "R1"), "right")
     dw.add(elm.Line().toy(y_top))
-    dw.add(elm.Resistor().at(b_node).down(L).label(_label(design, "R2"), loc="bottom", ofst=0.15))
+    part(elm.Resistor().at(b_node).down(L), _label(design, "R2"), "right")
     dw.add(elm.Line().toy(y_gnd))
     if "C_B" in p:
         dw.add(elm.Line().at(b_node).down(0.5))
         dw.add(elm.Dot())
         dw.add(elm.Line().left(1.6))
-        dw.add(_cap(design, "C_B").down(L).label(_label(design, "C_B"), loc="top", ofst=0.15))
+        part(_cap(design, request, "C_B", "down", "left"), _label(design, "C_B"), "left")
         dw.add(elm.Line().toy(y_gnd))
+
+    source_r = f"source R\n{fmt.value(request.source_ohm, 'resistor')}" \
+        if request.source_ohm else None
 
     # --- input of cb: into the emitter node from the lower right ------------
     x_src = None
     if topo == "cb":
         dw.add(elm.Dot().at(e_node))
-        dw.add(elm.Line().at(e_node).right(1.4))
-        cin = dw.add(_cap(design, "C_IN").right(L)
-                     .label(_label(design, "C_IN"), loc="top", ofst=0.15))
+        dw.add(elm.Line().at(e_node).right(2.0))
+        cin = part(_cap(design, request, "C_IN", "right", "below"), _label(design, "C_IN"),
+                   "below")
         here = cin.end
-        if request.source_ohm:
-            rs = dw.add(elm.Resistor().at(here).right(L * 0.8)
-                        .label(f"source R\n{fmt.value(request.source_ohm, 'resistor')}",
-                               loc="bottom", ofst=0.15))
-            here = rs.end
+        if source_r:
+            here = part(elm.Resistor().at(here).right(L * 0.8), source_r, "below").end
         x_src = here[0] + 0.8
         dw.add(elm.Line().at(here).tox(x_src))
-        dw.add(elm.SourceSin().at((x_src, y_gnd)).toy(e_node[1])
-               .label("signal\nsource", loc="bottom", ofst=0.2).reverse())
+        part(elm.SourceSin().at((x_src, y_gnd)).toy(e_node[1]).reverse(), "signal\nsource",
+             "right", gap=0.2)
         dw.add(elm.Dot().at((x_src, y_gnd)))
 
     # --- output: C_OUT from the collector (ce, cb) or the emitter (cc) -------
+    # Above the collector's wire; below the emitter's, clear of the transistor's label.
     out_node = c_node if topo in ("ce", "cb") else e_node
+    out_side = "above" if topo in ("ce", "cb") else "below"
     dw.add(elm.Dot().at(out_node))
-    dw.add(elm.Line().at(out_node).right(1.4))
-    cout = dw.add(_cap(design, "C_OUT").right(L)
-                  .label(_label(design, "C_OUT"), loc="top", ofst=0.15))
+    dw.add(elm.Line().at(out_node).right(2.0))
+    cout = part(_cap(design, request, "C_OUT", "right", out_side), _label(design, "C_OUT"),
+                out_side)
     x_load = cout.end[0] + 1.2
     if x_src is not None:
-        x_load = max(x_load, x_src + 2.6)       # the load stands right of the cb source
+        x_load = max(x_load, x_src + 3.0)       # the load stands right of the cb source
     dw.add(elm.Line().at(cout.end).tox(x_load))
     out_pt = (x_load, out_node[1])
     if request.load_ohm:
         dw.add(elm.Dot().at(out_pt))
-        dw.add(elm.Resistor().at(out_pt).down(L)
-               .label(f"load\n{fmt.value(request.load_ohm, 'resistor')}", loc="bottom",
-                      ofst=0.15))
+        part(elm.Resistor().at(out_pt).down(L),
+             f"load\n{fmt.value(request.load_ohm, 'resistor')}", "right")
         dw.add(elm.Line().toy(y_gnd))
     dw.add(elm.Line().at(out_pt).right(0.9))
     dw.add(elm.Dot(open=True).label("out", loc="right"))
@@ -166,29 +236,26 @@ def draw(design: Design, request: Request,
         x_left = x_div - (2.4 if "C_B" in p else 0.8)
     else:
         here = (x_div, 0.0)
-        cin = dw.add(_cap(design, "C_IN").at(here).left(L)
-                     .label(_label(design, "C_IN"), loc="bottom", ofst=0.15))
+        cin = part(_cap(design, request, "C_IN", "left", "above").at(here),
+                   _label(design, "C_IN"), "above")
         here = cin.end
-        if request.source_ohm:
-            rs = dw.add(elm.Resistor().at(here).left(L * 0.8)
-                        .label(f"source R\n{fmt.value(request.source_ohm, 'resistor')}",
-                               loc="bottom", ofst=0.15))
-            here = rs.end
+        if source_r:
+            here = part(elm.Resistor().at(here).left(L * 0.8), source_r, "above").end
         dw.add(elm.Line().at(here).left(0.6))
         x_src = here[0] - 0.6
-        dw.add(elm.SourceSin().at((x_src, y_gnd)).toy(0.0)
-               .label("signal\nsource", loc="top", ofst=0.2))
+        part(elm.SourceSin().at((x_src, y_gnd)).toy(0.0), "signal\nsource", "right",
+             gap=0.2)
         dw.add(elm.Dot().at((x_src, y_gnd)))
         x_left = x_src
 
     # --- supply and the rails -------------------------------------------------
+    # The supply's label stands outside, left of the cell.
     x_sup = x_left - 2.2
     sup = f"supply\n+{fmt.si(request.supply_v, 'V')}"
-    dw.add(elm.BatteryCell().at((x_sup, y_gnd)).toy(y_top).reverse()
-           .label(sup, loc="bottom", ofst=0.2))
+    part(elm.BatteryCell().at((x_sup, y_gnd)).toy(y_top).reverse(), sup, "left", gap=0.2)
     dw.add(elm.Line().at((x_sup, y_top)).tox(q.collector[0]))
-    dw.add(elm.Label().at((x_sup + 0.8, y_top)).label(f"+{fmt.si(request.supply_v, 'V')}",
-                                                      loc="top", ofst=0.1))
+    dw.add(elm.Label().at((x_sup + 0.8, y_top + GAP + 0.2 * LINE_U))
+           .label(f"+{fmt.si(request.supply_v, 'V')}", halign="center", valign="bottom"))
     dw.add(elm.Line().at((x_sup, y_gnd)).tox(x_right))
     x_mid = (x_div + q.collector[0]) / 2
     dw.add(elm.Ground().at((x_mid, y_gnd)))
@@ -197,10 +264,11 @@ def draw(design: Design, request: Request,
     for x in {x_div, q.emitter[0], x_mid} | ({x_div - 1.6} if "C_B" in p else set()):
         dw.add(elm.Dot().at((x, y_gnd)))
 
+    # DC voltages to probe: left of the collector and emitter wires, above the base's.
     probes = probes or {}
-    where = {"base": ((x_div + 0.25, 0.05), "left", "bottom"),
-             "emitter": ((e_node[0] - 0.2, e_node[1]), "right", "center"),
-             "collector": ((c_node[0] - 0.2, c_node[1]), "right", "center")}
+    where = {"base": ((x_div + 0.25, GAP + 0.2 * LINE_U), "left", "bottom"),
+             "emitter": ((e_node[0] - 0.5, e_node[1]), "right", "center"),
+             "collector": ((c_node[0] - 0.5, c_node[1]), "right", "center")}
     letter = {"base": "B", "emitter": "E", "collector": "C"}
     for node, volts in probes.items():
         if node not in where or volts is None:

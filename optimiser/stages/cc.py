@@ -12,9 +12,24 @@ import numpy as np
 from ..stage import StageBatch
 from .common import GROUND, Element, Network, par_thevenin
 
-__all__ = ["network", "quasi_static", "capacitors", "OUTPUT"]
+__all__ = ["network", "quasi_static", "capacitors", "OUTPUT", "WIRING"]
 
 OUTPUT = "emitter"
+
+
+#: The stage's full wiring, for a netlist of the whole stage (supply included):
+#: role, then its two nodes, the transistor's side first.  A resistor role that is
+#: absent (or 0) joins its two nodes (no RC: the collector on the supply); an
+#: absent capacitor leaves them open.
+WIRING = (
+    ("R1", "supply", "base"),
+    ("R2", "base", "ground"),
+    ("RC", "supply", "collector"),
+    ("RE", "emitter", "junction"),
+    ("RE_BYP", "junction", "ground"),
+    ("C_IN", "base", "source"),
+    ("C_OUT", "emitter", "load"),
+)
 
 
 def network(batch: StageBatch) -> Network:

@@ -167,6 +167,10 @@ def test_analyse_sheet_shows_the_figures_of_analyse_json(tmp_path):
         lo, hi = volts_of(worst)
         p5, p95 = volts_of(mc)
         assert lo <= p5 <= p95 <= hi, node
+    # The folder holds the stage as a SPICE netlist: ngspice's I_C of it is analyse's
+    # (within 0.5 %, the engine's tolerance against ngspice).
+    vals = _ngspice_op(out / "stage.cir", tmp_path, "@q[ic]")
+    assert vals["@q[ic]"] == pytest.approx(metrics["ic_a"], rel=0.005)
 
 
 SMALL_STOCK = """kind,value,qty,tolerance,power,voltage,dielectric,location,hfe_min,hfe_max,vbe,ic_ref,vaf,vce_sat,vceo,ic_max,pd,ft,cob
@@ -220,3 +224,83 @@ def test_design_sheet_draws_the_chosen_rank(tmp_path):
     r = runner.invoke(cli, ["--db", db, "design", str(tmp_path / "req.toml"), "--top", "2",
                             "--sheet", str(tmp_path / "s2"), "--rank", "3"])
     assert r.exit_code == 2 and "--rank" in r.stderr and "Traceback" not in r.output
+
+
+def _ngspice_op(deck_path, tmp_path, prints: str) -> dict[str, float]:
+    """ngspice's .op reading of an exported deck: ``prints`` (e.g. ``@q[ic] @r1[resistance]``).
+
+    The deck is run as written, with a .control block appended that prints what is read.
+    """
+    from tests.reference.spice import _prints, require_ngspice, run_ngspice
+
+    require_ngspice()
+    deck = deck_path.read_text(encoding="utf-8").rstrip()
+    assert deck.endswith(".end") and ".control" not in deck.lower()
+    text = deck[: -len(".end")] + f".control\nsave all\nop\nprint {prints}\n.endc\n.end\n"
+    return _prints(run_ngspice(text, tmp_path, "cli"))
+
+
+def test_analyse_spice_writes_the_stage_ngspice_reads(tmp_path):
+    # Reference: ngspice's operating point of the exported deck (I_C within 0.5 %, the
+    # engine's tolerance against ngspice) and its reading of every part's value.
+    circuit = tmp_path / "stage.toml"
+    circuit.write_text(CIRCUIT_TOML.replace("yield_samples = 300\n", ""))
+    cir = tmp_path / "out.cir"
+    r = CliRunner().invoke(cli, ["--db", str(tmp_path / "x.db"), "analyse", str(circuit),
+                                 "--json", "--spice", str(cir)])
+    assert r.exit_code == 0, r.output
+    design = json.loads(r.stdout)["design"]
+    assert "SPICE netlist written" in r.stderr and str(cir) in r.stderr
+    roles = [k for k, v in design["parts"].items() if v["value"]]
+    kinds = {k: "resistance" if k.startswith("R") else "capacitance" for k in roles}
+    vals = _ngspice_op(cir, tmp_path, "@q[ic] " + " ".join(f"@{k.lower()}[{kinds[k]}]"
+                                                           for k in roles))
+    assert vals["@q[ic]"] == pytest.approx(design["metrics"]["ic_a"], rel=0.005)
+    for k in roles:
+        assert vals[f"@{k.lower()}[{kinds[k]}]"] == pytest.approx(design["parts"][k]["value"],
+                                                                  rel=1e-5), k
+    # Without --json the line goes to stdout, after the analysis.
+    r = CliRunner().invoke(cli, ["--db", str(tmp_path / "x.db"), "analyse", str(circuit),
+                                 "--spice", str(tmp_path / "again.cir")])
+    assert r.exit_code == 0 and "SPICE netlist written" in r.stdout
+    assert (tmp_path / "again.cir").read_text() == cir.read_text()
+
+
+@pytest.mark.parametrize("bad", ["missing-folder/x.cir", "."])
+def test_spice_to_a_bad_path_is_one_line_and_exit_2(tmp_path, bad, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "stage.toml").write_text(CIRCUIT_TOML)
+    (tmp_path / "req.toml").write_text(SMALL_REQUEST)
+    for args in (["analyse", "stage.toml"], ["design", "req.toml"]):
+        r = CliRunner().invoke(cli, ["--db", "x.db", *args, "--spice", bad])
+        assert r.exit_code == 2, (args, r.output)
+        lines = r.stderr.strip().splitlines()
+        assert len(lines) == 1 and "--spice" in lines[0] and "Traceback" not in r.output
+        assert r.stdout == ""                      # refused before any work
+
+
+def test_design_spice_writes_the_chosen_rank(tmp_path):
+    # Reference: ngspice's reading of the deck's part values and its .op I_C.
+    (tmp_path / "stock.csv").write_text(SMALL_STOCK)
+    (tmp_path / "req.toml").write_text(SMALL_REQUEST)
+    db = str(tmp_path / "s.db")
+    runner = CliRunner()
+    assert runner.invoke(cli, ["--db", db, "stock", "import",
+                               str(tmp_path / "stock.csv")]).exit_code == 0
+    for rank in (1, 2):
+        cir = tmp_path / f"rank{rank}.cir"
+        r = runner.invoke(cli, ["--db", db, "design", str(tmp_path / "req.toml"), "--json",
+                                "--spice", str(cir), "--rank", str(rank)])
+        assert r.exit_code == 0, r.output
+        want = json.loads(r.stdout)["designs"][rank - 1]
+        assert f"design #{rank}" in r.stderr
+        roles = [k for k, v in want["parts"].items() if v["value"]]
+        kinds = {k: "resistance" if k.startswith("R") else "capacitance" for k in roles}
+        vals = _ngspice_op(cir, tmp_path, "@q[ic] " + " ".join(f"@{k.lower()}[{kinds[k]}]"
+                                                               for k in roles))
+        assert vals["@q[ic]"] == pytest.approx(want["metrics"]["ic_a"], rel=0.005)
+        for k in roles:
+            assert vals[f"@{k.lower()}[{kinds[k]}]"] == pytest.approx(
+                want["parts"][k]["value"], rel=1e-5), (rank, k)
+        text = cir.read_text()
+        assert text.splitlines()[0].startswith(f"drawerfit ce stage, rank {rank}")

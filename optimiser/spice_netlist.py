@@ -1,0 +1,207 @@
+"""A plain SPICE netlist of one designed stage, as text (no I/O).
+
+:func:`spice_netlist` writes the stage the engine evaluated as a deck any SPICE
+simulator reads: a title line, comments naming each node, the supply, the
+signal source (``AC 1`` behind its source resistance; a ``SIN`` of
+``input_vpk`` at ``mid_hz`` when the request gives a level), every part under
+its role name, the load, the transistor with the device model's ``.model``
+line (:func:`optimiser.device.spice_model_line`, nominal β), ``.options TEMP=25
+TNOM=25`` (the engine's nominal figures are at 25 °C) with a tighter ``RELTOL``,
+``.op`` and an ``.ac dec`` sweep over the engine's own frequency range.  No
+``.control`` block.
+
+Where each part sits is the topology's ``WIRING`` (:mod:`optimiser.stages`).
+Values are written with SPICE's own suffixes (``4.7k``, ``100n``, ``1Meg``),
+because SPICE reads ``4k7`` as 4 kΩ and ``1M`` as 1 mΩ; the comment line above
+each part gives the value as a technician writes it (``4k7``) and its bin.
+"""
+
+from __future__ import annotations
+
+import math
+
+from inventory.values import format_si, format_value
+
+from . import stages
+from .ac import F_MAX_HZ, F_MIN_HZ, GRID_PER_DECADE
+from .design import Design
+from .device import device_from_transistor, spice_model_line
+from .request import Request
+
+__all__ = ["spice_netlist", "spice_number", "NODE_MEANING", "NO_LOAD_OHM", "RELTOL"]
+
+#: What each node of a stage is, for the netlist's comments.
+NODE_MEANING = {
+    "supply": "the positive supply rail",
+    "base": "the transistor's base",
+    "emitter": "the transistor's emitter",
+    "collector": "the transistor's collector",
+    "junction": "between RE and RE_BYP (the bypassed part of the emitter resistance)",
+    "source": "the source side of C_IN (after the source resistance)",
+    "emf": "the signal source's open-circuit voltage",
+    "load": "the load side of C_OUT: the output",
+}
+
+#: A request without a load leaves the output open; the netlist gives the node a DC
+#: path with this resistance (ohm), which no stage in range notices.
+NO_LOAD_OHM = 1e12
+
+#: SPICE's relative convergence tolerance in the deck.  The default (1e-3) lets the
+#: operating point stop up to about 0.5 % from the solution; 1e-6 brings ngspice's
+#: I_C within 0.01 % of the engine's on the random reference stages.
+RELTOL = 1e-6
+
+_SUFFIXES = ((1e12, "T"), (1e9, "G"), (1e6, "Meg"), (1e3, "k"), (1.0, ""),
+             (1e-3, "m"), (1e-6, "u"), (1e-9, "n"), (1e-12, "p"), (1e-15, "f"))
+
+
+def spice_number(x: float, digits: int = 6) -> str:
+    """A number with a SPICE scale suffix: ``4.7k``, ``100n``, ``1Meg``, ``2.2u``, ``12``.
+
+    ``digits`` significant figures, trailing zeros dropped.  SPICE's ``M`` is
+    milli, so mega is written ``Meg``.
+    """
+    x = float(x)
+    if not math.isfinite(x):
+        raise ValueError(f"cannot write {x!r} in a netlist")
+    if x == 0:
+        return "0"
+    mag = abs(x)
+    for scale, suffix in _SUFFIXES:
+        if mag >= scale * (1 - 0.5 * 10 ** (1 - digits)):
+            break
+    m = f"{x / scale:.{digits}g}"
+    if "e" in m:                                   # below 1 fF: plain exponent
+        return f"{x:.{digits}g}"
+    return m + suffix
+
+
+def _comment(text: str) -> str:
+    """Free text (labels, bins) made safe for one line of a deck: one line, plain ASCII."""
+    text = " ".join(str(text).split()).replace("µ", "u")
+    return text.encode("ascii", "replace").decode("ascii")
+
+
+class _Nodes:
+    """Node names with joins (a short joins two nodes; ground and supply win)."""
+
+    _RANK = {"ground": 0, "supply": 1}
+
+    def __init__(self):
+        self.parent: dict[str, str] = {}
+
+    def find(self, n: str) -> str:
+        while self.parent.get(n, n) != n:
+            n = self.parent[n]
+        return n
+
+    def join(self, a: str, b: str) -> None:
+        a, b = self.find(a), self.find(b)
+        if a == b:
+            return
+        if self._RANK.get(b, 9) < self._RANK.get(a, 9):
+            a, b = b, a
+        self.parent[b] = a
+
+    def spice(self, n: str) -> str:
+        n = self.find(n)
+        return "0" if n == "ground" else n
+
+
+def spice_netlist(design: Design, request: Request, transistor) -> str:
+    """The SPICE deck of ``design`` as text (lines end with ``\\n``, last line ``.end``).
+
+    Parameters
+    ----------
+    design : Design
+        The stage: topology, role values (ohm, farad), bins, the + side of
+        polarised capacitors.
+    request : Request
+        Supply, source resistance, load, mid_hz and input_vpk.
+    transistor : inventory.parts.Transistor
+        Gives the ``.model`` line (the engine's device model, nominal β).
+    """
+    wiring = stages.module(design.topology).WIRING
+    values = {role: float(pick.value) for role, pick in design.parts.items()}
+    nodes = _Nodes()
+    for role, a, b in wiring:
+        if role.startswith("R") and values.get(role, 0.0) == 0.0:
+            nodes.join(a, b)
+    if not request.source_ohm:
+        nodes.join("emf", "source")
+
+    title = (f"drawerfit {design.topology} stage"
+             + (f", rank {design.rank}" if design.rank else "")
+             + f", transistor {design.transistor}, supply {format_si(request.supply_v, 'V')}")
+    lines = [_comment(title), "*"]
+
+    parts: list[str] = []
+    used: set[str] = set()
+
+    def element(name: str, a: str, b: str, value: str, note: str) -> None:
+        na, nb = nodes.spice(a), nodes.spice(b)
+        parts.append(f"* {_comment(note)}")
+        parts.append(f"{name} {na} {nb} {value}")
+        used.update((na, nb))
+
+    # Supply and signal source.
+    element("VSUPPLY", "supply", "ground", f"DC {spice_number(request.supply_v)}",
+            f"supply: {format_si(request.supply_v, 'V')}")
+    src = "DC 0 AC 1"
+    if request.input_vpk:
+        src += f" SIN(0 {spice_number(request.input_vpk)} {spice_number(request.mid_hz)})"
+    element("VSIGNAL", "emf", "ground", src,
+            "signal source: AC 1 V for the response"
+            + (f"; a {format_si(request.input_vpk, 'V')} peak sine at "
+               f"{format_si(request.mid_hz, 'Hz')} for a transient" if request.input_vpk else ""))
+    if request.source_ohm:
+        element("RSOURCE", "emf", "source", spice_number(request.source_ohm),
+                f"source resistance: {format_value(request.source_ohm, 'resistor')}")
+
+    # The stage's parts under their role names.
+    for role, a, b in wiring:
+        pick = design.parts.get(role)
+        v = values.get(role, 0.0)
+        if pick is None or v == 0.0 or nodes.find(a) == nodes.find(b):
+            continue
+        kind = "resistor" if role.startswith("R") else "capacitor"
+        note = f"{role}: {format_value(v, kind)}"
+        if pick.joined:
+            sep = " + " if pick.joined == "series" else " || "
+            note += " = " + sep.join(format_value(pc.value, kind)
+                                     for pc in pick.pieces for _ in range(pc.count))
+        bins = [pc.location for pc in pick.pieces if pc.location]
+        if bins:
+            note += ", bin " + " + ".join(dict.fromkeys(bins))
+        if kind == "capacitor" and pick.plus:
+            if pick.plus == b:                           # + side first
+                a, b = b, a
+            note += f", polarised: + on {a}"
+        element(role, a, b, spice_number(v), note)
+
+    # The load.
+    if request.load_ohm:
+        element("RLOAD", "load", "ground", spice_number(request.load_ohm),
+                f"load: {format_value(request.load_ohm, 'resistor')}")
+    else:
+        element("RLOAD", "load", "ground", spice_number(NO_LOAD_OHM),
+                f"no load: {spice_number(NO_LOAD_OHM)} ohm only gives the open output a DC path")
+
+    # The transistor.
+    c, b, e = (nodes.spice(n) for n in ("collector", "base", "emitter"))
+    parts.append(f"* Q: {_comment(design.transistor)} (nominal hFE, 25 degC)")
+    parts.append(f"Q {c} {b} {e} Q")
+    used.update((c, b, e))
+
+    lines.append("* nodes (0 is ground):")
+    for n, meaning in NODE_MEANING.items():
+        if n in used:
+            lines.append(f"*   {n}: {meaning}")
+    lines.append("*")
+    lines += parts
+    lines.append(spice_model_line(device_from_transistor(transistor), "Q"))
+    lines.append(f".options TEMP=25 TNOM=25 RELTOL={RELTOL:g}")
+    lines.append(".op")
+    lines.append(f".ac dec {GRID_PER_DECADE} {spice_number(F_MIN_HZ)} {spice_number(F_MAX_HZ)}")
+    lines.append(".end")
+    return "\n".join(lines) + "\n"
