@@ -494,8 +494,12 @@ class Store:
 
     def read_before(self, path: str | Path) -> list[dict]:
         """Earlier imports and stock-takes of a file with the same content (SHA-256),
-        oldest first, as in :meth:`history` (``undone_by`` says whether each still stands)."""
-        digest = tabular.file_digest(path)
+        oldest first, as in :meth:`history` (``undone_by`` says whether each still stands).
+        A file that cannot be read gives an empty list (reading it reports the problem)."""
+        try:
+            digest = tabular.file_digest(path)
+        except InputError:
+            return []
         with self._session(write=False) as s:
             return [self._batch_dict(b) for b in s.scalars(
                 select(Batch).where(Batch.digest == digest).order_by(Batch.id)).all()]
