@@ -171,6 +171,8 @@ def allocate_circuit(c, parts: list, copies: int, *, file: str) -> dict:
     fails = {rule.key: np.asarray(rule.fail, dtype=bool) for rule in ev.rules
              if rule.kind == "validity"}
     chosen: dict[str, int] = {}
+    left = {p.id: p.qty for p in parts}
+    left[q.id] -= copies
     for role in cands:
         bad = fails.get(f"power_{role}", fails.get(f"voltage_{role}"))
         ok = [k for k in range(len(cands[role])) if bad is None or not bad[k]]
@@ -180,7 +182,15 @@ def allocate_circuit(c, parts: list, copies: int, *, file: str) -> dict:
                 f"no stock row of this value has rating enough: {rule.text(0)}",
                 file=file, field=f"parts.{role}"))
             continue
-        chosen[role] = ok[0]
+        free = [k for k in ok if left[cands[role][k].id] >= copies]
+        if not free:
+            problems.append(InputError(
+                f"the rows of this value are taken by other roles of this circuit ("
+                + ", ".join(f"id {cands[role][k].id}: {cands[role][k].qty}" for k in ok)
+                + f"); {copies} more pieces are needed", file=file, field=f"parts.{role}"))
+            continue
+        chosen[role] = free[0]
+        left[cands[role][free[0]].id] -= copies
     if problems:
         raise problems[0] if len(problems) == 1 else _errors(problems)
     picks = {}

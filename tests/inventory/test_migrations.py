@@ -68,6 +68,11 @@ def test_store_made_at_revision_0001_opens_and_works(tmp_path):
         assert store.transistor("OLD-N1").ft == pytest.approx(200e6)
         builds = store.list_builds()
         assert [b["request"] for b in builds] == ["old.toml"]
+        # the old build became a build of one line holding its design and pieces
+        [line] = store.build(builds[0]["id"])["lines"]
+        assert (line["request"], line["copies"]) == ("old.toml", 2)
+        assert line["design"] == {"note": "made at 0001"}
+        assert line["pieces"] == store.build(builds[0]["id"])["pieces"]
         # it still takes changes, and the old build can be undone exactly
         store.undo_build(builds[0]["id"])
         assert {p.id: p.qty for p in store.parts()} == {1: 16, 2: 12, 3: 30, 4: 8, 5: 6}
