@@ -27,6 +27,7 @@ import tempfile
 from collections import defaultdict
 from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
+from dataclasses import replace as dc_replace
 from datetime import datetime
 from pathlib import Path
 from typing import Any
@@ -39,7 +40,7 @@ from sqlalchemy.orm import Session, selectinload, sessionmaker
 from inventory import tabular
 from inventory.errors import DrawerfitError, InputError, StockShortage, StoreError
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
-from inventory.schema import Base, Batch, Build, BuildItem, Item, Movement, Order
+from inventory.schema import Base, Batch, Build, BuildItem, BuildLine, Item, Movement, Order
 
 __all__ = ["open_store", "Store", "default_store_path", "describe", "head_revision",
            "MIGRATIONS_DIR"]
@@ -51,7 +52,8 @@ MIGRATIONS_DIR = Path(__file__).resolve().parent.parent / "migrations"
 _SQLITE_MAGIC = b"SQLite format 3\x00"
 #: Key of the PostgreSQL advisory lock that serialises writers.
 _PG_LOCK_KEY = 0x64726177  # "draw"
-_TABLE_ORDER = ("items", "batches", "movements", "builds", "build_items", "orders")
+_TABLE_ORDER = ("items", "batches", "movements", "builds", "build_items", "build_lines",
+                "orders")
 
 
 # ------------------------------------------------------------------ opening
@@ -383,8 +385,8 @@ class Store:
             return None if row is None else _to_part(row)  # type: ignore[return-value]
 
     def low(self) -> list[Part]:
-        """Items below their restock level (qty < min_qty)."""
-        return [p for p in self.parts() if p.qty < p.min_qty]
+        """Empty items (qty 0) and items below their restock level (qty < min_qty)."""
+        return [p for p in self.parts() if p.qty == 0 or p.qty < p.min_qty]
 
     def batch(self, batch_id: int) -> dict:
         """One batch as in :meth:`history`.  InputError if there is none."""
@@ -397,7 +399,7 @@ class Store:
     @staticmethod
     def _batch_dict(b: Batch) -> dict:
         return {"batch": b.id, "when": _iso(b.when), "kind": b.kind, "note": b.note,
-                "undone_by": b.undone_by,
+                "undone_by": b.undone_by, "digest": b.digest,
                 "movements": [{"item_id": m.item_id, "item": describe(_to_part(m.item)),
                                "change": m.change, "reason": m.reason}
                               for m in b.movements]}
@@ -447,11 +449,16 @@ class Store:
             key = tabular.part_key(part)
             item = by_key.get(key)
             if isinstance(part, Transistor) and item is not None:
-                if not tabular.same_transistor(part, _to_part(item)):
+                diffs = tabular.transistor_differences(part, _to_part(item))
+                if diffs:
+                    field, _, _ = diffs[0]
+                    said = "; ".join(f"{f} {here} here, {there} in stock id {item.id}"
+                                     for f, here, there in diffs)
                     problems.append(InputError(
-                        f"transistor {part.label!r} is already in the store (id {item.id}) "
-                        "with other figures; use another label or fix the row",
-                        file=file, line=row.line, field="value"))
+                        f"transistor {part.label!r} is in stock with other figures: {said}; "
+                        f"correct the figures, use another label, or change stock id {item.id}"
+                        " first",
+                        file=file, line=row.line or None, field=field))
                     continue
             if item is None:
                 item = _new_item(part)
@@ -477,11 +484,52 @@ class Store:
         label already present with different figures is refused.
         """
         rows = tabular.read_stock_csv(path)
+        digest = tabular.file_digest(path)
         with self._session() as s:
-            batch = Batch(kind="import", note=f"import {Path(path).name}")
+            batch = Batch(kind="import", note=f"import {Path(path).name}", digest=digest)
             s.add(batch)
             s.flush()
             self._book(s, rows, batch, str(path), f"import {Path(path).name}")
+            return batch.id
+
+    def read_before(self, path: str | Path) -> list[dict]:
+        """Earlier imports and stock-takes of a file with the same content (SHA-256),
+        oldest first, as in :meth:`history` (``undone_by`` says whether each still stands).
+        A file that cannot be read gives an empty list (reading it reports the problem)."""
+        try:
+            digest = tabular.file_digest(path)
+        except InputError:
+            return []
+        with self._session(write=False) as s:
+            return [self._batch_dict(b) for b in s.scalars(
+                select(Batch).where(Batch.digest == digest).order_by(Batch.id)).all()]
+
+    def take(self, path: str | Path, *, zero_missing: bool = False) -> int:
+        """A stock-take: *set* the quantities the file counts.  Returns the batch id.
+
+        Each row's quantity replaces the item's (the difference is logged as a
+        movement); an item not yet in stock is created.  Items the file does not
+        name are left alone, or, with ``zero_missing``, set to 0.  One
+        transaction; ``stock undo`` reverses it.
+        """
+        rows = tabular.read_stock_csv(path)
+        digest = tabular.file_digest(path)
+        name = Path(path).name
+        with self._session() as s:
+            batch = Batch(kind="take", note=f"stock-take {name}", digest=digest)
+            s.add(batch)
+            s.flush()
+            # create the missing items with no pieces, then set every count
+            merged = tabular.merge_rows(rows)
+            ids = self._book(s, [dc_replace(r, part=dc_replace(r.part, qty=0)) for r in merged],
+                             batch, str(path), f"stock-take {name}")
+            targets = {i: r.part.qty for r, i in zip(merged, ids, strict=True)}
+            items = {i.id: i for i in s.scalars(select(Item).with_for_update()).all()}
+            if zero_missing:
+                for i in items:
+                    targets.setdefault(i, 0)
+            for i, q in sorted(targets.items()):
+                self._move(s, batch, items[i], q - items[i].qty, f"stock-take {name}")
             return batch.id
 
     def add_item(self, part: Part, note: str = "") -> int:
@@ -558,6 +606,14 @@ class Store:
         for o in s.scalars(select(Order).where(Order.received_batch_id == batch.id)).all():
             o.received = False
             o.received_batch_id = None
+        for o in s.scalars(select(Order).where(Order.cancelled_batch_id == batch.id)).all():
+            o.cancelled_batch_id = None
+        if batch.kind == "build":
+            # the build no longer counts on its ordered parts: they are not awaited
+            for o in s.scalars(select(Order).where(
+                    Order.batch_id == batch.id, Order.received.is_(False),
+                    Order.cancelled_batch_id.is_(None))).all():
+                o.cancelled_batch_id = undo.id
         return undo.id
 
     def undo(self, batch_id: int) -> int:
@@ -570,30 +626,34 @@ class Store:
 
     # -- builds ------------------------------------------------------------
 
-    def commit_builds(self, builds: list[dict]) -> list[int]:
-        """Record builds and take their pieces out of stock, all in one transaction.
+    def commit_builds(self, builds: list[dict]) -> int:
+        """Record one build with a line per entry and take its pieces out of stock, in one
+        transaction (one batch, which ``builds undo`` reverses in one step).
 
         Parameters
         ----------
         builds : list of dict
-            ``{"request": str, "copies": int, "design": dict, "pieces": {item_id: qty},
-            "orders": [{kind, value, qty, tolerance, power, voltage, dielectric}]}``;
-            ``qty`` in pieces is the total over all copies; ``orders`` (optional) are
-            recorded as awaiting arrival.
+            One per line: ``{"request": str, "copies": int, "design": dict,
+            "pieces": {item_id: qty}, "orders": [{kind, value, qty, used, tolerance,
+            power, voltage, dielectric}]}``; ``qty`` in pieces is the total over all
+            copies; ``orders`` (optional) are recorded as awaited, ``used`` of their
+            pieces going to the build on arrival.
 
         Returns
         -------
-        list of int
-            The new builds' ids, in the order given.
+        int
+            The new build's id.
 
         Raises
         ------
         StockShortage
-            Some item has fewer pieces than all the builds together need; the
+            Some item has fewer pieces than all the lines together need; the
             message names each (have, need).  Nothing is changed.
         """
         specs = []
         need: dict[int, int] = defaultdict(int)
+        if not builds:
+            raise InputError("nothing to record: no build lines")
         for n, b in enumerate(builds, start=1):
             if not isinstance(b, Mapping):
                 raise InputError(f"build {n}: expected a dict")
@@ -621,24 +681,29 @@ class Store:
                      for i, q in sorted(need.items()) if items[i].qty < q]
             if short:
                 raise StockShortage("not enough stock, nothing was taken: " + "; ".join(short))
-            ids = []
-            for request, copies, design, pieces, orders in specs:
-                batch = Batch(kind="build", note=f"build {request} x{copies}")
-                s.add(batch)
-                s.flush()
-                build = Build(request=request, copies=copies, design=design, undone=False,
-                              batch_id=batch.id)
-                s.add(build)
-                s.flush()
-                batch.note = f"build {build.id}: {request} x{copies}"
-                for i, q in sorted(pieces.items()):
-                    if q:
-                        s.add(BuildItem(build_id=build.id, item_id=i, qty=q))
-                        self._move(s, batch, items[i], -q, f"build {build.id}")
+            request = ", ".join(dict.fromkeys(r for r, *_ in specs))
+            if len(request) > 400:
+                request = request[:399] + "…"
+            copies = sum(c for _, c, *_ in specs)
+            batch = Batch(kind="build", note="build")
+            s.add(batch)
+            s.flush()
+            build = Build(request=request, copies=copies, design="{}", undone=False,
+                          batch_id=batch.id)
+            s.add(build)
+            s.flush()
+            batch.note = f"build {build.id}: {request} x{copies}"
+            for pos, (req, n, design, pieces, orders) in enumerate(specs, start=1):
+                s.add(BuildLine(build_id=build.id, position=pos, request=req[:400], copies=n,
+                                design=design, pieces=json.dumps(
+                                    {str(i): q for i, q in sorted(pieces.items()) if q})))
                 for o in orders:
                     s.add(self._order(o, batch.id))
-                ids.append(build.id)
-            return ids
+            for i, q in sorted(need.items()):
+                if q:
+                    s.add(BuildItem(build_id=build.id, item_id=i, qty=q))
+                    self._move(s, batch, items[i], -q, f"build {build.id}")
+            return build.id
 
     @staticmethod
     def _order(o: Mapping, batch_id: int) -> Order:
@@ -653,6 +718,9 @@ class Store:
         qty = int(o.get("qty", 0))
         if qty < 1:
             raise InputError(f"order: qty must be 1 or more, not {qty}")
+        used = int(o.get("used", 0) or 0)
+        if not 0 <= used <= qty:
+            raise InputError(f"order: used must lie in 0..{qty}, not {used}")
 
         def num(name):
             v = o.get(name)
@@ -661,7 +729,8 @@ class Store:
         return Order(kind=kind, value=None if value is None else float(value),
                      label=o.get("label"), qty=qty, tolerance=num("tolerance"),
                      power=num("power"), voltage=num("voltage"),
-                     dielectric=o.get("dielectric"), received=False, batch_id=batch_id)
+                     dielectric=o.get("dielectric"), received=False, batch_id=batch_id,
+                     used=used)
 
     def list_builds(self) -> list[dict]:
         """Every build: ``{"id", "request", "copies", "created", "undone"}``, oldest first."""
@@ -671,15 +740,30 @@ class Store:
                     for b in s.scalars(select(Build).order_by(Build.id)).all()]
 
     def build(self, build_id: int) -> dict:
-        """One build with its stored ``design`` dict and ``pieces`` {item_id: qty}."""
+        """One build as stored.
+
+        Returns
+        -------
+        dict
+            ``{"id", "request", "copies", "created", "undone", "batch", "pieces":
+            {item_id: qty} (all lines), "lines": [{"request", "copies", "design",
+            "pieces": {item_id: qty}}], "orders": [as in :meth:`pending_orders`]}``.
+        """
         with self._session(write=False) as s:
             b = s.get(Build, int(build_id))
             if b is None:
                 raise InputError(f"no build {build_id}; see `drawerfit builds list`")
+            orders = s.scalars(select(Order).where(Order.batch_id == b.batch_id)
+                               .order_by(Order.id)).all()
             return {"id": b.id, "request": b.request, "copies": b.copies,
                     "created": _iso(b.created), "undone": bool(b.undone), "batch": b.batch_id,
-                    "design": json.loads(b.design or "{}"),
-                    "pieces": {bi.item_id: bi.qty for bi in b.items}}
+                    "pieces": {bi.item_id: bi.qty for bi in b.items},
+                    "lines": [{"request": ln.request, "copies": ln.copies,
+                               "design": json.loads(ln.design or "{}"),
+                               "pieces": {int(k): int(v)
+                                          for k, v in json.loads(ln.pieces or "{}").items()}}
+                              for ln in b.lines],
+                    "orders": [self._order_dict(s, o) for o in orders]}
 
     def undo_build(self, build_id: int) -> int:
         """Put a build's pieces back exactly.  Returns the undo batch's id."""
@@ -693,32 +777,90 @@ class Store:
 
     # -- orders ------------------------------------------------------------
 
-    def pending_orders(self) -> list[dict]:
-        """Ordered parts not yet received, oldest first."""
-        with self._session(write=False) as s:
-            rows = s.scalars(select(Order).where(Order.received.is_(False))
-                             .order_by(Order.id)).all()
-            return [{"id": o.id, "created": _iso(o.created), "kind": o.kind, "value": o.value,
-                     "label": o.label, "qty": o.qty, "tolerance": o.tolerance,
-                     "power": o.power, "voltage": o.voltage, "dielectric": o.dielectric}
-                    for o in rows]
+    @staticmethod
+    def _order_dict(s: Session, o: Order) -> dict:
+        build = None
+        if o.batch_id is not None:
+            build = s.scalar(select(Build.id).where(Build.batch_id == o.batch_id))
+        state = ("cancelled" if o.cancelled_batch_id is not None
+                 else "received" if o.received else "awaited")
+        return {"id": o.id, "created": _iso(o.created), "kind": o.kind, "value": o.value,
+                "label": o.label, "qty": o.qty, "used": o.used, "tolerance": o.tolerance,
+                "power": o.power, "voltage": o.voltage, "dielectric": o.dielectric,
+                "build": build, "state": state}
 
-    def receive(self, path: str | Path) -> int:
-        """Book an arrived order file into stock; mark the matching pending orders received.
+    @staticmethod
+    def _pending(s: Session, *, lock: bool = False) -> list[Order]:
+        q = (select(Order).where(Order.received.is_(False), Order.cancelled_batch_id.is_(None))
+             .order_by(Order.id))
+        return list(s.scalars(q.with_for_update() if lock else q).all())
+
+    def pending_orders(self) -> list[dict]:
+        """Ordered parts awaited (neither received nor cancelled), oldest first:
+        ``{"id", "created", "kind", "value", "label", "qty", "used", "tolerance", "power",
+        "voltage", "dielectric", "build", "state"}``."""
+        with self._session(write=False) as s:
+            return [self._order_dict(s, o) for o in self._pending(s)]
+
+    def cancel_order(self, order_id: int, reason: str = "") -> int:
+        """Drop an awaited order: nothing is awaited from it any more.  Returns the
+        batch id (a batch without movements, in the history; ``stock undo`` re-opens it)."""
+        with self._session() as s:
+            o = s.get(Order, int(order_id), with_for_update=True)
+            if o is None:
+                raise InputError(f"no order {order_id}; see `drawerfit stock orders`")
+            if o.cancelled_batch_id is not None:
+                raise InputError(f"order {order_id} was already cancelled (batch "
+                                 f"{o.cancelled_batch_id})")
+            if o.received:
+                raise InputError(f"order {order_id} was received (batch {o.received_batch_id}); "
+                                 "undo that batch first to cancel it")
+            batch = Batch(kind="cancel", note=f"cancel order {o.id}" +
+                          (f": {reason}" if reason else ""))
+            s.add(batch)
+            s.flush()
+            o.cancelled_batch_id = batch.id
+            return batch.id
+
+    def receive(self, path: str | Path, *, bin: str | None = None) -> int:
+        """Book an arrived order file into stock; close the awaited orders it covers.
 
         The file has the stock-file format; extra columns ``packs`` and ``cost``
-        are ignored.  Returns the batch id (``stock undo`` reverses it).
+        are ignored.  Every row needs a bin: its ``location`` cell, or ``bin`` for
+        rows whose cell is empty; a row with neither is refused (nothing is
+        booked).  Every piece that arrived is booked, more than was ordered
+        included.  An awaited order of the same kind and value (oldest first) is
+        closed when the file's pieces not yet counted against another order
+        cover its pieces for the drawer (``qty - used`` while its build stands).
+        Returns the batch id (``stock undo`` reverses it and re-opens the orders).
         """
+        bin = (bin or "").strip()
         rows = tabular.read_stock_csv(path, ignore_columns=("packs", "cost", "label"))
+        problems = []
+        placed = []
+        for r in rows:
+            if r.part.location:
+                placed.append(r)
+            elif bin:
+                placed.append(dc_replace(r, part=dc_replace(r.part, location=bin)))
+            else:
+                problems.append(InputError(
+                    "empty; say which bin the pieces go to (fill in the column, or give "
+                    "--bin LOC for the rows without one)", file=str(path), line=r.line,
+                    field="location"))
+        if problems:
+            raise problems[0] if len(problems) == 1 else _errors(problems)
         with self._session() as s:
             batch = Batch(kind="receive", note=f"receive {Path(path).name}")
             s.add(batch)
             s.flush()
-            self._book(s, rows, batch, str(path), f"receive {Path(path).name}")
-            pending = s.scalars(select(Order).where(Order.received.is_(False))
-                                .order_by(Order.id)).all()
-            for row in tabular.merge_rows(rows):
+            self._book(s, placed, batch, str(path), f"receive {Path(path).name}")
+            pending = self._pending(s, lock=True)
+            standing = {b.batch_id for b in s.scalars(select(Build).where(
+                Build.undone.is_(False))).all()}
+            for row in tabular.merge_rows(placed):
                 p = row.part
+                left = p.qty
                 for o in pending:
                     if o.received or o.kind != p.kind:
                         continue
@@ -727,7 +869,9 @@ class Store:
                     else:
                         match = o.value is not None and math.isclose(o.value, p.value,
                                                                      rel_tol=1e-9)
-                    if match:
+                    drawer = o.qty - (o.used if o.batch_id in standing else 0)
+                    if match and left >= drawer:
+                        left -= drawer
                         o.received = True
                         o.received_batch_id = batch.id
             return batch.id
@@ -782,6 +926,12 @@ class Store:
                 if dict(taken) != listed:
                     problems.append(f"build {b.id}: its pieces differ from batch {batch.id}'s "
                                     "movements")
+                by_lines: dict[int, int] = defaultdict(int)
+                for ln in b.lines:
+                    for k, v in json.loads(ln.pieces or "{}").items():
+                        by_lines[int(k)] += int(v)
+                if dict(by_lines) != listed:
+                    problems.append(f"build {b.id}: its lines' pieces differ from its total")
         return problems
 
     def dump(self) -> dict[str, list[dict]]:
@@ -825,7 +975,7 @@ class Store:
                     else:
                         s.execute(table.insert(), rows)
             if self.dialect == "postgresql":
-                for name in ("items", "batches", "movements", "builds", "orders"):
+                for name in ("items", "batches", "movements", "builds", "build_lines", "orders"):
                     s.execute(text(f"SELECT setval(pg_get_serial_sequence('{name}', 'id'), "
                                    f"COALESCE((SELECT MAX(id) FROM {name}), 0) + 1, false)"))
 

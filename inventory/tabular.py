@@ -41,6 +41,9 @@ __all__ = [
     "write_stock_csv",
     "part_key",
     "same_transistor",
+    "transistor_differences",
+    "figure_text",
+    "file_digest",
     "neutralise_cell",
     "merge_rows",
     "part_cells",
@@ -120,11 +123,47 @@ def part_key(part) -> tuple:
 
 def same_transistor(a: Transistor, b: Transistor) -> bool:
     """True when two transistor descriptions agree in every figure (quantity aside)."""
-    names = ("polarity", *_TRANSISTOR_FIGURES)
-    return all(
-        (getattr(a, n) == getattr(b, n)) if n == "polarity" else _k(getattr(a, n)) == _k(getattr(b, n))
-        for n in names
-    )
+    return not transistor_differences(a, b)
+
+
+def figure_text(column: str, x: float | None) -> str:
+    """A transistor figure as the stock file writes it: ``ft`` and ``cob`` as a
+    technician writes them (``300M``, ``3p5``, via :func:`inventory.values.format_value`)
+    when that reads back to the same number, every other figure as a plain number."""
+    if x is None:
+        return ""
+    kind = {"ft": "resistor", "cob": "capacitor"}.get(column)
+    if kind is not None:
+        text = values.format_value(x, kind)
+        try:
+            if _number(text, _TRANSISTOR_FIGURES[column][0]) == x:
+                return text
+        except InputError:
+            pass
+    return _plain(x)
+
+
+def transistor_differences(a: Transistor, b: Transistor) -> list[tuple[str, str, str]]:
+    """The figures in which two descriptions of a transistor type differ:
+    ``(column, text in a, text in b)``; the polarity is the column ``kind``."""
+    out = []
+    if a.polarity != b.polarity:
+        out.append(("kind", a.polarity, b.polarity))
+    for n in _TRANSISTOR_FIGURES:
+        x, y = getattr(a, n), getattr(b, n)
+        if _k(x) != _k(y):
+            out.append((n, figure_text(n, x) or "empty", figure_text(n, y) or "empty"))
+    return out
+
+
+def file_digest(path: str | Path) -> str:
+    """SHA-256 (hex) of a file's bytes: what says that a file was read before."""
+    import hashlib
+
+    try:
+        return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+    except OSError as exc:
+        raise InputError(f"cannot read: {exc.strerror}", file=str(path)) from None
 
 
 # --------------------------------------------------------------- reading
@@ -539,7 +578,7 @@ def part_cells(part, min_qty: int | None = None) -> dict[str, str]:
     if isinstance(part, Transistor):
         cells["value"] = neutralise_cell(part.label)
         for col in _TRANSISTOR_FIGURES:
-            cells[col] = _plain(getattr(part, col))
+            cells[col] = figure_text(col, getattr(part, col))
         return cells
     cells["value"] = _exact_value(part.value, part.kind)
     cells["tolerance"] = _exact_tolerance(part.tolerance)

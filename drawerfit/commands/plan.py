@@ -38,6 +38,24 @@ def write_order(plan, path: str, *, committed: bool = False) -> None:
     write_stock_csv(path, parts, extra=extra)
 
 
+def _build_lines(plan, blist) -> list[dict]:
+    """The plan's allocations as the lines of one build: each line's design carries its
+    request (so that `builds show --sheet` needs no search), each order the pieces the
+    builds take from it on arrival."""
+    from optimiser.plan import commit_entries
+
+    requests = {b.name: b.request for b in blist.builds}
+    used = {(p.kind, round(p.value, 15)): p.used for p in plan.purchases}
+    lines = commit_entries(plan)
+    for line in lines:
+        req = requests.get(line["request"])
+        if req is not None:
+            line["design"] = {**line["design"], "request": req.to_json()}
+        for o in line["orders"]:
+            o["used"] = used.get((o["kind"], round(o["value"], 15)), 0)
+    return lines
+
+
 @click.command(name="plan")
 @click.argument("buildlist", metavar="BUILDLIST.toml", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print JSON (shape: docs/json.md).")
@@ -46,8 +64,9 @@ def write_order(plan, path: str, *, committed: bool = False) -> None:
 @click.option("--order", "order_path", metavar="FILE.csv", type=click.Path(dir_okay=False),
               help="Write the shopping list as a stock file that `stock receive` can book.")
 @click.option("--commit", is_flag=True,
-              help="Record the builds and take their pieces out of stock (one transaction); "
-                   "purchases are recorded as awaiting arrival.")
+              help="Record the plan as one build (a line per request and design) and take its "
+                   "pieces out of stock in one transaction; purchases are recorded as awaited "
+                   "orders. `builds undo ID` reverses it in one step.")
 @click.option("--candidates", type=click.IntRange(1, 500), default=20, show_default=True,
               help="Designs the search offers per request (and per source).")
 @click.option("--time-limit", type=click.FloatRange(min=0.1), default=None, metavar="SECONDS",
@@ -67,7 +86,7 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
     values may be bought and at what price (docs/requests.md, docs/plan.md).
     """
     from optimiser.buildlist import load_buildlist
-    from optimiser.plan import commit_entries, make_plan
+    from optimiser.plan import make_plan
 
     blist = load_buildlist(buildlist)
     store = app.store()
@@ -76,26 +95,27 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
     plan = make_plan(blist, snapshot, solver=solver, candidates=candidates,
                      time_limit=time_limit, progress=progress,
                      search_time_s=search_time or None)
-    build_ids = None
+    build_id = None
     if commit:
         if not plan.feasible:
             raise InputError("nothing was recorded: the plan does not meet every build",
                              field="--commit")
         try:
-            build_ids = store.commit_builds(commit_entries(plan))
+            build_id = store.commit_builds(_build_lines(plan, blist))
         except StockShortage as exc:
             raise InputError(f"the stock changed since planning, nothing was recorded "
                              f"({exc.message}); run the plan again", field="--commit") from None
     if order_path and plan.feasible:
-        write_order(plan, order_path, committed=build_ids is not None)
+        write_order(plan, order_path, committed=build_id is not None)
     if as_json:
         data = plan.to_json()
-        if build_ids is not None:
-            data["build_ids"] = build_ids
+        if build_id is not None:
+            data["build_id"] = build_id
         emit_json(data)
     else:
         from drawerfit.render.plan import print_plan
-        print_plan(out, plan, build_ids=build_ids)
+        print_plan(out, plan, build_id=build_id,
+                   polarity={t.label: t.polarity for t in snapshot.transistors})
         if order_path and plan.feasible:
             out.print(f"Order written to {order_path} "
                       f"({'nothing to order' if not plan.purchases else 'book it on arrival with `drawerfit stock receive`'}).")

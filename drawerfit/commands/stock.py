@@ -1,4 +1,5 @@
-"""`drawerfit stock …`: import, export, list, add, adjust, history, undo, low, receive."""
+"""`drawerfit stock …`: import, take, export, list, add, adjust, history, undo, low,
+receive, orders."""
 
 from __future__ import annotations
 
@@ -30,10 +31,48 @@ def import_(app, file: str) -> None:
     docs/stock.md.
     """
     store = app.store()
+    earlier = store.read_before(file)
     batch = store.import_csv(file)
     moves = store.batch(batch)["movements"]
     out.print(f"Imported {file}: {len(moves)} items, {sum(m['change'] for m in moves)} "
               f"pieces (batch {batch}; undo with [bold]drawerfit stock undo {batch}[/bold]).")
+    _warn_read_before(file, earlier, batch)
+
+
+def _warn_read_before(file: str, earlier: list[dict], batch: int) -> None:
+    """A warning (not an error) when a file of the same content was read before."""
+    from drawerfit.console import err
+
+    standing = [b for b in earlier if b["undone_by"] is None]
+    if not standing:
+        return
+    when = ", ".join(f"batch {b['batch']} ({b['kind']}, {b['when'].replace('T', ' ')})"
+                     for b in standing)
+    err.print(f"[yellow]warning:[/yellow] {file}: the same content was read before: {when}. "
+              f"If this was by mistake, undo it with `drawerfit stock undo {batch}`.")
+
+
+@command.command(name="take")
+@click.argument("file", type=click.Path(dir_okay=False))
+@click.option("--zero-missing", is_flag=True,
+              help="Also set every item the file does not name to 0 (a full count of the "
+                   "drawer). Without it those items are left as they are.")
+@pass_app
+def take(app, file: str, zero_missing: bool) -> None:
+    """A stock-take: SET the quantities counted in FILE (stock-file format), all rows or none.
+
+    Each row's qty replaces the item's quantity; the difference is logged as a
+    movement, and `stock undo BATCH` puts the old counts back.  Rows naming a new
+    item create it.  Items not in the file are untouched unless --zero-missing.
+    """
+    store = app.store()
+    earlier = store.read_before(file)
+    batch = store.take(file, zero_missing=zero_missing)
+    moves = store.batch(batch)["movements"]
+    out.print(f"Stock-take {file}: {len(moves)} items changed, net "
+              f"{sum(m['change'] for m in moves):+d} pieces (batch {batch}; undo with "
+              f"[bold]drawerfit stock undo {batch}[/bold]).")
+    _warn_read_before(file, earlier, batch)
 
 
 @command.command(name="export")
@@ -108,6 +147,8 @@ def add(app, **cells: str) -> None:
     from inventory.tabular import part_from_cells
 
     part, min_qty = part_from_cells({k: v for k, v in cells.items() if v is not None})
+    if part.qty < 0:
+        raise InputError(f"{part.qty} is negative", field="--qty")
     if min_qty is not None:
         from dataclasses import replace
 
@@ -173,48 +214,76 @@ def undo(app, batch: int) -> None:
 
 @command.command(name="low")
 @click.option("--order", "order_file", type=click.Path(dir_okay=False), default=None,
-              help="Also write an order file (stock-file format) to bring each item back "
-                   "to its restock level.")
+              help="Also write an order file (stock-file format, each row's bin and "
+                   "transistor figures included) to bring each item back to its restock "
+                   "level; `stock receive` books it.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON.")
 @pass_app
 def low(app, order_file: str | None, as_json: bool) -> None:
-    """Items whose quantity is below their restock level (set with --min)."""
+    """Empty bins (quantity 0) and items below their restock level (set with --min)."""
     from dataclasses import replace
 
     from inventory.tabular import write_stock_csv
 
     parts = app.store().low()
+    wanted = [p for p in parts if view.restock_qty(p) > 0]
     if order_file:
-        write_stock_csv(order_file, [replace(p, qty=p.min_qty - p.qty, min_qty=0)
-                                     for p in parts])
+        write_stock_csv(order_file, [replace(p, qty=view.restock_qty(p), min_qty=0)
+                                     for p in wanted])
     if as_json:
-        emit_json([{**view.part_json(p), "to_order": p.min_qty - p.qty} for p in parts])
+        emit_json([{**view.part_json(p), "to_order": view.restock_qty(p)} for p in parts])
         return
     view.print_low(out, parts)
     if order_file:
-        out.print(f"Wrote {len(parts)} rows to {order_file}; book them when they arrive with "
-                  f"[bold]drawerfit stock receive {order_file}[/bold].")
+        skipped = len(parts) - len(wanted)
+        out.print(f"Wrote {len(wanted)} rows to {order_file}; book them when they arrive with "
+                  f"[bold]drawerfit stock receive {order_file}[/bold]."
+                  + (f" {skipped} empty bins have no restock level and are not in the file "
+                     "(set one with `stock adjust ID 0 --min N`)." if skipped else ""))
 
 
 @command.command(name="receive")
 @click.argument("file", type=click.Path(dir_okay=False))
+@click.option("--bin", "bin_", metavar="LOC", default=None,
+              help="The bin for every row whose location cell is empty.")
 @pass_app
-def receive(app, file: str) -> None:
-    """Book an arrived order (stock-file format; packs and cost columns are ignored)."""
+def receive(app, file: str, bin_: str | None) -> None:
+    """Book an arrived order (stock-file format; packs and cost columns are ignored).
+
+    Every row needs a bin: its location cell, or --bin LOC. Everything that arrived
+    is booked, more than was ordered included; the awaited orders it covers are
+    closed. `stock undo BATCH` reverses it and re-opens them.
+    """
     store = app.store()
-    batch = store.receive(file)
+    if bin_ is not None and not bin_.strip():
+        raise InputError("empty; name the bin", field="--bin")
+    batch = store.receive(file, bin=bin_)
     moves = store.batch(batch)["movements"]
     out.print(f"Received {file}: {len(moves)} items, {sum(m['change'] for m in moves)} pieces "
               f"(batch {batch}). {len(store.pending_orders())} orders still awaited.")
 
 
-@command.command(name="orders")
+@command.group(name="orders", invoke_without_command=True)
 @click.option("--json", "as_json", is_flag=True, help="Print JSON.")
-@pass_app
-def orders(app, as_json: bool) -> None:
-    """Parts ordered with a committed plan and not yet received."""
-    pending = app.store().pending_orders()
+@click.pass_context
+def orders(ctx, as_json: bool) -> None:
+    """Parts ordered with a committed plan and still awaited (`orders cancel ID` drops one)."""
+    if ctx.invoked_subcommand is not None:
+        return
+    pending = ctx.obj.store().pending_orders()
     if as_json:
         emit_json(pending)
         return
     view.print_orders(out, pending)
+
+
+@orders.command(name="cancel")
+@click.argument("order_id", type=int)
+@click.option("--reason", default="", help="Why (kept in the history).")
+@pass_app
+def cancel(app, order_id: int, reason: str) -> None:
+    """Drop an awaited order: nothing is awaited from it any more (logged in the history;
+    `stock undo BATCH` re-opens it)."""
+    batch = app.store().cancel_order(order_id, reason.strip())
+    out.print(f"Order {order_id} cancelled (batch {batch}; re-open it with "
+              f"[bold]drawerfit stock undo {batch}[/bold]).")

@@ -12,10 +12,11 @@ from rich.markup import escape
 from rich.table import Table
 from rich.text import Text
 
+from inventory.parts import POLARISED_DIELECTRICS
 from inventory.values import format_si, format_value
 from optimiser.plan import Allocation, Plan
 
-__all__ = ["print_plan", "part_lines"]
+__all__ = ["print_plan", "part_lines", "plus_text"]
 
 
 def _piece_text(p, kind: str, single: bool) -> str:
@@ -26,8 +27,17 @@ def _piece_text(p, kind: str, single: bool) -> str:
     return f"{n}{format_value(p.value, kind)} {where}"
 
 
+def plus_text(plus: str | None, dielectrics) -> str:
+    """Where the + lead of a capacitor goes: ``, + to base`` for a polarised one
+    (electrolytic, tantalum, polymer), nothing for the others or when not known."""
+    if not plus or not any((d or "").lower() in POLARISED_DIELECTRICS for d in dielectrics):
+        return ""
+    return f", + to {plus}"
+
+
 def part_lines(alloc: Allocation) -> list[str]:
-    """One line per role: ``R1 47k ← F1``; a combination or several rows joined with +."""
+    """One line per role: ``R1 47k ← F1``, ``C_IN 10u, + to base ← K3`` (the + side of a
+    polarised capacitor); a combination or several rows joined with +."""
     lines = []
     for role, pick in alloc.design.parts.items():
         kind = pick.pieces[0].kind if pick.pieces else (
@@ -37,7 +47,9 @@ def part_lines(alloc: Allocation) -> list[str]:
         single = pick.joined is None
         pieces = " + ".join(_piece_text(p, kind, single) for p in pick.pieces)
         joined = f" ({pick.joined})" if pick.joined else ""
-        lines.append(f"{role} {format_value(pick.value, kind)}{joined} ← {pieces}")
+        plus = plus_text(pick.plus, (p.dielectric for p in pick.pieces)) \
+            if kind == "capacitor" else ""
+        lines.append(f"{role} {format_value(pick.value, kind)}{joined}{plus} ← {pieces}")
     return lines
 
 
@@ -66,8 +78,12 @@ def _money(x: float) -> str:
     return f"{x:.2f}"
 
 
-def print_plan(console: Console, plan: Plan, *, build_ids: list[int] | None = None) -> None:
-    """Print the plan: allocations per request, shopping list, total, solver line."""
+def print_plan(console: Console, plan: Plan, *, build_id: int | None = None,
+               polarity: dict[str, str] | None = None) -> None:
+    """Print the plan: allocations per request (each role's value, the + side of
+    polarised capacitors, the bins; the transistor with its polarity, from
+    ``polarity`` {label: "npn"/"pnp"}), shopping list, total, solver line."""
+    polarity = polarity or {}
     solver = plan.solver
     status_style = "green" if solver.status == "Optimal" else "bold yellow"
     if not plan.feasible:
@@ -89,10 +105,12 @@ def print_plan(console: Console, plan: Plan, *, build_ids: list[int] | None = No
                             f"({mode})", title_justify="left", show_lines=True)
             t.add_column("copies", justify="right")
             t.add_column("transistor")
-            t.add_column("values ← bins")
+            t.add_column("roles: values ← bins")
             t.add_column("figures")
             for a in bp.allocations:
-                t.add_row(str(a.copies), escape(a.design.transistor),
+                pol = polarity.get(a.design.transistor)
+                t.add_row(str(a.copies),
+                          escape(a.design.transistor + (f" ({pol})" if pol else "")),
                           escape("\n".join(part_lines(a))), _figures(a))
             console.print(t)
             for a in bp.allocations:
@@ -123,6 +141,6 @@ def print_plan(console: Console, plan: Plan, *, build_ids: list[int] | None = No
     if solver.status == "Feasible":
         console.print("[yellow]The solver stopped before proving this plan the cheapest "
                       "(time limit); a cheaper one may exist.[/yellow]")
-    if build_ids:
-        console.print(f"Recorded builds {', '.join(map(str, build_ids))} "
-                      f"(undo each with `drawerfit builds undo ID`).")
+    if build_id is not None:
+        console.print(f"Recorded as build {build_id} (see it with `drawerfit builds show "
+                      f"{build_id}`; undo it with `drawerfit builds undo {build_id}`).")

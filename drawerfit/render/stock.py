@@ -16,7 +16,7 @@ from inventory.parts import Capacitor, Resistor, Transistor
 from inventory.values import format_si, format_value
 
 __all__ = ["part_json", "print_stock", "print_history", "print_builds", "print_build",
-           "print_low", "print_orders"]
+           "print_low", "print_orders", "restock_qty"]
 
 Part = Resistor | Capacitor | Transistor
 
@@ -165,30 +165,78 @@ def print_builds(console: Console, builds: Sequence[dict]) -> None:
     console.print(t)
 
 
+def _plus(pick: dict, parts: dict[int, Part]) -> str:
+    """``+ to NODE`` for a role whose pieces are polarised capacitors, else ``""``."""
+    from inventory.parts import POLARISED_DIELECTRICS
+
+    plus = pick.get("plus")
+    rows = [parts.get(pc.get("id")) for pc in pick.get("pieces", [])]
+    if plus and any(isinstance(r, Capacitor) and r.dielectric.lower() in POLARISED_DIELECTRICS
+                    for r in rows):
+        return f"+ to {plus}"
+    return ""
+
+
 def print_build(console: Console, build: dict, parts: dict[int, Part]) -> None:
-    """One build: its header and the pieces it took, with their bins."""
+    """One build: per line the roles with their values, the + side of polarised
+    capacitors, the transistor with its polarity, the bins the pieces came from; then
+    the ordered parts it still awaits."""
     state = "undone (pieces put back)" if build["undone"] else "taken from stock"
     console.print(f"[bold]Build {build['id']}[/bold]: {build['request']} × {build['copies']}"
                   f", {build['created']}, {state}")
-    t = Table(title="Pieces (all copies)", title_justify="left")
-    for col, just in (("item", "right"), ("kind", "left"), ("value", "right"),
-                      ("location", "left"), ("pieces", "right")):
-        t.add_column(col, justify=just)
-    for item_id, qty in sorted(build["pieces"].items()):
-        p = parts.get(item_id)
-        if p is None:
-            t.add_row(str(item_id), "?", "?", "", str(qty))
-            continue
-        val = p.label if isinstance(p, Transistor) else format_value(p.value, p.kind)
-        t.add_row(str(item_id), p.kind, val, p.location, str(qty))
-    console.print(t)
+    for n, line in enumerate(build.get("lines", []), start=1):
+        design = line.get("design") or {}
+        t = Table(title=f"Line {n}: {line['request']} × {line['copies']}",
+                  title_justify="left")
+        for col, just in (("role", "left"), ("value", "right"), ("polarity", "left"),
+                          ("from (bin, stock id)", "left"), ("pieces", "right")):
+            t.add_column(col, justify=just)
+        for role, pick in (design.get("parts") or {}).items():
+            kind = "capacitor" if role.startswith("C_") else "resistor"
+            value = pick.get("label") or format_value(pick["value"], kind)
+            where = []
+            for pc in pick.get("pieces", []):
+                row = parts.get(pc.get("id"))
+                bin_ = (row.location if row is not None else pc.get("location")) or "?"
+                where.append(f"{bin_} (id {pc['id']})" if pc.get("id") is not None
+                             else "to order")
+            count = sum(int(pc.get("count", 1)) for pc in pick.get("pieces", []))
+            t.add_row(role, value, _plus(pick, parts), ", ".join(where),
+                      str(count * line["copies"]))
+        label = design.get("transistor")
+        q = next((p for p in parts.values() if isinstance(p, Transistor) and p.label == label),
+                 None)
+        if label:
+            t.add_row("Q", label, q.polarity if q is not None else "?",
+                      f"{q.location or '?'} (id {q.id})" if q is not None else "?",
+                      str(line["copies"]))
+        if not design.get("parts"):
+            for item_id, qty in sorted(line["pieces"].items()):
+                p = parts.get(item_id)
+                val = "?" if p is None else (p.label if isinstance(p, Transistor)
+                                             else format_value(p.value, p.kind))
+                t.add_row("?", val, "", f"{p.location if p else '?'} (id {item_id})", str(qty))
+        console.print(t)
+    waiting = [o for o in build.get("orders", []) if o["state"] == "awaited"]
+    if waiting:
+        console.print("Still to arrive for this build:")
+        print_orders(console, waiting)
+    elif build.get("orders"):
+        console.print("Nothing is awaited for this build: its orders were "
+                      + ", ".join(sorted({o["state"] for o in build["orders"]})) + ".")
+
+
+def restock_qty(part: Part) -> int:
+    """Pieces that bring an item back to its restock level (0 for an empty bin that
+    has none: how many to buy is the owner's call)."""
+    return max(part.min_qty - part.qty, 0)
 
 
 def print_low(console: Console, parts: Sequence[Part]) -> None:
     if not parts:
-        console.print("Nothing is below its restock level.")
+        console.print("No bin is empty and nothing is below its restock level.")
         return
-    t = Table(title="Below restock level", title_justify="left")
+    t = Table(title="Empty or below restock level", title_justify="left")
     for col, just in (("id", "right"), ("kind", "left"), ("value", "right"),
                       ("location", "left"), ("qty", "right"), ("min", "right"),
                       ("to order", "right")):
@@ -196,7 +244,7 @@ def print_low(console: Console, parts: Sequence[Part]) -> None:
     for p in parts:
         val = p.label if isinstance(p, Transistor) else format_value(p.value, p.kind)
         t.add_row(str(p.id), p.kind, val, p.location, str(p.qty), str(p.min_qty),
-                  str(p.min_qty - p.qty))
+                  str(restock_qty(p)))
     console.print(t)
 
 
@@ -206,7 +254,8 @@ def print_orders(console: Console, orders: Sequence[dict]) -> None:
         return
     t = Table(title="Awaiting arrival", title_justify="left")
     for col, just in (("order", "right"), ("created (UTC)", "left"), ("kind", "left"),
-                      ("value", "right"), ("qty", "right")):
+                      ("value", "right"), ("qty", "right"), ("for build", "right"),
+                      ("taken by it", "right")):
         t.add_column(col, justify=just)
     for o in orders:
         if o["value"] is not None and o["kind"] in ("resistor", "capacitor"):
@@ -214,5 +263,6 @@ def print_orders(console: Console, orders: Sequence[dict]) -> None:
         else:
             val = o.get("label") or "—"
         t.add_row(str(o["id"]), (o["created"] or "").replace("T", " ").rstrip("Z"), o["kind"],
-                  val, str(o["qty"]))
+                  val, str(o["qty"]), "" if o.get("build") is None else str(o["build"]),
+                  str(o.get("used", 0)))
     console.print(t)

@@ -162,7 +162,7 @@ def test_builds_commands(loaded):
     rows = listing(loaded)
     ids = {r["label"]: r["id"] for r in rows}
     store = open_store(loaded)
-    [bid] = store.commit_builds([{"request": "preamp.toml", "copies": 2,
+    bid = store.commit_builds([{"request": "preamp.toml", "copies": 2,
                                   "design": {"rank": 1}, "pieces": {ids["4k7"]: 4,
                                                                     ids["GP-N1"]: 2}}])
     store.close()
@@ -172,7 +172,7 @@ def test_builds_commands(loaded):
     assert (b["id"], b["request"], b["copies"], b["undone"]) == (bid, "preamp.toml", 2, False)
     r = run(loaded, "builds", "show", str(bid), "--json")
     shown = json.loads(r.stdout)
-    assert shown["design"] == {"rank": 1}
+    assert [ln["design"] for ln in shown["lines"]] == [{"rank": 1}]
     assert sorted((p["id"], p["count"]) for p in shown["pieces"]) == sorted(
         [(ids["4k7"], 4), (ids["GP-N1"], 2)])
     assert run(loaded, "builds", "show", str(bid)).exit_code == 0

@@ -71,9 +71,9 @@ def store_with_build(tmp_path_factory):
     d.metrics = ev.metrics_of(0)
     pieces = {pc.id: 1 for pick in d.parts.values() for pc in pick.pieces}
     pieces[q.id] = 1
-    ids = store.commit_builds([{"request": "preamp.toml", "copies": 1, "design": d.to_json(),
+    bid = store.commit_builds([{"request": "preamp.toml", "copies": 1, "design": d.to_json(),
                                 "pieces": pieces}])
-    return db, ids[0], req_file, d
+    return db, bid, req_file, d
 
 
 def test_builds_show_writes_the_sheet(store_with_build, tmp_path):

@@ -68,6 +68,11 @@ def test_store_made_at_revision_0001_opens_and_works(tmp_path):
         assert store.transistor("OLD-N1").ft == pytest.approx(200e6)
         builds = store.list_builds()
         assert [b["request"] for b in builds] == ["old.toml"]
+        # the old build became a build of one line holding its design and pieces
+        [line] = store.build(builds[0]["id"])["lines"]
+        assert (line["request"], line["copies"]) == ("old.toml", 2)
+        assert line["design"] == {"note": "made at 0001"}
+        assert line["pieces"] == store.build(builds[0]["id"])["pieces"]
         # it still takes changes, and the old build can be undone exactly
         store.undo_build(builds[0]["id"])
         assert {p.id: p.qty for p in store.parts()} == {1: 16, 2: 12, 3: 30, 4: 8, 5: 6}
@@ -122,5 +127,55 @@ def test_postgresql_store_migrates_to_head(pg_schema_url):
     try:
         assert store.revision() == head_revision()
         assert store.dialect == "postgresql"
+    finally:
+        store.close()
+
+
+def test_a_store_at_revision_0001_upgrades_its_builds_to_lines(store_url):
+    """On each database: a store brought to revision 0001 only, holding a build, is
+    upgraded on opening; the build keeps its pieces and gains one line with its design,
+    and undoing it restores the stock exactly."""
+    from alembic import command
+    from sqlalchemy import text
+
+    from inventory.store import _alembic_config, _resolve
+
+    url, _ = _resolve(store_url)
+    engine = create_engine(url)
+    try:
+        with engine.begin() as conn:
+            cfg = _alembic_config()
+            cfg.attributes["connection"] = conn
+            command.upgrade(cfg, "0001")
+            t = "'2026-12-01 10:00:00'"
+            conn.execute(text(
+                "INSERT INTO items (id, kind, value, qty, min_qty, location, tolerance, power,"
+                f" created) VALUES (1, 'resistor', 4700.0, 6, 0, 'A1', 0.05, 0.25, {t})"))
+            conn.execute(text(f"INSERT INTO batches (id, \"when\", kind, note) VALUES "
+                              f"(1, {t}, 'import', 'old'), (2, {t}, 'build', 'build 1')"))
+            conn.execute(text(f"INSERT INTO movements (id, batch_id, item_id, change, reason,"
+                              f" \"when\") VALUES (1, 1, 1, 10, 'old', {t}),"
+                              f" (2, 2, 1, -4, 'build 1', {t})"))
+            conn.execute(text(f"INSERT INTO builds (id, request, copies, created, design, "
+                              f"undone, batch_id) VALUES (1, 'old.toml', 2, {t}, "
+                              "'{\"rank\": 3}', false, 2)"))
+            conn.execute(text("INSERT INTO build_items (build_id, item_id, qty) "
+                              "VALUES (1, 1, 4)"))
+            if engine.dialect.name == "postgresql":
+                for name in ("items", "batches", "movements", "builds"):
+                    conn.execute(text(f"SELECT setval(pg_get_serial_sequence('{name}', 'id'), "
+                                      f"(SELECT MAX(id) FROM {name}))"))
+    finally:
+        engine.dispose()
+    store = open_store(store_url)
+    try:
+        assert store.revision() == head_revision()
+        assert store.check() == []
+        shown = store.build(1)
+        assert [(ln["request"], ln["copies"], ln["design"], ln["pieces"])
+                for ln in shown["lines"]] == [("old.toml", 2, {"rank": 3}, {1: 4})]
+        store.undo_build(1)
+        assert store.item(1).qty == 10
+        assert store.check() == []
     finally:
         store.close()

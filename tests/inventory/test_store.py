@@ -152,36 +152,40 @@ def test_commit_builds_refusing_a_shortage_changes_nothing(store, stock_csv):
 
 
 def test_commit_and_undo_build_restores_exactly(store, stock_csv):
+    """One commit is one build: a line per request, undone in one step."""
     store.import_csv(stock_csv)
     snap = store.snapshot()
     r, c, q = snap.resistors[0], snap.capacitors[0], snap.transistors[0]
     before = _qty(store)
-    ids = store.commit_builds([
+    bid = store.commit_builds([
         _build({r.id: 4, c.id: 6, q.id: 2}, copies=2),
         _build({r.id: 1, q.id: 1}, request="buffer.toml",
-               orders=[{"kind": "resistor", "value": 2200.0, "qty": 10, "tolerance": 0.01,
-                        "power": 0.25}]),
+               orders=[{"kind": "resistor", "value": 2200.0, "qty": 10, "used": 1,
+                        "tolerance": 0.01, "power": 0.25}]),
     ])
-    assert len(ids) == 2
     after = _qty(store)
     assert after[r.id] == before[r.id] - 5 and after[q.id] == before[q.id] - 3
     listed = store.list_builds()
     assert [(b["id"], b["request"], b["copies"], b["undone"]) for b in listed] == [
-        (ids[0], "amp.toml", 2, False), (ids[1], "buffer.toml", 1, False)]
-    shown = store.build(ids[0])
-    assert shown["design"] == {"rank": 1, "parts": {}}
-    assert shown["pieces"] == {r.id: 4, c.id: 6, q.id: 2}
+        (bid, "amp.toml, buffer.toml", 3, False)]
+    shown = store.build(bid)
+    assert [(ln["request"], ln["copies"], ln["pieces"]) for ln in shown["lines"]] == [
+        ("amp.toml", 2, {r.id: 4, c.id: 6, q.id: 2}), ("buffer.toml", 1, {r.id: 1, q.id: 1})]
+    assert shown["lines"][0]["design"] == {"rank": 1, "parts": {}}
+    assert shown["pieces"] == {r.id: 5, c.id: 6, q.id: 3}
+    assert [(o["value"], o["used"], o["state"]) for o in shown["orders"]] == [
+        (2200.0, 1, "awaited")]
     assert [o["value"] for o in store.pending_orders()] == [2200.0]
+    assert store.history(1)[0]["kind"] == "build"
 
-    store.undo_build(ids[0])
-    restored = _qty(store)
-    assert restored[c.id] == before[c.id]
-    assert restored[r.id] == before[r.id] - 1 and restored[q.id] == before[q.id] - 1
-    assert store.build(ids[0])["undone"] is True
-    with pytest.raises(InputError, match="already undone"):
-        store.undo_build(ids[0])
-    store.undo_build(ids[1])
+    store.undo_build(bid)
     assert _qty(store) == before
+    assert store.build(bid)["undone"] is True
+    # the build no longer counts on its order: nothing is awaited from it
+    assert store.pending_orders() == []
+    assert store.build(bid)["orders"][0]["state"] == "cancelled"
+    with pytest.raises(InputError, match="already undone"):
+        store.undo_build(bid)
     assert store.check() == []
 
 
@@ -200,11 +204,12 @@ def test_add_item_low_and_min_qty(store):
     again = store.add_item(Resistor(value=330.0, qty=3, location="E1"))
     assert again == rid and store.item(rid).qty == 5
     tid = store.add_item(Transistor(label="T-X", hfe_min=50, hfe_max=100, qty=1))
-    assert [p.id for p in store.low()] == [rid]
+    empty = store.add_item(Resistor(value=470.0, qty=0, location="E2"))
+    assert [p.id for p in store.low()] == [rid, empty]      # an empty bin is listed too
     store.set_min_qty(tid, 4)
-    assert {p.id for p in store.low()} == {rid, tid}
+    assert {p.id for p in store.low()} == {rid, tid, empty}
     store.set_min_qty(rid, 0)
-    assert [p.id for p in store.low()] == [tid]
+    assert {p.id for p in store.low()} == {tid, empty}
     assert store.check() == []
 
 

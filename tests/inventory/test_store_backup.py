@@ -19,10 +19,12 @@ def _fill(store, tmp_path):
     r = store.add_item(Resistor(value=47e3, qty=8, tolerance=0.01, location="=A2"))
     t = store.transistor("GP-N1").id
     store.adjust(r, -3, "bench")
-    [b1, b2] = store.commit_builds([
+    store.commit_builds([
         {"request": "a.toml", "copies": 2, "design": {"rank": 1, "v": [1.5, None]},
          "pieces": {r: 2, t: 2}, "orders": [{"kind": "resistor", "value": 2200.0, "qty": 10}]},
         {"request": "b.toml", "copies": 1, "design": {}, "pieces": {t: 1}}])
+    b2 = store.commit_builds([{"request": "c.toml", "copies": 1, "design": {},
+                               "pieces": {t: 1}}])
     store.undo_build(b2)
     return batch
 

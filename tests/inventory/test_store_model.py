@@ -96,7 +96,7 @@ def test_store_follows_the_model(tmp_path_factory, start, ops):
                     except StockShortage:
                         pass
                 else:
-                    [bid] = store.commit_builds([{"request": "m", "copies": 1, "design": {},
+                    bid = store.commit_builds([{"request": "m", "copies": 1, "design": {},
                                                   "pieces": pieces}])
                     batch_id = store.build(bid)["batch"]
                     for i, q in pieces.items():
