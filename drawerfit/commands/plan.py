@@ -111,6 +111,7 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
         data = plan.to_json()
         if build_id is not None:
             data["build_id"] = build_id
+            data["build_ids"] = [build_id]     # the list form scripts already read
         emit_json(data)
     else:
         from drawerfit.render.plan import print_plan

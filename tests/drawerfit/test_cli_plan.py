@@ -266,3 +266,4 @@ def test_commit_with_purchases_records_orders_and_order_file_holds_the_rest(env)
     assert store.pending_orders() == []
     store.close()
     assert isinstance(d["build_id"], int)
+    assert d["build_ids"] == [d["build_id"]]      # the list form of the JSON contract
