@@ -49,9 +49,17 @@ def transfer(request, batch: StageBatch, model: DeviceModel, op: OperatingPoint,
     inv_vaf = 0.0 if not np.isfinite(model.vaf) else 1.0 / model.vaf
     vbe, vbc, _ = solve_terminals(vb, rb, ve, re, vc, rc, is_, beta, vt, inv_vaf)
     ic, ib, *_ = junction_currents(vbe, vbc, is_, beta, vt, inv_vaf)
-    VB = vb - ib * rb
+    # Node voltages from the emitter and the junction voltages, and I_C from the
+    # collector branch where it has a resistance.  Where an ideal source drives a
+    # junction hard (base and emitter both held without resistance), I_C from the
+    # junction law is the difference of two exponentials many orders above it and keeps
+    # no digit, while V_BE and V_BC stay exact; the emitter is then held (r_e = 0), and
+    # elsewhere r_e bounds the currents.  Equal to the other forms at the solution.
     VE = ve + (ic + ib) * re
-    VC = vc - ic * rc
+    VB = VE + vbe
+    VC = VE + (vbe - vbc)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ic = np.where(rc > 0, (vc - VC) / np.where(rc > 0, rc, 1.0), ic)
     return load(VB, VE, VC), vbe - vbc, ic
 
 
@@ -95,9 +103,10 @@ def swing_vpk(request, batch, model, op):
     a geometric grid of amplitudes up to supply_v (solved in blocks going
     outward, each batched over the designs not yet failed on both signs), then
     bisected inside its bracket.  Beyond that first failure the forward-active
-    test may pass again (a hard-driven junction, where the solved currents are
-    meaningless), so neither the grid nor the bisection ever looks past the
-    bracket.  At the limit the swing is the smaller of the positive and
+    test may pass again (behind an ideal source a junction can be driven past
+    the exponent where the device law continues linearly, ``EXP_LIMIT``, and
+    V_CE rises there), so neither the grid nor the bisection ever looks past
+    the bracket.  At the limit the swing is the smaller of the positive and
     negative peaks of v_load over the period (the load peaks at ±a and at the
     grid amplitudes inside).  NaN when no EMF up to supply_v reaches a limit.
 

@@ -11,7 +11,7 @@ from scipy.special import iv
 from inventory.parts import Transistor
 from optimiser.dc import operating_point
 from optimiser.device import device_from_transistor, thermal_voltage
-from optimiser.distortion import IC_FLOOR, swing_vpk, thd_pct, transfer
+from optimiser.distortion import IC_FLOOR, swing_vpk, thd_pct, transfer, waveform
 from optimiser.request import Request
 from optimiser.stage import StageBatch
 
@@ -102,3 +102,44 @@ def test_swing_null_when_supply_amplitude_does_not_reach_the_limits():
     op = operating_point("cc", 12.0, b, m)
     swing, a = swing_vpk(req, b, m, op)
     assert np.isnan(swing[0]) and np.isnan(a[0])
+
+
+def _ebers_moll_vc(u, ve, is_, vt, supply_v, rc):
+    """V_C of the held-emitter stage for a forced V_BE ``u`` (open load, no Early effect),
+    from the Ebers–Moll equations with BR = 1,
+    I_C = I_S·e^{u/V_T}·(1 − 2e^{−V_CE/V_T}) + I_S, and I_C = (V_CC − V_E − V_CE)/R_C,
+    solved for V_CE by brentq.  Where R_C·I_S·e^{u/V_T} is huge (the junction driven hard)
+    the same law is used as V_CE = V_T·ln 2 − V_T·ln(1 − (I_C − I_S)/(I_S·e^{u/V_T})), a
+    form without the cancellation of the two large exponentials."""
+    from scipy.optimize import brentq
+
+    ebe = math.exp(u / vt)
+    if rc * is_ * ebe < 1e6:
+        def h(s):
+            return s - (supply_v - ve - rc * (is_ * ebe * (1 - 2 * math.exp(-s / vt)) + is_))
+
+        return ve + brentq(h, -1.0, supply_v - ve + 1.0, xtol=1e-14, rtol=1e-15)
+
+    def g(s):
+        x = ((supply_v - ve - s) / rc - is_) / (is_ * ebe)
+        return s - vt * math.log(2.0) + vt * math.log1p(-x)
+
+    return ve + brentq(g, vt * math.log(2.0) - 1e-3, 0.5, xtol=1e-14, rtol=1e-15)
+
+
+@pytest.mark.parametrize("vpk", [0.2, 1.0])
+def test_hard_drive_waveform_and_thd(vpk):
+    """Behind a 0 Ω source the base and the held emitter fix V_BE = V_BE0 + EMF, so at an
+    EMF of volts the junction law is many orders above the collector current.  The load
+    voltage over the period (saturated near V_E + V_T·ln 2 on one side, cut off near V_CC
+    on the other) and its THD match a scalar solution of the Ebers–Moll equations."""
+    req, b, m, op = _stage(vpk, 15.0, 82e3, 8.2e3)
+    vt = thermal_voltage(25.0)
+    emf, v = waveform(req, b, m, op)
+    ref = np.array([_ebers_moll_vc(op.vb[0] - op.ve[0] + e, op.ve[0], op.is_[0], vt, 15.0,
+                                   8.2e3) for e in emf[0]]) - op.vc[0]
+    assert v[0] == pytest.approx(ref, abs=1e-6)
+    assert v[0].min() == pytest.approx(op.ve[0] + vt * math.log(2) - op.vc[0], abs=1e-3)
+    X = np.fft.rfft(ref)
+    expected = 100 * np.sqrt(np.sum(np.abs(X[2:10]) ** 2)) / np.abs(X[1])
+    assert thd_pct(req, b, m, op)[0] == pytest.approx(expected, rel=1e-6)
