@@ -24,7 +24,13 @@ N_POINTS = 256
 HARMONICS = range(2, 10)
 #: The cut-off edge of the swing: I_C falls below this share of its quiescent value.
 IC_FLOOR = 0.01
-_BISECT = 40
+#: The swing limit's bracketing grid: this many amplitudes, geometric from
+#: _GRID_FLOOR·supply_v to supply_v (neighbours 1.34× apart), then this many halvings
+#: of the bracket (below 1e-9 of the limit).
+_GRID = 48
+_GRID_FLOOR = 1e-6
+_GRID_BLOCK = 8
+_BISECT = 30
 
 
 def transfer(request, batch: StageBatch, model: DeviceModel, op: OperatingPoint, emf):
@@ -43,9 +49,17 @@ def transfer(request, batch: StageBatch, model: DeviceModel, op: OperatingPoint,
     inv_vaf = 0.0 if not np.isfinite(model.vaf) else 1.0 / model.vaf
     vbe, vbc, _ = solve_terminals(vb, rb, ve, re, vc, rc, is_, beta, vt, inv_vaf)
     ic, ib, *_ = junction_currents(vbe, vbc, is_, beta, vt, inv_vaf)
-    VB = vb - ib * rb
+    # Node voltages from the emitter and the junction voltages, and I_C from the
+    # collector branch where it has a resistance.  Where an ideal source drives a
+    # junction hard (base and emitter both held without resistance), I_C from the
+    # junction law is the difference of two exponentials many orders above it and keeps
+    # no digit, while V_BE and V_BC stay exact; the emitter is then held (r_e = 0), and
+    # elsewhere r_e bounds the currents.  Equal to the other forms at the solution.
     VE = ve + (ic + ib) * re
-    VC = vc - ic * rc
+    VB = VE + vbe
+    VC = VE + (vbe - vbc)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ic = np.where(rc > 0, (vc - VC) / np.where(rc > 0, rc, 1.0), ic)
     return load(VB, VE, VC), vbe - vbc, ic
 
 
@@ -82,38 +96,67 @@ def thd_pct(request, batch, model, op) -> np.ndarray:
 def swing_vpk(request, batch, model, op):
     """Largest symmetric load swing in the forward-active region, V peak; (n,).
 
-    The EMF amplitude is raised until, at either extreme of the period, V_CE
-    falls below vce_sat or I_C below IC_FLOOR of its quiescent value
-    (bisection on each sign of the EMF; the quasi-static map is monotone, so
-    the extremes of the period are at ±amplitude).  At that amplitude the
-    smaller of the positive and negative load peaks is the swing.  NaN when
-    an EMF amplitude of supply_v does not reach the limits.
+    The swing limit is the largest EMF amplitude ``a`` for which the transistor
+    is forward-active (V_CE ≥ vce_sat and I_C ≥ IC_FLOOR of its quiescent
+    value) at every EMF of the period, i.e. over the whole interval [−a, a].
+    On each sign of the EMF the first failure going out from 0 is bracketed on
+    a geometric grid of amplitudes up to supply_v (solved in blocks going
+    outward, each batched over the designs not yet failed on both signs), then
+    bisected inside its bracket.  Beyond that first failure the forward-active
+    test may pass again (behind an ideal source a junction can be driven past
+    the exponent where the device law continues linearly, ``EXP_LIMIT``, and
+    V_CE rises there), so neither the grid nor the bisection ever looks past
+    the bracket.  At the limit the swing is the smaller of the positive and
+    negative peaks of v_load over the period (the load peaks at ±a and at the
+    grid amplitudes inside).  NaN when no EMF up to supply_v reaches a limit.
 
     Returns (swing_vpk, emf_limit_vpk).
     """
     n = batch.n
     ic0 = np.asarray(op.ic)[:, None]
 
-    def ok(emf):
-        _, vce, ic = transfer(request, batch, model, op, emf)
-        return (vce >= model.vce_sat) & (ic >= IC_FLOOR * ic0)
+    def state(emf, rows=None):
+        b, o = (batch, op) if rows is None else (batch.take(rows), op.take(rows))
+        v, vce, ic = transfer(request, b, model, o, emf)
+        return v, (vce >= model.vce_sat) & (ic >= IC_FLOOR * (ic0 if rows is None else ic0[rows]))
 
+    top = float(request.supply_v)
+    grid = top * np.geomspace(_GRID_FLOOR, 1.0, _GRID)            # (k,)
+    signed = np.concatenate([grid, -grid])                          # (2k,): + then −
+    v_grid = np.full((n, 2 * _GRID), np.nan)
+    bad = np.ones((n, 2, _GRID), dtype=bool)
+    # march out in blocks of amplitudes, for the designs that have not yet failed on
+    # both sides (the hard-driven points past a failure are the costly ones to solve)
+    todo = np.arange(n)
+    for s in range(0, _GRID, _GRID_BLOCK):
+        cols = np.r_[s:min(s + _GRID_BLOCK, _GRID)]
+        cols2 = np.concatenate([cols, cols + _GRID])
+        v, good = state(np.broadcast_to(signed[cols2], (todo.size, cols2.size)),
+                        None if todo.size == n else todo)
+        v_grid[todo[:, None], cols2[None, :]] = v
+        # (rows, cols) advanced indices around the sign slice give shape (rows, cols, 2)
+        bad[todo[:, None], :, cols[None, :]] = ~good.reshape(-1, 2, cols.size).transpose(0, 2, 1)
+        todo = todo[~bad[todo, :, :cols[-1] + 1].any(axis=2).all(axis=1)]
+        if todo.size == 0:
+            break
+    reached = bad.any(axis=2)                                       # (n, 2): + and − EMF
+    first = np.argmax(bad, axis=2)                                  # first failing amplitude
+    hi = np.where(reached, grid[first], top)
+    lo = np.where(reached & (first > 0), grid[np.maximum(first - 1, 0)], 0.0)
     sign = np.array([1.0, -1.0])[None, :]
-    top = np.full((n, 2), float(request.supply_v))
-    fails_top = ~ok(top * sign)
-    lo = np.zeros((n, 2))
-    hi = top.copy()
     for _ in range(_BISECT):
         mid = 0.5 * (lo + hi)
-        good = ok(mid * sign)
+        _, good = state(mid * sign)
         lo = np.where(good, mid, lo)
         hi = np.where(good, hi, mid)
-    limit = np.where(fails_top, lo, np.inf)
-    a = np.min(limit, axis=1)
+    a = np.min(np.where(reached, lo, np.inf), axis=1)
     finite = np.isfinite(a)
     a_eval = np.where(finite, a, 0.0)[:, None]
-    v, _, _ = transfer(request, batch, model, op, a_eval * sign)
-    pos = np.maximum(np.max(v, axis=1), 0.0)
-    neg = np.maximum(-np.min(v, axis=1), 0.0)
+    v_end, _ = state(a_eval * sign)
+    inside = np.abs(signed)[None, :] < a_eval
+    top_v = np.maximum(np.max(v_end, axis=1), np.max(np.where(inside, v_grid, -np.inf), axis=1))
+    low_v = np.minimum(np.min(v_end, axis=1), np.min(np.where(inside, v_grid, np.inf), axis=1))
+    pos = np.maximum(top_v, 0.0)
+    neg = np.maximum(-low_v, 0.0)
     swing = np.where(finite, np.minimum(pos, neg), np.nan)
     return swing, np.where(finite, a, np.nan)
