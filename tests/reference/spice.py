@@ -16,6 +16,9 @@ batch of designs costs one ngspice process per analysis kind:
   the sampled transfer curve by :func:`thd_from_curve` and
   :func:`swing_from_curve`.
 
+:func:`run_netlist_file` runs a netlist kept in the repository as it is and returns
+the figures it prints.
+
 :func:`require_ngspice` skips a test when ngspice is missing, and fails it
 when ``CI=true``.
 """
@@ -46,6 +49,7 @@ __all__ = [
     "thd_from_curve",
     "swing_from_curve",
     "edge_from_sweep",
+    "run_netlist_file",
 ]
 
 _OPTIONS = ".options TEMP=25 TNOM=25 RELTOL=1e-7 VNTOL=1e-10 ABSTOL=1e-16"
@@ -148,6 +152,13 @@ def run_ngspice(netlist: str, workdir: Path, name: str = "run") -> str:
     if proc.returncode != 0 and "error" in (proc.stdout + proc.stderr).lower():
         raise RuntimeError(f"ngspice failed on {path}:\n{proc.stdout[-2000:]}\n{proc.stderr[-2000:]}")
     return proc.stdout
+
+
+def run_netlist_file(path: Path, workdir: Path) -> dict[str, float]:
+    """Run a netlist kept in the repository, unchanged, with ``ngspice -b``; return the
+    ``name = value`` lines it prints (``print`` and ``meas`` results), names lower case."""
+    path = Path(path)
+    return _prints(run_ngspice(path.read_text(), Path(workdir), path.stem))
 
 
 def _prints(out: str) -> dict[str, float]:

@@ -1,8 +1,10 @@
 """Small-signal worked examples [BN, MB] (gain, Zin, Zout, cut-offs); sources in SOURCES.md.
 
-The engine runs with the model of those ngspice runs (27 °C, IS for V_BE = 0.70 V,
-no VAF, no capacitances; tests/reference/textbook.py).  Its figures are compared with
-the ngspice column closely and with the printed figure at the table's tolerance.
+The engine runs with the model of the ngspice netlists in
+tests/reference/netlists/textbook/ (27 °C, IS for V_BE = 0.70 V, no VAF, no
+capacitances; tests/reference/textbook.py), named beside each check and rerun by
+test_textbook_netlists.py when ngspice is present.  The engine's figures are compared
+with the ngspice figures closely and with the printed figure at the table's tolerance.
 """
 
 from __future__ import annotations
@@ -27,6 +29,8 @@ def test_mb_ce_gain_bypassed_and_swamped():
     req = Request("ce", 10.0, load_ohm=10e3, source_ohm=0.0, mid_hz=1e3)
     _, _, full = midband_at_27(req, m, **MB, RE=0.0, RE_BYP=1e3, C_BYP=SHORT_C)
     _, _, swamped = midband_at_27(req, m, **MB, RE=180.0, RE_BYP=820.0, C_BYP=SHORT_C)
+    # ngspice: tests/reference/netlists/textbook/mb-voltage-divider.cir (bypassed, av) and
+    # tests/reference/netlists/textbook/mb-swamped.cir (av)
     assert abs(full["h"]) == pytest.approx(109.8, rel=0.01)
     assert abs(full["h"]) == pytest.approx(117, rel=0.08)
     assert abs(swamped["h"]) == pytest.approx(12.86, rel=0.01)
@@ -45,6 +49,7 @@ def test_bn_ce_unbypassed_emitter_resistor():
     req = Request("ce", 20.0, load_ohm=None, source_ohm=0.0)
     _, _, mid = midband_at_27(req, m, R1=470e3, R2=OPEN, RC=2.2e3, RE=560.0,
                               C_IN=SHORT_C, C_OUT=SHORT_C)
+    # ngspice: tests/reference/netlists/textbook/bn-ch5-emitter-bias.cir (av, zin)
     assert mid["h"].real == pytest.approx(-3.855, rel=0.01)
     assert mid["h"].real == pytest.approx(-3.89, rel=0.012)
     assert abs(mid["zin"]) == pytest.approx(59.77e3, rel=0.01)
@@ -53,16 +58,18 @@ def test_bn_ce_unbypassed_emitter_resistor():
 
 def test_bn_common_base():
     """[BN Ch. 5, "Common-base configuration", from memory]: I_E 1.3 mA, R_C 5k, α 0.98
-    (β 49): Z_i = R_E‖r_e 19.61 Ω (ngspice 19.51 Ω), A_v +246.3 (ngspice; book 245–250).
+    (β 49): Z_i = R_E‖r_e 19.61 Ω (ngspice 19.54 Ω), A_v +245.9 (ngspice; book 245–250).
     The book's split supply (V_EE 2 V, V_CC 8 V) is shifted to one 10 V supply with the
-    base held at 2 V by a stiff divider and a large C_B."""
+    base held at 2 V by a stiff divider and a large C_B; the base current through the
+    divider's 80 Ω leaves I_E at 1.298 mA, and the ngspice figures are of this circuit."""
     m = book_model(49, 1.3e-3 * 49 / 50)
     req = Request("cb", 10.0, load_ohm=None, source_ohm=0.0)
     _, op, mid = midband_at_27(req, m, R1=400.0, R2=100.0, RC=5e3, RE=1e3, C_B=SHORT_C,
                                C_IN=SHORT_C, C_OUT=SHORT_C)
     assert op.ie[0] == pytest.approx(1.3e-3, rel=0.005)
-    assert abs(mid["zin"]) == pytest.approx(19.51, rel=0.01)
-    assert mid["h"].real == pytest.approx(246.3, rel=0.01)
+    # ngspice: tests/reference/netlists/textbook/bn-ch5-common-base.cir (zin, av)
+    assert abs(mid["zin"]) == pytest.approx(19.54, rel=0.01)
+    assert mid["h"].real == pytest.approx(245.9, rel=0.01)
     assert mid["h"].real == pytest.approx(245.0, rel=0.025)
     assert abs(mid["zout"]) == pytest.approx(5e3, rel=0.001)    # book Z_o = R_C
 
@@ -75,6 +82,7 @@ def test_bn_emitter_follower():
     req = Request("cc", 12.0, load_ohm=None, source_ohm=0.0)
     _, _, mid = midband_at_27(req, m, R1=220e3, R2=OPEN, RE=3.3e3, C_IN=SHORT_C,
                               C_OUT=SHORT_C)
+    # ngspice: tests/reference/netlists/textbook/bn-ch5-emitter-follower.cir (av, zin, zout)
     assert mid["h"].real == pytest.approx(0.99621, rel=5e-4)
     assert abs(mid["zin"]) == pytest.approx(132.72e3, rel=0.005)
     assert abs(mid["zin"]) == pytest.approx(132.2e3, rel=0.01)
@@ -99,6 +107,7 @@ def test_bn_low_frequency_cutoffs(caps, ngspice, book):
     m = book_model(100, 1.587e-3 * 100 / 101)
     req = Request("ce", 20.0, load_ohm=2.2e3, source_ohm=1e3, mid_hz=10e3)
     f = low_edge_at_27(req, m, **BN9, **caps)
+    # ngspice: tests/reference/netlists/textbook/bn-ch9-low-frequency.cir (f_ls, f_lc, f_le, f_all)
     assert f == pytest.approx(ngspice, rel=0.01)
     assert f == pytest.approx(book, rel=0.03)
 
@@ -108,5 +117,6 @@ def test_bn_source_to_load_gain():
     m = book_model(100, 1.587e-3 * 100 / 101)
     req = Request("ce", 20.0, load_ohm=2.2e3, source_ohm=1e3, mid_hz=10e3)
     _, _, mid = midband_at_27(req, m, **BN9, C_IN=SHORT_C, C_OUT=SHORT_C, C_BYP=SHORT_C)
+    # ngspice: tests/reference/netlists/textbook/bn-ch9-low-frequency.cir (avs)
     assert mid["h"].real == pytest.approx(-49.78, rel=0.01)
     assert mid["h"].real == pytest.approx(-51.2, rel=0.04)

@@ -1,10 +1,11 @@
 """Bias (DC) worked examples and facts of the trade [BN, MB, SS, MH].
 
 Each row names its source by its key in tests/reference/SOURCES.md.  "ngspice" figures
-were recorded from ngspice-39 runs [NGSPICE] (TEMP = 27 °C, IS for V_BE = 0.70 V); the
-engine is set up with the same model (tests/reference/textbook.py), so it must agree
-closely with them; the printed book figures carry the book's shortcuts and get the
-tolerance the tables state.
+come from ngspice-39 [NGSPICE] on the netlists in tests/reference/netlists/textbook/
+(TEMP = 27 °C, IS for V_BE = 0.70 V), named beside each check and rerun by
+test_textbook_netlists.py when ngspice is present; the engine is set up with the same
+model (tests/reference/textbook.py), so it must agree closely with them; the printed
+book figures carry the book's shortcuts and get the tolerance the tables state.
 """
 
 from __future__ import annotations
@@ -29,6 +30,7 @@ def test_bn_voltage_divider_bias_exact():
     from memory]: V_CC 22 V, 39k/3.9k, R_C 10k, R_E 1.5k, β 140."""
     m = book_model(140, 0.8463e-3)
     _, op = op_at_27("ce", 22.0, m, R1=39e3, R2=3.9e3, RC=10e3, RE=1.5e3)
+    # ngspice: tests/reference/netlists/textbook/bn-ch4-voltage-divider.cir
     assert op.ib[0] == pytest.approx(6.045e-6, rel=1e-3)       # ngspice 6.045 µA
     assert op.ic[0] == pytest.approx(0.8463e-3, rel=1e-3)      # ngspice 0.8463 mA
     assert op.vce[0] == pytest.approx(12.258, rel=1e-3)        # ngspice (full KVL)
@@ -41,6 +43,7 @@ def test_mb_voltage_divider_firm_solution():
     V_CC 10 V, 10k/2.2k, R_C 3.6k, R_E 1k, β 100: V_B 1.78, V_E 1.08, V_C 6.14 V."""
     m = book_model(100, 1.0839e-3 * 100 / 101)
     _, op = op_at_27("ce", 10.0, m, R1=10e3, R2=2.2e3, RC=3.6e3, RE=1e3)
+    # ngspice: tests/reference/netlists/textbook/mb-voltage-divider.cir
     np.testing.assert_allclose([op.vb[0], op.ve[0], op.vc[0]], [1.7839, 1.0839, 6.1365],
                                rtol=2e-3)                          # same-model / ngspice
     np.testing.assert_allclose([op.vb[0], op.ve[0], op.vc[0]], [1.78, 1.08, 6.14],
@@ -54,6 +57,7 @@ def test_ss_divider_current_vs_beta_sensitivity(r1, r2, ngspice, book):
     V_B = 4 V by the one-third rule, R_E 3.3k, β 100; a stiffer divider holds I_E nearer 1 mA."""
     m = book_model(100, 1e-3 * 100 / 101)
     _, op = op_at_27("ce", 12.0, m, R1=r1, R2=r2, RC=1e3, RE=3.3e3)
+    # ngspice: tests/reference/netlists/textbook/ss-divider-bias.cir (ie_80k, ie_8k)
     assert op.ie[0] == pytest.approx(ngspice, rel=0.005)
     assert op.ie[0] == pytest.approx(book, rel=0.005)
 
@@ -63,6 +67,7 @@ def test_bn_fixed_bias_with_emitter_resistor():
     V_CC (no R2), R_C 2.2k, R_E 0.56k, β 120: I_B 35.89 µA, I_E 4.3426 mA (ngspice)."""
     m = book_model(120, 4.3426e-3 * 120 / 121)
     _, op = op_at_27("ce", 20.0, m, R1=470e3, R2=OPEN, RC=2.2e3, RE=560.0)
+    # ngspice: tests/reference/netlists/textbook/bn-ch5-emitter-bias.cir
     assert op.ib[0] == pytest.approx(35.89e-6, rel=1e-3)
     assert op.ie[0] == pytest.approx(4.3426e-3, rel=1e-3)
 
@@ -72,6 +77,7 @@ def test_bn_emitter_follower_bias():
     R_B 220k, R_E 3.3k, β 100: I_B 20.42 µA, I_E 2.0628 mA (ngspice), book 2.062 mA."""
     m = book_model(100, 2.0628e-3 * 100 / 101)
     _, op = op_at_27("cc", 12.0, m, R1=220e3, R2=OPEN, RE=3.3e3)
+    # ngspice: tests/reference/netlists/textbook/bn-ch5-emitter-follower.cir (ib, ie)
     assert op.ib[0] == pytest.approx(20.42e-6, rel=1e-3)
     assert op.ie[0] == pytest.approx(2.062e-3, rel=1e-3)
 
@@ -150,7 +156,8 @@ def test_stability_factor_beta_against_the_corners():
 def test_stability_factor_vbe():
     """S(V_BE) = −β/(R_TH + (β+1)R_E) = −0.65103 mA/V [BN Ch. 4, from memory]; ngspice with
     a 10 mV source in the base lead gives −0.6383 mA/V, i.e. with r_e in series with R_E
-    [NGSPICE, recorded].  The engine shifts V_BE by 10 mV through I_S."""
+    [NGSPICE; tests/reference/netlists/textbook/bn-ch4-voltage-divider.cir, s_vbe].  The engine
+    shifts V_BE by 10 mV through I_S."""
     m = book_model(140, 0.8463e-3)
     b = StageBatch.from_values("ce", **CIRCUIT_41)
     base = operating_point("ce", 22.0, b, m, temp_c=27.0).ic[0]
