@@ -204,3 +204,21 @@ def test_every_bad_key_of_a_circuit_file_is_reported(tmp_path):
     for n, key in ((3, "colour"), (6, "parts.R2"), (8, "parts.RX"), (14, "transistor.hfe_max"),
                    (15, "transistor.foo")):
         assert any(f"c.toml:{n}: {key}:" in x for x in lines), (key, lines)
+
+
+def test_analyse_judges_against_the_defaults_and_says_so(tmp_path):
+    from pathlib import Path
+
+    example = Path(__file__).resolve().parents[2] / "examples" / "bench" / "ce-check.toml"
+    db = str(tmp_path / "none.sqlite")
+    r = CliRunner().invoke(cli, ["--db", db, "analyse", str(example)])
+    assert r.exit_code == 0, r.output
+    assert "assumed: THD <= 5 % at 20 mV peak" in " ".join(r.stdout.split())
+    out = as_json(CliRunner().invoke(cli, ["--db", db, "analyse", str(example), "--json"]))
+    assert out["request"]["assumed"] == ["thd_max_pct", "ic_min_a"]
+    # a stage biased below the least current is told so
+    low = tmp_path / "low.toml"
+    low.write_text(example.read_text().replace('R1 = "47k"', 'R1 = "1M"'))
+    out = as_json(CliRunner().invoke(cli, ["--db", db, "analyse", str(low), "--json"]))
+    assert out["design"]["metrics"]["ic_a"] < 100e-6
+    assert any(v.startswith("ic_a ") for v in out["design"]["violations"])
