@@ -281,13 +281,16 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
                     f"{best:g} V): lower supply_v to {best:g} V or buy a higher-voltage type"], []
     candidates: list[Design] = []
     changes: list[dict] = []
-    if request.gain is not None:
+    # past a physical limit nothing unlocks the request but relaxing the limited
+    # targets: the other relaxations would search in vain
+    only = {x["target"] for x in limits} or None
+    if request.gain is not None and (only is None or "gain_db" in only):
         found, change = _relax_gain(request, snapshot, stats, list(limits))
         candidates += found
         if change:
             changes.append(change)
     for key, _, _ in TARGETS:
-        if getattr(request, key) is None:
+        if getattr(request, key) is None or (only is not None and key not in only):
             continue
         found, change = _relax_limit(request, key, snapshot, stats)
         candidates += found
