@@ -37,7 +37,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from inventory.errors import InputError, InputErrors
+from inventory.errors import InputError
 from inventory.parts import StockSnapshot, Transistor
 from optimiser.design import Design
 from optimiser.options import (
