@@ -30,7 +30,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
-from inventory.errors import InputError
+from inventory.errors import InputError, InputErrors
 from optimiser.purchase import PurchaseOptions
 from optimiser.request import Request
 
@@ -179,9 +179,13 @@ def _parse_request_entry(v: Any, i: int, file: str | None, base: Path, loc: _Loc
         try:
             req = parse_request(v, file=file, extra_keys=())
         except InputError as exc:
-            sub = f"{field}.{exc.field}" if exc.field else field
-            line = exc.line or loc.find("build", i, exc.field) or loc.find("build", i, None)
-            raise InputError(exc.message, file=exc.file or file, line=line, field=sub) from None
+            def one(e: InputError) -> InputError:
+                sub = f"{field}.{e.field}" if e.field else field
+                line = e.line or loc.find("build", i, e.field) or loc.find("build", i, None)
+                return InputError(e.message, file=e.file or file, line=line, field=sub)
+            if isinstance(exc, InputErrors):          # every bad key, one line each
+                raise InputErrors([one(e) for e in exc.errors]) from None
+            raise one(exc) from None
         return req, None, f"build {i + 1}"
     raise _err(f"must be a file name or a [build.request] table, not {v!r}", file, loc,
                "build", i, "request", field)

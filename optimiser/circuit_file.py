@@ -27,11 +27,12 @@ from __future__ import annotations
 
 import re
 from collections.abc import Callable
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from inventory.errors import InputError
+from inventory.errors import InputError, InputErrors
 from inventory.parts import (
     DEFAULT_CAPACITOR_TOLERANCE,
     DEFAULT_RESISTOR_TOLERANCE,
@@ -90,13 +91,32 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
         return InputError(msg, file=file, line=_line_of(text, line_key or key.split(".")[-1]),
                           field=key)
 
-    req = parse_request(mapping, file=file, text=text,
-                        extra_keys=CIRCUIT_KEYS + ("transistor",))
-    topo = req.topology
+    errors: list[InputError] = []
+
+    @contextmanager
+    def collect():
+        """Note a bad key and go on, so that every bad key is reported."""
+        try:
+            yield
+        except InputErrors as e:
+            errors.extend(e.errors)
+        except InputError as e:
+            errors.append(e)
+
+    req = None
+    with collect():
+        req = parse_request(mapping, file=file, text=text,
+                            extra_keys=CIRCUIT_KEYS + ("transistor",))
+    topo = req.topology if req is not None else (
+        mapping.get("topology", "").strip().lower()
+        if isinstance(mapping.get("topology"), str) else None)
+    if topo not in ROLES:
+        raise _all(errors)
     parts = mapping.get("parts")
     if not isinstance(parts, dict) or not parts:
-        raise err("parts", "missing [parts] table: give role = value for each part "
-                           f"({', '.join(REQUIRED[topo])} for {topo})", "[parts]")
+        errors.append(err("parts", "missing [parts] table: give role = value for each part "
+                                   f"({', '.join(REQUIRED[topo])} for {topo})", "[parts]"))
+        parts = {}
 
     _store = None
 
@@ -113,84 +133,59 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
     ids: dict[str, int] = {}
     stock_parts: dict[str, object] = {}
     power_w, voltage_v, polarised, tol_stock = {}, {}, {}, {}
+    bad_roles: set[str] = set()
     for role, raw in parts.items():
-        key = f"parts.{role}"
-        if role not in ROLES[topo]:
-            raise err(key, f"unknown role '{role}' for a {topo} stage "
-                           f"(roles: {', '.join(ROLES[topo])})", role)
-        kind = _kind(role)
-        m = _ID.match(raw) if isinstance(raw, str) else None
-        if m:
-            item_id = int(m[1])
-            if item_id > 2**31 - 1:          # beyond the store's integer ids
-                raise err(key, f"no stock item with id {item_id}; see `drawerfit stock list`",
-                          role)
-            try:
-                part = get_store().item(item_id)
-            except InputError as e:
-                raise err(key, e.message, role) from None
-            ok = isinstance(part, Resistor) if kind == "resistor" else isinstance(part, Capacitor)
-            if not ok:
-                raise err(key, f"stock item #{item_id} is not a {kind}", role)
-            values[role] = float(part.value)
-            ids[role] = item_id
-            stock_parts[role] = part
-            tol_stock[role] = part.tolerance
-            if kind == "resistor":
-                power_w[role] = part.power_w
-            else:
-                voltage_v[role] = part.voltage_v
-                polarised[role] = part.polarised
-        else:
-            if isinstance(raw, bool) or not isinstance(raw, (str, int, float)):
-                raise err(key, f"expected a value such as \"4k7\", got {raw!r}", role)
-            try:
-                values[role] = V.parse_value(raw, kind)
-            except InputError as e:
-                raise err(key, e.message, role) from None
-        if values[role] <= 0:
-            raise err(key, f"{role} must be greater than zero", role)
-        try:
-            labels[role] = V.format_value(values[role], kind)
-        except Exception:
-            labels[role] = str(raw)
-    missing = [r for r in REQUIRED[topo] if r not in values]
-    if missing:
-        raise err("parts", f"missing part{'s' if len(missing) > 1 else ''} "
-                           f"{', '.join(missing)} for a {topo} stage", "[parts]")
-    if topo == "ce":
+        with collect():
+            bad_roles.add(role)
+            _part(role, raw, topo, err, get_store, values, labels, ids, stock_parts, power_w,
+                  voltage_v, polarised, tol_stock)
+            bad_roles.discard(role)
+    missing = [r for r in REQUIRED[topo] if r not in values and r not in bad_roles]
+    if missing and parts:
+        errors.append(err("parts", f"missing part{'s' if len(missing) > 1 else ''} "
+                                   f"{', '.join(missing)} for a {topo} stage", "[parts]"))
+    if topo == "ce" and parts and not bad_roles:
         if "RE" not in values and "RE_BYP" not in values:
-            raise err("parts", "a ce stage needs RE or RE_BYP (or both)", "[parts]")
-        if ("RE_BYP" in values) != ("C_BYP" in values):
-            raise err("parts", "RE_BYP and C_BYP go together (C_BYP bypasses RE_BYP)", "[parts]")
+            errors.append(err("parts", "a ce stage needs RE or RE_BYP (or both)", "[parts]"))
+        elif ("RE_BYP" in values) != ("C_BYP" in values):
+            errors.append(err("parts", "RE_BYP and C_BYP go together (C_BYP bypasses RE_BYP)",
+                              "[parts]"))
 
     # transistor
-    tr = mapping.get("transistor")
-    if isinstance(tr, str):
-        if tr.strip().lower() == "any":
-            raise err("transistor", "analyse needs one transistor: a stock label or a "
-                                    "[transistor] table with hfe_min and hfe_max")
-        transistor = get_store().transistor(tr.strip())
-        if transistor is None:
-            raise err("transistor", f"no transistor labelled '{tr.strip()}' in stock")
-    elif isinstance(tr, dict):
-        transistor = _inline_transistor(tr, err)
-    else:
-        raise err("transistor", "missing transistor: give transistor = \"LABEL\" or a "
-                                "[transistor] table with hfe_min and hfe_max", "[transistor]")
+    transistor = None
+    with collect():
+        tr = mapping.get("transistor")
+        if isinstance(tr, str):
+            if tr.strip().lower() == "any":
+                raise err("transistor", "analyse needs one transistor: a stock label or a "
+                                        "[transistor] table with hfe_min and hfe_max")
+            transistor = get_store().transistor(tr.strip())
+            if transistor is None:
+                raise err("transistor", f"no transistor labelled '{tr.strip()}' in stock")
+        elif isinstance(tr, dict):
+            transistor = _inline_transistor(tr, err)
+        else:
+            raise err("transistor", "missing transistor: give transistor = \"LABEL\" or a "
+                                    "[transistor] table with hfe_min and hfe_max", "[transistor]")
 
     tols: dict[str, float] = {}
     raw_t = mapping.get("tolerances", {})
     if not isinstance(raw_t, dict):
-        raise err("tolerances", "expected a [tolerances] table of role = tolerance")
+        errors.append(err("tolerances", "expected a [tolerances] table of role = tolerance"))
+        raw_t = {}
     for role, t in raw_t.items():
-        if role not in values:
-            raise err(f"tolerances.{role}", f"tolerance for '{role}', which is not among the parts",
-                      role)
-        try:
-            tols[role] = V.parse_tolerance(t)
-        except InputError as e:
-            raise err(f"tolerances.{role}", e.message, role) from None
+        with collect():
+            if role not in values:
+                if role in bad_roles:
+                    continue
+                raise err(f"tolerances.{role}",
+                          f"tolerance for '{role}', which is not among the parts", role)
+            try:
+                tols[role] = V.parse_tolerance(t)
+            except InputError as e:
+                raise err(f"tolerances.{role}", e.message, role) from None
+    if errors:
+        raise _all(errors)
     for role in values:
         if role not in tols:
             tols[role] = tol_stock.get(role, DEFAULT_RESISTOR_TOLERANCE if _kind(role) ==
@@ -203,16 +198,67 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
     return Circuit(req, values, transistor, tols, labels, ids, ratings, stock_parts)
 
 
+def _all(errors: list[InputError]) -> InputError:
+    """One error, or every one of several (sorted by line)."""
+    errors = sorted(errors, key=lambda e: (e.line is None, e.line or 0))
+    return errors[0] if len(errors) == 1 else InputErrors(errors)
+
+
+def _part(role, raw, topo, err, get_store, values, labels, ids, stock_parts, power_w,
+          voltage_v, polarised, tol_stock) -> None:
+    """Read one ``[parts]`` entry into the tables (raises InputError for a bad one)."""
+    from inventory import values as V
+
+    key = f"parts.{role}"
+    if role not in ROLES[topo]:
+        raise err(key, f"unknown role '{role}' for a {topo} stage "
+                       f"(roles: {', '.join(ROLES[topo])})", role)
+    kind = _kind(role)
+    m = _ID.match(raw) if isinstance(raw, str) else None
+    if m:
+        item_id = int(m[1])
+        if item_id > 2**31 - 1:          # beyond the store's integer ids
+            raise err(key, f"no stock item with id {item_id}; see `drawerfit stock list`", role)
+        try:
+            part = get_store().item(item_id)
+        except InputError as e:
+            raise err(key, e.message, role) from None
+        ok = isinstance(part, Resistor) if kind == "resistor" else isinstance(part, Capacitor)
+        if not ok:
+            raise err(key, f"stock item #{item_id} is not a {kind}", role)
+        value = float(part.value)
+        ids[role] = item_id
+        stock_parts[role] = part
+        tol_stock[role] = part.tolerance
+        if kind == "resistor":
+            power_w[role] = part.power_w
+        else:
+            voltage_v[role] = part.voltage_v
+            polarised[role] = part.polarised
+    else:
+        if isinstance(raw, bool) or not isinstance(raw, (str, int, float)):
+            raise err(key, f"expected a value such as \"4k7\", got {raw!r}", role)
+        try:
+            value = V.parse_value(raw, kind)
+        except InputError as e:
+            raise err(key, e.message, role) from None
+    if value <= 0:
+        raise err(key, f"{role} must be greater than zero", role)
+    values[role] = value
+    try:
+        labels[role] = V.format_value(values[role], kind)
+    except Exception:
+        labels[role] = str(raw)
+
+
 def _inline_transistor(tr: dict, err) -> Transistor:
     from inventory import values as V
 
-    for key in tr:
-        if key not in TRANSISTOR_KEYS:
-            raise err(f"transistor.{key}", f"unknown transistor key '{key}' "
-                                           f"(known: {', '.join(TRANSISTOR_KEYS)})", key)
-    for key in ("hfe_min", "hfe_max"):
-        if key not in tr:
-            raise err(f"transistor.{key}", f"missing {key} in [transistor]", "[transistor]")
+    errors = [err(f"transistor.{key}", f"unknown transistor key '{key}' "
+                                       f"(known: {', '.join(TRANSISTOR_KEYS)})", key)
+              for key in tr if key not in TRANSISTOR_KEYS]
+    errors += [err(f"transistor.{key}", f"missing {key} in [transistor]", "[transistor]")
+               for key in ("hfe_min", "hfe_max") if key not in tr]
 
     def number(key, reader=None, lo=0.0):
         v = tr[key]
@@ -240,7 +286,12 @@ def _inline_transistor(tr: dict, err) -> Transistor:
     for key in ("hfe_min", "hfe_max", "hfe_typ", "vbe", "ic_ref", "vaf", "vce_sat", "vceo",
                 "ic_max", "pd", "ft", "cob"):
         if key in tr:
-            kw[key] = number(key, readers.get(key))
+            try:
+                kw[key] = number(key, readers.get(key))
+            except InputError as e:
+                errors.append(e)
+    if errors:
+        raise _all(errors)
     if kw["hfe_min"] > kw["hfe_max"]:
         raise err("transistor.hfe_min", "hfe_min is above hfe_max", "hfe_min")
     if "hfe_typ" in kw and not kw["hfe_min"] <= kw["hfe_typ"] <= kw["hfe_max"]:

@@ -400,6 +400,11 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
         lim = request.ic_drift_max_pct
         rules.append(_Rule("target", "ic_drift_pct", ~(drift <= lim),
                            lambda i, lim=lim: f"ic_drift_pct {_g(drift[i])} > {lim:g}"))
+    if getattr(request, "ic_min_a", None) is not None:
+        lim = request.ic_min_a
+        ic_nom = metrics["ic_a"]
+        rules.append(_Rule("target", "ic_a", ~(ic_nom >= lim),
+                           lambda i, lim=lim: f"ic_a {_g(ic_nom[i])} < {lim:g}"))
     if large_signal and request.thd_max_pct is not None:
         lim = request.thd_max_pct
         rules.append(_Rule("target", "thd_pct", ~(thd <= lim),

@@ -1,18 +1,27 @@
 """When no design meets a request: the nearest misses and what would unlock it.
 
-* **Nearest misses.**  The search is run again with the request's targets
-  loosened (gain tolerance + 6 dB, no band-edge, Z_in, drift or THD target;
-  validity rules stay), and its designs are judged against the *original*
-  request.  They are ranked by their distance to it: the sum, over the targets
-  they miss, of the relative shortfall (gain: dB outside the window / tol; an
-  upper bound: value/limit − 1; a lower bound: limit/value − 1).
-* **Relax one target.**  Among those designs, the ones that miss a single
-  target say how far that target alone must move: "f_low_max_hz 50 → 63".
+(docs/answers.md describes all of this for the user.)
+
+* **Relax one target.**  For every target the request sets, gain included, the
+  exact search is run again with that target alone relaxed and every other
+  target kept: without the target (band edges, Z_in, drift, THD, least I_C), or
+  with the gain window widened step by step.  Each design it finds is a real
+  stock design meeting every other target, so relaxing the target to that
+  design's figure provably unlocks the request; the design is evaluated again
+  against the relaxed request to confirm it.  Among the designs found the one
+  nearest the original target is named; a nearer one is not ruled out, except
+  where a completed search proved that none exists within a window (the gain
+  steps say so).
+* **Nearest misses.**  The designs of those searches and of one search with
+  every target loosened (gain window + 6 dB, no other target; validity rules
+  stay), judged against the *original* request.  Only real designs whose pieces
+  the stock supplies for ``builds`` copies are kept; they are ordered by the
+  number of targets they miss, then by their distance (:func:`miss_distance`).
 * **Buy one value.**  The search is run on the drawer plus every E12 resistor
   and E6 capacitor within (a little beyond) the span of values the drawer holds
-  (at most 10 Ω–1 MΩ, 10 pF–1000 µF) as rows "to order"; a design
-  meeting the request with exactly one bought value names it.  This is a
-  suggestion, not a complete list.
+  (at most 10 Ω–1 MΩ, 10 pF–1000 µF) as rows "to order"; a design meeting the
+  request with exactly one bought value names it.  This is a suggestion, not a
+  complete list.
 
 Pure functions over plain objects; no I/O.
 """
@@ -28,26 +37,33 @@ from optimiser.design import Design
 from optimiser.request import Request
 from optimiser.stage import StageBatch
 
-__all__ = ["explain", "miss_distance", "relaxed", "TARGETS", "MISS_BUDGET_S", "BUY_BUDGET_S"]
+__all__ = ["explain", "miss_distance", "relaxed", "stock_shortfall", "miss_order", "TARGETS",
+           "MISS_BUDGET_S", "BUY_BUDGET_S", "RELAX_BUDGET_S", "GAIN_STEPS_DB"]
 
-#: Time budgets (s) of the two suggestion searches; they are heuristics, and a
-#: budget only shortens the list of suggestions.
+#: Time budgets (s) of the suggestion searches; a budget only shortens the list of
+#: suggestions (and a search stopped by it proves no "none within").
 MISS_BUDGET_S = 20.0
 BUY_BUDGET_S = 10.0
+RELAX_BUDGET_S = 10.0
+#: How far (dB) the gain window is widened, one step after the other, until a
+#: stock design meeting every other target falls inside it.
+GAIN_STEPS_DB = (3.0, 6.0, 12.0, 24.0, 48.0, 96.0)
+#: How many designs each relaxation search returns to choose the nearest from.
+RELAX_TOP = 20
 
 #: Targets of a request: key, metric, sense ("max": metric ≤ limit, "min": ≥).
 TARGETS = (("f_low_max_hz", "f_low_hz", "max"), ("f_high_min_hz", "f_high_hz", "min"),
            ("zin_min_ohm", "zin_ohm", "min"), ("ic_drift_max_pct", "ic_drift_pct", "max"),
-           ("thd_max_pct", "thd_pct", "max"))
+           ("thd_max_pct", "thd_pct", "max"), ("ic_min_a", "ic_a", "min"))
 UNITS = {"f_low_max_hz": "Hz", "f_high_min_hz": "Hz", "zin_min_ohm": "Ω",
-         "ic_drift_max_pct": "%", "thd_max_pct": "%"}
+         "ic_drift_max_pct": "%", "thd_max_pct": "%", "ic_min_a": "A"}
 
 
 def relaxed(request: Request) -> Request:
     """The request with its targets loosened (validity rules are not relaxable)."""
     return replace(request, gain_tol_db=request.gain_tol_db + 6.0, f_low_max_hz=None,
                    f_high_min_hz=None, zin_min_ohm=None, ic_drift_max_pct=None,
-                   thd_max_pct=None, min_yield_pct=None)
+                   thd_max_pct=None, ic_min_a=None, min_yield_pct=None)
 
 
 def _shortfalls(request: Request, m: dict) -> dict[str, float]:
@@ -63,8 +79,6 @@ def _shortfalls(request: Request, m: dict) -> dict[str, float]:
         if lim is None:
             continue
         if v is None or not math.isfinite(v):
-            if key == "f_high_min_hz" and v is None and m.get("_no_fhigh"):
-                out[key] = 1.0
             continue
         if sense == "max" and v > lim:
             out[key] = v / lim - 1.0
@@ -74,36 +88,60 @@ def _shortfalls(request: Request, m: dict) -> dict[str, float]:
 
 
 def miss_distance(request: Request, metrics: dict, valid: bool = True) -> float:
-    """Distance of a design's figures to the request (0 when it meets every target)."""
+    """Distance of a design's figures to the request (0 when it meets every target).
+
+    The sum over the targets missed of the normalised shortfall: the gain's dB
+    outside the window divided by gain_tol_db; an upper limit's value/limit − 1;
+    a lower limit's limit/value − 1.  An invalid design adds 10.
+    """
     return sum(_shortfalls(request, metrics).values()) + (0.0 if valid else 10.0)
 
 
+def miss_order(d: Design) -> tuple:
+    """Sort key of the nearest misses: fewest violations, then the smallest distance."""
+    return (len(d.violations), d.extra.get("miss_distance", math.inf))
+
+
+def stock_shortfall(design: Design, snapshot: StockSnapshot, builds: int) -> list[str]:
+    """Why the stock cannot supply ``builds`` copies of ``design`` (empty: it can).
+
+    Every piece must name a stock row; a row used by several roles is counted
+    once per use.
+    """
+    qty = {x.id: x.qty for x in (*snapshot.resistors, *snapshot.capacitors) if x.id is not None}
+    need: dict[int, int] = {}
+    out = []
+    for role, p in design.parts.items():
+        if not p.pieces:
+            out.append(f"{role} names no stock piece")
+        for piece in p.pieces:
+            if piece.id is None or piece.id not in qty:
+                out.append(f"{role} names no stock row")
+                continue
+            need[piece.id] = need.get(piece.id, 0) + piece.count * builds
+    for i, n in need.items():
+        if n > qty[i]:
+            out.append(f"stock row {i} holds {qty[i]}, {n} needed")
+    t = snapshot.transistor(design.transistor)
+    if t is None or t.qty < builds:
+        out.append(f"transistor {design.transistor}: fewer than {builds} in stock")
+    return out
+
+
 def _judge(request: Request, designs: list[Design], snapshot: StockSnapshot) -> list[Design]:
-    """Re-evaluate designs against ``request``; misses get violations and a distance."""
+    """Re-evaluate real stock designs against ``request``; misses get violations and a
+    distance.  Designs the stock cannot supply are dropped."""
     from optimiser.evaluate import evaluate
     out = []
+    seen = set()
     for d in designs:
+        key = (d.transistor, d.form, tuple(sorted((r, p.value) for r, p in d.parts.items())))
+        if key in seen or stock_shortfall(d, snapshot, request.builds):
+            continue
+        seen.add(key)
         t = snapshot.transistor(d.transistor)
         vals = {r: p.value for r, p in d.parts.items()}
-        b = StageBatch.from_values(d.topology, **vals)
-        ev = evaluate(request, b, t, None)
-        # the loosened search sized the capacitors for no f_low target: also try the
-        # largest capacitors in stock and keep whichever comes nearer
-        big = max((c.value for c in snapshot.capacitors if c.qty >= request.builds), default=None)
-        if big is not None and any(r.startswith("C_") for r in vals):
-            vals2 = {r: (big if r.startswith("C_") else v) for r, v in vals.items()}
-            ev2 = evaluate(request, StageBatch.from_values(d.topology, **vals2), t, None)
-            if miss_distance(request, ev2.metrics_of(0), bool(ev2.valid[0])) < miss_distance(
-                    request, ev.metrics_of(0), bool(ev.valid[0])):
-                ev = ev2
-                parts = dict(d.parts)
-                for r in parts:
-                    if r.startswith("C_"):
-                        parts[r] = replace(parts[r], value=big, label=format_value(big, "capacitor"),
-                                           pieces=tuple(replace(p, value=big, id=None,
-                                                                location="(largest in stock)")
-                                                        for p in parts[r].pieces))
-                d = replace(d, parts=parts)
+        ev = evaluate(request, StageBatch.from_values(d.topology, **vals), t, None)
         m = ev.metrics_of(0)
         for k in ("gain_inf_db", "hd2_pct", "supply_a"):
             if k in d.metrics:
@@ -115,74 +153,170 @@ def _judge(request: Request, designs: list[Design], snapshot: StockSnapshot) -> 
         out.append(replace(d, metrics=m, meets_spec=False, violations=viol, rank=None,
                            extra={**d.extra, "miss_distance": dist,
                                   "shortfalls": _shortfalls(request, m)}))
-    out.sort(key=lambda d: d.extra["miss_distance"])
+    out.sort(key=miss_order)
     return out
 
 
 def _fmt(x: float, unit: str) -> str:
     from inventory.values import format_si
-    return format_si(x, unit) if unit != "%" else f"{x:.3g} %"
+    if unit == "%":
+        return f"{x:.3g} %"
+    if unit == "dB":
+        return f"{x:.1f} dB"
+    return format_si(x, unit)
 
 
-def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats: dict):
-    """(nearest misses, unlock suggestions) for a request nothing in stock meets."""
+def _outward(x: float, sense: str) -> float:
+    """``x`` to three significant figures, rounded so that ``x`` still meets it."""
+    if x <= 0 or not math.isfinite(x):
+        return x
+    e = 10 ** (math.floor(math.log10(x)) - 2)
+    return (math.ceil(x / e) if sense == "max" else math.floor(x / e)) * e
+
+
+def _meets(request: Request, d: Design, snapshot: StockSnapshot) -> bool:
+    """The engine's verdict on design ``d`` against ``request`` (the proof of an unlock)."""
+    from optimiser.evaluate import evaluate
+    ev = evaluate(request, StageBatch.from_values(d.topology, **d.values()),
+                  snapshot.transistor(d.transistor), None)
+    return bool(ev.meets[0])
+
+
+def _run(request: Request, snapshot: StockSnapshot, stats: dict, name: str):
+    """(designs, complete) of the exact search of ``request`` within RELAX_BUDGET_S."""
+    from optimiser.search import search_designs
+    s: dict = {"pruned": {}}
+    found, _ = search_designs(request, snapshot, RELAX_TOP, s, budget_s=RELAX_BUDGET_S)
+    stats.setdefault("relax_searches", {})[name] = len(found)
+    return found, not s.get("stopped_at_budget", False)
+
+
+def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits):
+    """(designs found, change) for the gain target, or (designs, None)."""
+    base = replace(request, min_yield_pct=None)
+    tol = request.gain_tol_db
+    # a physical limit already proves the window empty up to its bound
+    reach = next((x["reachable"] for x in limits if x["target"] == "gain_db"), None)
+    empty_within = tol if reach is None else max(tol, request.gain_db - reach)
+    steps = [d for d in GAIN_STEPS_DB if tol + d > empty_within]
+    if reach is not None and (not steps or steps[0] > empty_within - tol + 3.0):
+        steps = [empty_within - tol + 3.0] + steps
+    for d in steps:
+        found, complete = _run(replace(base, gain_tol_db=tol + d), snapshot, stats,
+                               f"gain_tol_db {tol + d:g}")
+        if not found:
+            if complete:
+                empty_within = max(empty_within, tol + d)
+            else:
+                break
+            continue
+        best = min(found, key=lambda x: abs(x.metrics["gain_db"] - request.gain_db))
+        g = float(best.metrics["gain_db"])
+        new_db = round(g, 1)
+        new_tol = math.ceil((abs(g - request.gain_db)) * 100 + 1e-9) / 100
+        proof = "a stock design meets every other target at this gain (found by the exact " \
+                "search with the gain window widened)"
+        if not (_meets(replace(base, gain=10 ** (new_db / 20)), best, snapshot)
+                and _meets(replace(base, gain_tol_db=new_tol), best, snapshot)):
+            return found, None
+        change = {"target": "gain_db", "from": request.gain_db, "to": new_db, "unit": "dB",
+                  "gain_tol_db_to": new_tol, "proof": proof,
+                  "none_within_db": empty_within if empty_within > tol else None}
+        return found, change
+    return [], None
+
+
+def _relax_limit(request: Request, key: str, snapshot: StockSnapshot, stats: dict):
+    """(designs found, change) for one limit target relaxed (removed), or (designs, None)."""
+    metric, sense = {k: (mm, s) for k, mm, s in TARGETS}[key]
+    found, _ = _run(replace(request, **{key: None}, min_yield_pct=None), snapshot, stats,
+                    f"without {key}")
+    vals = [(float(d.metrics[metric]), d) for d in found
+            if d.metrics.get(metric) is not None and math.isfinite(d.metrics[metric])]
+    if not vals:
+        return found, None
+    v, best = (max if sense == "min" else min)(vals, key=lambda x: x[0])
+    new = _outward(v, sense)
+    if not _meets(replace(request, **{key: new}, min_yield_pct=None), best, snapshot):
+        return found, None
+    change = {"target": key, "from": getattr(request, key), "to": new, "unit": UNITS[key],
+              "proof": f"a stock design meets every other target at this limit (found by the "
+                       f"exact search without the {key} target)"}
+    return found, change
+
+
+def unlock_text(request: Request, c: dict) -> str:
+    """One line of advice for an unlock change."""
+    if c["target"] == "gain_db":
+        text = (f"relax gain_db from {c['from']:.1f} to {c['to']:.1f} dB (or gain_tol_db from "
+                f"{request.gain_tol_db:g} to {c['gain_tol_db_to']:.2f} dB): {c['proof']}")
+        if c.get("none_within_db"):
+            text += f"; none lies within ± {c['none_within_db']:.3g} dB of {c['from']:.1f} dB"
+        return text
+    return (f"relax {c['target']} from {_fmt(c['from'], c['unit'])} to "
+            f"{_fmt(c['to'], c['unit'])}: {c['proof']}")
+
+
+def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats: dict,
+            limits=()):
+    """(nearest misses, unlock advice, unlock changes) for a request nothing in stock meets.
+
+    ``limits`` are the request's physical limits (:func:`optimiser.search.physical_limits`).
+    """
     from optimiser.search import search_designs
 
-    unlock: list[str] = []
     ts = [t for t in snapshot.transistors]
     if request.transistor != "any" and snapshot.transistor(request.transistor):
         ts = [snapshot.transistor(request.transistor)]
     if not ts:
-        return [], ["no transistor in stock: add one (stock import) to design anything"]
+        return [], ["no transistor in stock: add one (stock import) to design anything"], []
     usable = [t for t in ts if t.qty >= request.builds]
     if not usable:
-        return [], [f"no transistor type has {request.builds} pieces for {request.builds} builds"]
+        return [], [f"no transistor type has {request.builds} pieces for "
+                    f"{request.builds} builds"], []
     rated = [t for t in usable if t.vceo is None or request.supply_v <= t.vceo]
     if not rated:
         best = max(t.vceo for t in usable)
         return [], [f"no stocked transistor is rated for {request.supply_v:g} V (highest vceo "
-                    f"{best:g} V): lower supply_v to {best:g} V or buy a higher-voltage type"]
-    s2: dict = {"pruned": {}}
-    loose = relaxed(request)
-    found, _ = search_designs(loose, snapshot, max(4 * misses, 20), s2, budget_s=MISS_BUDGET_S)
-    stats["misses_search"] = {k: v for k, v in s2.items() if k != "pruned"}
-    judged = _judge(request, found, snapshot)
+                    f"{best:g} V): lower supply_v to {best:g} V or buy a higher-voltage type"], []
+    candidates: list[Design] = []
+    changes: list[dict] = []
+    # past a physical limit nothing unlocks the request but relaxing the limited
+    # targets: the other relaxations would search in vain
+    only = {x["target"] for x in limits} or None
+    if request.gain is not None and (only is None or "gain_db" in only):
+        found, change = _relax_gain(request, snapshot, stats, list(limits))
+        candidates += found
+        if change:
+            changes.append(change)
+    for key, _, _ in TARGETS:
+        if getattr(request, key) is None or (only is not None and key not in only):
+            continue
+        found, change = _relax_limit(request, key, snapshot, stats)
+        candidates += found
+        if change:
+            changes.append(change)
+    if not any(x["target"] == "gain_db" for x in limits):
+        s2: dict = {"pruned": {}}
+        found, _ = search_designs(relaxed(request), snapshot, max(4 * misses, 20), s2,
+                                  budget_s=MISS_BUDGET_S)
+        stats["misses_search"] = {k: v for k, v in s2.items() if k != "pruned"}
+        candidates += found
+    judged = _judge(request, candidates, snapshot)
     nearest = judged[:misses]
     for r, d in enumerate(nearest, 1):
         d.rank = r
-    # one target relaxed
-    best: dict[str, tuple[float, float]] = {}
-    for d in judged:
-        sf = d.extra["shortfalls"]
-        if len(sf) != 1 or len(d.violations) != 1:
-            continue
-        (key, amount), = sf.items()
-        if key not in best or amount < best[key][0]:
-            need = (abs(d.metrics["gain_db"] - request.gain_db) if key == "gain_db"
-                    else _needed(key, d.metrics))
-            best[key] = (amount, need)
-    for key, (_, need) in sorted(best.items(), key=lambda kv: kv[1][0]):
-        if key == "gain_db":
-            unlock.append(f"relax gain_tol_db from {request.gain_tol_db:g} to "
-                          f"{need + 0.005:.2f} dB")
-        else:
-            unit = UNITS[key]
-            unlock.append(f"relax {key} from {_fmt(getattr(request, key), unit)} to "
-                          f"{_fmt(need, unit)}")
-    # one value bought
-    try:
-        unlock += _buy_one(request, snapshot)
-    except Exception as exc:  # a suggestion only; never fail the answer for it
-        stats["buy_one_error"] = str(exc)
+    unlock = [unlock_text(request, c) for c in changes]
+    # one value bought (a topology's gain limit no part can lift)
+    if not any(x["target"] == "gain_db" for x in limits):
+        try:
+            unlock += _buy_one(request, snapshot)
+        except Exception as exc:  # a suggestion only; never fail the answer for it
+            stats["buy_one_error"] = str(exc)
     if not unlock:
-        unlock.append("no single relaxed target or single bought value found; "
-                      "see the nearest misses")
-    return nearest, unlock
-
-
-def _needed(key: str, m: dict) -> float:
-    metric = {k: mm for k, mm, _ in TARGETS}[key]
-    return float(m[metric])
+        unlock.append("no single relaxed target or single bought value found within the "
+                      "searches' time budgets; see the nearest misses")
+    return nearest, unlock, changes
 
 
 def _virtual(snapshot: StockSnapshot) -> StockSnapshot:

@@ -9,7 +9,8 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
-__all__ = ["TOPOLOGIES", "Request", "parse_request", "load_request", "REQUEST_KEYS"]
+__all__ = ["TOPOLOGIES", "Request", "parse_request", "load_request", "REQUEST_KEYS",
+           "DEFAULTS", "NO_LIMIT"]
 
 TOPOLOGIES = ("ce", "cb", "cc")
 
@@ -30,6 +31,7 @@ class Request:
     temp_c: tuple[float, float] = (25.0, 25.0)
     input_vpk: float = 0.01
     thd_max_pct: float | None = None
+    ic_min_a: float | None = None          # least quiescent collector current, A
     builds: int = 1
     transistor: str = "any"
     allow_combos: bool = False
@@ -37,6 +39,8 @@ class Request:
     yield_samples: int | None = None       # None: yield not asked for (unless min_yield_pct)
     seed: int = 0
     mains: bool = False                    # the supply is derived from the mains (cautions)
+    #: keys the file left out whose default (:data:`DEFAULTS`) was filled in
+    assumed: tuple[str, ...] = ()
 
     @property
     def gain_db(self) -> float | None:
@@ -54,6 +58,7 @@ class Request:
         d = asdict(self)
         d["temp_c"] = list(self.temp_c)
         d["gain_db"] = self.gain_db
+        d["assumed"] = list(self.assumed)
         return d
 
 
@@ -66,10 +71,19 @@ class Request:
 REQUEST_KEYS = (
     "topology", "supply_v", "load_ohm", "source_ohm", "mid_hz", "gain_db", "gain",
     "gain_tol_db", "f_low_max_hz", "f_high_min_hz", "zin_min_ohm", "ic_drift_max_pct",
-    "temp_c", "input_vpk", "thd_max_pct", "builds", "transistor", "allow_combos",
+    "temp_c", "input_vpk", "thd_max_pct", "ic_min_a", "builds", "transistor", "allow_combos",
     "min_yield_pct", "yield_samples", "seed", "mains",
 )
 CIRCUIT_KEYS = ("parts", "tolerances")
+#: Targets a request file gets when it leaves them out, so that an unstated target
+#: never ranks a stage a bench would refuse (common practice: a stage distorting
+#: more than a few per cent at its stated input level, or biased at a few
+#: microamperes where leakage and noise set the point, is not a working stage).
+#: The THD ceiling applies at the request's ``input_vpk``.  Write the key to change
+#: it, or ``"none"`` to have no limit.
+DEFAULTS = {"thd_max_pct": 5.0, "ic_min_a": 100e-6}
+#: What a key's value may be to mean "no limit" (TOML has no null).
+NO_LIMIT = ("none", "off")
 #: Largest supply the tool accepts, V (single-supply small-signal stages).
 MAX_SUPPLY_V = 400.0
 #: Resistances a request may name (load, source, Z_in bound), ohm: 1 mΩ to 1 TΩ.
@@ -101,19 +115,36 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     Values may be numbers (SI) or text with SI prefixes (``"10k"``, ``"100e3"``,
     ``"250M"``).  Unknown keys, wrong types and out-of-range numbers raise
     :class:`~inventory.errors.InputError` naming ``file``, the line (when the
-    TOML ``text`` is given) and the key.
+    TOML ``text`` is given) and the key; several bad keys raise one
+    :class:`~inventory.errors.InputErrors` holding every one of them.  Targets of
+    :data:`DEFAULTS` the mapping leaves out are filled in and listed in
+    ``Request.assumed``.
     """
+    from contextlib import contextmanager
+
     from inventory import values as V
-    from inventory.errors import InputError
+    from inventory.errors import InputError, InputErrors
 
     def err(key, msg):
         return InputError(msg, file=file, line=_line_of(text, key), field=key)
 
     if not isinstance(mapping, dict):
         raise InputError("a request must be a table of key = value", file=file)
+    errors: list[InputError] = []
+
+    @contextmanager
+    def collect():
+        """Note a bad key and go on with the next, so that every bad key is reported."""
+        try:
+            yield
+        except InputErrors as e:
+            errors.extend(e.errors)
+        except InputError as e:
+            errors.append(e)
+
     for key in mapping:
         if key not in REQUEST_KEYS and key not in extra_keys:
-            raise err(key, f"unknown key '{key}' (known: {', '.join(REQUEST_KEYS)})")
+            errors.append(err(key, f"unknown key '{key}' (known: {', '.join(REQUEST_KEYS)})"))
 
     def num(key, value, *, lo=None, hi=None, lo_open=False, integer=False, reader=None):
         if isinstance(value, bool):
@@ -143,88 +174,123 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
             raise err(key, f"{value!r} is out of range: must be ≤ {hi:g}")
         return x
 
+    def no_limit(value) -> bool:
+        return isinstance(value, str) and value.strip().lower() in NO_LIMIT
+
     ohm = lambda v: V.parse_value(v, "resistor") if isinstance(v, str) else float(v)  # noqa: E731
     hz = lambda v: V.parse_frequency(v, positive=False)  # noqa: E731
     volt = lambda v: V.parse_voltage(v, positive=False)  # noqa: E731
+    amp = lambda v: V.parse_value(v) if isinstance(v, str) else float(v)  # noqa: E731
 
     kw: dict = {}
-    if "topology" not in mapping:
-        raise err("topology", "missing required key 'topology' (ce, cb or cc)")
-    topo = mapping["topology"]
-    if not isinstance(topo, str) or topo.strip().lower() not in TOPOLOGIES:
-        raise err("topology", f"unknown topology {topo!r}: use ce, cb or cc")
-    kw["topology"] = topo.strip().lower()
-    if "supply_v" not in mapping:
-        raise err("supply_v", "missing required key 'supply_v' (the supply voltage)")
-    kw["supply_v"] = num("supply_v", mapping["supply_v"], lo=0, lo_open=True, hi=MAX_SUPPLY_V,
-                         reader=volt)
     m = mapping
-    if "load_ohm" in m:
-        lo = m["load_ohm"]
-        kw["load_ohm"] = None if (isinstance(lo, str) and lo.strip().lower() in ("", "none", "open")) \
-            else num("load_ohm", lo, lo=MIN_OHM, hi=MAX_OHM, reader=ohm)
-    if "source_ohm" in m:
-        kw["source_ohm"] = num("source_ohm", m["source_ohm"], lo=0, hi=MAX_OHM, reader=ohm)
-    if "mid_hz" in m:
-        kw["mid_hz"] = num("mid_hz", m["mid_hz"], lo=1e-3, hi=100e9, reader=hz)
-    if "gain_db" in m and "gain" in m:
-        raise err("gain", "give either gain_db or gain, not both")
-    if "gain_db" in m:
-        db = num("gain_db", m["gain_db"], lo=-100, hi=200)
-        kw["gain"] = 10.0 ** (db / 20.0)
-    if "gain" in m:
-        kw["gain"] = num("gain", m["gain"], lo=0, lo_open=True, hi=1e9)
-    if "gain_tol_db" in m:
-        kw["gain_tol_db"] = num("gain_tol_db", m["gain_tol_db"], lo=0, lo_open=True, hi=60)
+    with collect():
+        if "topology" not in mapping:
+            raise err("topology", "missing required key 'topology' (ce, cb or cc)")
+        topo = mapping["topology"]
+        if not isinstance(topo, str) or topo.strip().lower() not in TOPOLOGIES:
+            raise err("topology", f"unknown topology {topo!r}: use ce, cb or cc")
+        kw["topology"] = topo.strip().lower()
+    with collect():
+        if "supply_v" not in mapping:
+            raise err("supply_v", "missing required key 'supply_v' (the supply voltage)")
+        kw["supply_v"] = num("supply_v", mapping["supply_v"], lo=0, lo_open=True,
+                             hi=MAX_SUPPLY_V, reader=volt)
+    with collect():
+        if "load_ohm" in m:
+            lo = m["load_ohm"]
+            kw["load_ohm"] = None if (isinstance(lo, str) and lo.strip().lower()
+                                      in ("", "none", "open")) \
+                else num("load_ohm", lo, lo=MIN_OHM, hi=MAX_OHM, reader=ohm)
+    with collect():
+        if "source_ohm" in m:
+            kw["source_ohm"] = num("source_ohm", m["source_ohm"], lo=0, hi=MAX_OHM, reader=ohm)
+    with collect():
+        if "mid_hz" in m:
+            kw["mid_hz"] = num("mid_hz", m["mid_hz"], lo=1e-3, hi=100e9, reader=hz)
+    with collect():
+        if "gain_db" in m and "gain" in m:
+            raise err("gain", "give either gain_db or gain, not both")
+        if "gain_db" in m:
+            db = num("gain_db", m["gain_db"], lo=-100, hi=200)
+            kw["gain"] = 10.0 ** (db / 20.0)
+        if "gain" in m:
+            kw["gain"] = num("gain", m["gain"], lo=0, lo_open=True, hi=1e9)
+    with collect():
+        if "gain_tol_db" in m:
+            kw["gain_tol_db"] = num("gain_tol_db", m["gain_tol_db"], lo=0, lo_open=True, hi=60)
     for key in ("f_low_max_hz", "f_high_min_hz"):
-        if key in m:
-            kw[key] = num(key, m[key], lo=0, lo_open=True, hi=100e9, reader=hz)
-    if "zin_min_ohm" in m:
-        kw["zin_min_ohm"] = num("zin_min_ohm", m["zin_min_ohm"], lo=0, lo_open=True, hi=MAX_OHM,
-                                reader=ohm)
-    if "ic_drift_max_pct" in m:
-        kw["ic_drift_max_pct"] = num("ic_drift_max_pct", m["ic_drift_max_pct"], lo=0,
-                                     lo_open=True, hi=1000)
-    if "temp_c" in m:
-        t = m["temp_c"]
-        if isinstance(t, (int, float)) and not isinstance(t, bool):
-            t = [t, t]
-        if not isinstance(t, list) or len(t) != 2:
-            raise err("temp_c", f"expected two temperatures [low, high] in °C, got {t!r}")
-        a = num("temp_c", t[0], lo=-60, hi=150)
-        b = num("temp_c", t[1], lo=-60, hi=150)
-        if a > b:
-            raise err("temp_c", f"the low end {a:g} °C is above the high end {b:g} °C")
-        kw["temp_c"] = (a, b)
-    if "input_vpk" in m:
-        kw["input_vpk"] = num("input_vpk", m["input_vpk"], lo=0, lo_open=True,
-                              hi=kw["supply_v"], reader=volt)
-    if "thd_max_pct" in m:
-        kw["thd_max_pct"] = num("thd_max_pct", m["thd_max_pct"], lo=0, lo_open=True, hi=100)
-    if "builds" in m:
-        kw["builds"] = num("builds", m["builds"], lo=1, hi=1e6, integer=True)
-    if "transistor" in m:
-        tr = m["transistor"]
-        if isinstance(tr, str):
-            if not tr.strip():
-                raise err("transistor", "empty transistor label")
-            kw["transistor"] = tr.strip()
-        elif isinstance(tr, dict) and "transistor" in extra_keys:
-            kw["transistor"] = "inline"
-        else:
-            raise err("transistor", f"expected a stock label or \"any\", got {tr!r}")
+        with collect():
+            if key in m:
+                kw[key] = num(key, m[key], lo=0, lo_open=True, hi=100e9, reader=hz)
+    with collect():
+        if "zin_min_ohm" in m:
+            kw["zin_min_ohm"] = num("zin_min_ohm", m["zin_min_ohm"], lo=0, lo_open=True,
+                                    hi=MAX_OHM, reader=ohm)
+    with collect():
+        if "ic_drift_max_pct" in m:
+            kw["ic_drift_max_pct"] = num("ic_drift_max_pct", m["ic_drift_max_pct"], lo=0,
+                                         lo_open=True, hi=1000)
+    with collect():
+        if "temp_c" in m:
+            t = m["temp_c"]
+            if isinstance(t, (int, float)) and not isinstance(t, bool):
+                t = [t, t]
+            if not isinstance(t, list) or len(t) != 2:
+                raise err("temp_c", f"expected two temperatures [low, high] in °C, got {t!r}")
+            a = num("temp_c", t[0], lo=-60, hi=150)
+            b = num("temp_c", t[1], lo=-60, hi=150)
+            if a > b:
+                raise err("temp_c", f"the low end {a:g} °C is above the high end {b:g} °C")
+            kw["temp_c"] = (a, b)
+    with collect():
+        if "input_vpk" in m:
+            kw["input_vpk"] = num("input_vpk", m["input_vpk"], lo=0, lo_open=True,
+                                  hi=kw.get("supply_v", MAX_SUPPLY_V), reader=volt)
+    assumed = []
+    for key, lo, hi, reader in (("thd_max_pct", 0, 100, None), ("ic_min_a", 0, 1.0, amp)):
+        with collect():
+            if key not in m:
+                kw[key] = DEFAULTS[key]
+                assumed.append(key)
+            elif no_limit(m[key]):
+                kw[key] = None
+            else:
+                kw[key] = num(key, m[key], lo=lo, lo_open=True, hi=hi, reader=reader)
+    with collect():
+        if "builds" in m:
+            kw["builds"] = num("builds", m["builds"], lo=1, hi=1e6, integer=True)
+    with collect():
+        if "transistor" in m:
+            tr = m["transistor"]
+            if isinstance(tr, str):
+                if not tr.strip():
+                    raise err("transistor", "empty transistor label")
+                kw["transistor"] = tr.strip()
+            elif isinstance(tr, dict) and "transistor" in extra_keys:
+                kw["transistor"] = "inline"
+            else:
+                raise err("transistor", f"expected a stock label or \"any\", got {tr!r}")
     for key in ("allow_combos", "mains"):
-        if key in m:
-            if not isinstance(m[key], bool):
-                raise err(key, f"expected true or false, got {m[key]!r}")
-            kw[key] = m[key]
-    if "min_yield_pct" in m:
-        kw["min_yield_pct"] = num("min_yield_pct", m["min_yield_pct"], lo=0, hi=100)
-    if "yield_samples" in m:
-        kw["yield_samples"] = num("yield_samples", m["yield_samples"], lo=1, hi=1e7, integer=True)
-    if "seed" in m:
-        kw["seed"] = num("seed", m["seed"], lo=0, hi=2**63 - 1, integer=True)
-    return Request(**kw)
+        with collect():
+            if key in m:
+                if not isinstance(m[key], bool):
+                    raise err(key, f"expected true or false, got {m[key]!r}")
+                kw[key] = m[key]
+    with collect():
+        if "min_yield_pct" in m:
+            kw["min_yield_pct"] = num("min_yield_pct", m["min_yield_pct"], lo=0, hi=100)
+    with collect():
+        if "yield_samples" in m:
+            kw["yield_samples"] = num("yield_samples", m["yield_samples"], lo=1, hi=1e7,
+                                      integer=True)
+    with collect():
+        if "seed" in m:
+            kw["seed"] = num("seed", m["seed"], lo=0, hi=2**63 - 1, integer=True)
+    if errors:
+        errors.sort(key=lambda e: (e.line is None, e.line or 0))
+        raise errors[0] if len(errors) == 1 else InputErrors(errors)
+    return Request(**kw, assumed=tuple(assumed))
 
 
 def read_toml(path) -> tuple[dict, str]:

@@ -4,8 +4,10 @@ The public entry is :func:`search`.  It is complete: every design it does not
 examine is discarded by a bound that cannot remove a design the engine would
 accept (each bound is documented in docs/search.md).  Steps:
 
-1. **Validate** the request against what the topology can do at all
-   (:func:`check_request`); contradictions are :class:`InputError`.
+1. **Validate** the request (:func:`check_request`; a request with no
+   passband is an :class:`InputError`) and compare it with what the topology
+   can do at all (:func:`physical_limits`): a target beyond that is answered
+   as infeasible without searching.
 2. **Bias networks** (per transistor type and form): every (R1, R2) pair
    against the sorted array of DC emitter resistances; the collector current
    follows in closed form (:mod:`optimiser.prune`) for the two extreme Early
@@ -35,7 +37,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from inventory.errors import InputError, InputErrors
+from inventory.errors import InputError
 from inventory.parts import StockSnapshot, Transistor
 from optimiser.design import Design
 from optimiser.options import (
@@ -48,7 +50,7 @@ from optimiser.score import STOCK_PENALTY, degeneration, hd2_pct, score_gain_tar
 from optimiser.stage import PartRatings, StageBatch
 from optimiser.workers import split_branch_and_bound, worker_count
 
-__all__ = ["SearchResult", "search", "check_request", "FORMS", "SHORT_F",
+__all__ = ["SearchResult", "search", "check_request", "physical_limits", "FORMS", "SHORT_F",
            "gain_window", "Skeletons"]
 
 #: Capacitance standing for "shorted" in the skeleton pass (F).
@@ -67,6 +69,8 @@ B15_MARGIN = 1.003          # the tighter ce gain bound of B6 at the bias level 
 DRIFT_REL_SLACK = 0.05       # × (V+1)/V_AF, relative margin on the bias drift bound
 DRIFT_ABS_SLACK = 0.01       # percentage points (with the relative margin alone the bound
                              # stayed ≤ 0.9986 of the engine's drift on 10^5 random stages)
+IC_MIN_MARGIN = 1.001        # the top of the current bracket widened by this against the
+                             # least-current target (B1 holds with no margin in the tests)
 DRIFT_BOUND_CAP_PCT = 20.0   # the bound claims no more than this (B2 fails for huge drifts)
 CHUNK = 400_000
 CAP_ENUM_LIMIT = 4096
@@ -84,61 +88,74 @@ def gain_window(request: Request) -> tuple[float, float] | None:
 
 
 def check_request(request: Request, snapshot: StockSnapshot | None = None) -> None:
-    """Raise :class:`InputErrors` for targets that contradict each other or the topology.
+    """Raise :class:`InputError` for targets that contradict each other.
 
-    One line per problem:
-
-    * f_high_min_hz at or below f_low_max_hz;
-    * a gain no stage of this topology can reach from this supply and load
-      (cc: above 1; ce, cb: above the supply/V_T limit, or, with a load and a
-      source, above what they allow);
-    * a Z_in bound above what the bias divider (ce, cc) or the emitter
-      resistor (cb) built from this drawer can offer.
+    Only a request that leaves nothing to search for is refused: f_high_min_hz
+    at or below f_low_max_hz (no passband).  A target beyond what the topology
+    or the drawer can reach is an answer, not bad input: see
+    :func:`physical_limits`.
     """
-    from optimiser.device import thermal_voltage
-
-    errs: list[InputError] = []
     r = request
     if r.f_low_max_hz is not None and r.f_high_min_hz is not None \
             and r.f_high_min_hz <= r.f_low_max_hz:
-        errs.append(InputError(
+        raise InputError(
             f"f_high_min_hz ({r.f_high_min_hz:g} Hz) must lie above f_low_max_hz "
-            f"({r.f_low_max_hz:g} Hz): no passband is left", field="f_high_min_hz"))
+            f"({r.f_low_max_hz:g} Hz): no passband is left", field="f_high_min_hz")
+
+
+def physical_limits(request: Request, snapshot: StockSnapshot | None = None) -> list[dict]:
+    """Targets no stage of this topology (or built from this drawer) can reach.
+
+    Each is ``{"target", "requested", "reachable", "unit", "reason"}`` with
+    ``reachable`` the proven bound (the target must move at least to it):
+
+    * gain_db: a follower's gain is below 1 (0 dB); a ce or cb stage's is below
+      V_supply/V_T (g_m·R_C = I_C·R_C/V_T < V_supply/V_T), and a cb stage's
+      below R_L/R_S (i_e ≤ v_s/R_S, v_out ≤ i_e·R_L);
+    * zin_min_ohm: Z_in is below R1‖R2 ≤ R_max/2 (ce, cc) or below RE ≤ R_max
+      (cb), R_max the largest resistor in stock (twice it with combinations).
+    """
+    from optimiser.device import thermal_voltage
+
+    out: list[dict] = []
+    r = request
     win = gain_window(r)
     if win is not None:
         lo = win[0]
-        if r.topology == "cc" and lo >= 1.0:
-            errs.append(InputError(
-                f"a common-collector stage has a gain below 1 (0 dB); {r.gain_db:.1f} dB "
-                f"± {r.gain_tol_db:g} dB cannot be met", field="gain_db"))
-        elif r.topology in ("ce", "cb"):
+        limit, why = None, ""
+        if r.topology == "cc":
+            limit, why = 1.0, "a common-collector stage (emitter follower) has a gain below 1"
+        else:
             vt = thermal_voltage(min(r.temp_c))
             limit = r.supply_v / vt       # g_m·R_C ≤ I_C·R_C/V_T < V_supply/V_T
-            why = f"V_supply/V_T = {limit:.0f} V/V ({20 * math.log10(limit):.1f} dB)"
+            why = (f"a {r.topology} stage from {r.supply_v:g} V reaches less than "
+                   f"V_supply/V_T = {limit:.0f} V/V")
             if r.load_ohm and r.source_ohm and r.topology == "cb":
                 lim2 = r.load_ohm / r.source_ohm   # i_e ≤ v_s/R_S, v_out ≤ i_e·R_L
                 if lim2 < limit:
-                    limit, why = lim2, (f"R_L/R_S = {lim2:.3g} V/V "
-                                        f"({20 * math.log10(lim2):.1f} dB) for a common-base stage")
-            if lo >= limit:
-                errs.append(InputError(
-                    f"gain {r.gain_db:.1f} dB ± {r.gain_tol_db:g} dB is above what a {r.topology} "
-                    f"stage can reach from {r.supply_v:g} V: at most {why}", field="gain_db"))
-    if r.zin_min_ohm is not None and snapshot is not None and snapshot.resistors:
-        rmax = max(x.value for x in snapshot.resistors if x.qty > 0) if any(
-            x.qty > 0 for x in snapshot.resistors) else 0.0
-        if r.allow_combos:
-            rmax *= 2.0
+                    limit = lim2
+                    why = (f"a cb stage from a {r.source_ohm:g} Ω source into "
+                           f"{r.load_ohm:g} Ω reaches less than R_L/R_S = {lim2:.3g} V/V")
+        if lo >= limit:
+            reach = 20 * math.log10(limit)
+            out.append({"target": "gain_db", "requested": r.gain_db, "reachable": reach,
+                        "unit": "dB",
+                        "reason": f"{why} ({reach:.1f} dB); {r.gain_db:.1f} dB ± "
+                                  f"{r.gain_tol_db:g} dB cannot be met"})
+    if r.zin_min_ohm is not None and snapshot is not None:
+        stocked = [x.value for x in snapshot.resistors if x.qty > 0]
+        rmax = max(stocked, default=0.0) * (2.0 if r.allow_combos else 1.0)
         if r.topology in ("ce", "cc"):
             bound, what = rmax / 2.0, "R1‖R2"
         else:
             bound, what = rmax, "RE"
         if rmax > 0 and r.zin_min_ohm >= bound:
-            errs.append(InputError(
-                f"zin_min_ohm {r.zin_min_ohm:g} Ω is above what a {r.topology} stage built from "
-                f"this drawer can offer (Z_in < {what} ≤ {bound:g} Ω)", field="zin_min_ohm"))
-    if errs:
-        raise errs[0] if len(errs) == 1 else InputErrors(errs)
+            out.append({"target": "zin_min_ohm", "requested": r.zin_min_ohm, "reachable": bound,
+                        "unit": "Ω",
+                        "reason": f"a {r.topology} stage built from this drawer has Z_in below "
+                                  f"{what} ≤ {bound:g} Ω (the largest resistor in stock "
+                                  f"{rmax:g} Ω)"})
+    return out
 
 
 # ---------------------------------------------------------------------------
@@ -154,6 +171,10 @@ class SearchResult:
     nearest_misses: list[Design]
     unlock: list[str]
     stats: dict = field(default_factory=dict)
+    #: targets beyond the topology's (or the drawer's) reach (:func:`physical_limits`)
+    limits: list[dict] = field(default_factory=list)
+    #: each unlock as data: target, from, to, proof (docs/answers.md)
+    unlock_changes: list[dict] = field(default_factory=list)
 
     def to_json(self) -> dict:
         return {
@@ -162,6 +183,8 @@ class SearchResult:
             "designs": [d.to_json() for d in self.designs],
             "nearest_misses": [d.to_json() for d in self.nearest_misses],
             "unlock": list(self.unlock),
+            "limits": [dict(x) for x in self.limits],
+            "unlock_changes": [dict(x) for x in self.unlock_changes],
             "search": {
                 "complete": bool(self.stats.get("complete", True)),
                 "proven_ranks": int(self.stats.get("proven_ranks", len(self.designs))),
@@ -529,6 +552,12 @@ class _Job:
         if self.drift_first:        # (B2: ce only, see __init__)
             s, lb_s = self._drift_stage(s, lb_s, v_th, r_th, r_big, q_top, d_lb, upper)
         ic_hi[s] = bias_current(v_th[s], r_th[s], r_small[s], model, 25.0, None, q_top[s])
+        if self.request.ic_min_a is not None:
+            # the least-current target (docs/answers.md): the nominal I_C is at most the
+            # top of the bracket (B1), so a span whose top is below ic_min_a holds none
+            keep = ic_hi[s] * IC_MIN_MARGIN >= self.request.ic_min_a
+            self.count("ic_min", int((~keep).sum()))
+            s, lb_s = s[keep], lb_s[keep]
         if self.topo == "cc":
             # B13: a follower's gain is at most k_in·A_f, the divider's share of the
             # source (Z_in ≤ R_TH) times RE‖RL over r_e + RE‖RL
@@ -1174,11 +1203,12 @@ def _cap_free_ok(ev) -> np.ndarray:
     """Skeleton-pass checks that no choice of capacitors can change.
 
     Validity (operating point, corners, transistor limits, resistor derating
-    at the best ratings in stock), the drift target and a missing ft/cob.
+    at the best ratings in stock), the drift and least-current targets and a
+    missing ft/cob.
     """
     fails = ev.target_fail()
     ok = np.asarray(ev.valid, dtype=bool).copy()
-    for key in ("ic_drift_pct", "f_high_hz"):   # f_high here only: "transistor lacks ft/cob"
+    for key in ("ic_drift_pct", "ic_a", "f_high_hz"):   # f_high here only: "transistor lacks ft/cob"
         if key in fails:
             ok &= ~np.asarray(fails[key], dtype=bool)
     return ok
@@ -1232,6 +1262,18 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
     import optimiser.evaluate  # noqa: F401  (loads the engine's modules outside the timing)
     t0 = time.perf_counter()
     stats: dict = {"pruned": {}}
+    limits = physical_limits(request, snapshot)
+    if limits:
+        # proven infeasible by the bound alone: no search of this request, only the
+        # nearest misses and unlocks (each from searches of its own)
+        stats.update(complete=True, proven_ranks=0, searched=False)
+        result = SearchResult(request, False, [], [], [], stats, limits=limits)
+        if misses > 0:
+            from optimiser.misses import explain
+            result.nearest_misses, result.unlock, result.unlock_changes = explain(
+                request, snapshot, [], misses, stats, limits=limits)
+        stats["seconds"] = time.perf_counter() - t0
+        return result
     want = top * 3 if request.min_yield_pct is not None else top
     designs, pool = search_designs(request, snapshot, want, stats, progress,
                                    budget_s=time_limit_s)
@@ -1248,9 +1290,11 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
     if request.wants_yield and designs:
         designs = _with_yield(request, snapshot, designs, top, stats)
     result = SearchResult(request, bool(designs), designs, [], [], stats)
-    if not designs and misses > 0:
+    if not designs and misses > 0 and complete:
+        # (a search stopped at its time limit proves nothing: no misses or unlocks then)
         from optimiser.misses import explain
-        result.nearest_misses, result.unlock = explain(request, snapshot, pool, misses, stats)
+        result.nearest_misses, result.unlock, result.unlock_changes = explain(
+            request, snapshot, pool, misses, stats)
     stats["seconds"] = time.perf_counter() - t0
     return result
 

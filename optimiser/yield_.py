@@ -142,8 +142,10 @@ def _target_fails(request: Request, fig: dict, model) -> dict[str, np.ndarray]:
             fails["f_high_hz"] = np.isfinite(f) & (f < request.f_high_min_hz)
     if request.zin_min_ohm is not None:
         fails["zin_ohm"] = ~(fig["zin_ohm"] >= request.zin_min_ohm)
-    if request.thd_max_pct is not None:
+    if request.thd_max_pct is not None and "thd_pct" in fig:
         fails["thd_pct"] = ~(fig["thd_pct"] <= request.thd_max_pct)
+    if getattr(request, "ic_min_a", None) is not None and "ic_a" in fig:
+        fails["ic_a"] = ~(fig["ic_a"] >= request.ic_min_a)
     return fails
 
 

@@ -58,6 +58,12 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None,
 
     show_analysis(design, ev, 0, c, yres)
     _show_cautions(notes)
+    from drawerfit.console import out
+    from drawerfit.render.designs import assumed_line
+
+    line = assumed_line(c.request)
+    if line:
+        out.print(line)
     if sheet_dir is not None:
         sheet_for_circuit(sheet_dir, design, ev, c, yres)
     if spice_file is not None:

@@ -40,7 +40,7 @@ def run_design(request, snapshot, *, top: int, progress: bool,
 
     limit = time_limit_s if time_limit_s else None
     if not progress:
-        return search(request, snapshot, top=top, time_limit_s=limit)
+        return search(request, snapshot, top=top, misses=top, time_limit_s=limit)
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
     with Progress(TextColumn("[dim]{task.description}"), BarColumn(),
@@ -50,13 +50,13 @@ def run_design(request, snapshot, *, top: int, progress: bool,
         def tick(done, total, text):
             bar.update(task, completed=done, total=total, description=text)
 
-        return search(request, snapshot, top=top, progress=tick, time_limit_s=limit)
+        return search(request, snapshot, top=top, misses=top, progress=tick, time_limit_s=limit)
 
 
 @click.command(name="design")
 @click.argument("request_file", metavar="REQUEST.toml", type=click.Path())
 @click.option("--top", "top", type=click.IntRange(1, 100), default=5, show_default=True,
-              help="How many ranked designs to show.")
+              help="How many ranked designs (or nearest misses) to show.")
 @click.option("--json", "as_json", is_flag=True, help="Print JSON instead of tables (shape: docs/json.md).")
 @click.option("--time-limit", "time_limit", type=click.FloatRange(0), default=DEFAULT_TIME_LIMIT_S,
               show_default=True, metavar="SECONDS",
@@ -72,7 +72,9 @@ def command(app, request_file: str, top: int, as_json: bool, time_limit: float =
     """Find the best stages you can build from your drawer for REQUEST.toml.
 
     Prints the ranked designs with the bin of every part, or, when nothing in
-    stock meets the request, the nearest misses and what would unlock it.
+    stock meets the request, the nearest misses and what would unlock it (exit
+    code 0: that is an answer).  Targets the file leaves out get the defaults
+    the output names (thd_max_pct, ic_min_a; "none" for no limit).
     Request keys and defaults: docs/requests.md; the figures: docs/model.md.
     --sheet and --spice write the design chosen with --rank (default 1).
     """

@@ -14,11 +14,11 @@ from inventory.values import format_si
 from optimiser.design import Design
 
 __all__ = ["show_result", "why_first", "parts_cell", "figure_text", "capacitor_line",
-           "capacitor_rating_text"]
+           "capacitor_rating_text", "assumed_line", "limit_lines", "summary_line"]
 
 _TERM_WORDS = {"gain": "distance to the gain target", "drift": "bias drift",
                "distortion": "junction distortion (HD2)", "current": "supply current",
-               "stock": "stock left in the bins"}
+               "stock": "stock left in the bins", "headroom": "headroom of the quiescent point"}
 
 
 def _si(x, unit: str) -> str:
@@ -164,10 +164,11 @@ def why_first(a: Design, b: Design) -> str:
         "current": lambda: f"supply current {_si(ma.get('supply_a'), 'A')} vs "
                            f"{_si(mb.get('supply_a'), 'A')}",
         "stock": lambda: "it leaves more pieces in the bins",
-    }[key]()
+        "headroom": lambda: f"V_CE {_si(ma.get('vce_v'), 'V')} vs {_si(mb.get('vce_v'), 'V')}",
+    }.get(key, lambda: f"its {key} term")()
     if tb.get(key, 0.0) - ta.get(key, 0.0) <= 0:
         return f"#1 and #2 are all but equal (score {a.score:.3f} vs {b.score:.3f})."
-    return (f"#1 beats #2 on {_TERM_WORDS[key]}: {detail} "
+    return (f"#1 beats #2 on {_TERM_WORDS.get(key, key)}: {detail} "
             f"(score {a.score:.3f} vs {b.score:.3f}).")
 
 
@@ -226,6 +227,8 @@ def show_result(console: Console, result, cautions_for=None) -> None:
                       "run again with a longer --time-limit (0: no limit).")
     else:
         console.print("[bold]No design from your drawer meets the request.[/bold]")
+        for line in limit_lines(result):
+            console.print(line)
         if result.nearest_misses:
             console.print(_table(result.nearest_misses, "Nearest misses", misses=True))
         if result.unlock:
@@ -239,9 +242,61 @@ def show_result(console: Console, result, cautions_for=None) -> None:
                       f"{'rank 1' if n == 1 else f'ranks 1–{n}' if n else 'no rank'} proven best; "
                       f"no unexamined design scores below {bound:.3f}. "
                       "Use --time-limit 0 to search to the end.")
-    console.print(f"[dim]searched in {st.get('seconds', 0):.2f} s: "
-                  f"{st.get('collector_candidates', 0)} stages bounded, "
-                  f"{st.get('confirmed_skeletons', 0)} confirmed by the full engine[/dim]")
+    line = assumed_line(req)
+    if line:
+        console.print(line)
+    console.print(f"[dim]{summary_line(st)}[/dim]")
+
+
+def assumed_line(request) -> str:
+    """One line naming the defaults filled in for targets the request left out."""
+    from optimiser.request import DEFAULTS
+
+    keys = list(getattr(request, "assumed", ()) or ())
+    if not keys:
+        return ""
+    said = []
+    for k in keys:
+        v = getattr(request, k, DEFAULTS.get(k))
+        if k == "thd_max_pct":
+            said.append(f"THD <= {v:g} % at {format_si(request.input_vpk, 'V')} peak")
+        elif k == "ic_min_a":
+            said.append(f"I_C >= {format_si(v, 'A')}")
+        else:
+            said.append(f"{k} = {v:g}")
+    return (f"assumed: {', '.join(said)}; set {' / '.join(keys)} to change "
+            f"(\"none\": no limit)")
+
+
+def limit_lines(result) -> list[str]:
+    """The physical limits a request runs into, in words with the figures."""
+    out = []
+    for x in getattr(result, "limits", []) or []:
+        unit = x.get("unit", "")
+        if unit == "dB":
+            req, reach = f"{x['requested']:.1f} dB", f"{x['reachable']:.1f} dB"
+        else:
+            req, reach = _si(x["requested"], unit), _si(x["reachable"], unit)
+        out.append(f"beyond reach: {x['target']} {req} asked, at most {reach} possible "
+                   f"— {x['reason']}")
+    return out
+
+
+def summary_line(st: dict) -> str:
+    """What the search counted (counts left out when nothing was searched)."""
+    secs = f"{st.get('seconds', 0):.2f} s"
+    if st.get("searched") is False:
+        return f"answered in {secs}: the request is beyond the stage's reach, so it was not " \
+               "searched; the misses and unlocks come from searches of relaxed requests"
+    parts = []
+    if st.get("collector_candidates"):
+        parts.append(f"{st['collector_candidates']} stages bounded")
+    if st.get("confirmed_skeletons"):
+        parts.append(f"{st['confirmed_skeletons']} confirmed by the full engine")
+    if not parts:
+        return f"searched in {secs}: every candidate was discarded by the bounds before " \
+               "the collector side"
+    return f"searched in {secs}: {', '.join(parts)}"
 
 
 def st_complete(result) -> bool:

@@ -99,8 +99,8 @@ def test_infeasible_request_is_an_answer(store, tmp_path, monkeypatch):
     assert out["unlock"]
 
 
-def test_contradiction_exits_2_with_one_line(store, tmp_path):
-    r = run(store, tmp_path, REQUEST.replace("gain = 0.9", "gain = 3.0"))
+def test_no_passband_exits_2_with_one_line(store, tmp_path):
+    r = run(store, tmp_path, REQUEST + "f_high_min_hz = 50\n")
     assert r.exit_code == 2
     lines = [x for x in r.stderr.splitlines() if x.strip()]
-    assert len(lines) == 1 and "req.toml" in lines[0] and "gain" in lines[0]
+    assert len(lines) == 1 and "req.toml" in lines[0] and "f_high_min_hz" in lines[0]

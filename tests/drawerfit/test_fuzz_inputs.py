@@ -302,4 +302,8 @@ def test_common_base_with_extreme_load_and_source_is_refused_not_a_crash(tmp_pat
     text = ('topology = "cb"\nsupply_v = 12\nload_ohm = 1e-300\nsource_ohm = 1e300\n'
             "gain = 5\n")
     r, p = _design(tmp_path, design_store, text)
-    _one_problem(r, p, "load_ohm")
+    # both bad keys are reported, one line each
+    assert r.exit_code == 2, (r.output, r.exception)
+    lines = r.stderr.strip("\n").split("\n")
+    assert len(lines) == 2 and all(x.startswith(f"drawerfit: {p}") for x in lines), lines
+    assert ": load_ohm: " in lines[0] and ": source_ohm: " in lines[1]

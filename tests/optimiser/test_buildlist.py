@@ -139,3 +139,27 @@ def test_bad_inline_request_is_named_inside_the_build(folder):
         load_buildlist(p)
     assert info.value.field.startswith("build[1].request")
     assert info.value.file == str(p)
+
+
+def test_every_bad_key_of_an_inline_request_is_reported(folder):
+    from inventory.errors import InputErrors
+
+    p = write(folder, """\
+        [[build]]
+        count = 1
+        [build.request]
+        topology = "cc"
+        supply_v = -9
+        colour = "red"
+        """)
+    with pytest.raises(InputErrors) as e:
+        load_buildlist(p)
+    fields = {x.field for x in e.value.errors}
+    assert fields == {"build[1].request.supply_v", "build[1].request.colour"}
+    assert all(x.file and x.file.endswith("list.toml") and x.line for x in e.value.errors)
+    # the request defaults apply to a build list's requests as to a request file
+    ok = write(folder, """\
+        [[build]]
+        request = "reqs/preamp.toml"
+        """, name="ok.toml")
+    assert set(load_buildlist(ok).builds[0].request.assumed) == {"thd_max_pct", "ic_min_a"}

@@ -102,3 +102,33 @@ def test_stock_references_resolved_through_the_store():
     assert c.values["RC"] == 4700 and c.stock_ids["RC"] == 12
     assert c.tolerances["RC"] == 0.01 and float(c.ratings.power_w["RC"]) == 0.5
     assert c.transistor.label == "GP-N1"
+
+
+def test_unstated_targets_get_the_documented_defaults():
+    from optimiser.request import DEFAULTS
+
+    r = parse_request({"topology": "ce", "supply_v": 12})
+    assert r.assumed == ("thd_max_pct", "ic_min_a")
+    assert r.thd_max_pct == DEFAULTS["thd_max_pct"] and r.ic_min_a == DEFAULTS["ic_min_a"]
+    assert r.to_json()["assumed"] == ["thd_max_pct", "ic_min_a"]
+    # a value given is kept and not assumed; "none" switches a default off
+    r = parse_request({"topology": "ce", "supply_v": 12, "thd_max_pct": 2, "ic_min_a": "none"})
+    assert r.assumed == () and r.thd_max_pct == 2.0 and r.ic_min_a is None
+    assert parse_request({"topology": "cb", "supply_v": 9, "ic_min_a": "250u"}).ic_min_a \
+        == pytest.approx(250e-6)
+    for bad in (0, -1e-3, "abc", True):
+        with pytest.raises(InputError) as e:
+            parse_request({"topology": "ce", "supply_v": 12, "ic_min_a": bad})
+        assert e.value.field == "ic_min_a"
+
+
+def test_several_bad_keys_are_all_reported():
+    from inventory.errors import InputErrors
+
+    text = 'topology = "ce"\nsupply_v = 0\nfoo = 1\nthd_max_pct = 200\nbar = 2\n'
+    import tomllib
+    with pytest.raises(InputErrors) as e:
+        parse_request(tomllib.loads(text), file="r.toml", text=text)
+    got = [(x.line, x.field) for x in e.value.errors]
+    assert got == [(2, "supply_v"), (3, "foo"), (4, "thd_max_pct"), (5, "bar")]
+    assert str(e.value).splitlines()[0].startswith("r.toml:2: supply_v:")

@@ -28,20 +28,48 @@ def drawer(qty=10, decades=(2, 3, 4, 5)):
     return StockSnapshot(tuple(res), tuple(caps), (T,))
 
 
-@pytest.mark.parametrize("kw, field", [
-    (dict(topology="ce", f_low_max_hz=1e4, f_high_min_hz=1e3), "f_high_min_hz"),
-    (dict(topology="cc", gain=2.0), "gain_db"),
-    # ce gain < g_m·R_C = I_C·R_C/V_T < V_supply/V_T ≈ 467 at 12 V, 25 °C
-    (dict(topology="ce", gain=1000.0), "gain_db"),
-    (dict(topology="cb", gain=100.0, load_ohm=1e4, source_ohm=600.0), "gain_db"),
-    (dict(topology="cc", zin_min_ohm=1e7), "zin_min_ohm"),
-])
-def test_contradictory_requests_are_input_errors(kw, field):
-    req = Request(supply_v=12.0, **kw)
+def test_a_request_without_a_passband_is_an_input_error():
+    req = Request(supply_v=12.0, topology="ce", f_low_max_hz=1e4, f_high_min_hz=1e3)
     with pytest.raises(InputError) as e:
         check_request(req, drawer())
-    assert e.value.field == field
+    assert e.value.field == "f_high_min_hz"
     assert "\n" not in str(e.value)
+
+
+@pytest.mark.parametrize("kw, target, reach_db", [
+    # a follower's gain is below 1 (0 dB)
+    (dict(topology="cc", gain=2.0), "gain_db", 0.0),
+    # ce gain < g_m·R_C = I_C·R_C/V_T < V_supply/V_T, V_T = kT/q at 25 °C from
+    # scipy.constants (12 V / 25.69 mV ≈ 467 V/V ≈ 53.4 dB)
+    (dict(topology="ce", gain=1000.0), "gain_db", None),
+    # cb: v_out ≤ i_e·R_L with i_e ≤ v_s/R_S, so gain ≤ R_L/R_S = 10k/600 (24.4 dB)
+    (dict(topology="cb", gain=100.0, load_ohm=1e4, source_ohm=600.0), "gain_db",
+     20 * np.log10(1e4 / 600.0)),
+    # Z_in of a follower < R1‖R2 ≤ R_max/2 = 820k/2
+    (dict(topology="cc", zin_min_ohm=1e7), "zin_min_ohm", None),
+])
+def test_targets_beyond_reach_are_limits_not_errors(kw, target, reach_db):
+    from scipy import constants as k
+
+    from optimiser.search import physical_limits
+
+    req = Request(supply_v=12.0, **kw)
+    check_request(req, drawer())            # readable: no InputError
+    lims = physical_limits(req, drawer())
+    assert [x["target"] for x in lims] == [target]
+    x = lims[0]
+    assert x["reason"] and x["requested"] is not None
+    if target == "gain_db" and reach_db is None:
+        vt = k.k * (25.0 + k.zero_Celsius) / k.e
+        reach_db = 20 * np.log10(12.0 / vt)
+    if reach_db is not None:
+        assert abs(x["reachable"] - reach_db) < 0.05
+        assert x["reachable"] < x["requested"]
+    if target == "zin_min_ohm":
+        assert x["reachable"] == pytest.approx(8.2e5 / 2)
+    res = search(req, drawer(), top=2, misses=0)
+    assert res.feasible is False and res.designs == [] and res.limits == lims
+    assert res.to_json()["limits"] == lims and res.to_json()["feasible"] is False
 
 
 def test_sensible_request_passes_the_checks():

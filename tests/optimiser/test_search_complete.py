@@ -130,7 +130,10 @@ def cases(draw):
         ic_drift_max_pct=draw(st.sampled_from([None, 25.0])),
         zin_min_ohm=draw(st.sampled_from([None, None, 2e3, 10e3])),
         temp_c=(0.0, 50.0), builds=builds, mid_hz=draw(st.sampled_from([1e3, 1e3, 1e5])),
-        input_vpk=draw(st.sampled_from([0.001, 0.01, 0.05])))
+        input_vpk=draw(st.sampled_from([0.001, 0.01, 0.05])),
+        # the request file's defaults (optimiser.request.DEFAULTS) and other values
+        thd_max_pct=draw(st.sampled_from([None, None, 1.0, 5.0])),
+        ic_min_a=draw(st.sampled_from([None, 1e-4, 1e-4, 1e-3])))
     return req, StockSnapshot(tuple(res), tuple(caps), (t,))
 
 
