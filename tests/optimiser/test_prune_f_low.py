@@ -1,0 +1,114 @@
+"""The f_low floors of optimiser/f_low_bounds.py: against scipy's analog response of a
+first-order high-pass (the lemma's section) and against the engine's f_low on random
+stages (never above it)."""
+
+import math
+import zlib
+
+import numpy as np
+import pytest
+from scipy import signal
+
+from inventory.parts import Transistor
+from optimiser.ac import EDGE_DB
+from optimiser.evaluate import evaluate
+from optimiser.f_low_bounds import (edge_floor_hz, f_low_floor, largest_capacitance,
+                                    loop_resistance_needed)
+from optimiser.request import Request
+from optimiser.stage import StageBatch
+
+T = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=60.0)
+
+
+def _section_edge(r, c, mid):
+    """Where the first-order high-pass R–C (scipy.signal.freqs, analog) is EDGE_DB
+    below its value at mid: bisection on a log grid of the exact response."""
+    b, a = [r * c, 0.0], [r * c, 1.0]
+    _, hm = signal.freqs(b, a, worN=[2 * math.pi * mid])
+    lo, hi = math.log(1e-6), math.log(mid)
+    for _ in range(200):
+        x = 0.5 * (lo + hi)
+        _, h = signal.freqs(b, a, worN=[2 * math.pi * math.exp(x)])
+        if abs(h[0]) < abs(hm[0]) * 10 ** (-EDGE_DB / 20):
+            lo = x
+        else:
+            hi = x
+    return math.exp(lo)
+
+
+@pytest.mark.parametrize("r, c, mid", [(1e4, 1e-6, 1e3), (600.0, 10e-6, 1e3),
+                                       (1e5, 100e-9, 1e5), (2e3, 1e-6, 200.0)])
+def test_floor_is_the_section_edge_without_slack(r, c, mid):
+    # with no slack (K = 1) the floor is exactly the edge of the section (scipy's
+    # analog frequency response of b = [RC, 0], a = [RC, 1])
+    got = float(edge_floor_hz(c, r, mid, slack_db=0.0))
+    want = _section_edge(r, c, mid)
+    assert got == pytest.approx(want, rel=1e-9)
+    # a flat band that may rise 1 dB lowers the floor, never raises it
+    assert float(edge_floor_hz(c, r, mid)) < got
+
+
+def test_needed_resistance_inverts_the_floor():
+    rng = np.random.default_rng(1)
+    for _ in range(200):
+        c = 10 ** rng.uniform(-8, -3)
+        mid = 10 ** rng.uniform(2, 6)
+        f = 10 ** rng.uniform(-2, math.log10(mid) - 0.5)
+        r = loop_resistance_needed(f, c, mid)
+        assert float(edge_floor_hz(c, r, mid)) == pytest.approx(f, rel=1e-9)
+        assert float(edge_floor_hz(c, r * 0.99, mid)) > f       # less R: a higher floor
+        assert float(edge_floor_hz(c, r * 1.01, mid)) < f
+    # nothing is excluded where the target lies at or above the floor's ceiling
+    assert loop_resistance_needed(900.0, 1e-6, 1e3) == 0.0
+    # below the engine's first grid point (1 mHz) nothing is claimed
+    assert float(edge_floor_hz(1e-12, 1e15, 1e3)) == 0.0
+
+
+def test_largest_capacitance_counts_only_values_with_pieces():
+    assert largest_capacitance([1e-7, 1e-5, 1e-6], [True, False, True]) == 1e-6
+    assert largest_capacitance([]) == 0.0
+
+
+def _stages(topo, rng, n):
+    c = lambda: 10 ** rng.uniform(-7, -3, n)   # noqa: E731 (100 nF .. 1 mF)
+    if topo == "ce":
+        re = rng.uniform(0, 2e3, n) * (rng.random(n) < 0.7)
+        byp = rng.uniform(0, 2e3, n) * (rng.random(n) < 0.7)
+        vals = dict(R1=10 ** rng.uniform(3.5, 6, n), R2=10 ** rng.uniform(3, 5.5, n),
+                    RC=10 ** rng.uniform(2.3, 4.7, n), RE=re, RE_BYP=byp,
+                    C_BYP=np.where(byp > 0, c(), 0.0), C_IN=c(), C_OUT=c())
+    elif topo == "cb":
+        vals = dict(R1=10 ** rng.uniform(3.5, 6, n), R2=10 ** rng.uniform(3, 5.5, n),
+                    RC=10 ** rng.uniform(2.3, 4.7, n), RE=10 ** rng.uniform(2, 4.5, n),
+                    C_B=c(), C_IN=c(), C_OUT=c())
+    else:
+        vals = dict(R1=10 ** rng.uniform(3.5, 6, n), R2=10 ** rng.uniform(3, 5.5, n),
+                    RC=rng.uniform(0, 3e3, n) * (rng.random(n) < 0.3),
+                    RE=10 ** rng.uniform(2, 4.5, n), C_IN=c(), C_OUT=c())
+    return StageBatch.from_values(topo, **vals)
+
+
+@pytest.mark.parametrize("topo", ["ce", "cb", "cc"])
+@pytest.mark.parametrize("rs, rl, mid", [(50.0, 1e4, 1e3), (600.0, 2e3, 1e3),
+                                         (10e3, None, 1e3), (600.0, 1e4, 1e5)])
+def test_floor_never_above_the_engine(topo, rs, rl, mid, capsys):
+    # the claim "over this node, f_low >= floor" against the engine's nodal f_low on
+    # random valid stages; the tightness (floor / f_low, median) is printed
+    rng = np.random.default_rng(zlib.crc32(repr((topo, rs, rl, mid)).encode()))
+    b = _stages(topo, rng, 1500)
+    req = Request(topology=topo, supply_v=12.0, load_ohm=rl, source_ohm=rs, mid_hz=mid)
+    ev = evaluate(req, b, T, None, band_edges=True, large_signal=False, corner_gain=False)
+    f_low = np.asarray(ev.metrics["f_low_hz"], dtype=float)
+    rth = b.R1 * b.R2 / (b.R1 + b.R2)
+    floor = f_low_floor(topo, b.C_IN, b.C_OUT, mid, rs, rl, rth, b.RC, b.RE + b.RE_BYP)
+    ok = np.asarray(ev.valid, dtype=bool)
+    assert ok.sum() > 200
+    claimed = ok & (floor > 0)
+    # a floor above 0 claims an edge: the engine must find one, at or above it
+    assert np.all(np.isfinite(f_low[claimed]))
+    ratio = floor[claimed] / f_low[claimed]
+    assert ratio.max() <= 1.0 + 1e-9, ratio.max()
+    with capsys.disabled():
+        print(f"\n  f_low floor {topo} R_S={rs:g} R_L={rl} mid={mid:g}: {claimed.sum()} "
+              f"stages, floor/f_low median {np.median(ratio):.3f}, max {ratio.max():.4f}")
+    assert np.median(ratio) > 0.05        # not an empty claim
