@@ -47,9 +47,32 @@ Why the stages fit the lemma, and what is assumed:
 
 This is proven for the first-order section and rests on A1 for the reduction to
 one capacitor; it is checked against the engine's f_low on random stages in
-tests/optimiser/test_prune_f_low.py (never above it).  The bypass capacitors C_BYP
-and C_B are not bounded here: with either of them open the gain falls to a shelf,
-not to zero, so their floor depends on a ratio of gains this module does not bound.
+tests/optimiser/test_prune_f_low.py (never above it).
+
+The bypass capacitor (a shelf)
+------------------------------
+With C_BYP open a ce stage does not lose its gain: it falls to the gain G_open of
+the stage whose whole emitter resistance RE + RE_BYP is unbypassed, so C_BYP alone
+gives no floor (a tiny C_BYP makes a valid stage with no edge from it).  A floor
+needs the gain target: the engine's gain at mid_hz is at least the window's bottom
+G_lo.  The capacitor Z = RE_BYP/(1 + jωC·RE_BYP) sits between the node x and
+ground; by the extra element theorem H = H_∞/(1 + Z/R_A) with R_A the resistance
+the node sees (the null-output impedance is infinite: no collector current, no
+emitter current), so with u = ωC·RE_BYP and k = 1 + RE_BYP/R_A (H_open = H_∞/k)
+
+    |H|² = |H_open|²·k²(1 + u²)/(k² + u²) ≤ |H_open|²·(1 + u²)      (k ≥ 1).
+
+So where G_open·sqrt(1 + u²) < ρ·G_lo at f = f_low_max, every f up to it is below
+the engine's line and f_low > f_low_max.  G_open ≤ per_z·Z' (the search's gain
+ceiling per ohm of collector load, bound B6/B15, taken with RE + RE_BYP
+unbypassed), so a node needs Z' = RC‖R_L ≥ ρ·G_lo/(per_z·sqrt(1 + u²))
+(:func:`bypass_load_needed`).  By A1 the other capacitors, shorted, only raise the
+gain at mid_hz and lower f_low.  The infinite null-output impedance neglects the
+base–collector junction's own conduction: against the engine's nodal response
+(random stages, 0.1 Hz to mid_hz) |H|/(|H_open|·sqrt(1 + u²)) reached 1.00097, on
+stages within half a volt of saturation, so the bound is taken with
+:data:`BYPASS_SHELF_MARGIN`.  C_B of a common-base stage (also a shelf) is not
+bounded.
 """
 
 from __future__ import annotations
@@ -62,13 +85,19 @@ from .ac import EDGE_DB, F_MIN_HZ
 from .evaluate import FLAT_PASSBAND_DB
 
 __all__ = [
+    "BYPASS_SHELF_MARGIN",
     "edge_floor_hz",
     "loop_resistance_needed",
     "largest_capacitance",
     "input_loop_max",
     "output_loop_max",
     "f_low_floor",
+    "bypass_load_needed",
 ]
+
+
+#: Margin of the shelf lemma (measured at most 1.00097 of it against the engine).
+BYPASS_SHELF_MARGIN = 1.01
 
 
 def _edge_factor(slack_db: float) -> float:
@@ -159,3 +188,24 @@ def f_low_floor(topology: str, c_in_max: float, c_out_max: float, mid_hz: float,
     fout = edge_floor_hz(c_out_max, output_loop_max(topology, load_ohm, rc, re_total),
                          mid_hz, slack_db)
     return np.maximum(fin, fout)
+
+
+def bypass_load_needed(gain_lo, per_z, c_max: float, r_byp, f_low_max: float):
+    """The least collector load Z' = RC‖R_L (ohm) a ce stage with a bypassed
+    RE_BYP needs for f_low ≤ ``f_low_max`` and a mid_hz gain ≥ ``gain_lo`` when its
+    gain with C_BYP open is at most ``per_z``·Z' and C_BYP ≤ ``c_max``: below it,
+    over this node, f_low > f_low_max (the shelf lemma of the module).
+
+    ρ·G_lo/(per_z·sqrt(1 + u²)·margin), u = 2π·f·c_max·RE_BYP, f = max(f_low_max, 1 mHz);
+    0 where there is no bypass resistor or no capacitor.
+    """
+    r = np.asarray(r_byp, dtype=float)
+    f = max(float(f_low_max), F_MIN_HZ)
+    u = 2.0 * math.pi * f * float(c_max) * r
+    rho = 10.0 ** (-EDGE_DB / 20.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = rho * np.asarray(gain_lo, dtype=float) / (np.asarray(per_z, dtype=float)
+                                                      * np.sqrt(1.0 + u * u)
+                                                      * BYPASS_SHELF_MARGIN)
+    z = np.nan_to_num(z, nan=0.0, posinf=np.inf)
+    return np.where((r > 0) & (c_max > 0), z, 0.0)

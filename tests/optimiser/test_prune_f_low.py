@@ -12,7 +12,7 @@ from scipy import signal
 from inventory.parts import Transistor
 from optimiser.ac import EDGE_DB
 from optimiser.evaluate import evaluate
-from optimiser.f_low_bounds import (edge_floor_hz, f_low_floor, largest_capacitance,
+from optimiser.f_low_bounds import (BYPASS_SHELF_MARGIN, edge_floor_hz, f_low_floor, largest_capacitance,
                                     loop_resistance_needed)
 from optimiser.request import Request
 from optimiser.stage import StageBatch
@@ -112,3 +112,79 @@ def test_floor_never_above_the_engine(topo, rs, rl, mid, capsys):
         print(f"\n  f_low floor {topo} R_S={rs:g} R_L={rl} mid={mid:g}: {claimed.sum()} "
               f"stages, floor/f_low median {np.median(ratio):.3f}, max {ratio.max():.4f}")
     assert np.median(ratio) > 0.05        # not an empty claim
+
+
+def _response(req, b, f):
+    from optimiser.ac import frequency_response
+    from optimiser.dc import operating_point
+    from optimiser.device import device_from_transistor
+
+    model = device_from_transistor(T)
+    op = operating_point(b.topology, req.supply_v, b, model)
+    return np.abs(frequency_response(req, b, model, op, f)), op
+
+
+@pytest.mark.parametrize("rs, rl, mid", [(50.0, 1e4, 1e3), (600.0, 2e3, 1e3),
+                                         (10e3, None, 1e5)])
+def test_bypass_shelf_inequality_against_the_engine(rs, rl, mid, capsys):
+    # the shelf lemma: with C_BYP the only finite capacitor, |H(f)| ≤ |H_open(f)|·
+    # sqrt(1 + (2πf·C_BYP·RE_BYP)²), H_open the same stage with C_BYP open; the
+    # engine's nodal response at 0.1 Hz .. mid_hz on random partly and fully
+    # bypassed stages
+    rng = np.random.default_rng(zlib.crc32(repr((rs, rl, mid)).encode()))
+    n = 1500
+    byp = 10 ** rng.uniform(1.5, 4, n)
+    vals = dict(R1=10 ** rng.uniform(3.5, 6, n), R2=10 ** rng.uniform(3, 5.5, n),
+                RC=10 ** rng.uniform(2.3, 4.7, n), RE=rng.uniform(0, 1e3, n) * (rng.random(n) < 0.5),
+                RE_BYP=byp, C_IN=1.0, C_OUT=1.0)
+    cb = 10 ** rng.uniform(-7, -3, n)
+    req = Request(topology="ce", supply_v=12.0, load_ohm=rl, source_ohm=rs, mid_hz=mid)
+    f = np.logspace(-1, math.log10(mid), 25)
+    h, op = _response(req, StageBatch.from_values("ce", C_BYP=cb, **vals), f)
+    h_open, _ = _response(req, StageBatch.from_values("ce", C_BYP=0.0, **vals), f)
+    live = (op.ic > 1e-6) & (op.vce > 0.3)
+    u = 2 * math.pi * f[:, None] * cb[None, :] * byp[None, :]
+    ratio = (h / (h_open * np.sqrt(1 + u * u)))[:, live]
+    # near saturation the base-collector junction conducts: the margin covers it
+    assert ratio.max() <= BYPASS_SHELF_MARGIN, ratio.max()
+    with capsys.disabled():
+        print(f"\n  bypass shelf R_S={rs:g} R_L={rl} mid={mid:g}: {live.sum()} stages x "
+              f"{f.size} f, |H|/bound median {np.median(ratio):.3f}, max {ratio.max():.4f}")
+
+
+@pytest.mark.parametrize("rs, rl", [(50.0, 1e4), (600.0, 2e3), (10e3, None)])
+def test_bypass_floor_never_above_the_engine(rs, rl):
+    # the shelf claim as the search takes it, on random stages with every capacitor
+    # finite: the gain with C_BYP open (C_IN, C_OUT shorted, at mid_hz — what the
+    # search's per-ohm ceiling bounds) and the mid_hz gain as the window's bottom;
+    # where Z' is below bypass_load_needed at f, the engine's f_low is above f
+    from optimiser.f_low_bounds import bypass_load_needed
+
+    rng = np.random.default_rng(zlib.crc32(repr((rs, rl, "floor")).encode()))
+    n = 2000
+    mid = 1e3
+    byp = 10 ** rng.uniform(1.5, 4, n)
+    vals = dict(R1=10 ** rng.uniform(3.5, 6, n), R2=10 ** rng.uniform(3, 5.5, n),
+                RC=10 ** rng.uniform(2.3, 4.7, n),
+                RE=rng.uniform(0, 1e3, n) * (rng.random(n) < 0.5), RE_BYP=byp)
+    caps = dict(C_IN=10 ** rng.uniform(-6, -3, n), C_OUT=10 ** rng.uniform(-6, -3, n),
+                C_BYP=10 ** rng.uniform(-6, -3, n))
+    req = Request(topology="ce", supply_v=12.0, load_ohm=rl, source_ohm=rs, mid_hz=mid)
+    b = StageBatch.from_values("ce", **vals, **caps)
+    ev = evaluate(req, b, T, None, band_edges=True, large_signal=False, corner_gain=False)
+    f_low = np.asarray(ev.metrics["f_low_hz"], dtype=float)
+    g_mid = np.asarray(ev.metrics["gain"], dtype=float)
+    h_open, _ = _response(req, StageBatch.from_values("ce", C_IN=1.0, C_OUT=1.0, C_BYP=0.0,
+                                                      **vals), [mid])
+    z = vals["RC"] if rl is None else vals["RC"] * rl / (vals["RC"] + rl)
+    per_z = h_open[0] / z
+    ok = np.asarray(ev.valid, dtype=bool)
+    checked = 0
+    for f in (0.3, 1.0, 3.0, 10.0, 30.0):
+        # the floor's claim for the stage's own C_BYP (c_max = the stage's value)
+        need = np.array([float(bypass_load_needed(g_mid[i], per_z[i], caps["C_BYP"][i],
+                                                  byp[i], f)) for i in range(n)])
+        claimed = ok & (z < need)
+        checked += int(claimed.sum())
+        assert np.all(f_low[claimed] > f), (f, f_low[claimed].min())
+    assert checked > 50
