@@ -93,11 +93,18 @@ __all__ = [
     "output_loop_max",
     "f_low_floor",
     "bypass_load_needed",
+    "cb_emitter_impedance_max",
+    "CB_EMITTER_MARGIN",
 ]
 
 
 #: Margin of the shelf lemma (measured at most 1.00097 of it against the engine).
 BYPASS_SHELF_MARGIN = 1.01
+
+
+#: Margin of the common-base emitter impedance bound (measured against the engine:
+#: at most 1.0074 of it unmargined, near saturation with a 50 kΩ collector load).
+CB_EMITTER_MARGIN = 1.03
 
 
 def _edge_factor(slack_db: float) -> float:
@@ -209,3 +216,22 @@ def bypass_load_needed(gain_lo, per_z, c_max: float, r_byp, f_low_max: float):
                                                       * BYPASS_SHELF_MARGIN)
     z = np.nan_to_num(z, nan=0.0, posinf=np.inf)
     return np.where((r > 0) & (c_max > 0), z, 0.0)
+
+
+def cb_emitter_impedance_max(ic_lo, ic_hi, z_load_max, vaf: float, vt: float):
+    """Over common-base stages with I_C in [``ic_lo``, ``ic_hi``] and a collector
+    load RC‖R_L ≤ ``z_load_max``: the impedance looking into the emitter (base at AC
+    ground, C_B shorted) is at most the value returned (ohm).
+
+    With the base grounded, a test voltage v_e at the emitter draws
+    (g_m + 1/r_o)/(1 + Z'/r_o) + 1/r_π (collector current through the load and
+    r_o, plus the base current), so Z_e ≤ (1 + Z'/r_o)/g_m with g_m = I_C/V_T ≥
+    I_C,lo/V_T and r_o ≥ (V_AF − 1 V)/I_C,hi; times :data:`CB_EMITTER_MARGIN` for the
+    junction terms left out.  C_IN of a cb stage then sees at most
+    R_S + RE‖Z_e (by A1 with C_B and C_OUT shorted).
+    """
+    ic_lo = np.asarray(ic_lo, dtype=float)
+    ro = (vaf - 1.0) / np.asarray(ic_hi, dtype=float) if math.isfinite(vaf) else np.inf
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = vt / ic_lo * (1.0 + np.asarray(z_load_max, dtype=float) / ro) * CB_EMITTER_MARGIN
+    return np.where(ic_lo > 0, np.nan_to_num(z, nan=np.inf), np.inf)

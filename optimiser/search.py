@@ -413,6 +413,23 @@ class _Job:
             rc = z if not rl else np.where(z < rl, z * rl / (rl - z), np.inf)
         return np.nan_to_num(rc, nan=np.inf)
 
+    def _f_low_cb_input(self, re_tot, ic_lo, ic_hi, rc_max) -> np.ndarray:
+        """B20 for a cb node: True where C_IN's loop R_S + RE‖Z_e,max (Z_e from
+        :func:`optimiser.f_low_bounds.cb_emitter_impedance_max` with the collector
+        load up to RC_max‖R_L) stays below what f_low_max needs."""
+        from optimiser.device import thermal_voltage
+        from optimiser.f_low_bounds import cb_emitter_impedance_max
+
+        rl = self.request.load_ohm
+        z = np.maximum(rc_max, 0.0)
+        if rl:
+            z = np.where(np.isfinite(z), z * rl / (z + rl), rl)
+        ze = cb_emitter_impedance_max(ic_lo, ic_hi, z, float(self.model.vaf),
+                                      thermal_voltage(25.0))
+        with np.errstate(invalid="ignore"):
+            zin = np.where(np.isfinite(ze), re_tot * ze / (re_tot + ze), re_tot)
+        return float(self.request.source_ohm or 0.0) + zin < self.loop_need
+
     def _f_low_pairs(self, rth) -> np.ndarray:
         """B20 at the pairs (ce, cc): Z_in ≤ R_TH, so C_IN's loop is at most R_S + R_TH."""
         from optimiser.f_low_bounds import input_loop_max
@@ -1104,6 +1121,10 @@ class _Job:
             nb = np.minimum(np.searchsorted(self.rc_vals, rc_b * (1 - 1e-9), side="left"), nrc)
             self.count("f_low_bypass", np.maximum(nb - n0, 0).sum())
             n0 = np.maximum(n0, nb)
+        if topo == "cb" and self.loop_need > 0:     # B20: C_IN against RE‖Z_e
+            gone = self._f_low_cb_input(REv + BYv, ic_lo, ic_hi, rc_max)
+            self.count("f_low_input", (nrc - n0)[gone].sum())
+            n0 = np.where(gone, nrc, n0)
         if self.rc_need > 0:            # B20: C_OUT's loop R_L + RC must reach its need
             nf = np.minimum(np.searchsorted(self.rc_vals, self.rc_need, side="left"), nrc)
             self.count("f_low_output", np.maximum(nf - n0, 0).sum())

@@ -12,7 +12,10 @@ from scipy import signal
 from inventory.parts import Transistor
 from optimiser.ac import EDGE_DB
 from optimiser.evaluate import evaluate
-from optimiser.f_low_bounds import (BYPASS_SHELF_MARGIN, edge_floor_hz, f_low_floor, largest_capacitance,
+from optimiser.device import thermal_voltage
+from optimiser.f_low_bounds import (BYPASS_SHELF_MARGIN, CB_EMITTER_MARGIN,
+                                    cb_emitter_impedance_max,
+                                    edge_floor_hz, f_low_floor, largest_capacitance,
                                     loop_resistance_needed)
 from optimiser.request import Request
 from optimiser.stage import StageBatch
@@ -69,6 +72,31 @@ def test_largest_capacitance_counts_only_values_with_pieces():
     assert largest_capacitance([]) == 0.0
 
 
+def _load(rc, rl):
+    return rc if rl is None else rc * rl / (rc + rl)
+
+
+@pytest.mark.parametrize("rl", [1e3, 1e4, None])
+def test_cb_emitter_impedance_bound_against_the_engine(rl, capsys):
+    # |Z_in| of common-base stages (every capacitor 1 F) never above RE‖Z_e,max
+    rng = np.random.default_rng(zlib.crc32(repr(("cb", rl)).encode()))
+    b = _stages("cb", rng, 3000)
+    b = StageBatch.from_values("cb", R1=b.R1, R2=b.R2, RC=b.RC, RE=b.RE, C_IN=1.0, C_OUT=1.0,
+                               C_B=1.0)
+    req = Request(topology="cb", supply_v=12.0, load_ohm=rl, source_ohm=50.0)
+    ev = evaluate(req, b, T, None, band_edges=False, large_signal=False, corner_gain=False)
+    ok = np.asarray(ev.valid, dtype=bool)
+    ic = np.asarray(ev.metrics["ic_a"], dtype=float)
+    ze = cb_emitter_impedance_max(ic, ic, _load(b.RC, rl), T.vaf, thermal_voltage(25.0))
+    bound = b.RE * ze / (b.RE + ze)
+    ratio = np.asarray(ev.metrics["zin_ohm"], dtype=float)[ok] / bound[ok]
+    assert ok.sum() > 500
+    assert ratio.max() <= 1.0, ratio.max()
+    with capsys.disabled():
+        print(f"\n  cb Z_in / bound R_L={rl}: median {np.median(ratio):.4f}, "
+              f"max {ratio.max():.4f} (margin {CB_EMITTER_MARGIN})")
+
+
 def _stages(topo, rng, n):
     c = lambda: 10 ** rng.uniform(-7, -3, n)   # noqa: E731 (100 nF .. 1 mF)
     if topo == "ce":
@@ -101,6 +129,12 @@ def test_floor_never_above_the_engine(topo, rs, rl, mid, capsys):
     f_low = np.asarray(ev.metrics["f_low_hz"], dtype=float)
     rth = b.R1 * b.R2 / (b.R1 + b.R2)
     floor = f_low_floor(topo, b.C_IN, b.C_OUT, mid, rs, rl, rth, b.RC, b.RE + b.RE_BYP)
+    if topo == "cb":
+        # the common-base input: R_S + RE‖Z_e,max at the stage's own I_C
+        ic = np.asarray(ev.metrics["ic_a"], dtype=float)
+        ze = cb_emitter_impedance_max(ic, ic, _load(b.RC, rl), T.vaf, thermal_voltage(25.0))
+        loop = rs + b.RE * ze / (b.RE + ze)
+        floor = np.maximum(floor, edge_floor_hz(b.C_IN, loop, mid))
     ok = np.asarray(ev.valid, dtype=bool)
     assert ok.sum() > 200
     claimed = ok & (floor > 0)
