@@ -293,6 +293,7 @@ class _Job:
         rv = self.rv = opts.resistor.values
         rbest = opts.resistor.best_rating
         self.win = gain_window(request)
+        self.loop_need, self.rc_need = self._f_low_needs()
         # what does not depend on the transistor is built once per search (``cache``)
         cache = {} if cache is None else cache
         if "pairs" not in cache:
@@ -338,6 +339,10 @@ class _Job:
         keep = (V - vth) ** 2 / R1 <= RESISTOR_DERATING * rbest[i1] * (1 + 1e-9)
         pruned = int((~keep).sum())
         R1, R2, vth, rth = R1[keep], R2[keep], vth[keep], rth[keep]
+        # B20: C_IN's f_low floor needs R_S + R_TH (ce, cc)
+        keep = self._f_low_pairs(rth)
+        self.count("f_low_input", (~keep).sum())
+        R1, R2, vth, rth = R1[keep], R2[keep], vth[keep], rth[keep]
         # B5: the divider current alone costs V/(R1+R2)/10 mA of score
         plb = V / (R1 + R2) / 10e-3
         o = np.argsort(plb, kind="stable")
@@ -359,6 +364,9 @@ class _Job:
         and then RE, with what the span queries need.  Each option is a bias node of
         its own, so that its unbypassed RE is known (bounds B6, B14, B15)."""
         re_a, byp_a = _emitter_options(self.topo, form, self.rv)
+        keep = self._f_low_options(re_a + byp_a)       # B20 (cb: C_IN, cc: C_OUT)
+        self.count("f_low_emitter", (~keep).sum())
+        re_a, byp_a = re_a[keep], byp_a[keep]
         tot = re_a + byp_a
         bins = np.floor(np.log(np.maximum(tot, 1e-300)) / math.log1p(TOTAL_BIN))
         o = np.lexsort((tot, re_a, bins))
@@ -386,6 +394,92 @@ class _Job:
         virtual = np.array([any((opts.rows[i].id is not None and opts.rows[i].id < 0)
                                 for i in opts.rows_of("resistor", v)) for v in rv])
         return units, maxq, virtual
+
+    @property
+    def live(self) -> bool:
+        """Whether any (R1, R2) pair and any emitter option is left to search."""
+        return bool(self.R1.size and self.etot.size)
+
+    def _f_low_needs(self) -> tuple[float, float]:
+        """B20: the least loop resistance a coupling capacitor needs, and the least RC C_OUT needs
+        (ce, cb), for f_low_max_hz to be reachable with the largest capacitor in
+        stock (:mod:`optimiser.f_low_bounds`); 0 where nothing is excluded."""
+        from optimiser.f_low_bounds import largest_capacitance, loop_resistance_needed
+
+        r = self.request
+        if r.f_low_max_hz is None:
+            return 0.0, 0.0
+        c_max = largest_capacitance(self.opts.capacitor.values)
+        need = loop_resistance_needed(r.f_low_max_hz, c_max, r.mid_hz) * (1 - 1e-9)
+        rc_need = need - r.load_ohm if (r.load_ohm is not None and self.topo != "cc") else 0.0
+        return need, max(rc_need, 0.0)
+
+    @property
+    def _byp_floor(self) -> bool:
+        """B20's bypass shelf applies: a ce form with C_BYP, a gain window, f_low_max."""
+        return (self.topo == "ce" and self.form != "unbypassed" and self.win is not None
+                and self.request.f_low_max_hz is not None)
+
+    def _f_low_bypass_rc(self, P, ic_lo, ic_hi, REv, BYv) -> np.ndarray:
+        """B20 for C_BYP: the least RC whose load Z' = RC‖R_L reaches
+        :func:`optimiser.f_low_bounds.bypass_load_needed`, the gain with C_BYP open
+        bounded by B15's per-ohm ceiling with RE + RE_BYP unbypassed."""
+        from optimiser.f_low_bounds import bypass_load_needed, largest_capacitance
+
+        r = self.request
+        per_z = self._per_z(P, ic_lo, ic_hi, REv + BYv)
+        g_lo = self.win[0] * 10 ** (-GAIN_SLACK_DB / 20)
+        z = bypass_load_needed(g_lo, per_z, largest_capacitance(self.opts.capacitor.values),
+                               BYv, r.f_low_max_hz)
+        rl = r.load_ohm
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rc = z if not rl else np.where(z < rl, z * rl / (rl - z), np.inf)
+        return np.nan_to_num(rc, nan=np.inf)
+
+    def _f_low_cb_input(self, re_tot, ic_lo, ic_hi, rc_max) -> np.ndarray:
+        """B20 for a cb node: True where C_IN's loop R_S + RE‖Z_e,max (Z_e from
+        :func:`optimiser.f_low_bounds.cb_emitter_impedance_max` with the collector
+        load up to RC_max‖R_L) stays below what f_low_max needs."""
+        from optimiser.device import thermal_voltage
+        from optimiser.f_low_bounds import cb_emitter_impedance_max
+
+        rl = self.request.load_ohm
+        z = np.maximum(rc_max, 0.0)
+        if rl:
+            z = np.where(np.isfinite(z), z * rl / (z + rl), rl)
+        ze = cb_emitter_impedance_max(ic_lo, ic_hi, z, float(self.model.vaf),
+                                      thermal_voltage(25.0))
+        with np.errstate(invalid="ignore"):
+            zin = np.where(np.isfinite(ze), re_tot * ze / (re_tot + ze), re_tot)
+        return float(self.request.source_ohm or 0.0) + zin < self.loop_need
+
+    def _f_low_pairs(self, rth) -> np.ndarray:
+        """B20 at the pairs (ce, cc): Z_in ≤ R_TH, so C_IN's loop is at most R_S + R_TH."""
+        from optimiser.f_low_bounds import input_loop_max
+
+        if self.topo == "cb" or self.loop_need <= 0:
+            return np.ones(rth.size, dtype=bool)
+        return input_loop_max(self.topo, self.request.source_ohm, rth=rth) >= self.loop_need
+
+    def _f_low_options(self, tot) -> np.ndarray:
+        """B20 at the emitter options: cb's C_IN sees at most R_S + RE + RE_BYP and a
+        follower's C_OUT at most R_L + RE + RE_BYP."""
+        from optimiser.f_low_bounds import input_loop_max, output_loop_max
+
+        keep = np.ones(tot.size, dtype=bool)
+        r = self.request
+        if self.topo == "cb" and self.loop_need > 0:
+            keep &= input_loop_max("cb", r.source_ohm, re_total=tot) >= self.loop_need
+        if self.topo == "cc" and self.loop_need > 0 and r.load_ohm is not None:
+            keep &= output_loop_max("cc", r.load_ohm, re_total=tot) >= self.loop_need
+        return keep
+
+    def _f_low_headroom(self, ic_lo, ve_lo) -> np.ndarray:
+        """B20 at the bias nodes (ce, cb): C_OUT needs RC ≥ rc_need, and B3 allows
+        at most (V − V_E − vce_sat)/I_C,lo."""
+        if self.rc_need <= 0:
+            return np.ones(np.shape(ic_lo), dtype=bool)
+        return self._rc_max(ic_lo, ve_lo) >= self.rc_need
 
     def run_span(self, key: str, a, width: int):
         """Least and largest of ``key`` ("tot": DC emitter total, "re": unbypassed
@@ -544,6 +638,9 @@ class _Job:
         if wide.size:
             ve_lo[wide] = bias_current(v_th[wide], r_th[wide], r_small[wide], model, 25.0, None,
                                        self.q_lo) * r_small[wide]
+        keep = self._f_low_headroom(ic_lo[s], ve_lo[s])         # B20 with B3
+        self.count("f_low_output", (~keep).sum())
+        s = s[keep]
         # the top of the bracket at the largest Early factor this span allows
         # (the emitter takes a part of the supply: early_factor_max)
         q_top = np.zeros(n)
@@ -1048,6 +1145,19 @@ class _Job:
             n1 = np.searchsorted(self.rc_vals, rc_top * (1 + 1e-9), side="right")
             self.count("gain_bound_high", np.maximum(nrc - np.maximum(n1, n0), 0).sum())
             nrc = np.maximum(np.minimum(nrc, n1), n0)
+        if self._byp_floor:             # B20: the bypass shelf needs a collector load
+            rc_b = self._f_low_bypass_rc(P, ic_lo, ic_hi, REv, BYv)
+            nb = np.minimum(np.searchsorted(self.rc_vals, rc_b * (1 - 1e-9), side="left"), nrc)
+            self.count("f_low_bypass", np.maximum(nb - n0, 0).sum())
+            n0 = np.maximum(n0, nb)
+        if topo == "cb" and self.loop_need > 0:     # B20: C_IN against RE‖Z_e
+            gone = self._f_low_cb_input(REv + BYv, ic_lo, ic_hi, rc_max)
+            self.count("f_low_input", (nrc - n0)[gone].sum())
+            n0 = np.where(gone, nrc, n0)
+        if self.rc_need > 0:            # B20: C_OUT's loop R_L + RC must reach its need
+            nf = np.minimum(np.searchsorted(self.rc_vals, self.rc_need, side="left"), nrc)
+            self.count("f_low_output", np.maximum(nf - n0, 0).sum())
+            n0 = np.maximum(n0, nf)
         rep, offs = _expand(nrc - n0)
         if rep.size == 0:
             return None
@@ -1359,6 +1469,7 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     cache: dict = {}            # what the jobs share (pairs, emitter options, stock)
     jobs = [_Job(request, opts, t, f, stats, cache) for t in ts for f in FORMS[request.topology]
             if opts.resistor.values.size]
+    jobs = [j for j in jobs if j.live]
     found, pool = [], []
     # with top designs already in hand the score to beat is known: no aspiration
     levels = (math.inf,) if len(seeds) >= top else ASPIRATION + (math.inf,)
