@@ -106,7 +106,7 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
     req = None
     with collect():
         req = parse_request(mapping, file=file, text=text,
-                            extra_keys=CIRCUIT_KEYS + ("transistor",))
+                            extra_keys=CIRCUIT_KEYS + ("transistor",), default_gain=False)
     topo = req.topology if req is not None else (
         mapping.get("topology", "").strip().lower()
         if isinstance(mapping.get("topology"), str) else None)

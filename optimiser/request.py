@@ -10,7 +10,7 @@ import math
 from dataclasses import asdict, dataclass
 
 __all__ = ["TOPOLOGIES", "Request", "parse_request", "load_request", "REQUEST_KEYS",
-           "DEFAULTS", "NO_LIMIT"]
+           "DEFAULTS", "DEFAULT_GAIN_DB", "NO_LIMIT"]
 
 TOPOLOGIES = ("ce", "cb", "cc")
 
@@ -82,6 +82,11 @@ CIRCUIT_KEYS = ("parts", "tolerances")
 #: The THD ceiling applies at the request's ``input_vpk``.  Write the key to change
 #: it, or ``"none"`` to have no limit.
 DEFAULTS = {"thd_max_pct": 5.0, "ic_min_a": 100e-6}
+#: The gain target (dB) a common-emitter request gets when it names none: a stage
+#: of the kind asked for amplifies, and ×10 (20 dB) is the usual single ce stage
+#: (common practice).  Without a target the ranking would favour stages that do not
+#: amplify at all.  ``gain_db = "none"`` asks for no gain target.
+DEFAULT_GAIN_DB = {"ce": 20.0}
 #: What a key's value may be to mean "no limit" (TOML has no null).
 NO_LIMIT = ("none", "off")
 #: Largest supply the tool accepts, V (single-supply small-signal stages).
@@ -109,7 +114,8 @@ def _header_line(text: str | None, table: str) -> int | None:
 
 
 def parse_request(mapping: dict, *, file: str | None = None, text: str | None = None,
-                  extra_keys: tuple[str, ...] = CIRCUIT_KEYS) -> Request:
+                  extra_keys: tuple[str, ...] = CIRCUIT_KEYS,
+                  default_gain: bool = True) -> Request:
     """A :class:`Request` from a parsed TOML mapping, every value checked.
 
     Values may be numbers (SI) or text with SI prefixes (``"10k"``, ``"100e3"``,
@@ -117,7 +123,9 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     :class:`~inventory.errors.InputError` naming ``file``, the line (when the
     TOML ``text`` is given) and the key; several bad keys raise one
     :class:`~inventory.errors.InputErrors` holding every one of them.  Targets of
-    :data:`DEFAULTS` the mapping leaves out are filled in and listed in
+    :data:`DEFAULTS` (and, with ``default_gain``, the gain of
+    :data:`DEFAULT_GAIN_DB`: a request to design from, not a given circuit) the
+    mapping leaves out are filled in and listed in
     ``Request.assumed``.
     """
     from contextlib import contextmanager
@@ -211,10 +219,10 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     with collect():
         if "gain_db" in m and "gain" in m:
             raise err("gain", "give either gain_db or gain, not both")
-        if "gain_db" in m:
+        if "gain_db" in m and not no_limit(m["gain_db"]):
             db = num("gain_db", m["gain_db"], lo=-100, hi=200)
             kw["gain"] = 10.0 ** (db / 20.0)
-        if "gain" in m:
+        if "gain" in m and not no_limit(m["gain"]):
             kw["gain"] = num("gain", m["gain"], lo=0, lo_open=True, hi=1e9)
     with collect():
         if "gain_tol_db" in m:
@@ -248,6 +256,10 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
             kw["input_vpk"] = num("input_vpk", m["input_vpk"], lo=0, lo_open=True,
                                   hi=kw.get("supply_v", MAX_SUPPLY_V), reader=volt)
     assumed = []
+    if ("gain_db" not in m and "gain" not in m
+            and default_gain and kw.get("topology") in DEFAULT_GAIN_DB):
+        kw["gain"] = 10.0 ** (DEFAULT_GAIN_DB[kw["topology"]] / 20.0)
+        assumed.append("gain_db")
     for key, lo, hi, reader in (("thd_max_pct", 0, 100, None), ("ic_min_a", 0, 1.0, amp)):
         with collect():
             if key not in m:

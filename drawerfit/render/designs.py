@@ -262,6 +262,8 @@ def assumed_line(request) -> str:
             said.append(f"THD <= {v:g} % at {format_si(request.input_vpk, 'V')} peak")
         elif k == "ic_min_a":
             said.append(f"I_C >= {format_si(v, 'A')}")
+        elif k == "gain_db":
+            said.append(f"gain {request.gain_db:g} dB ± {request.gain_tol_db:g} dB")
         else:
             said.append(f"{k} = {v:g}")
     return (f"assumed: {', '.join(said)}; set {' / '.join(keys)} to change "

@@ -222,3 +222,30 @@ def test_analyse_judges_against_the_defaults_and_says_so(tmp_path):
     out = as_json(CliRunner().invoke(cli, ["--db", db, "analyse", str(low), "--json"]))
     assert out["design"]["metrics"]["ic_a"] < 100e-6
     assert any(v.startswith("ic_a ") for v in out["design"]["violations"])
+
+
+def test_a_ce_request_without_a_gain_gets_the_default_target(store, tmp_path):
+    """A common-emitter request naming only topology and supply gets the default gain
+    target (DEFAULT_GAIN_DB, common practice: a ce stage is there to amplify); every
+    design it ranks meets it; ``gain_db = "none"`` asks for no gain target; a given
+    circuit (``analyse``) is never judged against an assumed gain."""
+    from optimiser.circuit_file import parse_circuit
+    from optimiser.request import DEFAULT_GAIN_DB, parse_request
+
+    minimal = 'topology = "ce"\nsupply_v = 12.0\n'
+    out = as_json(design(store, tmp_path, minimal, "--json", "--top", "3"))
+    rq = out["request"]
+    want = DEFAULT_GAIN_DB["ce"]
+    assert "gain_db" in rq["assumed"] and rq["gain_db"] == pytest.approx(want)
+    assert out["designs"], "this drawer holds ce stages of the default gain"
+    for d in out["designs"]:
+        assert abs(d["metrics"]["gain_db"] - want) <= rq["gain_tol_db"] + 1e-9
+    r = design(store, tmp_path, minimal, "--top", "1")
+    assert f"gain {want:g} dB" in " ".join(r.stdout.split())
+    free = parse_request({"topology": "ce", "supply_v": 12.0, "gain_db": "none"})
+    assert free.gain is None and "gain_db" not in free.assumed
+    assert parse_request({"topology": "cb", "supply_v": 12.0}).gain is None
+    circuit = parse_circuit({"topology": "ce", "supply_v": 12.0, "transistor": {
+        "hfe_min": 100, "hfe_max": 300}, "parts": {"R1": "47k", "R2": "10k", "RC": "4k7",
+                                                   "RE": "1k", "C_IN": "1u", "C_OUT": "1u"}})
+    assert circuit.request.gain is None and "gain_db" not in circuit.request.assumed

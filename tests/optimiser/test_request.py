@@ -107,13 +107,17 @@ def test_stock_references_resolved_through_the_store():
 def test_unstated_targets_get_the_documented_defaults():
     from optimiser.request import DEFAULTS
 
-    r = parse_request({"topology": "ce", "supply_v": 12})
+    r = parse_request({"topology": "cc", "supply_v": 12})
     assert r.assumed == ("thd_max_pct", "ic_min_a")
     assert r.thd_max_pct == DEFAULTS["thd_max_pct"] and r.ic_min_a == DEFAULTS["ic_min_a"]
     assert r.to_json()["assumed"] == ["thd_max_pct", "ic_min_a"]
+    # a ce request also gets a gain target (DEFAULT_GAIN_DB)
+    assert parse_request({"topology": "ce", "supply_v": 12}).assumed == (
+        "gain_db", "thd_max_pct", "ic_min_a")
     # a value given is kept and not assumed; "none" switches a default off
-    r = parse_request({"topology": "ce", "supply_v": 12, "thd_max_pct": 2, "ic_min_a": "none"})
-    assert r.assumed == () and r.thd_max_pct == 2.0 and r.ic_min_a is None
+    r = parse_request({"topology": "ce", "supply_v": 12, "thd_max_pct": 2, "ic_min_a": "none",
+                       "gain_db": "none"})
+    assert r.assumed == () and r.thd_max_pct == 2.0 and r.ic_min_a is None and r.gain is None
     assert parse_request({"topology": "cb", "supply_v": 9, "ic_min_a": "250u"}).ic_min_a \
         == pytest.approx(250e-6)
     for bad in (0, -1e-3, "abc", True):
