@@ -7,9 +7,11 @@ these to one line per problem on stderr and never prints a traceback for them.
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
+from contextlib import contextmanager
 
-__all__ = ["DrawerfitError", "InputError", "InputErrors", "StoreError", "StockShortage"]
+__all__ = ["DrawerfitError", "InputError", "InputErrors", "ErrorList", "StoreError",
+           "StockShortage"]
 
 
 class DrawerfitError(Exception):
@@ -80,6 +82,38 @@ class InputErrors(InputError):
 
     def __str__(self) -> str:
         return "\n".join(str(e) for e in self.errors)
+
+
+class ErrorList:
+    """Several input problems gathered before one is raised, so that every bad key of a
+    file is reported at once::
+
+        problems = ErrorList()
+        with problems.collect():
+            check_one_key()          # an InputError is noted and the next check runs
+        problems.raise_any()         # one error, or InputErrors sorted by line
+    """
+
+    def __init__(self) -> None:
+        self.errors: list[InputError] = []
+
+    @contextmanager
+    def collect(self) -> Iterator[None]:
+        try:
+            yield
+        except InputErrors as e:
+            self.errors.extend(e.errors)
+        except InputError as e:
+            self.errors.append(e)
+
+    def combined(self) -> InputError:
+        """The one error, or every one of several (sorted by line)."""
+        errors = sorted(self.errors, key=lambda e: (e.line is None, e.line or 0))
+        return errors[0] if len(errors) == 1 else InputErrors(errors)
+
+    def raise_any(self) -> None:
+        if self.errors:
+            raise self.combined()
 
 
 class StoreError(DrawerfitError):

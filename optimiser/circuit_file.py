@@ -27,12 +27,11 @@ from __future__ import annotations
 
 import re
 from collections.abc import Callable
-from contextlib import contextmanager
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from inventory.errors import InputError, InputErrors
+from inventory.errors import ErrorList, InputError
 from inventory.parts import (
     DEFAULT_CAPACITOR_TOLERANCE,
     DEFAULT_RESISTOR_TOLERANCE,
@@ -91,17 +90,8 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
         return InputError(msg, file=file, line=_line_of(text, line_key or key.split(".")[-1]),
                           field=key)
 
-    errors: list[InputError] = []
-
-    @contextmanager
-    def collect():
-        """Note a bad key and go on, so that every bad key is reported."""
-        try:
-            yield
-        except InputErrors as e:
-            errors.extend(e.errors)
-        except InputError as e:
-            errors.append(e)
+    problems = ErrorList()          # every bad key is reported, not only the first
+    errors, collect = problems.errors, problems.collect
 
     req = None
     with collect():
@@ -200,8 +190,9 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
 
 def _all(errors: list[InputError]) -> InputError:
     """One error, or every one of several (sorted by line)."""
-    errors = sorted(errors, key=lambda e: (e.line is None, e.line or 0))
-    return errors[0] if len(errors) == 1 else InputErrors(errors)
+    gathered = ErrorList()
+    gathered.errors.extend(errors)
+    return gathered.combined()
 
 
 def _part(role, raw, topo, err, get_store, values, labels, ids, stock_parts, power_w,

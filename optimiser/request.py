@@ -128,27 +128,16 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     mapping leaves out are filled in and listed in
     ``Request.assumed``.
     """
-    from contextlib import contextmanager
-
     from inventory import values as V
-    from inventory.errors import InputError, InputErrors
+    from inventory.errors import ErrorList, InputError
 
     def err(key, msg):
         return InputError(msg, file=file, line=_line_of(text, key), field=key)
 
     if not isinstance(mapping, dict):
         raise InputError("a request must be a table of key = value", file=file)
-    errors: list[InputError] = []
-
-    @contextmanager
-    def collect():
-        """Note a bad key and go on with the next, so that every bad key is reported."""
-        try:
-            yield
-        except InputErrors as e:
-            errors.extend(e.errors)
-        except InputError as e:
-            errors.append(e)
+    problems = ErrorList()          # every bad key is reported, not only the first
+    errors, collect = problems.errors, problems.collect
 
     for key in mapping:
         if key not in REQUEST_KEYS and key not in extra_keys:
@@ -299,9 +288,7 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     with collect():
         if "seed" in m:
             kw["seed"] = num("seed", m["seed"], lo=0, hi=2**63 - 1, integer=True)
-    if errors:
-        errors.sort(key=lambda e: (e.line is None, e.line or 0))
-        raise errors[0] if len(errors) == 1 else InputErrors(errors)
+    problems.raise_any()
     return Request(**kw, assumed=tuple(assumed))
 
 

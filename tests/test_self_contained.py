@@ -33,7 +33,7 @@ SKIP_DIRS = (".ci/",)
 _S = "/"
 ABSOLUTE = re.compile(r"(?<![\w.~-])" + _S + r"(?:work|home|root|tmp)" + _S)
 OUTSIDE_DOCS = re.compile(
-    r"\b(?:interface|design)\.md\b|\breference-checks\b|(?:\.\./)+shared" + _S
+    r"\b(?:interface|design)\.md\b|\breference" + "-" + r"checks\b|(?:\.\./)+shared" + _S
     + r"|\bshared" + _S + r"[\w.-]+\.md\b")
 HISTORY = re.compile(
     r"\bissue\s*#?\d+|\b(?:first|second|third|fourth|fifth|sixth|seventh|eighth|ninth|"
