@@ -127,19 +127,13 @@ def sheet_for_search(directory, result, rank: int, snapshot, *, quiet: bool = Fa
     Returns the WrittenSheet, or None when no design meets the request (nothing is
     drawn then; a line on stderr says so).
     """
-    from drawerfit.console import err
-
-    designs = list(result.designs)
-    if not designs:
-        err.print("--sheet: no design meets the request, so no build sheet was written.")
+    chosen = _chosen(result, snapshot, rank, "--sheet", "build sheet")
+    if chosen is None:
         return None
-    design = _ranked(designs, rank)
-    transistor = snapshot.transistor(design.transistor)
-    if transistor is None:
-        raise InputError(f"transistor {design.transistor!r} is not in stock", field="--sheet")
+    design, transistor = chosen
     # The ranked view prints the cautions of design #1 itself.
     return sheet_for_design(directory, design, result.request, transistor, quiet=quiet,
-                            cautions_shown=design is designs[0])
+                            cautions_shown=design is result.designs[0])
 
 
 def _checked_spice_path(ctx, param, value):
@@ -196,17 +190,27 @@ def spice_for_search(path, result, rank: int, snapshot, *, quiet: bool = False):
 
     Returns the path, or None when no design meets the request (a line on stderr).
     """
+    chosen = _chosen(result, snapshot, rank, "--spice", "netlist")
+    if chosen is None:
+        return None
+    design, transistor = chosen
+    return spice_for_design(path, design, result.request, transistor, quiet=quiet)
+
+
+def _chosen(result, snapshot, rank: int, option: str, what: str):
+    """(design ranked ``rank``, its transistor) for ``option``, or None (said on stderr)
+    when no design meets the request."""
     from drawerfit.console import err
 
     designs = list(result.designs)
     if not designs:
-        err.print("--spice: no design meets the request, so no netlist was written.")
+        err.print(f"{option}: no design meets the request, so no {what} was written.")
         return None
     design = _ranked(designs, rank)
     transistor = snapshot.transistor(design.transistor)
     if transistor is None:
-        raise InputError(f"transistor {design.transistor!r} is not in stock", field="--spice")
-    return spice_for_design(path, design, result.request, transistor, quiet=quiet)
+        raise InputError(f"transistor {design.transistor!r} is not in stock", field=option)
+    return design, transistor
 
 
 def _ranked(designs, rank: int):
