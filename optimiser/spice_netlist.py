@@ -67,7 +67,7 @@ def spice_number(x: float, digits: int = 6) -> str:
     if x == 0:
         return "0"
     mag = abs(x)
-    for scale, suffix in _SUFFIXES:
+    for scale, suffix in _SUFFIXES:  # noqa: B007 (the pair found is used below)
         if mag >= scale * (1 - 0.5 * 10 ** (1 - digits)):
             break
     m = f"{x / scale:.{digits}g}"

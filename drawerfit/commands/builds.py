@@ -185,7 +185,7 @@ def allocate_circuit(c, parts: list, copies: int, *, file: str) -> dict:
         free = [k for k in ok if left[cands[role][k].id] >= copies]
         if not free:
             problems.append(InputError(
-                f"the rows of this value are taken by other roles of this circuit ("
+                "the rows of this value are taken by other roles of this circuit ("
                 + ", ".join(f"id {cands[role][k].id}: {cands[role][k].qty}" for k in ok)
                 + f"); {copies} more pieces are needed", file=file, field=f"parts.{role}"))
             continue

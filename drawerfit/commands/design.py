@@ -6,8 +6,13 @@ import click
 
 from drawerfit.cli import pass_app
 from drawerfit.console import emit_json, err, out
-from drawerfit.sheet.cli import (rank_option, sheet_for_search, sheet_option, spice_for_search,
-                                 spice_option)
+from drawerfit.sheet.cli import (
+    rank_option,
+    sheet_for_search,
+    sheet_option,
+    spice_for_search,
+    spice_option,
+)
 
 __all__ = ["command", "run_design"]
 

@@ -13,9 +13,9 @@ from collections.abc import Sequence
 from html import escape
 from pathlib import Path
 
+from drawerfit.console import severity_css
 from drawerfit.sheet import fmt
 from drawerfit.sheet.spread import Probe
-from drawerfit.console import severity_css
 from optimiser.cautions import Caution
 from optimiser.design import Design
 from optimiser.request import Request

@@ -107,7 +107,7 @@ def test_design_table_shows_every_figure_in_full(demo_result, width, which):
     assert_fits(text, width)
     blocks = design_blocks(text)
     assert len(blocks) == len(doc["designs"])
-    for d, block in zip(doc["designs"], blocks):
+    for d, block in zip(doc["designs"], blocks, strict=True):
         assert block[0].split("│")[1].strip() == str(d["rank"])
         for key, want in expected_figures(d).items():
             assert any(want in ln for ln in block), (width, key, want, block)
@@ -124,7 +124,7 @@ def test_wide_layout_at_120_columns_puts_each_design_on_one_line_of_figures(demo
     doc = demo_result["plain"].to_json()
     con = record(120)
     con.print(_table(demo_result["plain"].designs, "designs"))
-    for d, block in zip(doc["designs"], design_blocks(text_of(con))):
+    for d, block in zip(doc["designs"], design_blocks(text_of(con)), strict=True):
         first = block[0]
         assert all(want in first for want in expected_figures(d).values()), first
 

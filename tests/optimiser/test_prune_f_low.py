@@ -11,12 +11,17 @@ from scipy import signal
 
 from inventory.parts import Transistor
 from optimiser.ac import EDGE_DB
-from optimiser.evaluate import evaluate
 from optimiser.device import thermal_voltage
-from optimiser.f_low_bounds import (BYPASS_SHELF_MARGIN, CB_EMITTER_MARGIN,
-                                    cb_emitter_impedance_max,
-                                    edge_floor_hz, f_low_floor, largest_capacitance,
-                                    loop_resistance_needed)
+from optimiser.evaluate import evaluate
+from optimiser.f_low_bounds import (
+    BYPASS_SHELF_MARGIN,
+    CB_EMITTER_MARGIN,
+    cb_emitter_impedance_max,
+    edge_floor_hz,
+    f_low_floor,
+    largest_capacitance,
+    loop_resistance_needed,
+)
 from optimiser.request import Request
 from optimiser.stage import StageBatch
 
@@ -93,7 +98,7 @@ def test_cb_emitter_impedance_bound_against_the_engine(rl, capsys):
     assert ok.sum() > 500
     assert ratio.max() <= 1.0, ratio.max()
     with capsys.disabled():
-        print(f"\n  cb Z_in / bound R_L={rl}: median {np.median(ratio):.4f}, "
+        print(f"\n  cb Z_in / bound R_L={rl}: median {np.median(ratio):.4f}, "  # noqa: T201 (tightness, reported)
               f"max {ratio.max():.4f} (margin {CB_EMITTER_MARGIN})")
 
 
@@ -143,7 +148,7 @@ def test_floor_never_above_the_engine(topo, rs, rl, mid, capsys):
     ratio = floor[claimed] / f_low[claimed]
     assert ratio.max() <= 1.0 + 1e-9, ratio.max()
     with capsys.disabled():
-        print(f"\n  f_low floor {topo} R_S={rs:g} R_L={rl} mid={mid:g}: {claimed.sum()} "
+        print(f"\n  f_low floor {topo} R_S={rs:g} R_L={rl} mid={mid:g}: {claimed.sum()} "  # noqa: T201 (tightness, reported)
               f"stages, floor/f_low median {np.median(ratio):.3f}, max {ratio.max():.4f}")
     assert np.median(ratio) > 0.05        # not an empty claim
 
@@ -182,7 +187,7 @@ def test_bypass_shelf_inequality_against_the_engine(rs, rl, mid, capsys):
     # near saturation the base-collector junction conducts: the margin covers it
     assert ratio.max() <= BYPASS_SHELF_MARGIN, ratio.max()
     with capsys.disabled():
-        print(f"\n  bypass shelf R_S={rs:g} R_L={rl} mid={mid:g}: {live.sum()} stages x "
+        print(f"\n  bypass shelf R_S={rs:g} R_L={rl} mid={mid:g}: {live.sum()} stages x "  # noqa: T201 (tightness, reported)
               f"{f.size} f, |H|/bound median {np.median(ratio):.3f}, max {ratio.max():.4f}")
 
 

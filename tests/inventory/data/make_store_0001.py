@@ -32,4 +32,4 @@ if __name__ == "__main__":
                           "pieces": {1: 4, 3: 2, 5: 2}}])
     store.close()
     src.unlink()
-    print(target, target.stat().st_size)
+    print(target, target.stat().st_size)  # noqa: T201 (a maintainer script)
