@@ -11,11 +11,13 @@ from inventory.errors import InputError, StockShortage
 __all__ = ["command", "write_order"]
 
 
-def write_order(plan, path: str, *, committed: bool = False) -> None:
+def write_order(plan, path: str, *, committed: bool = False, snapshot=None) -> None:
     """Write the shopping list as a stock file (plus the columns ``packs`` and ``cost``).
 
-    ``stock receive`` books it when the parts arrive; the location is left
-    empty for the owner to fill in.  ``qty`` is what goes into the drawer: all
+    ``stock receive`` books it when the parts arrive.  A value the drawer already
+    holds is sent to that bin (the bin with the most pieces of it, from
+    ``snapshot``); a new value's location is left empty for the owner to fill in
+    (or to give with ``stock receive --bin``).  ``qty`` is what goes into the drawer: all
     the pieces bought, or, when the builds were committed (and so already took
     their share of the order), the pieces left over after them.
     """
@@ -23,17 +25,27 @@ def write_order(plan, path: str, *, committed: bool = False) -> None:
     from inventory.tabular import write_stock_csv
 
     parts, extra = [], []
+    bins: dict[tuple[str, float], tuple[int, str]] = {}
+    rows = () if snapshot is None else (*snapshot.resistors, *snapshot.capacitors)
+    for row in rows:
+        if row.location:
+            key = (row.kind, round(float(row.value), 15))
+            if row.qty > bins.get(key, (-1, ""))[0]:
+                bins[key] = (row.qty, row.location)
 
     def _qty(p) -> int:
         return p.qty - p.used if committed else p.qty
+
+    def _bin(p) -> str:
+        return bins.get((p.kind, round(float(p.value), 15)), (0, ""))[1]
     for p in plan.purchases:
         if p.kind == "resistor":
             parts.append(Resistor(value=p.value, qty=_qty(p), tolerance=p.tolerance,
-                                  power_w=p.rating, location=""))
+                                  power_w=p.rating, location=_bin(p)))
         else:
             parts.append(Capacitor(value=p.value, qty=_qty(p), tolerance=p.tolerance,
                                    voltage_v=p.rating, dielectric=p.dielectric or "ceramic",
-                                   location=""))
+                                   location=_bin(p)))
         extra.append({"packs": str(p.packs), "cost": f"{p.cost:.2f}"})
     write_stock_csv(path, parts, extra=extra)
 
@@ -106,7 +118,7 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
             raise InputError(f"the stock changed since planning, nothing was recorded "
                              f"({exc.message}); run the plan again", field="--commit") from None
     if order_path and plan.feasible:
-        write_order(plan, order_path, committed=build_id is not None)
+        write_order(plan, order_path, committed=build_id is not None, snapshot=snapshot)
     if as_json:
         data = plan.to_json()
         if build_id is not None:

@@ -153,12 +153,21 @@ line_cost = 0.50
     assert {r["value"] for r in rows} == {"4k7", "10u"}
     assert {"kind", "value", "qty", "tolerance", "power", "voltage", "dielectric", "location",
             "packs", "cost"} <= set(rows[0])
+    # a value the drawer already holds goes to the bin holding most of it
+    listed = json.loads(env.run("stock", "list", "--json").stdout)
+    for row in rows:
+        same = [x for x in listed if x["kind"] == row["kind"] and x["label"] == row["value"]]
+        assert row["location"] == max(same, key=lambda x: x["qty"])["location"]
     before = env.stock()
-    # the order file leaves the bin to the owner: receiving it without one is refused
-    r = env.run("stock", "receive", str(env.tmp / "order.csv"))
-    assert r.exit_code == 2 and "order.csv:2: location: empty" in r.stderr
+    # a row without a bin is refused on receipt (nothing changes) until one is given
+    blank = env.tmp / "blank.csv"
+    with open(env.tmp / "order.csv", newline="") as f:
+        text = f.read()
+    blank.write_text(text.replace(rows[0]["location"], "", 1))
+    r = env.run("stock", "receive", str(blank))
+    assert r.exit_code == 2 and "blank.csv:2: location: empty" in r.stderr
     assert env.stock() == before
-    r = env.run("stock", "receive", str(env.tmp / "order.csv"), "--bin", "NEW1")
+    r = env.run("stock", "receive", str(env.tmp / "order.csv"))
     assert r.exit_code == 0, r.output
     after = env.stock()
     assert sum(after.values()) - sum(before.values()) == 20
