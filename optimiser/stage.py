@@ -22,12 +22,23 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-__all__ = ["RESISTOR_ROLES", "CAPACITOR_ROLES", "StageBatch", "PartRatings"]
+__all__ = ["RESISTOR_ROLES", "CAPACITOR_ROLES", "ROLES", "REQUIRED", "StageBatch", "PartRatings"]
 
 RESISTOR_ROLES = ("R1", "R2", "RC", "RE", "RE_BYP")
 CAPACITOR_ROLES = ("C_IN", "C_OUT", "C_BYP", "C_B")
 
 _ALL = RESISTOR_ROLES + CAPACITOR_ROLES
+
+
+def __getattr__(name: str):
+    """``ROLES`` and ``REQUIRED``: topology -> role names it may use / must have, read
+    from each topology's module (:mod:`optimiser.stages`, which imports this module,
+    hence built on first use)."""
+    if name in ("ROLES", "REQUIRED"):
+        from . import stages
+        attr = "ROLE_NAMES" if name == "ROLES" else "REQUIRED"
+        return {m.NAME: getattr(m, attr) for m in stages.modules()}
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def _arr(x) -> np.ndarray:
