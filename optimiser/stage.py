@@ -22,7 +22,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-__all__ = ["RESISTOR_ROLES", "CAPACITOR_ROLES", "ROLES", "REQUIRED", "StageBatch", "PartRatings"]
+__all__ = ["RESISTOR_ROLES", "CAPACITOR_ROLES", "StageBatch", "PartRatings"]  # and ROLES, REQUIRED (__getattr__)
 
 RESISTOR_ROLES = ("R1", "R2", "RC", "RE", "RE_BYP")
 CAPACITOR_ROLES = ("C_IN", "C_OUT", "C_BYP", "C_B")

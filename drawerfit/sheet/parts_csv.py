@@ -18,9 +18,9 @@ from inventory.parts import (
     DEFAULT_RESISTOR_POWER_W,
     POLARISED_DIELECTRICS,
 )
+from optimiser import stages
 from optimiser.design import Design
 from optimiser.request import Request
-from optimiser import stages
 from optimiser.stage import RESISTOR_ROLES
 
 __all__ = ["COLUMNS", "PartRow", "part_rows", "pick_route", "location_key", "write_parts_csv"]
