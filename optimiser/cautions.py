@@ -14,11 +14,11 @@ be done right or a part suffers (the + side of a polarised capacitor, a
 resistor or transistor over its rating), ``note`` for advice.  How a
 severity looks is the business of the renderers, not of this module.
 
-DC voltages across the capacitors follow from the node voltages and the roles
-(docs/requests.md, "Roles"): C_IN sits between the base (ce, cc) or the emitter (cb) and a source
-at 0 V; C_OUT between the collector (ce, cb) or the emitter (cc) and a load at
-0 V (taken at 0 V with no load, too); C_BYP across RE_BYP, i.e. from the
-junction of RE and RE_BYP to ground; C_B from the base to ground.
+DC voltages across the capacitors follow from the node voltages and where each
+capacitor sits, which is the topology's (``WIRING`` of its module in
+:mod:`optimiser.stages`; docs/requests.md, "Roles"); the source and the load are
+at 0 V (the load taken at 0 V with no load, too).  The words for each side are
+the topology's ``NODE_WORDS``.
 """
 
 from __future__ import annotations
@@ -36,6 +36,8 @@ from inventory.parts import (
 from optimiser.design import Design, RolePick
 from optimiser.evaluate import DERATING
 from optimiser.request import Request
+from optimiser.stages import module as stage_module
+from optimiser.stages.base import capacitor_sides
 
 __all__ = [
     "Caution",
@@ -49,17 +51,6 @@ __all__ = [
     "transistor_power",
     "cautions",
 ]
-
-NODE_WORDS = {
-    "base": "the base",
-    "emitter": "the emitter",
-    "collector": "the collector",
-    "junction": "the emitter side (the RE/RE_BYP junction)",
-    "ground": "ground",
-    "source": "the source",
-    "load": "the load",
-}
-
 
 #: The severities, most serious first.
 SEVERITIES = ("danger", "warning", "note")
@@ -139,7 +130,7 @@ DEFAULT_SETTINGS = CautionSettings()
 class CapacitorBias:
     """The DC voltage across one capacitor role.
 
-    ``high`` and ``low`` name the nodes at each terminal (see ``NODE_WORDS``),
+    ``high`` and ``low`` name the nodes at each terminal (the topology's ``NODE_WORDS``),
     ``volts`` = V(high) − V(low) ≥ 0 is the magnitude; ``plus`` is the node the
     + terminal of a polarised part must face (the higher one).
     """
@@ -183,16 +174,6 @@ def _nodes(design: Design, request: Request) -> dict[str, float]:
     return nodes
 
 
-#: Where each capacitor role sits: topology -> role -> (transistor-side node, other node).
-CAPACITOR_NODES: dict[str, dict[str, tuple[str, str]]] = {
-    "ce": {"C_IN": ("base", "source"), "C_OUT": ("collector", "load"),
-           "C_BYP": ("junction", "ground")},
-    "cb": {"C_IN": ("emitter", "source"), "C_OUT": ("collector", "load"),
-           "C_B": ("base", "ground")},
-    "cc": {"C_IN": ("base", "source"), "C_OUT": ("emitter", "load")},
-}
-
-
 def capacitor_bias(design: Design, request: Request) -> dict[str, CapacitorBias]:
     """DC voltage across each capacitor role of ``design`` (volts).
 
@@ -200,7 +181,7 @@ def capacitor_bias(design: Design, request: Request) -> dict[str, CapacitorBias]
     """
     nodes = _nodes(design, request)
     out: dict[str, CapacitorBias] = {}
-    for role, (a, b) in CAPACITOR_NODES.get(design.topology, {}).items():
+    for role, (a, b) in capacitor_sides(stage_module(design.topology)).items():
         if a == "junction" and "RE" not in design.parts:
             a = "emitter"                      # fully bypassed: C_BYP sits on the emitter
         if role not in design.parts or a not in nodes:
@@ -217,8 +198,8 @@ def capacitor_bias(design: Design, request: Request) -> dict[str, CapacitorBias]
 class CapacitorRating:
     """The DC voltage across one capacitor role and the rating it needs.
 
-    ``volts`` the |DC voltage| (V), ``plus`` the node facing + (see
-    ``NODE_WORDS``), ``needed_v`` = ``volts`` / derating, ``rating_v`` the
+    ``volts`` the |DC voltage| (V), ``plus`` the node facing + (the
+    topology's ``NODE_WORDS``), ``needed_v`` = ``volts`` / derating, ``rating_v`` the
     lowest rating of its pieces (the stock default when no piece states one,
     then ``stated`` is False), ``ok`` whether ``rating_v`` ≥ ``needed_v``.
     """
@@ -384,6 +365,7 @@ def cautions(design: Design, request: Request, transistor=None, *,
     s = settings
 
     # Capacitors: DC voltage against rating, and polarity.
+    words = stage_module(design.topology).NODE_WORDS
     for role, bias in capacitor_bias(design, request).items():
         pick = design.parts[role]
         ratings = [pc.rating for pc in pick.pieces if pc.rating] or [DEFAULT_CAPACITOR_VOLTAGE_V]
@@ -401,14 +383,14 @@ def cautions(design: Design, request: Request, transistor=None, *,
         if polar:
             out.append(Caution(
                 "polarity",
-                f"{role}: polarised; + toward {NODE_WORDS[bias.high]}, − toward "
-                f"{NODE_WORDS[bias.low]} ({_fmt_v(bias.volts)} DC across it). "
+                f"{role}: polarised; + toward {words[bias.high]}, − toward "
+                f"{words[bias.low]} ({_fmt_v(bias.volts)} DC across it). "
                 f"Reversed, it heats and can burst.", role, "warning"))
         elif polar is None and pick.value >= s.polarity_hint_f:
             out.append(Caution(
                 "polarity",
                 f"{role}: if you use a polarised (electrolytic or tantalum) part, put + toward "
-                f"{NODE_WORDS[bias.high]}, − toward {NODE_WORDS[bias.low]} "
+                f"{words[bias.high]}, − toward {words[bias.low]} "
                 f"({_fmt_v(bias.volts)} DC across it).", role, "note"))
 
     # Resistors: dissipation of each piece against its rating.

@@ -41,7 +41,10 @@ from inventory.parts import (
 )
 
 from .request import CIRCUIT_KEYS, Request, _line_of, parse_request, read_toml
-from .stage import REQUIRED, RESISTOR_ROLES, ROLES, PartRatings, StageBatch
+from .stage import RESISTOR_ROLES, PartRatings, StageBatch
+from .stages import NAMES as TOPOLOGY_NAMES
+from .stages import module as stage_module
+from .stages.base import role_problems
 
 __all__ = ["Circuit", "parse_circuit", "load_circuit", "TRANSISTOR_KEYS"]
 
@@ -100,12 +103,13 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
     topo = req.topology if req is not None else (
         mapping.get("topology", "").strip().lower()
         if isinstance(mapping.get("topology"), str) else None)
-    if topo not in ROLES:
+    if topo not in TOPOLOGY_NAMES:
         raise _all(errors)
+    mod = stage_module(topo)
     parts = mapping.get("parts")
     if not isinstance(parts, dict) or not parts:
         errors.append(err("parts", "missing [parts] table: give role = value for each part "
-                                   f"({', '.join(REQUIRED[topo])} for {topo})", "[parts]"))
+                                   f"({', '.join(mod.REQUIRED)} for {topo})", "[parts]"))
         parts = {}
 
     _store = None
@@ -130,16 +134,13 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
             _part(role, raw, topo, err, get_store, values, labels, ids, stock_parts, power_w,
                   voltage_v, polarised, tol_stock)
             bad_roles.discard(role)
-    missing = [r for r in REQUIRED[topo] if r not in values and r not in bad_roles]
+    missing = [r for r in mod.REQUIRED if r not in values and r not in bad_roles]
     if missing and parts:
         errors.append(err("parts", f"missing part{'s' if len(missing) > 1 else ''} "
                                    f"{', '.join(missing)} for a {topo} stage", "[parts]"))
-    if topo == "ce" and parts and not bad_roles:
-        if "RE" not in values and "RE_BYP" not in values:
-            errors.append(err("parts", "a ce stage needs RE or RE_BYP (or both)", "[parts]"))
-        elif ("RE_BYP" in values) != ("C_BYP" in values):
-            errors.append(err("parts", "RE_BYP and C_BYP go together (C_BYP bypasses RE_BYP)",
-                              "[parts]"))
+    if parts and not bad_roles:
+        for problem in role_problems(mod, values):
+            errors.append(err("parts", problem, "[parts]"))
 
     # transistor
     transistor = None
@@ -201,9 +202,10 @@ def _part(role, raw, topo, err, get_store, values, labels, ids, stock_parts, pow
     from inventory import values as V
 
     key = f"parts.{role}"
-    if role not in ROLES[topo]:
+    names = stage_module(topo).ROLE_NAMES
+    if role not in names:
         raise err(key, f"unknown role '{role}' for a {topo} stage "
-                       f"(roles: {', '.join(ROLES[topo])})", role)
+                       f"(roles: {', '.join(names)})", role)
     kind = _kind(role)
     m = _ID.match(raw) if isinstance(raw, str) else None
     if m:

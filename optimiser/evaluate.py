@@ -22,7 +22,7 @@ from . import ac, distortion
 from .dc import OperatingPoint, operating_point
 from .device import DeviceModel, device_from_transistor
 from .request import Request
-from .stage import CAPACITOR_ROLES, RESISTOR_ROLES, ROLES, PartRatings, StageBatch
+from .stage import CAPACITOR_ROLES, RESISTOR_ROLES, PartRatings, StageBatch
 from .stages import module as stage_module
 from .stages.common import resistor_voltages
 
@@ -278,7 +278,7 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
 
     rules: list[_Rule] = []
     power, share, volt, pol = _ratings(ratings, n)
-    roles = ROLES[topo]
+    roles = mod.ROLE_NAMES
 
     # --- validity -----------------------------------------------------------
     rules.append(_Rule("validity", "converged", ~op.converged,
@@ -446,14 +446,6 @@ def frequency_response_of(request: Request, batch: StageBatch, transistor: Trans
     return ac.frequency_response(request, batch, model, op, freqs)
 
 
-def ce_form(values: dict[str, float]) -> str | None:
-    """ce: "unbypassed", "partly bypassed" or "fully bypassed" from which emitter roles are used."""
-    re_, byp = values.get("RE", 0.0) or 0.0, values.get("RE_BYP", 0.0) or 0.0
-    if byp <= 0:
-        return "unbypassed"
-    return "partly bypassed" if re_ > 0 else "fully bypassed"
-
-
 def design_of(ev: Evaluation, i: int, picks: dict | None = None, label: str | None = None):
     """Candidate ``i`` of ``ev`` as an :class:`optimiser.design.Design` (docs/json.md).
 
@@ -485,5 +477,5 @@ def design_of(ev: Evaluation, i: int, picks: dict | None = None, label: str | No
     return Design(
         topology=ev.batch.topology, transistor=label or ev.transistor.label, parts=parts,
         metrics=ev.metrics_of(i), meets_spec=bool(ev.meets[i]), violations=ev.violations(i),
-        warnings=ev.warnings(i), form=ce_form(values) if ev.batch.topology == "ce" else None,
+        warnings=ev.warnings(i), form=stage_module(ev.batch.topology).form_of(values),
         extra=extra)

@@ -9,10 +9,14 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
+from . import stages as _stages
+
 __all__ = ["TOPOLOGIES", "Request", "parse_request", "load_request", "REQUEST_KEYS",
            "DEFAULTS", "DEFAULT_GAIN_DB", "NO_LIMIT"]
 
-TOPOLOGIES = ("ce", "cb", "cc")
+#: The topologies a request may name (the modules of :mod:`optimiser.stages`).
+TOPOLOGIES = _stages.NAMES
+_TOPOLOGY_CHOICE = f"{', '.join(TOPOLOGIES[:-1])} or {TOPOLOGIES[-1]}"
 
 
 @dataclass(frozen=True)
@@ -82,11 +86,11 @@ CIRCUIT_KEYS = ("parts", "tolerances")
 #: The THD ceiling applies at the request's ``input_vpk``.  Write the key to change
 #: it, or ``"none"`` to have no limit.
 DEFAULTS = {"thd_max_pct": 5.0, "ic_min_a": 100e-6}
-#: The gain target (dB) a common-emitter request gets when it names none: a stage
-#: of the kind asked for amplifies, and ×10 (20 dB) is the usual single ce stage
-#: (common practice).  Without a target the ranking would favour stages that do not
-#: amplify at all.  ``gain_db = "none"`` asks for no gain target.
-DEFAULT_GAIN_DB = {"ce": 20.0}
+#: The gain target (dB) a request to design gets when it names none, per topology:
+#: each topology module's ``DEFAULT_GAIN_DB`` (ce: 20 dB; cb and cc: none).
+#: ``gain_db = "none"`` asks for no gain target.
+DEFAULT_GAIN_DB = {m.NAME: m.DEFAULT_GAIN_DB for m in _stages.modules()
+                   if m.DEFAULT_GAIN_DB is not None}
 #: What a key's value may be to mean "no limit" (TOML has no null).
 NO_LIMIT = ("none", "off")
 #: Largest supply the tool accepts, V (single-supply small-signal stages).
@@ -183,10 +187,10 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     m = mapping
     with collect():
         if "topology" not in mapping:
-            raise err("topology", "missing required key 'topology' (ce, cb or cc)")
+            raise err("topology", f"missing required key 'topology' ({_TOPOLOGY_CHOICE})")
         topo = mapping["topology"]
         if not isinstance(topo, str) or topo.strip().lower() not in TOPOLOGIES:
-            raise err("topology", f"unknown topology {topo!r}: use ce, cb or cc")
+            raise err("topology", f"unknown topology {topo!r}: use {_TOPOLOGY_CHOICE}")
         kw["topology"] = topo.strip().lower()
     with collect():
         if "supply_v" not in mapping:

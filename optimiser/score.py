@@ -26,7 +26,7 @@ small-drive result for an exponential junction, and local feedback of loop
 gain T = g_m·R_deg divides the closed-loop second harmonic by 1 + T (from
 memory: Gray & Meyer, "Analysis and Design of Analog Integrated Circuits",
 large-signal BJT distortion and the effect of feedback on distortion).
-R_deg is the unbypassed emitter resistance (ce), R_S‖RE (cb) or RE‖R_L (cc).  The reported thd_pct (the full quasi-static
+R_deg is each topology's own (``degeneration`` of its module in :mod:`optimiser.stages`).  The reported thd_pct (the full quasi-static
 sweep) is a hard target when the request sets thd_max_pct.  Every term is documented in docs/search.md.
 Each term is ≥ 0, which the search uses as a lower bound before the
 distortion is known.
@@ -35,6 +35,8 @@ distortion is known.
 from __future__ import annotations
 
 import numpy as np
+
+from .stages import module as stage_module
 
 __all__ = ["DRIFT_UNIT_PCT", "THD_UNIT_PCT", "CURRENT_UNIT_A", "STOCK_PENALTY",
            "FOLLOWER_TOL_DB", "score_gain_target",
@@ -69,14 +71,16 @@ FOLLOWER_TOL_DB = 1.0
 def score_gain_target(request) -> tuple[float | None, float]:
     """(target dB, tolerance dB) of the score's gain term for ``request``.
 
-    The request's own gain target when it sets one; for a common-collector
-    stage without one, unity (0 dB) ± FOLLOWER_TOL_DB; otherwise no gain term.
-    Only the score uses this: the request's hard targets are unchanged.
+    The request's own gain target when it sets one; otherwise what the topology
+    asks (``score_gain_target()`` of its module: a follower, unity (0 dB) ±
+    FOLLOWER_TOL_DB); otherwise no gain term.  Only the score uses this: the
+    request's hard targets are unchanged.
     """
     if request.gain_db is not None:
         return float(request.gain_db), float(request.gain_tol_db)
-    if request.topology == "cc":
-        return 0.0, FOLLOWER_TOL_DB
+    own = stage_module(request.topology).score_gain_target()
+    if own is not None:
+        return float(own[0]), float(own[1])
     return None, float(request.gain_tol_db)
 
 
@@ -100,16 +104,9 @@ def hd2_pct(input_vpk: float, drive, loop=0.0):
 
 
 def degeneration(topology: str, re, source_ohm: float, load_ohm: float | None):
-    """R_deg of the distortion term (ohm): RE (ce), R_S‖RE (cb), RE‖R_L (cc)."""
-    re = np.asarray(re, dtype=float)
-    if topology == "ce":
-        return re
-    if topology == "cb":
-        rs = float(source_ohm or 0.0)
-        return np.where(re > 0, rs * re / np.maximum(rs + re, 1e-300), rs) if rs > 0 else 0.0 * re
-    if load_ohm:
-        return re * load_ohm / (re + load_ohm)
-    return re
+    """R_deg of the distortion term (ohm), as the topology defines it: RE (ce),
+    R_S‖RE (cb), RE‖R_L (cc)."""
+    return stage_module(topology).degeneration(re, source_ohm, load_ohm)
 
 
 def score_terms(*, gain_inf_db, target_db, tol_db, drift_pct, hd2_pct, supply_a, emptied,

@@ -1,4 +1,7 @@
-"""Roles of each topology and the batch of candidate stages the engine evaluates.
+"""The known roles and the batch of candidate stages the engine evaluates.
+
+Which roles a topology uses, and which it requires, is the topology's own
+(:mod:`optimiser.stages`, ``ROLES``); this module names every role there is.
 
 A :class:`StageBatch` holds ``n`` candidate stages of one topology built around
 one transistor type, as arrays of shape ``(n,)`` (ohm, farad).  A role that a
@@ -19,27 +22,23 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-__all__ = ["RESISTOR_ROLES", "CAPACITOR_ROLES", "ROLES", "REQUIRED", "StageBatch", "PartRatings"]
+__all__ = ["RESISTOR_ROLES", "CAPACITOR_ROLES", "StageBatch", "PartRatings"]  # and ROLES, REQUIRED (__getattr__)
 
 RESISTOR_ROLES = ("R1", "R2", "RC", "RE", "RE_BYP")
 CAPACITOR_ROLES = ("C_IN", "C_OUT", "C_BYP", "C_B")
 
-#: Roles each topology may use (docs/requests.md, "Roles").
-ROLES: dict[str, tuple[str, ...]] = {
-    "ce": ("R1", "R2", "RC", "RE", "RE_BYP", "C_BYP", "C_IN", "C_OUT"),
-    "cb": ("R1", "R2", "RC", "RE", "C_B", "C_IN", "C_OUT"),
-    "cc": ("R1", "R2", "RC", "RE", "C_IN", "C_OUT"),
-}
-
-#: Roles each topology must have.  A ce stage also needs RE or RE_BYP, and
-#: C_BYP goes with RE_BYP.
-REQUIRED: dict[str, tuple[str, ...]] = {
-    "ce": ("R1", "R2", "RC", "C_IN", "C_OUT"),
-    "cb": ("R1", "R2", "RC", "RE", "C_B", "C_IN", "C_OUT"),
-    "cc": ("R1", "R2", "RE", "C_IN", "C_OUT"),
-}
-
 _ALL = RESISTOR_ROLES + CAPACITOR_ROLES
+
+
+def __getattr__(name: str):
+    """``ROLES`` and ``REQUIRED``: topology -> role names it may use / must have, read
+    from each topology's module (:mod:`optimiser.stages`, which imports this module,
+    hence built on first use)."""
+    if name in ("ROLES", "REQUIRED"):
+        from . import stages
+        attr = "ROLE_NAMES" if name == "ROLES" else "REQUIRED"
+        return {m.NAME: getattr(m, attr) for m in stages.modules()}
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def _arr(x) -> np.ndarray:
@@ -86,8 +85,9 @@ class StageBatch:
 
     def one(self, i: int) -> dict[str, float]:
         """The values of candidate ``i`` as role -> value, roles in use only."""
+        from .stages import module
         out = {}
-        for r in ROLES[self.topology]:
+        for r in module(self.topology).ROLE_NAMES:
             v = float(getattr(self, r)[i])
             if v > 0:
                 out[r] = v

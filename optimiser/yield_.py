@@ -8,8 +8,8 @@ exact DC and AC run once, vectorised.  A sample passes when its own figures meet
 target of the request except ``ic_drift_max_pct`` (a property of the design, checked
 once) and it is forward-active with margin (V_CE ≥ vce_sat, not cut off) and within the
 transistor's limits.  Draws come from ``numpy.random.default_rng(seed)`` in a fixed
-order (roles in :data:`~optimiser.stage.ROLES` order, then hFE, then temperature), so
-the same seed and design give the same samples in ``analyse``, ``design`` and ``plan``.
+order (roles in the order of the topology's ``ROLE_NAMES``, :mod:`optimiser.stages`,
+then hFE, then temperature), so the same seed and design give the same samples in ``analyse``, ``design`` and ``plan``.
 """
 
 from __future__ import annotations
@@ -25,7 +25,8 @@ from . import ac, distortion
 from .dc import operating_point
 from .device import device_from_transistor
 from .request import Request
-from .stage import RESISTOR_ROLES, ROLES, StageBatch
+from .stage import RESISTOR_ROLES, StageBatch
+from .stages import module as stage_module
 
 __all__ = ["YieldResult", "draw", "monte_carlo", "worst_case", "WorstCase", "apply_yield"]
 
@@ -84,7 +85,7 @@ def draw(topology: str, values: dict[str, float], transistor: Transistor,
     """The random draws: (StageBatch of ``samples`` stages, beta25 (n,), temp_c (n,))."""
     rng = np.random.default_rng(seed)
     vals = {}
-    for role in ROLES[topology]:
+    for role in stage_module(topology).ROLE_NAMES:
         v = float(values.get(role, 0.0) or 0.0)
         u = rng.uniform(-1.0, 1.0, samples)          # drawn for every role: fixed order
         vals[role] = v * (1.0 + _tol(role, tolerances) * u) if v > 0 else np.zeros(samples)
@@ -186,7 +187,7 @@ def monte_carlo(request: Request, values: dict[str, float], transistor: Transist
             if x.size:
                 a, b = np.percentile(x, [5, 95])
                 pct[k] = (float(a), float(b))
-    smp = {r: batch.role(r) for r in ROLES[request.topology]}
+    smp = {r: batch.role(r) for r in stage_module(request.topology).ROLE_NAMES}
     smp.update(beta25=beta25, temp_c=temps, passed=passed, **fig)
     return YieldResult(yield_pct=float(100.0 * passed.mean()),
                        fail_share={k: float(v.mean()) for k, v in fails.items()},
@@ -221,7 +222,7 @@ def worst_case(request: Request, values: dict[str, float], transistor: Transisto
     (all parameters pushed to raise it, and to lower it) are then evaluated exactly.
     """
     topo = request.topology
-    roles = [r for r in ROLES[topo] if (values.get(r, 0.0) or 0.0) > 0]
+    roles = [r for r in stage_module(topo).ROLE_NAMES if (values.get(r, 0.0) or 0.0) > 0]
     lo_b, hi_b = float(transistor.hfe_min), float(transistor.hfe_max)
     b0 = math.sqrt(lo_b * hi_b) if transistor.hfe_typ is None else float(transistor.hfe_typ)
     t_lo, t_hi = float(request.temp_c[0]), float(request.temp_c[1])
@@ -276,7 +277,7 @@ def worst_case(request: Request, values: dict[str, float], transistor: Transisto
 
 def _rows_figures(request, transistor, topo, rows, edges):
     n = len(rows)
-    roles = ROLES[topo]
+    roles = stage_module(topo).ROLE_NAMES
     vals = {r: np.array([row[0].get(r, 0.0) for row in rows]) for r in roles}
     batch = StageBatch.from_values(topo, **vals)
     beta = np.array([row[1] for row in rows])

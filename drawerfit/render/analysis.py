@@ -10,6 +10,7 @@ from rich.table import Table
 from drawerfit.console import SEVERITY_STYLE, caution_line
 from drawerfit.console import out as _out
 from inventory.values import format_si
+from optimiser.stages import module as stage_module
 
 __all__ = ["show_analysis", "show_cautions", "drift_rows", "capacitor_table"]
 
@@ -78,7 +79,7 @@ def show_analysis(design, ev, i: int, circuit, yield_result=None, console=None) 
     out = console or _out
     m = design.metrics
     req = circuit.request
-    title = {"ce": "common emitter", "cb": "common base", "cc": "common collector"}[req.topology]
+    title = stage_module(req.topology).LONG_NAME
     form = f", {design.form}" if design.form else ""
     out.print(f"[bold]{title}{form}[/bold] on {format_si(req.supply_v, 'V')}, "
               f"transistor {design.transistor}")

@@ -19,6 +19,7 @@ from drawerfit.sheet.spread import Probe
 from optimiser.cautions import Caution
 from optimiser.design import Design
 from optimiser.request import Request
+from optimiser.stages import module as stage_module
 
 __all__ = ["FIGURES", "render_html", "data_uri"]
 
@@ -101,8 +102,9 @@ def _show(key: str, unit: str, v) -> str:
 
 def _req_rows(request: Request) -> list[tuple[str, str]]:
     r = request
-    rows = [("topology", {"ce": "common emitter", "cb": "common base",
-                          "cc": "common collector (emitter follower)"}[r.topology]),
+    mod = stage_module(r.topology)
+    topology = f"{mod.LONG_NAME} ({mod.ALSO_CALLED})" if mod.ALSO_CALLED else mod.LONG_NAME
+    rows = [("topology", topology),
             ("supply", fmt.si(r.supply_v, "V")),
             ("load", fmt.si(r.load_ohm, "Ω") if r.load_ohm else "none (open)"),
             ("source resistance", fmt.si(r.source_ohm, "Ω")),
@@ -155,10 +157,10 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
                 response_png: bytes, drift_png: bytes, route: list[dict],
                 probes: list[Probe], cautions: list[Caution], transistor=None) -> str:
     """The page as one string."""
-    topo = {"ce": "common-emitter", "cb": "common-base", "cc": "common-collector"}
     who = design.transistor if design.transistor not in ("", "inline") else \
         "the given transistor"
-    title = f"Build sheet: {topo.get(design.topology, design.topology)} stage with {who}"
+    kind = stage_module(design.topology).LONG_NAME.replace(" ", "-")
+    title = f"Build sheet: {kind} stage with {who}"
     sub = []
     if design.rank is not None:
         sub.append(f"design rank {design.rank}")

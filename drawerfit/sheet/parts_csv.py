@@ -18,9 +18,10 @@ from inventory.parts import (
     DEFAULT_RESISTOR_POWER_W,
     POLARISED_DIELECTRICS,
 )
+from optimiser import stages
 from optimiser.design import Design
 from optimiser.request import Request
-from optimiser.stage import RESISTOR_ROLES, ROLES
+from optimiser.stage import RESISTOR_ROLES
 
 __all__ = ["COLUMNS", "PartRow", "part_rows", "pick_route", "location_key", "write_parts_csv"]
 
@@ -50,7 +51,8 @@ def location_key(loc: str) -> tuple:
 
 
 def _role_order(design: Design) -> list[str]:
-    order = [r for r in ROLES.get(design.topology, ()) if r in design.parts]
+    known = stages.module(design.topology).ROLE_NAMES if design.topology in stages.NAMES else ()
+    order = [r for r in known if r in design.parts]
     return order + [r for r in design.parts if r not in order]
 
 

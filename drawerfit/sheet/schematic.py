@@ -7,6 +7,11 @@ output coupling and load; the supply rail across the top, a ground rail across
 the bottom.  The common-base stage takes its input at the emitter from the
 lower right, so that no wire crosses another.
 
+Each topology has its drawing in :data:`DRAWINGS` (registered with
+:func:`drawing`); the three divider-biased stages share one, which asks the
+topology's module (:mod:`optimiser.stages`) at which terminals the source and
+the load attach.  A new topology registers its own.
+
 Each label stands beside its part, placed from the part's symbol box, so that
 no label crosses a symbol, a wire or another label (the tests check this on the
 SVG).  Polarised capacitors are schemdraw's polarised symbol (curved plate and
@@ -15,6 +20,7 @@ SVG).  Polarised capacitors are schemdraw's polarised symbol (curved plate and
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
 
 import schemdraw
@@ -23,8 +29,21 @@ import schemdraw.elements as elm
 from drawerfit.sheet import fmt
 from optimiser.design import Design
 from optimiser.request import Request
+from optimiser.stages import module as stage_module
 
-__all__ = ["draw", "write_schematic", "role_label"]
+__all__ = ["draw", "drawing", "DRAWINGS", "write_schematic", "role_label"]
+
+#: topology name -> its drawing: (design, request, probes) -> schemdraw.Drawing.
+DRAWINGS: dict[str, Callable[..., schemdraw.Drawing]] = {}
+
+
+def drawing(*names: str):
+    """Register the decorated function as the drawing of the topologies ``names``."""
+    def register(fn):
+        for name in names:
+            DRAWINGS[name] = fn
+        return fn
+    return register
 
 #: Unit length of one part body (schemdraw units).
 L = 2.6
@@ -129,9 +148,22 @@ def draw(design: Design, request: Request,
     there; they are written beside those nodes (blue), to ground.  Every label
     stands beside its part, clear of every symbol, wire and other label.
     """
+    fn = DRAWINGS.get(design.topology)
+    if fn is None:
+        raise ValueError(f"no schematic drawing for a {design.topology} stage")
+    return fn(design, request, probes)
+
+
+@drawing("ce", "cb", "cc")
+def _divider_biased(design: Design, request: Request,
+                    probes: dict[str, float] | None = None) -> schemdraw.Drawing:
+    """A divider-biased stage: the source at the topology's INPUT terminal (base, or the
+    emitter from the lower right), the load from its OUTPUT terminal."""
     schemdraw.svgconfig.text = "text"
     p = design.parts
-    topo = design.topology
+    mod = stage_module(design.topology)
+    at_emitter = mod.INPUT == "emitter"
+    at_collector = mod.OUTPUT == "collector"
     dw = schemdraw.Drawing(canvas="svg", show=False)
     dw.config(fontsize=FONT, unit=L, lw=1.4)
 
@@ -193,9 +225,9 @@ def draw(design: Design, request: Request,
     source_r = f"source R\n{fmt.value(request.source_ohm, 'resistor')}" \
         if request.source_ohm else None
 
-    # --- input of cb: into the emitter node from the lower right ------------
+    # --- input at the emitter (cb): into the emitter node from the lower right
     x_src = None
-    if topo == "cb":
+    if at_emitter:
         dw.add(elm.Dot().at(e_node))
         dw.add(elm.Line().at(e_node).right(2.0))
         cin = part(_cap(design, request, "C_IN", "right", "below"), _label(design, "C_IN"),
@@ -211,8 +243,8 @@ def draw(design: Design, request: Request,
 
     # --- output: C_OUT from the collector (ce, cb) or the emitter (cc) -------
     # Above the collector's wire; below the emitter's, clear of the transistor's label.
-    out_node = c_node if topo in ("ce", "cb") else e_node
-    out_side = "above" if topo in ("ce", "cb") else "below"
+    out_node = c_node if at_collector else e_node
+    out_side = "above" if at_collector else "below"
     dw.add(elm.Dot().at(out_node))
     dw.add(elm.Line().at(out_node).right(2.0))
     cout = part(_cap(design, request, "C_OUT", "right", out_side), _label(design, "C_OUT"),
@@ -231,8 +263,8 @@ def draw(design: Design, request: Request,
     dw.add(elm.Dot(open=True).label("out", loc="right"))
     x_right = x_load
 
-    # --- input of ce and cc: source (with source_ohm) through C_IN to the base
-    if topo == "cb":
+    # --- input at the base (ce, cc): source (with source_ohm) through C_IN
+    if at_emitter:
         x_left = x_div - (2.4 if "C_B" in p else 0.8)
     else:
         here = (x_div, 0.0)

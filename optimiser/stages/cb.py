@@ -10,11 +10,46 @@ from __future__ import annotations
 import numpy as np
 
 from ..stage import StageBatch
+from .base import NODE_WORDS, Role, required_names, role_names
 from .common import GROUND, Element, Network, par_thevenin
 
-__all__ = ["network", "quasi_static", "capacitors", "OUTPUT", "WIRING"]
+__all__ = ["NAME", "LONG_NAME", "ALSO_CALLED", "ROLES", "ROLE_NAMES", "REQUIRED", "RULES",
+           "FORMS", "form_of", "WIRING", "NODE_WORDS", "INPUT", "OUTPUT", "DEFAULT_GAIN_DB",
+           "network", "quasi_static", "capacitors", "degeneration", "score_gain_target"]
 
+NAME = "cb"
+LONG_NAME = "common base"
+ALSO_CALLED = None
+
+ROLES = (Role("R1"), Role("R2"), Role("RC"), Role("RE"), Role("C_B"), Role("C_IN"),
+         Role("C_OUT"))
+ROLE_NAMES = role_names(ROLES)
+REQUIRED = required_names(ROLES)
+RULES = ()
+FORMS = (None,)
+
+
+def form_of(values) -> None:
+    """One form only."""
+    return None
+
+
+#: The transistor terminals the source branch drives and the load branch hangs from.
+INPUT = "emitter"
 OUTPUT = "collector"
+DEFAULT_GAIN_DB = None
+
+
+def degeneration(re, source_ohm, load_ohm):
+    """R_deg of the score's distortion term: R_S in parallel with RE (ohm)."""
+    re = np.asarray(re, dtype=float)
+    rs = float(source_ohm or 0.0)
+    return np.where(re > 0, rs * re / np.maximum(rs + re, 1e-300), rs) if rs > 0 else 0.0 * re
+
+
+def score_gain_target():
+    """No gain term in the score when the request sets no gain."""
+    return None
 
 
 #: The stage's full wiring, for a netlist of the whole stage (supply included):

@@ -10,11 +10,47 @@ from __future__ import annotations
 import numpy as np
 
 from ..stage import StageBatch
+from .base import NODE_WORDS, Role, required_names, role_names
 from .common import GROUND, Element, Network, par_thevenin
 
-__all__ = ["network", "quasi_static", "capacitors", "OUTPUT", "WIRING"]
+__all__ = ["NAME", "LONG_NAME", "ALSO_CALLED", "ROLES", "ROLE_NAMES", "REQUIRED", "RULES",
+           "FORMS", "form_of", "WIRING", "NODE_WORDS", "INPUT", "OUTPUT", "DEFAULT_GAIN_DB",
+           "network", "quasi_static", "capacitors", "degeneration", "score_gain_target"]
 
+NAME = "cc"
+LONG_NAME = "common collector"
+ALSO_CALLED = "emitter follower"
+
+ROLES = (Role("R1"), Role("R2"), Role("RC", False), Role("RE"), Role("C_IN"), Role("C_OUT"))
+ROLE_NAMES = role_names(ROLES)
+REQUIRED = required_names(ROLES)
+RULES = ()
+FORMS = (None,)
+
+
+def form_of(values) -> None:
+    """One form only (with or without RC)."""
+    return None
+
+
+#: The transistor terminals the source branch drives and the load branch hangs from.
+INPUT = "base"
 OUTPUT = "emitter"
+DEFAULT_GAIN_DB = None
+
+
+def degeneration(re, source_ohm, load_ohm):
+    """R_deg of the score's distortion term: RE in parallel with R_L (ohm)."""
+    re = np.asarray(re, dtype=float)
+    if load_ohm:
+        return re * load_ohm / (re + load_ohm)
+    return re
+
+
+def score_gain_target():
+    """Unity (0 dB) within FOLLOWER_TOL_DB: a follower is scored as a buffer."""
+    from ..score import FOLLOWER_TOL_DB
+    return 0.0, FOLLOWER_TOL_DB
 
 
 #: The stage's full wiring, for a netlist of the whole stage (supply included):

@@ -11,12 +11,54 @@ from __future__ import annotations
 import numpy as np
 
 from ..stage import StageBatch
+from .base import NODE_WORDS, OneOf, Role, Together, required_names, role_names
 from .common import GROUND, Element, Network, par_thevenin
 
-__all__ = ["network", "quasi_static", "capacitors", "OUTPUT", "WIRING"]
+__all__ = ["NAME", "LONG_NAME", "ALSO_CALLED", "ROLES", "ROLE_NAMES", "REQUIRED", "RULES",
+           "FORMS", "form_of", "WIRING", "NODE_WORDS", "INPUT", "OUTPUT", "DEFAULT_GAIN_DB",
+           "network", "quasi_static", "capacitors", "degeneration", "score_gain_target"]
 
-#: The transistor terminal the load branch hangs from.
+NAME = "ce"
+LONG_NAME = "common emitter"
+ALSO_CALLED = None
+
+ROLES = (Role("R1"), Role("R2"), Role("RC"), Role("RE", False), Role("RE_BYP", False),
+         Role("C_BYP", False), Role("C_IN"), Role("C_OUT"))
+ROLE_NAMES = role_names(ROLES)
+REQUIRED = required_names(ROLES)
+RULES = (OneOf(("RE", "RE_BYP")), Together(("RE_BYP", "C_BYP"), "C_BYP bypasses RE_BYP"))
+
+#: The emitter forms: RE only, RE_BYP (with C_BYP) only, or both.
+FORMS = ("unbypassed", "fully bypassed", "partly bypassed")
+
+
+def form_of(values) -> str:
+    """The emitter form of ``values`` (role -> value) from which emitter roles are used."""
+    re_, byp = values.get("RE", 0.0) or 0.0, values.get("RE_BYP", 0.0) or 0.0
+    if byp <= 0:
+        return "unbypassed"
+    return "partly bypassed" if re_ > 0 else "fully bypassed"
+
+
+#: The transistor terminals the source branch drives and the load branch hangs from.
+INPUT = "base"
 OUTPUT = "collector"
+
+#: The gain target (dB) a request to design a ce stage gets when it names none: a
+#: stage of the kind asked for amplifies, and x10 (20 dB) is the usual single ce
+#: stage (common practice).  Without a target the ranking would favour stages that
+#: do not amplify at all.  ``gain_db = "none"`` asks for no gain target.
+DEFAULT_GAIN_DB = 20.0
+
+
+def degeneration(re, source_ohm, load_ohm):
+    """R_deg of the score's distortion term: the unbypassed RE (ohm)."""
+    return np.asarray(re, dtype=float)
+
+
+def score_gain_target():
+    """No gain term in the score when the request sets no gain."""
+    return None
 
 
 #: The stage's full wiring, for a netlist of the whole stage (supply included):
