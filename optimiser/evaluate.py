@@ -218,8 +218,10 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
         Piece ratings for the derating rules (defaults 0.25 W, 50 V, not polarised).
     band_edges : bool
         Compute f_low, f_high and the flat-passband rule (the costly part of AC).
-    large_signal : bool
-        Compute THD and swing (quasi-static sweep).
+    large_signal : bool or "thd"
+        Compute THD and swing (quasi-static sweep); ``"thd"`` computes THD alone
+        (the swing, NaN then, is a figure to show, never a target: a search checking
+        its candidates against thd_max_pct needs only THD).
     derating : dict, optional
         Overrides of :data:`DERATING`.
     corner_gain : bool
@@ -265,7 +267,8 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
     thd, swing, swing_emf = nan.copy(), nan.copy(), nan.copy()
     if large_signal:
         thd = distortion.thd_pct(request, batch, model, op)
-        swing, swing_emf = distortion.swing_vpk(request, batch, model, op)
+        if large_signal != "thd":
+            swing, swing_emf = distortion.swing_vpk(request, batch, model, op)
 
     metrics = {
         "gain": gain, "gain_db": gain_db, "f_low_hz": f_low, "f_high_hz": f_high,

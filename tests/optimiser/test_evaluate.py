@@ -123,3 +123,16 @@ def test_divider_rule_warning_names_the_factor():
     assert any("10:1 rule" in w for w in ev.warnings(0))
     ok = _ev()
     assert not any("10:1 rule" in w for w in ok.warnings(0))
+
+
+def test_thd_alone_is_the_same_thd_without_the_swing():
+    """large_signal="thd" (what the search's confirmation asks) gives the THD of the
+    full large-signal pass exactly, and leaves the swing, a figure never a target, out."""
+    req = Request("ce", 12.0, load_ohm=10e3, source_ohm=600, thd_max_pct=1.0, input_vpk=0.05)
+    batch = StageBatch.from_values("ce", **CE)
+    full = evaluate(req, batch, T, large_signal=True)
+    thd = evaluate(req, batch, T, large_signal="thd")
+    assert np.isfinite(full.metrics["swing_vpk"]).all()
+    np.testing.assert_array_equal(thd.metrics["thd_pct"], full.metrics["thd_pct"])
+    assert np.isnan(thd.metrics["swing_vpk"]).all()
+    assert list(thd.meets) == list(full.meets)
