@@ -25,7 +25,7 @@ import pulp
 
 from inventory.store import open_store
 from optimiser.buildlist import BuildList, BuildSpec
-from optimiser.plan import (
+from optimiser.planning import (
     PlanItem,
     available_solvers,
     build_model,
@@ -149,8 +149,8 @@ def main(argv=None) -> int:
                                               search_time_s=args.search_time or None)
         dt = time.perf_counter() - t0
         t_search += dt
-        stopped = st.get("searches_stopped_at_time_limit", 0)
-        print(f"  {b.name:<11} {len(designs):4d} candidates  ({st['searches']} searches, "
+        stopped = st.stopped_at_time_limit
+        print(f"  {b.name:<11} {len(designs):4d} candidates  ({st.searches} searches, "
               f"{dt:6.1f} s{f', {stopped} stopped at the time limit' if stopped else ''})"
               f"{'  ' + note if note else ''}", flush=True)
         items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,
