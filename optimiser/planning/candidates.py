@@ -15,7 +15,31 @@ from inventory.errors import InputError
 from inventory.parts import StockSnapshot
 from optimiser.design import Design
 
-__all__ = ["PlanItem", "CandidateSearches", "gather_candidates"]
+__all__ = ["DEFAULT_CANDIDATES", "PlanItem", "CandidateSearches", "gather_candidates"]
+
+#: Designs each search offers per request and per source.  More gives the
+#: programme more to choose from (a plan can only be as good as its candidates)
+#: at the price of longer searches and a larger programme.
+DEFAULT_CANDIDATES = 20
+#: Per transistor type under-represented by the first two sources, the search
+#: offers ``max(PER_TYPE_MIN, top // PER_TYPE_DIVISOR)`` designs with it: enough
+#: that a scarce type never leaves the programme without alternatives, few
+#: enough that these extra searches stay short.
+PER_TYPE_MIN = 3
+PER_TYPE_DIVISOR = 5
+#: Nearest misses asked of the first search, and violations of the best one
+#: quoted when a request has no design: enough to say what is wrong, short
+#: enough for one line.
+NEAREST_MISSES = 3
+NOTE_VIOLATIONS = 3
+#: Decimal digits of a value when telling two designs apart: far finer than any
+#: series step, coarse enough to treat float noise as the same value.
+DESIGN_KEY_DIGITS = 12
+#: Time limit of each candidate search in seconds unless the caller gives one.
+#: None: every search runs to its end, so the candidates are the best the drawer
+#: allows by the search's ranking; a limit trades that for time (the plan is then
+#: optimal over the candidates found).  The command line passes its own.
+SEARCH_TIME_LIMIT_S: float | None = None
 
 
 @dataclass(frozen=True)
@@ -49,14 +73,14 @@ class CandidateSearches:
 
 def _design_key(d: Design) -> tuple:
     return (d.topology, d.transistor,
-            tuple(sorted((role, round(p.value, 12), p.joined or "",
-                          tuple((q.id, q.count, round(q.value, 12)) for q in p.pieces))
+            tuple(sorted((role, round(p.value, DESIGN_KEY_DIGITS), p.joined or "",
+                          tuple((q.id, q.count, round(q.value, DESIGN_KEY_DIGITS)) for q in p.pieces))
                          for role, p in d.parts.items())))
 
 
 def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot, *,
-                      top: int = 30, search_fn: Callable | None = None,
-                      search_time_s: float | None = None
+                      top: int = DEFAULT_CANDIDATES, search_fn: Callable | None = None,
+                      search_time_s: float | None = SEARCH_TIME_LIMIT_S
                       ) -> tuple[list[Design], str, CandidateSearches]:
     """Candidate designs for one request: enough, and varied enough, to give the programme choices.
 
@@ -65,7 +89,7 @@ def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot
     1. the best ``top`` designs over the drawer as it is;
     2. the best ``top`` over the drawer plus the purchasable values (when
        ``augmented`` differs from ``snapshot``);
-    3. for a request open to any transistor, the best ``max(3, top // 5)`` with
+    3. for a request open to any transistor, the best ``max(PER_TYPE_MIN, top // PER_TYPE_DIVISOR)`` with
        each transistor type the drawer holds that (1) and (2) left short of
        that many, so that a scarce type never leaves the programme without
        alternatives.
@@ -100,11 +124,11 @@ def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot
         misses.extend(getattr(res, "nearest_misses", []) or [])
         return res
 
-    run(one, snapshot, top, 3)
+    run(one, snapshot, top, NEAREST_MISSES)
     if augmented is not snapshot:
         run(one, augmented, top)
     if request.transistor == "any":
-        per = max(3, top // 5)
+        per = max(PER_TYPE_MIN, top // PER_TYPE_DIVISOR)
         have: dict[str, int] = defaultdict(int)
         for d in found:
             have[d.transistor] += 1
@@ -128,5 +152,5 @@ def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot
         if misses:
             best = misses[0]
             if best.violations:
-                note += "; nearest miss: " + ", ".join(best.violations[:3])
+                note += "; nearest miss: " + ", ".join(best.violations[:NOTE_VIOLATIONS])
     return unique, note, CandidateSearches(runs, time.perf_counter() - t0, len(incomplete))

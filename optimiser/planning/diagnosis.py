@@ -7,7 +7,7 @@ from collections import defaultdict
 from collections.abc import Sequence
 
 from optimiser.planning.candidates import PlanItem
-from optimiser.planning.model import build_model, read_solution, solve_model
+from optimiser.planning.model import SOLVER_TIME_LIMIT_S, build_model, read_solution, solve_model
 from optimiser.planning.results import Shortfall
 from optimiser.planning.rows import Row
 from optimiser.purchase import Catalogue
@@ -16,7 +16,7 @@ __all__ = ["diagnose"]
 
 
 def diagnose(items: Sequence[PlanItem], rows: dict[int, Row], catalogue: Catalogue | None,
-             solver: str = "cbc", time_limit: float | None = None) -> list[Shortfall]:
+             solver: str = "cbc", time_limit: float | None = SOLVER_TIME_LIMIT_S) -> list[Shortfall]:
     """Name the requests that cannot be met and the shortages that bind.
 
     A build without any candidate is reported as such.  For the others an

@@ -72,7 +72,7 @@ import pulp
 
 from inventory.errors import InputError
 from optimiser.planning.candidates import PlanItem
-from optimiser.planning.objective import cost_quantum, normalised_scores
+from optimiser.planning.objective import cost_quantum, normalised_scores, score_weight
 from optimiser.planning.results import SolverReport
 from optimiser.planning.rows import Row, Unusable, can_stand_in, design_demand, named_rows
 from optimiser.purchase import Catalogue
@@ -82,6 +82,17 @@ __all__ = ["SOLVERS", "PlanModel", "Solution", "available_solvers", "build_model
 
 #: Solvers ``--solver`` accepts.
 SOLVERS = ("cbc", "highs")
+#: Relative gap: 0, so a plan reported ``Optimal`` is proven cheapest (HiGHS
+#: would otherwise stop at 1e-4), at the price of closing the gap fully.
+REL_GAP = 0.0
+#: Absolute gap as a share of one copy's score weight: well below any cost
+#: step, so cost stays proven least; above 0, so the solver need not prove the
+#: last sliver of score, which can take long and changes no purchase.
+ABS_GAP_SHARE = 0.01
+#: Solver time limit in seconds unless the caller gives one.  None: no limit, the
+#: solver runs until its plan is proven cheapest (or the programme infeasible); a
+#: limit trades that proof for time (the status is then ``Feasible``).
+SOLVER_TIME_LIMIT_S: float | None = None
 
 
 def _tag(row: Row) -> str:
@@ -166,7 +177,7 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
 
     total_copies = sum(max(it.count, 0) for it in items) or 1
     quantum = cost_quantum(catalogue)
-    weight = quantum / (2.0 * total_copies)
+    weight = score_weight(quantum, total_copies)
 
     # copies per column
     copies: dict[tuple[int, int], pulp.LpAffineExpression] = {}
@@ -351,11 +362,11 @@ def _quiet_stdout():
 def _make_solver(name: str, model: PlanModel, time_limit: float | None):
     # An absolute gap below the score weight keeps the score part honest; the
     # relative gap is 0 so the cost is proven least (HiGHS defaults to 1e-4).
-    gap_abs = model.score_weight * 0.01
+    gap_abs = model.score_weight * ABS_GAP_SHARE
     if name == "cbc":
-        return pulp.PULP_CBC_CMD(msg=False, timeLimit=time_limit, gapRel=0.0, gapAbs=gap_abs)
+        return pulp.PULP_CBC_CMD(msg=False, timeLimit=time_limit, gapRel=REL_GAP, gapAbs=gap_abs)
     if name == "highs":
-        return pulp.HiGHS(msg=False, timeLimit=time_limit, gapRel=0.0, gapAbs=gap_abs)
+        return pulp.HiGHS(msg=False, timeLimit=time_limit, gapRel=REL_GAP, gapAbs=gap_abs)
     raise InputError(f"unknown solver {name!r} (choose from {', '.join(SOLVERS)})",
                      field="--solver")
 
@@ -369,7 +380,7 @@ def _status_text(problem: pulp.LpProblem, status: int) -> str:
 
 
 def solve_model(model: PlanModel, solver: str = "cbc",
-                time_limit: float | None = None) -> SolverReport:
+                time_limit: float | None = SOLVER_TIME_LIMIT_S) -> SolverReport:
     """Solve ``model`` with ``solver`` (``cbc`` or ``highs``); return name, status, seconds.
 
     Status is ``Optimal`` (proven), ``Feasible`` (a plan, not proven least:

@@ -10,20 +10,36 @@ from fractions import Fraction
 from optimiser.design import Design
 from optimiser.purchase import Catalogue
 
-__all__ = ["cost_quantum", "normalised_scores"]
+__all__ = ["WORST_SCORE", "SCORE_SHARE", "cost_quantum", "normalised_scores", "score_weight"]
+
+#: Normalised score of a build's worst candidate (its best is 0).  Below 1, so
+#: that one copy's score term stays below the score weight.
+WORST_SCORE = 0.999
+#: The whole score term is kept below ``cost step / SCORE_SHARE``.  From 1 up,
+#: no gain in score can pay for a dearer order (cost first, score second); 2
+#: keeps a margin of half a step against the solver's tolerances.  A larger value
+#: shrinks the score term towards those tolerances, where plans of equal cost
+#: would no longer be told apart by score.
+SCORE_SHARE = 2.0
+#: Prices are taken as exact decimals with denominators up to this (a millionth
+#: of the currency unit): finer than any price, coarse enough for a usable step.
+PRICE_DENOMINATOR_LIMIT = 10**6
+#: The cost step when nothing may be bought: then only the score is minimised
+#: and its scale does not matter.
+UNIT_COST_STEP = 1.0
 
 
 def cost_quantum(catalogue: Catalogue | None) -> float:
     """Greatest common divisor of the pack prices and the line cost (> 0)."""
     if catalogue is None or not catalogue.items:
-        return 1.0
-    steps = [Fraction(str(p.pack_price)).limit_denominator(10**6)
+        return UNIT_COST_STEP
+    steps = [Fraction(str(p.pack_price)).limit_denominator(PRICE_DENOMINATOR_LIMIT)
              for p in catalogue.items.values()]
     if catalogue.options is not None:
-        steps.append(Fraction(str(catalogue.options.line_cost)).limit_denominator(10**6))
+        steps.append(Fraction(str(catalogue.options.line_cost)).limit_denominator(PRICE_DENOMINATOR_LIMIT))
     steps = [s for s in steps if s > 0]
     if not steps:
-        return 1.0
+        return UNIT_COST_STEP
     den = math.lcm(*(s.denominator for s in steps))
     g = math.gcd(*(int(s * den) for s in steps))
     return float(Fraction(g, den))
@@ -40,9 +56,16 @@ def normalised_scores(designs: Sequence[Design]) -> list[float]:
     out = []
     for s in raw:
         if s is None or not math.isfinite(float(s)):
-            out.append(0.999)
+            out.append(WORST_SCORE)
         elif span <= 0:
             out.append(0.0)
         else:
-            out.append(0.999 * (float(s) - lo) / span)
+            out.append(WORST_SCORE * (float(s) - lo) / span)
     return out
+
+
+def score_weight(quantum: float, total_copies: int) -> float:
+    """Weight of the summed normalised scores in the objective: ``quantum`` (the
+    cost step) over ``SCORE_SHARE`` times the total copies, so that the whole
+    score term stays below ``quantum / SCORE_SHARE``."""
+    return quantum / (SCORE_SHARE * total_copies)

@@ -7,9 +7,14 @@ from collections.abc import Callable, Sequence
 
 from inventory.parts import StockSnapshot
 from optimiser.planning.assemble import assemble
-from optimiser.planning.candidates import PlanItem, gather_candidates
+from optimiser.planning.candidates import (
+    DEFAULT_CANDIDATES,
+    SEARCH_TIME_LIMIT_S,
+    PlanItem,
+    gather_candidates,
+)
 from optimiser.planning.diagnosis import diagnose
-from optimiser.planning.model import build_model, read_solution, solve_model
+from optimiser.planning.model import SOLVER_TIME_LIMIT_S, build_model, read_solution, solve_model
 from optimiser.planning.results import Plan, Shortfall, SolverReport
 from optimiser.planning.rows import stock_rows
 from optimiser.purchase import Catalogue, augment
@@ -19,7 +24,7 @@ __all__ = ["plan_builds", "make_plan"]
 
 def plan_builds(items: Sequence[PlanItem], snapshot: StockSnapshot,
                 catalogue: Catalogue | None = None, *, solver: str = "cbc",
-                time_limit: float | None = None) -> Plan:
+                time_limit: float | None = SOLVER_TIME_LIMIT_S) -> Plan:
     """Build, solve and read the programme; explain it when it has no solution.
 
     Parameters
@@ -56,10 +61,10 @@ def plan_builds(items: Sequence[PlanItem], snapshot: StockSnapshot,
                 stats=dict(model.size))
 
 
-def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candidates: int = 20,
-              time_limit: float | None = None, search_fn: Callable | None = None,
+def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candidates: int = DEFAULT_CANDIDATES,
+              time_limit: float | None = SOLVER_TIME_LIMIT_S, search_fn: Callable | None = None,
               progress: Callable[[str], None] | None = None,
-              search_time_s: float | None = None) -> Plan:
+              search_time_s: float | None = SEARCH_TIME_LIMIT_S) -> Plan:
     """Plan a build list against ``snapshot``: candidates, programme, solution.
 
     Parameters

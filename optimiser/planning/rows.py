@@ -22,6 +22,9 @@ __all__ = ["TRANSISTOR_KINDS", "Row", "Unusable", "stock_rows", "can_stand_in",
            "named_rows", "design_demand"]
 
 TRANSISTOR_KINDS = ("npn", "pnp")
+#: Relative difference below which two values or ratings count as equal: float
+#: noise from parsing, far below any series step or rating step.
+REL_TOL = 1e-9
 
 
 @dataclass(frozen=True)
@@ -90,7 +93,7 @@ def stock_rows(snapshot: StockSnapshot, catalogue: Catalogue | None = None) -> d
 def _same_value(a: float | None, b: float | None) -> bool:
     if a is None or b is None:
         return a is b
-    return abs(a - b) <= 1e-9 * max(abs(a), abs(b))
+    return abs(a - b) <= REL_TOL * max(abs(a), abs(b))
 
 
 def can_stand_in(sub: Row, orig: Row, *, strict_tolerance: bool = True,
@@ -118,7 +121,7 @@ def can_stand_in(sub: Row, orig: Row, *, strict_tolerance: bool = True,
     sr = sub.rating if sub.rating is not None else drat
     orr = orig.rating if orig.rating is not None else drat
     floor = orr if need is None else need
-    if (strict_tolerance and st > ot * (1 + 1e-9)) or sr < floor * (1 - 1e-9):
+    if (strict_tolerance and st > ot * (1 + REL_TOL)) or sr < floor * (1 - REL_TOL):
         return False
     if sub.kind == "capacitor" and sub.polarised and not orig.polarised:
         return False
