@@ -26,6 +26,7 @@ import pulp
 from inventory.store import open_store
 from optimiser.buildlist import BuildList, BuildSpec
 from optimiser.planning import (
+    DEFAULT_CANDIDATES,
     PlanItem,
     available_solvers,
     build_model,
@@ -112,7 +113,7 @@ def lp_relaxation_seconds(items, rows, catalogue) -> float:
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--candidates", type=int, default=20, help="search top per source")
+    ap.add_argument("--candidates", type=int, default=DEFAULT_CANDIDATES, help="search top per source")
     ap.add_argument("--time-limit", type=float, default=None)
     ap.add_argument("--search-time", type=float, default=60.0,
                     help="seconds each candidate search may take (0: no limit); a "

@@ -12,7 +12,12 @@
 """
 
 from optimiser.planning.assemble import assemble, prefer_stock
-from optimiser.planning.candidates import CandidateSearches, PlanItem, gather_candidates
+from optimiser.planning.candidates import (
+    DEFAULT_CANDIDATES,
+    CandidateSearches,
+    PlanItem,
+    gather_candidates,
+)
 from optimiser.planning.diagnosis import diagnose
 from optimiser.planning.model import (
     SOLVERS,
@@ -37,6 +42,7 @@ from optimiser.planning.rows import Row, can_stand_in, design_demand, stock_rows
 
 __all__ = [
     "SOLVERS",
+    "DEFAULT_CANDIDATES",
     "PlanItem",
     "CandidateSearches",
     "Row",
