@@ -25,7 +25,8 @@ import pulp
 
 from inventory.store import open_store
 from optimiser.buildlist import BuildList, BuildSpec
-from optimiser.plan import (
+from optimiser.planning import (
+    DEFAULT_CANDIDATES,
     PlanItem,
     available_solvers,
     build_model,
@@ -112,7 +113,7 @@ def lp_relaxation_seconds(items, rows, catalogue) -> float:
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--candidates", type=int, default=20, help="search top per source")
+    ap.add_argument("--candidates", type=int, default=DEFAULT_CANDIDATES, help="search top per source")
     ap.add_argument("--time-limit", type=float, default=None)
     ap.add_argument("--search-time", type=float, default=60.0,
                     help="seconds each candidate search may take (0: no limit); a "
@@ -149,8 +150,8 @@ def main(argv=None) -> int:
                                               search_time_s=args.search_time or None)
         dt = time.perf_counter() - t0
         t_search += dt
-        stopped = st.get("searches_stopped_at_time_limit", 0)
-        print(f"  {b.name:<11} {len(designs):4d} candidates  ({st['searches']} searches, "
+        stopped = st.stopped_at_time_limit
+        print(f"  {b.name:<11} {len(designs):4d} candidates  ({st.searches} searches, "
               f"{dt:6.1f} s{f', {stopped} stopped at the time limit' if stopped else ''})"
               f"{'  ' + note if note else ''}", flush=True)
         items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,

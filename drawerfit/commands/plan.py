@@ -54,7 +54,7 @@ def _build_lines(plan, blist) -> list[dict]:
     """The plan's allocations as the lines of one build: each line's design carries its
     request (so that `builds show --sheet` needs no search), each order the pieces the
     builds take from it on arrival."""
-    from optimiser.plan import commit_entries
+    from optimiser.planning import commit_entries
 
     requests = {b.name: b.request for b in blist.builds}
     used = {(p.kind, round(p.value, 15)): p.used for p in plan.purchases}
@@ -98,7 +98,7 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
     values may be bought and at what price (docs/requests.md, docs/plan.md).
     """
     from optimiser.buildlist import load_buildlist
-    from optimiser.plan import make_plan
+    from optimiser.planning import make_plan
 
     blist = load_buildlist(buildlist)
     store = app.store()

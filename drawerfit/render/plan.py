@@ -1,6 +1,6 @@
 """Rich view of a plan: who gets which parts, what to order, what it costs, what the solver said.
 
-Nothing here computes: :class:`optimiser.plan.Plan` arrives complete.  Values are
+Nothing here computes: :class:`optimiser.planning.Plan` arrives complete.  Values are
 written as a technician writes them (:func:`inventory.values.format_value`,
 :func:`inventory.values.format_si`).
 """
@@ -14,7 +14,7 @@ from rich.text import Text
 
 from inventory.parts import POLARISED_DIELECTRICS
 from inventory.values import format_si, format_value
-from optimiser.plan import Allocation, Plan
+from optimiser.planning import Allocation, Plan
 
 __all__ = ["print_plan", "part_lines", "plus_text"]
 

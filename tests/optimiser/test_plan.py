@@ -20,7 +20,7 @@ from hypothesis import strategies as st
 
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
 from optimiser.design import Design, Piece, RolePick
-from optimiser.plan import (
+from optimiser.planning import (
     PlanItem,
     available_solvers,
     build_model,
@@ -46,7 +46,7 @@ def make_design(transistor: str, picks: list[tuple[str, float, int, int]],
 
 
 def normalised(scores: list[float]) -> list[float]:
-    """The normalisation documented in optimiser.plan: 0 best … 0.999 worst of the build."""
+    """The normalisation documented in optimiser.planning.objective: 0 best … 0.999 worst of the build."""
     lo, hi = min(scores), max(scores)
     if hi - lo <= 0:
         return [0.0] * len(scores)
@@ -380,8 +380,8 @@ def test_stand_in_rules():
 
 
 def test_a_stopped_solver_is_reported_not_hidden(monkeypatch):
-    import optimiser.plan as plan_mod
-    from optimiser.plan import SolverReport
+    import optimiser.planning.planner as plan_mod
+    from optimiser.planning import SolverReport
 
     snap = small_drawer()
     d = make_design("GP-N1", [("R1", 10000.0, 2, 1)], 0.0)
@@ -399,7 +399,7 @@ def test_status_of_a_time_limited_solution_is_feasible_not_optimal():
     # PuLP marks a solution found but not proven optimal with sol_status 2.
     import pulp
 
-    from optimiser.plan import _status_text
+    from optimiser.planning.model import _status_text
 
     prob = pulp.LpProblem("x", pulp.LpMinimize)
     prob.sol_status = pulp.LpSolutionIntegerFeasible
@@ -420,7 +420,7 @@ def test_highs_banner_stays_off_stdout(tmp_path):
     script = (
         "import json\n"
         "from tests.optimiser.test_plan import make_design, small_drawer\n"
-        "from optimiser.plan import PlanItem, plan_builds\n"
+        "from optimiser.planning import PlanItem, plan_builds\n"
         "d = make_design('GP-N1', [('R1', 10000.0, 2, 1)], 0.0)\n"
         "p = plan_builds([PlanItem('pre', 2, True, (d,))], small_drawer(), solver='highs')\n"
         "print(json.dumps(p.to_json()))\n")
