@@ -87,7 +87,12 @@ def print_plan(console: Console, plan: Plan, *, build_id: int | None = None,
     solver = plan.solver
     status_style = "green" if solver.status == "Optimal" else "bold yellow"
     if not plan.feasible:
-        console.print(Text("No plan meets every build from this drawer.", style="bold red"))
+        console.print(Text("No plan from the designs offered meets every build.",
+                           style="bold red"))
+        console.print("The programme chose among each request's best designs for one copy "
+                      "(--candidates), not among every design the drawer allows: a design "
+                      "it was not offered may still fit. A build that has no design at all "
+                      "is proven so by the complete search.")
         for s in plan.infeasible:
             console.print(f"[bold]{escape(s.request)}[/bold]: {escape(s.reason)}")
             if s.shortage:

@@ -83,7 +83,9 @@ def diagnose(items: Sequence[PlanItem], rows: dict[int, Row], catalogue: Catalog
         others = sorted({names[o] for p in pools for o in users[p] if o != b})
         what = ", ".join(f"{lab} (have {pool_have[(k, lab)]}, need {pool_need[(k, lab)]})"
                          for k, lab in pools)
-        reason = f"not enough {what}"
+        # over the candidates offered only: another design of the drawer may need
+        # none of these, so this is no proof that the drawer falls short
+        reason = f"the designs offered for it need more {what}"
         if others:
             reason += f"; shared with {', '.join(others)}"
         if any(k in ("resistor", "capacitor") for k, _ in pools) and not catalogue.items:

@@ -229,9 +229,14 @@ def test_infeasible_plan_is_an_answer(env):
     assert entry["request"] == "preamp.toml"
     labels = {s["label"]: (s["have"], s["need"]) for s in entry["shortage"]}
     assert any(have < need for have, need in labels.values())
-    # the human view names the request too
+    # a shortage over the designs offered is no proof the drawer falls short: the
+    # reason says whose need it is, never a bare "not enough"
+    assert entry["reason"].startswith("the designs offered for it need more")
+    # the human view names the request too, and what the verdict rests on
     r = env.run("plan", buildlist(env, text))
+    flat = " ".join(r.stdout.split())
     assert r.exit_code == 0 and "preamp.toml" in r.stdout
+    assert "not enough" not in flat and "a design it was not offered may still fit" in flat
 
 
 def test_bad_build_list_exit_2_one_line(env):
