@@ -2,12 +2,18 @@
 
 Each margin widens a closed-form estimate so that it stays on the safe side of
 the engine (docs/search.md lists the bounds B1–B20); the pure bounds themselves
-are in :mod:`optimiser.prune` and :mod:`optimiser.f_low_bounds`."""
+are in :mod:`optimiser.prune` and :mod:`optimiser.f_low_bounds`.
+
+The score's weights have one home, :mod:`optimiser.score`; the bounds turn their
+figures into score terms only through the functions below, which read the
+weights at each call (a changed weight changes every bound with it).
+"""
 
 from __future__ import annotations
 
 import numpy as np
 
+from optimiser import score as weights
 from optimiser.request import Request
 from optimiser.score import score_gain_target, score_terms
 
@@ -42,3 +48,28 @@ def skeleton_bound(request: Request, gain_inf_db, drift_pct, hd2, supply_a, vce_
                         vce_v=vce_v, supply_v=request.supply_v)
     return terms["gain"] + terms["drift"] + terms["distortion"] + terms["current"] \
         + stock_lb + terms["headroom"]
+
+
+def drift_term(drift_pct):
+    """The score's drift term of a drift (%)."""
+    return drift_pct / weights.DRIFT_UNIT_PCT
+
+
+def current_term(supply_a):
+    """The score's supply-current term of a current (A)."""
+    return supply_a / weights.CURRENT_UNIT_A
+
+
+def distortion_term(hd2_pct):
+    """The score's distortion term of an HD2 (%)."""
+    return hd2_pct / weights.THD_UNIT_PCT
+
+
+def stock_term(rows_emptied):
+    """The score's stock term of a number of emptied rows."""
+    return weights.STOCK_PENALTY * rows_emptied
+
+
+def headroom_volts(supply_v):
+    """The V_CE below which the score's headroom term starts to cost (V)."""
+    return weights.HEADROOM_FRACTION * supply_v

@@ -12,12 +12,16 @@ from optimiser.dc import solve_bias
 from optimiser.device import thermal_voltage
 from optimiser.options import RESISTOR_DERATING
 from optimiser.prune import midband_estimate
-from optimiser.score import STOCK_PENALTY, degeneration, hd2_pct, score_gain_target, score_terms
+from optimiser.score import degeneration, hd2_pct, score_gain_target, score_terms
 from optimiser.search.bounds import (
     GAIN_BOUND_MARGIN,
     GAIN_SLACK_DB,
     HIGH_GAIN_SLACK_DB,
     LEAST_GAIN_MARGIN,
+    current_term,
+    distortion_term,
+    drift_term,
+    stock_term,
 )
 from optimiser.search.levels import _expand
 from optimiser.search.skeletons import Skeletons
@@ -67,7 +71,7 @@ class CollectorLevel:
             if math.isfinite(upper):
                 # B11 with each node's own slack: the gain term is below the score to
                 # beat less the node's other terms (drift, current, distortion bounds)
-                other = d_lb / 10.0 + (V / (self.R1[P] + self.R2[P]) + ic_lo) / 10e-3 \
+                other = drift_term(d_lb) + current_term(V / (self.R1[P] + self.R2[P]) + ic_lo) \
                     + self._distortion_lb(P, ic_lo, ic_hi, REv)
                 span = np.maximum(upper - other, 0.0) * request.gain_tol_db / 20.0 \
                     + GAIN_SLACK_DB / 20.0
@@ -133,7 +137,7 @@ class CollectorLevel:
         RCc, RCbest = self.rc_vals[offs], self.rc_best[offs]
         # B5 and the drift, then B8/B12 with RC known, then the stock (B9, B10) — each
         # on the candidates the cheaper ones left, all before the exact DC point
-        pre = dlb / 10.0 + (V / (self.R1[Pc] + self.R2[Pc]) + ic_lo[rep]) / 10e-3
+        pre = drift_term(dlb) + current_term(V / (self.R1[Pc] + self.R2[Pc]) + ic_lo[rep])
         sel = np.flatnonzero(pre < upper)
         if sel.size and self.win is not None and topo in ("ce", "cb"):
             rl = request.load_ohm
@@ -142,8 +146,9 @@ class CollectorLevel:
             room = np.minimum(ic_hi[rs_] * zc, V - model.vce_sat)
             rdeg = degeneration(topo, REc[sel], request.source_ohm, request.load_ohm)
             with np.errstate(divide="ignore", invalid="ignore"):
-                h = 25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
-                    1.0 + ic_hi[rs_] * rdeg / thermal_voltage(25.0))
+                h = distortion_term(
+                    25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
+                        1.0 + ic_hi[rs_] * rdeg / thermal_voltage(25.0)))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
             floor = 0.0 if topo == "cb" else self._floor(
                 Pc[sel], ic_lo[rs_], ic_hi[rs_], ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel])
@@ -175,7 +180,7 @@ class CollectorLevel:
             if not self.opts.allow_combos:
                 must = single & (self.maxq[idx] <= k * self.request.builds) & ~self.virtual[idx]
                 st = st + must / np.maximum(k, 1)
-        st = STOCK_PENALTY * st
+        st = stock_term(st)
         ok &= pre[sel] + st < upper
         sel = sel[ok]
         stock_lb = st[ok]
@@ -192,7 +197,7 @@ class CollectorLevel:
         good &= prc <= RESISTOR_DERATING * RCbest * (1 + 1e-9)
         self.count("dc", (~good).sum())
         supply = (V - op.vb) / r1c + op.ic
-        good &= dlb / 10.0 + supply / 10e-3 < upper        # B5 with the exact current
+        good &= drift_term(dlb) + current_term(supply) < upper        # B5 with the exact current
         gdb = np.full(Pc.size, np.nan)
         hd2 = np.full(Pc.size, np.nan)
         sel = np.flatnonzero(good)
@@ -216,7 +221,7 @@ class CollectorLevel:
                             supply_a=supply, emptied=0, vce_v=op.vce, supply_v=V)
         # the headroom term is exact here (the nominal DC point); a hair of slack
         # keeps the bound below the confirmed score
-        lb = dlb / 10.0 + np.maximum(terms["gain"] - GAIN_SLACK_DB / max(
+        lb = drift_term(dlb) + np.maximum(terms["gain"] - GAIN_SLACK_DB / max(
             score_gain_target(request)[1], 1e-3), 0.0) + terms["distortion"] + terms["current"] + stock_lb \
             + np.maximum(terms["headroom"] - 1e-6, 0.0)
         under = lb < upper

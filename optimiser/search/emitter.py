@@ -21,10 +21,16 @@ from optimiser.prune import (
     junction_floor,
 )
 from optimiser.score import (
-    HEADROOM_FRACTION,
     score_gain_target,
 )
-from optimiser.search.bounds import B15_MARGIN, GAIN_BOUND_MARGIN, GAIN_SLACK_DB, LEAST_GAIN_MARGIN
+from optimiser.search.bounds import (
+    B15_MARGIN,
+    GAIN_BOUND_MARGIN,
+    GAIN_SLACK_DB,
+    LEAST_GAIN_MARGIN,
+    distortion_term,
+    headroom_volts,
+)
 from optimiser.search.skeletons import SHORT_F
 from optimiser.stage import StageBatch
 
@@ -188,7 +194,7 @@ class EmitterSpans:
             gain = np.maximum(np.maximum(target - hi_db, lo_db - target) - GAIN_SLACK_DB,
                               0.0) / max(tol, 1e-3)
             gain = np.nan_to_num(gain, nan=0.0)
-        want = HEADROOM_FRACTION * V
+        want = headroom_volts(V)
         head = np.maximum(0.0, 1.0 - (V - ic_lo * (RE + BY + RC)) / want)
         return gain + head
 
@@ -203,13 +209,14 @@ class EmitterSpans:
         return self._junction_hd2(P, ic_hi, RE, z)
 
     def _junction_hd2(self, P, ic_hi, re, z):
-        """B14 (:func:`optimiser.prune.emitter_hd2_floor`) for this request: the HD2
-        an unbypassed emitter resistance ``re`` leaves, collector load up to ``z``."""
+        """B14 (:func:`optimiser.prune.emitter_hd2_floor`) for this request: the
+        distortion term an unbypassed emitter resistance ``re`` leaves, collector
+        load up to ``z``."""
         r = self.request
-        return emitter_hd2_floor(ic_hi=ic_hi, r_th=self.rth[P], re_hi=re, z_max=z,
+        return distortion_term(emitter_hd2_floor(ic_hi=ic_hi, r_th=self.rth[P], re_hi=re, z_max=z,
                                  source_ohm=r.source_ohm, input_vpk=r.input_vpk,
                                  model=self.model, q_lo=self.q_lo, q_hi=self.q_hi,
-                                 mid_hz=r.mid_hz)
+                                 mid_hz=r.mid_hz))
 
     def _rc_max(self, ic_lo, ve_lo):
         """B3: the largest RC that keeps V_CE ≥ vce_sat with I_C ≥ ``ic_lo`` and
@@ -219,11 +226,12 @@ class EmitterSpans:
                             / np.where(ic_lo > 0, ic_lo, 1.0), np.inf)
 
     def _cb_hd2(self, ic_hi, re_lo, re_hi):
+        """B16 (:func:`optimiser.prune.common_base_hd2_floor`) as a distortion term."""
         r = self.request
-        return common_base_hd2_floor(ic_hi=ic_hi, re_lo=re_lo, re_hi=re_hi,
+        return distortion_term(common_base_hd2_floor(ic_hi=ic_hi, re_lo=re_lo, re_hi=re_hi,
                                      source_ohm=r.source_ohm, input_vpk=r.input_vpk,
                                      model=self.model, q_lo=self.q_lo, q_hi=self.q_hi,
-                                     mid_hz=r.mid_hz)
+                                     mid_hz=r.mid_hz))
 
     def _follower_terms(self, P, ic_lo, ic_hi, re_lo, re_hi, ve_lo):
         """Lower bound of a follower's distortion + gain-excess + headroom terms (B17).
@@ -254,7 +262,7 @@ class EmitterSpans:
             with np.errstate(divide="ignore"):
                 g_db = 20.0 * np.log10(np.maximum(g_lo, 1e-300))
             excess = np.maximum(g_db - target - GAIN_SLACK_DB, 0.0) / max(tol, 1e-3)
-        head = np.maximum(0.0, 1.0 - (V - ve_lo) / (HEADROOM_FRACTION * V))
+        head = np.maximum(0.0, 1.0 - (V - ve_lo) / headroom_volts(V))
         return h + excess + head
 
     def _follower_gain_max(self, P, r_e=None, ic_hi=None) -> np.ndarray:

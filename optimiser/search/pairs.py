@@ -16,6 +16,9 @@ from optimiser.search.bounds import (
     DRIFT_BOUND_CAP_PCT,
     GAIN_BOUND_MARGIN,
     IC_MIN_MARGIN,
+    current_term,
+    distortion_term,
+    drift_term,
 )
 from optimiser.search.levels import SPAN_BLOCKS, TOTAL_BIN
 from optimiser.search.skeletons import _emitter_options
@@ -41,8 +44,8 @@ class PairLevel:
         keep = self._f_low_pairs(rth)
         self.count("f_low_input", (~keep).sum())
         R1, R2, vth, rth = R1[keep], R2[keep], vth[keep], rth[keep]
-        # B5: the divider current alone costs V/(R1+R2)/10 mA of score
-        plb = V / (R1 + R2) / 10e-3
+        # B5: the divider current alone costs its current term
+        plb = current_term(V / (R1 + R2))
         o = np.argsort(plb, kind="stable")
         R1, R2, vth, rth, plb = R1[o], R2[o], vth[o], rth[o], plb[o]
         if self.topo == "cc":
@@ -139,8 +142,9 @@ class PairLevel:
             rdeg = re_bounds[1][s] if self.topo == "ce" \
                 else float(self.request.source_ohm or 0.0)
             with np.errstate(divide="ignore", invalid="ignore"):
-                h = 25.0 * self.win[0] * self.request.input_vpk / room / GAIN_BOUND_MARGIN / (
-                    1.0 + ic_hi[s] * rdeg / thermal_voltage(25.0))
+                h = distortion_term(
+                    25.0 * self.win[0] * self.request.input_vpk / room / GAIN_BOUND_MARGIN / (
+                        1.0 + ic_hi[s] * rdeg / thermal_voltage(25.0)))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
             h = np.maximum(h, e)
             if fl is not None:          # (B12, above)
@@ -173,14 +177,14 @@ class PairLevel:
         v_th, r_th = self.vth[P], self.rth[P]
         # B1: I_C lies between its values at the extreme Early factors
         ic_lo[:] = bias_current(v_th, r_th, r_big, model, 25.0, None, self.q_lo)
-        lb = (V / (self.R1[P] + self.R2[P]) + ic_lo) / 10e-3          # B5
+        lb = current_term(V / (self.R1[P] + self.R2[P]) + ic_lo)          # B5
         s = np.flatnonzero((ic_lo <= model.ic_max * (1 + 1e-9)) & (lb < upper))
         if s.size == 0:
             return s, lb[s], ic_lo, ic_hi, ic_lo * r_small, None, d_lb, None
         # the emitter voltage V_E = I_E·R = V_TH − V_BE − I_B·R_TH grows with the
         # emitter total R (V_BE and I_B fall), so over the span it is least at
-        # r_small: at least I_C,lo(r_small)·r_small (B19; until 2026-12-02 the much
-        # smaller I_C,lo(r_big)·r_small on runs of options)
+        # r_small: at least I_C,lo(r_small)·r_small (B19; much above I_C,lo(r_big)·r_small
+        # on runs of options)
         ve_lo = ic_lo * r_small
         wide = s[r_small[s] < r_big[s]]
         if wide.size:
@@ -221,8 +225,8 @@ class PairLevel:
             # (ce only: for cb, B16 and B15 already hold nearly all of it — measured
             # again with B12 in closed form: a fifth fewer nodes, 5 % more time).  In
             # closed form it is cheap, so on every level and before the emitter terms
-            # (until 2026-12-02 after them and only on runs of 128–8192 emitter options;
-            # E96 ce: CPU 8.7 -> 7.5 s, three interleaved runs)
+            # (against after them and only on runs of 128–8192 emitter options, E96 ce:
+            # CPU 7.5 s against 8.7 s, three interleaved runs)
             fl = self._floor(P[s], ic_lo[s], ic_hi[s], ve_lo[s])
             keep = lb_s + fl < upper
             s, lb_s, fl = s[keep], lb_s[keep], fl[keep]
@@ -245,7 +249,7 @@ class PairLevel:
                 d = np.maximum(d, np.abs(icc - ic_mid) / ic_mid * 100.0)
         d = np.nan_to_num(d, nan=0.0, posinf=np.inf)
         d_lb[s] = np.clip(d * (1.0 - self.rel) - DRIFT_ABS_SLACK, 0.0, DRIFT_BOUND_CAP_PCT)
-        lb_s = lb_s + d_lb[s] / 10.0
+        lb_s = lb_s + drift_term(d_lb[s])
         keep = lb_s < upper
         if self.request.ic_drift_max_pct is not None:
             keep &= d_lb[s] <= self.request.ic_drift_max_pct
