@@ -37,7 +37,7 @@ SI units throughout (ohm, farad, volt, ampere, hertz).
 from optimiser.search.answer import SearchResult, search
 from optimiser.search.limits import check_request, gain_window, physical_limits
 from optimiser.search.skeletons import FORMS, SHORT_F, Skeletons, cap_roles, skeleton_figures
-from optimiser.search.tree import search_designs
+from optimiser.search.tree import SearchStatus, search_designs
 
 __all__ = ["SearchResult", "search", "search_designs", "check_request", "physical_limits",
-           "FORMS", "SHORT_F", "gain_window", "Skeletons", "cap_roles", "skeleton_figures"]
+           "SearchStatus", "FORMS", "SHORT_F", "gain_window", "Skeletons", "cap_roles", "skeleton_figures"]

@@ -65,7 +65,9 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
     misses : int
         How many nearest misses to return when no design meets the request.
     progress : callable, optional
-        ``progress(done, total, text)``, called between steps.
+        ``progress(status)``, called between steps of the branch and bound with a
+        :class:`~optimiser.search.tree.SearchStatus` (best score so far, ranks
+        proven, nodes left).
     time_limit_s : float, optional
         Stop the branch and bound after this many seconds.  The result then
         says how far it got (``stats["complete"]`` False, ``stats["open_bound"]``

@@ -9,6 +9,7 @@ import heapq
 import itertools
 import math
 import time
+from dataclasses import dataclass
 from typing import NamedTuple
 
 import numpy as np
@@ -136,6 +137,48 @@ def _rank_key(d: Design) -> tuple:
     return (d.score, _design_key(d))
 
 
+@dataclass(frozen=True)
+class SearchStatus:
+    """How far a running search has got: what the ``progress`` callback receives.
+
+    In a search split over processes the figures are those of the process that
+    reports, with the best score and the open bound of all of them: the count
+    of proven ranks is then a lower bound of the whole search's.
+    """
+
+    found: int                  # designs meeting the request found so far
+    top: int                    # how many ranks are asked for
+    best_score: float | None    # the best score found so far (None: none yet)
+    proven_ranks: int           # leading ranks no unexamined design can beat
+    nodes_left: int             # entries still open in the heaps
+    open_bound: float           # the least score any unexamined design could have
+
+    def text(self) -> str:
+        """The status as one line."""
+        best = "none yet" if self.best_score is None else f"{self.best_score:.4g}"
+        bound = "none" if not math.isfinite(self.open_bound) else f"{self.open_bound:.4g}"
+        return (f"best score {best} · {self.proven_ranks} of {self.top} ranks proven · "
+                f"{self.nodes_left} nodes left (least bound {bound})")
+
+
+def _status(found: list[Design], top: int, low: float, cap: float, heaps: dict,
+            shared) -> SearchStatus:
+    bound = min(low, cap)
+    best = found[0].score if found else math.inf
+    if shared is not None:
+        bound = min(bound, min(shared.low))
+        best = min(best, min(shared.best))
+    proven = 0
+    for d in found[:top]:
+        if d.score is None or d.score > bound:
+            break
+        proven += 1
+    return SearchStatus(found=len(found), top=top,
+                        best_score=best if math.isfinite(best) else None,
+                        proven_ranks=proven, nodes_left=sum(len(h) for h in heaps.values()),
+                        open_bound=bound)
+
+
 #: The levels of the tree, top down; each has a heap of :class:`Entry`.
 LEVELS = ("pairs", "blocks", "nodes", "cands", "skel")
 
@@ -242,11 +285,15 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             shared.kth[k_part] = kth
             kth = min(kth, min(shared.kth))
         low = smallest()
+        if shared is not None:
+            shared.low[k_part] = min(low, cap)
+            if found:
+                shared.best[k_part] = found[0].score
         if low >= kth:
             break
         steps += 1
         if progress and steps % 5 == 0:
-            progress(min(len(found), top), top, f"{len(found)} designs found")
+            progress(_status(found, top, low, cap, heaps, shared))
         if len(found) < top:
             # dive: the deepest level first, so that a bound to beat is known early
             level = next(k for k in reversed(levels) if heaps[k])
@@ -345,6 +392,8 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                         known.add(_design_key(d))
                         found.append(d)
             found.sort(key=_rank_key)
+    if shared is not None:      # what this process leaves open, for the others' status
+        shared.low[k_part] = min(smallest(), cap)
     stats["heap_steps"] = stats.get("heap_steps", 0) + steps
     found.sort(key=_rank_key)
     return found, pool

@@ -41,12 +41,16 @@ PARALLEL_ABOVE = 160
 
 class Shared:
     """What the processes of one split search share: ``kth``, each one's
-    ``top``-th best score so far (inf until it has ``top`` designs), and which
-    blocks of work are taken."""
+    ``top``-th best score so far (inf until it has ``top`` designs), which
+    blocks of work are taken, and for the status line each one's best score
+    (``best``, inf until it has one) and smallest open bound (``low``, 0 until
+    it reports one: nothing counts as proven before)."""
 
     def __init__(self, ctx, n: int, slots: int = CLAIM_SLOTS):
         self.n = n
         self.kth = ctx.RawArray("d", [math.inf] * n)
+        self.best = ctx.RawArray("d", [math.inf] * n)
+        self.low = ctx.RawArray("d", [0.0] * n)
         self._claims = ctx.RawArray("b", slots)
         self._lock = ctx.Lock()
 
