@@ -37,7 +37,6 @@ class _Job(PairLevel, FLowFloors, EmitterSpans, CollectorLevel):
 
     def __init__(self, request: Request, opts: StockOptions, t: Transistor, form, stats: dict,
                  cache: dict | None = None):
-
         self.request, self.opts, self.t, self.form, self.stats = request, opts, t, form, stats
         self.topo = request.topology
         self.V = V = float(request.supply_v)

@@ -238,7 +238,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
     (sorted by score) and the pool of evaluated misses.
 
     ``part`` = (k, n): this is process k of a search split over n
-    (:mod:`optimiser.workers`); ``shared`` (a :class:`optimiser.workers.Shared`)
+    (:mod:`optimiser.search.workers`); ``shared`` (a :class:`optimiser.search.workers.Shared`)
     then says which blocks of (R1, R2) pairs another process has taken — this
     one searches only the blocks it takes itself — and holds each process's
     ``top``-th best score, slot k this one's: each is the score of ``top`` real
