@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import wrightomega
 
+from . import score as weights
 from .device import DeviceModel, scaled, thermal_voltage
 
 __all__ = ["wright_omega", "bias_current", "early_bounds", "early_factor_max", "midband_estimate", "junction_floor",
@@ -216,7 +217,6 @@ def _solve3(Y, J):
 #: Relative margin of :func:`junction_floor`: on 8·10^4 random ce and 6·10^4 cb
 #: stages the bound without margin reached at most 0.99999 of the engine's HD2
 #: (equality is the limit without feedback); tests/optimiser/test_search.py.
-#: (1.05 until 2026-12-02.)
 JUNCTION_FLOOR_MARGIN = 1.01
 #: Newton steps on the cubic of :func:`junction_floor`'s stationary point (from an
 #: upper bound of its root; the tangent there keeps the result a lower bound anyway;
@@ -271,8 +271,7 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
     s = 1/y, with u fixed at u_t or u_lo (Newton from above).  The result is
     F(y_a) + F'(y_a)·(y − y_a) at the worse end of the range, y_a that point
     clipped to it — the tangent of a convex function lies below it, so it is a
-    lower bound even where the root is not exact.  (Until 2026-12-02 the least
-    over eight segments of y, each bounded at its ends.)
+    lower bound even where the root is not exact.
 
     Arrays broadcast together; volts, amperes, ohms, dB.  Returns the bound
     (inf where no collector resistor leaves the transistor out of saturation).
@@ -283,8 +282,9 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
     V = float(supply_v)
     ic_lo, ic_hi, ve_lo = np.broadcast_arrays(*(np.asarray(a, dtype=float)
                                                 for a in (ic_lo, ic_hi, ve_lo)))
-    want = 0.25 * V
-    k = 25.0 * float(input_vpk) * thermal_voltage(25.0) / JUNCTION_FLOOR_MARGIN
+    want = weights.HEADROOM_FRACTION * V
+    k = 25.0 * float(input_vpk) * thermal_voltage(25.0) / JUNCTION_FLOOR_MARGIN \
+        / weights.THD_UNIT_PCT
     if k_in is not None:
         k = k / np.broadcast_to(np.clip(np.asarray(k_in, dtype=float), 1e-12, 1.0), ic_lo.shape)
     a = ic_hi * float(load_ohm) if load_ohm else None
@@ -345,7 +345,7 @@ def junction_floor(*, ic_lo, ic_hi, ve_lo, supply_v, load_ohm, input_vpk, gain_l
 
 #: Relative margin of :func:`emitter_hd2_floor` and :func:`common_base_hd2_floor`
 #: (tests/optimiser/test_search.py measures the bounds without it against the engine's
-#: HD2: never above it; 1.05 until 2026-12-02).
+#: HD2: never above it).
 EMITTER_HD2_MARGIN = 1.01
 
 
@@ -363,9 +363,8 @@ def emitter_hd2_floor(*, ic_hi, r_th, re_hi, z_max, source_ohm, input_vpk, model
     (the base current is v_be/Z_π; C_μ carries at most ωC_μ·(|v_b| + g_m·Z'·|v_be|),
     Z' ≤ ``z_max`` bounding the collector load), so
     |v_be/v_emf| ≥ d·G_S/(G_S + 1/R_TH + ωC_μ + d·((1 + ωτ)/r_π + ωC_μ·g_m·Z')),
-    which grows with d and so is at least its value at d_lo.  (Until 2026-12-02 the
-    base was taken to draw |v_b/Z_π|, the emitter's bootstrapping left out: 0.91 of
-    the engine's HD2 on stages like the E96 benchmark's best, now 0.97.)
+    which grows with d and so is at least its value at d_lo (0.97 of the engine's
+    HD2 on stages like the E96 benchmark's best).
     g_m = I_C/V_T ≤ ``ic_hi``/V_T and r_π ≥ BF·q_lo·V_T/ic_hi.
     With the relative margin :data:`EMITTER_HD2_MARGIN`.
 
@@ -413,19 +412,16 @@ def gain_headroom_floor(*, z_per_gain, ic_lo, ve_lo, supply_v, vce_sat, load_ohm
     headroom starts to cost, clipped to the range (above the target both terms
     grow).  ``target_db`` None: no gain term, the least gain.  inf where no gain
     in the window leaves the transistor out of saturation (or needs Z' ≥ R_L).
-    (Until 2026-12-02 the least over eight segments of the range, each bounded at
-    its ends: up to 0.125 below this exact least value.)
 
     Arrays broadcast together (ohm, A, V); dB.
     """
-    from .score import HEADROOM_FRACTION
 
     zper, ic_lo, ve_lo = np.broadcast_arrays(
         *(np.asarray(x, dtype=float) for x in (z_per_gain, ic_lo, ve_lo)))
     V = float(supply_v)
     lo_db = float(gain_lo_db)
     tol = max(float(tol_db), 1e-3)
-    want = HEADROOM_FRACTION * V
+    want = weights.HEADROOM_FRACTION * V
     room = V - ve_lo - float(vce_sat)       # the largest drop: V_CE at vce_sat
     y0 = V - ve_lo - want                   # the drop above which headroom costs
     rl = float(load_ohm) if load_ohm else None

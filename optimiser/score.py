@@ -3,20 +3,24 @@
     score = |G∞ − G_target| / tol        gain:   G∞ the midband gain in dB with every
                                                  capacitor shorted, target and tol in dB
                                                  (0 when the request sets no gain; a
-                                                 follower without one: 0 dB ± 1 dB)
-          + drift / 10 %                 bias drift: ic_drift_pct
-          + HD2 / 1 %                    distortion: the second harmonic the junction's
+                                                 follower without one: 0 dB ±
+                                                 FOLLOWER_TOL_DB)
+          + drift / DRIFT_UNIT_PCT       bias drift: ic_drift_pct
+          + HD2 / THD_UNIT_PCT           distortion: the second harmonic the junction's
                                          exponential law gives for the midband drive
                                          v̂_be (capacitors shorted), reduced by the local
                                          feedback: HD2 = 25 %·(v̂_be/V_T)/(1 + g_m·R_deg)
-          + I_supply / 10 mA             supply current: through R1 plus I_C
-          + 0.25 × (rows emptied)        stock: each real resistor row or transistor
-                                         row the builds would empty
-          + max(0, 1 − V_CE / (V_supply/4))  headroom: a quiescent V_CE below a
-                                         quarter of the supply leaves little room
+          + I_supply / CURRENT_UNIT_A    supply current: through R1 plus I_C
+          + STOCK_PENALTY × (rows emptied)   stock: each real resistor row or
+                                         transistor row the builds would empty
+          + max(0, 1 − V_CE / (HEADROOM_FRACTION·V_supply))  headroom: a quiescent
+                                         V_CE low in the supply leaves little room
                                          for the signal and for drift (common
                                          practice: bias near the middle of the
                                          load line, not at its saturated end)
+
+The weights are the constants below, their one home: the search's bounds
+(:mod:`optimiser.search.bounds`) read them at each call.
 
 The gain and distortion terms use the stage with its capacitors shorted (what
 the resistors and the transistor set), so that the score of a stage does not
@@ -42,9 +46,13 @@ __all__ = ["DRIFT_UNIT_PCT", "THD_UNIT_PCT", "CURRENT_UNIT_A", "STOCK_PENALTY",
            "FOLLOWER_TOL_DB", "score_gain_target",
            "HEADROOM_FRACTION", "headroom_term", "gain_term", "hd2_pct", "degeneration", "score_terms", "score"]
 
+#: A drift of this many % costs 1 (against the other terms' units below).
 DRIFT_UNIT_PCT = 10.0
+#: An HD2 of this many % costs 1.
 THD_UNIT_PCT = 1.0
+#: A supply current of this many A costs 1.
 CURRENT_UNIT_A = 10e-3
+#: Each stock row the builds would empty costs this much.
 STOCK_PENALTY = 0.25
 #: V_CE below this fraction of the supply is penalised (common practice).
 HEADROOM_FRACTION = 0.25

@@ -2,7 +2,11 @@
 
 from __future__ import annotations
 
+import time
+
 import click
+from rich.live import Live
+from rich.text import Text
 
 from drawerfit.cli import pass_app
 from drawerfit.console import emit_json, err, out
@@ -38,24 +42,49 @@ def _locate(exc, path: str, text: str):
 DEFAULT_TIME_LIMIT_S = 120.0
 
 
+#: A search that runs longer than this shows a live status line on stderr (seconds).
+STATUS_AFTER_S = 1.0
+
+
+class StatusLine:
+    """The live status line of a running search on ``console`` (Rich), shown only
+    once the search has run ``after_s`` seconds and gone when it ends."""
+
+    def __init__(self, console, after_s: float = STATUS_AFTER_S):
+        self.console, self.after_s = console, after_s
+        self.t0 = time.perf_counter()
+        self.live: Live | None = None
+
+    def update(self, status) -> None:
+        """The ``progress`` callback of :func:`optimiser.search.search`."""
+        elapsed = time.perf_counter() - self.t0
+        if self.live is None:
+            if elapsed < self.after_s:
+                return
+            self.live = Live(console=self.console, transient=True, refresh_per_second=4)
+            self.live.start()
+        self.live.update(Text(f"searching {elapsed:.0f} s · {status.text()}", style="dim"))
+
+    def stop(self) -> None:
+        if self.live is not None:
+            self.live.stop()
+            self.live = None
+
+
 def run_design(request, snapshot, *, top: int, progress: bool,
                time_limit_s: float | None = DEFAULT_TIME_LIMIT_S):
-    """Run the search (with a progress bar on stderr when asked)."""
+    """Run the search (with a live status line on stderr when asked)."""
     from optimiser.search import search
 
     limit = time_limit_s if time_limit_s else None
     if not progress:
         return search(request, snapshot, top=top, misses=top, time_limit_s=limit)
-    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
-
-    with Progress(TextColumn("[dim]{task.description}"), BarColumn(),
-                  TimeElapsedColumn(), console=err, transient=True) as bar:
-        task = bar.add_task("searching", total=top)
-
-        def tick(done, total, text):
-            bar.update(task, completed=done, total=total, description=text)
-
-        return search(request, snapshot, top=top, misses=top, progress=tick, time_limit_s=limit)
+    line = StatusLine(err)
+    try:
+        return search(request, snapshot, top=top, misses=top, progress=line.update,
+                      time_limit_s=limit)
+    finally:
+        line.stop()
 
 
 @click.command(name="design")

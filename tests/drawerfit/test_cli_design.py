@@ -84,7 +84,7 @@ def test_table_shows_bins_and_reason(store, tmp_path):
 
 
 def test_infeasible_request_is_an_answer(store, tmp_path, monkeypatch):
-    import optimiser.misses as misses
+    import optimiser.search.suggestions as misses
 
     monkeypatch.setattr(misses, "MISS_BUDGET_S", 5.0)     # keep the suite quick
     monkeypatch.setattr(misses, "BUY_BUDGET_S", 2.0)

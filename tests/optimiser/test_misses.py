@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
 from optimiser.design import Design, Piece, RolePick
-from optimiser.misses import miss_distance, miss_order, stock_shortfall
 from optimiser.request import Request
+from optimiser.search.suggestions import miss_distance, miss_order, stock_shortfall
 
 T = Transistor("GP-N1", 100, 300, qty=2, id=9, location="Q1")
 SNAP = StockSnapshot((Resistor(10e3, 3, id=1, location="A1"), Resistor(1e3, 4, id=2,

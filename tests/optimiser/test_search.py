@@ -151,7 +151,7 @@ def test_midband_estimate_is_the_engine_with_capacitors_shorted(topo):
     ok = ev.valid
     assert ok.sum() > 100
     err_db = np.abs(20 * np.log10(g[ok] / ev.metrics["gain"][ok]))
-    assert err_db.max() < 1e-3        # GAIN_SLACK_DB in optimiser.search
+    assert err_db.max() < 1e-3        # GAIN_SLACK_DB in optimiser.search.bounds
 
 
 def test_builds_and_shared_values_are_counted_against_stock():
@@ -183,7 +183,7 @@ def test_closed_form_gain_bounds_hold_against_the_engine(rs, rl, mid):
     # bounds B6 (upper, with the feed-forward through C_mu at mid_hz) and B11 (lower,
     # ce) of docs/search.md, with the search's margin
     from optimiser.device import thermal_voltage
-    from optimiser.search import GAIN_BOUND_MARGIN, LEAST_GAIN_MARGIN
+    from optimiser.search.bounds import GAIN_BOUND_MARGIN, LEAST_GAIN_MARGIN
 
     rng = np.random.default_rng(11)
     n = 1500
@@ -228,7 +228,8 @@ def test_junction_floor_is_below_the_engine_score_terms(topo, rs, rl, vin, gdb):
     # floor over every RC (bias level) nor the one with RC known (collector level)
     from optimiser.prune import junction_floor
     from optimiser.score import score_terms
-    from optimiser.search import GAIN_SLACK_DB, gain_window, skeleton_figures
+    from optimiser.search import gain_window, skeleton_figures
+    from optimiser.search.bounds import GAIN_SLACK_DB
 
     rng = np.random.default_rng(7)
     n = 4000
@@ -372,7 +373,8 @@ def test_gain_headroom_floor_holds_against_the_engine(rs, rl, gdb):
     from optimiser.device import thermal_voltage
     from optimiser.prune import gain_headroom_floor
     from optimiser.score import score_terms
-    from optimiser.search import GAIN_BOUND_MARGIN, GAIN_SLACK_DB, gain_window
+    from optimiser.search import gain_window
+    from optimiser.search.bounds import GAIN_BOUND_MARGIN, GAIN_SLACK_DB
 
     t, req, b, ok, f = _random_stages("ce", np.random.default_rng(5), 20000, rs, rl, 60.0, 1e3,
                                       0.01, gdb)
@@ -454,13 +456,9 @@ def test_gain_distortion_minimum_matches_a_dense_grid(g_lo, target, tol):
 def test_drift_bound_holds_against_the_engine(vaf, supply):
     # bound B2 of docs/search.md: the closed-form drift at a common Early factor, with
     # the search's margins and cap, never above the engine's drift of a valid stage
-    from optimiser.search import (
-        DRIFT_ABS_SLACK,
-        DRIFT_BOUND_CAP_PCT,
-        DRIFT_REL_SLACK,
-        _corner_points,
-        skeleton_figures,
-    )
+    from optimiser.search import skeleton_figures
+    from optimiser.search.bounds import DRIFT_ABS_SLACK, DRIFT_BOUND_CAP_PCT, DRIFT_REL_SLACK
+    from optimiser.search.levels import _corner_points
 
     rng = np.random.default_rng(5)
     n = 6000
@@ -542,7 +540,7 @@ def test_common_base_gain_floor_holds_against_the_engine(rs, rl, vaf, mid):
     # bound B11 for cb (docs/search.md): the least gain an RC can give,
     # g_m,min·(RC‖RL‖r_o,min)·x/(R_S + x) with x = RE‖r_e,min, within the 5 % margin
     from optimiser.device import thermal_voltage
-    from optimiser.search import GAIN_BOUND_MARGIN
+    from optimiser.search.bounds import GAIN_BOUND_MARGIN
 
     rng, n, t, m, req = _random_case("cb", rs, rl, vaf, seed=4, mid=mid)
     b = StageBatch.from_values("cb", R1=10 ** rng.uniform(3.5, 5.5, n),
@@ -586,7 +584,7 @@ def test_run_spans_and_largest_re_below_match_brute_force():
     # the span queries the bias-level bounds rest on (least/largest over a run of
     # emitter options; the largest unbypassed RE at most a cap in an aligned run)
     from optimiser.options import StockOptions
-    from optimiser.search import _Job
+    from optimiser.search.job import _Job
 
     req = Request(topology="ce", supply_v=12.0, load_ohm=1e4, source_ohm=600.0, gain=10.0)
     snap = drawer(decades=(2, 3))
@@ -604,7 +602,7 @@ def test_run_spans_and_largest_re_below_match_brute_force():
     # options run through bins of the DC total in order, by RE within a bin
     import math
 
-    from optimiser.search import TOTAL_BIN
+    from optimiser.search.levels import TOTAL_BIN
     bins = np.floor(np.log(job.etot) / math.log1p(TOTAL_BIN))
     assert np.all(np.diff(bins) >= 0)
     same = np.diff(bins) == 0
@@ -658,20 +656,20 @@ SAME_RANKING_REQUESTS = pytest.mark.parametrize("req", [
 
 
 def _ranking(res):
-    import optimiser.search as S
-    return [(S._design_key(d), round(d.score, 12)) for d in res.designs]
+    from optimiser.search.tree import _design_key
+    return [(_design_key(d), round(d.score, 12)) for d in res.designs]
 
 
 @SAME_RANKING_REQUESTS
 def test_a_search_split_over_processes_ranks_the_same(monkeypatch, req):
     # large drawers are searched on two processes, the (R1, R2) pairs dealt out in
-    # turn (optimiser/workers.py); forced here on a 48-value drawer, the ranking must
-    # be the one of the single-process search, design for design
-    import optimiser.search as S
+    # turn (optimiser/search/workers.py); forced here on a 48-value drawer, the ranking
+    # must be the one of the single-process search, design for design
+    import optimiser.search.workers as W
 
     snap = drawer()
     monkeypatch.setenv("DRAWERFIT_WORKERS", "1")
-    monkeypatch.setattr(S, "PARALLEL_ABOVE", 20)
+    monkeypatch.setattr(W, "PARALLEL_ABOVE", 20)
     plain = search(req, snap, top=6, misses=0)
     assert "workers" not in plain.stats
     monkeypatch.setenv("DRAWERFIT_WORKERS", "2")
@@ -686,7 +684,7 @@ def test_seeding_from_a_thinned_drawer_changes_nothing(monkeypatch, req):
     # large drawers are first searched thinned to every k-th value, and those designs
     # are the score to beat; forced here on a 48-value drawer, the ranking must be
     # the one of the plain search, design for design
-    import optimiser.search as S
+    import optimiser.search.seeding as S
 
     snap = drawer()
     plain = search(req, snap, top=6, misses=0)
@@ -704,7 +702,7 @@ def test_follower_bounds_hold_against_the_engine(rs, rl, vaf, mid, vin):
     # bound B17 of docs/search.md: a follower's HD2 (the B14 form with RE‖R_L) and its
     # least gain, against the engine on random valid stages (with and without RC)
     from optimiser.prune import EMITTER_HD2_MARGIN, emitter_hd2_floor, follower_gain_floor
-    from optimiser.search import GAIN_BOUND_MARGIN
+    from optimiser.search.bounds import GAIN_BOUND_MARGIN
 
     t, req, b, ok, f = _random_stages("cc", np.random.default_rng(3), 4000, rs, rl, vaf, mid,
                                       vin)
@@ -738,7 +736,7 @@ def test_ce_gain_per_load_holds_against_the_engine(rs, rl, vaf, mid):
     # through C_mu carries the gain of heavily degenerated stages (without that
     # term the engine's gain reached 6.4 times the bound there); and it is tight
     from optimiser.prune import ce_gain_per_load
-    from optimiser.search import B15_MARGIN
+    from optimiser.search.bounds import B15_MARGIN
 
     t, req, b, ok, f = _random_stages("ce", np.random.default_rng(3), 8000, rs, rl, vaf, mid,
                                       0.01)

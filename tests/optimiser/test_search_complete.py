@@ -147,7 +147,7 @@ EXAMPLES = int(os.environ.get("DRAWERFIT_COMPLETE_EXAMPLES", "16"))
 @settings(max_examples=EXAMPLES, deadline=None, suppress_health_check=list(HealthCheck))
 @given(cases(), st.booleans())
 def test_search_agrees_with_exhaustive_enumeration(case, seeded):
-    import optimiser.search as S
+    import optimiser.search.seeding as S
 
     req, snap = case
     stats = {"pruned": {}}

@@ -40,11 +40,11 @@ def _e24_drawer():
 
 @pytest.mark.parametrize("split", [False, True], ids=["one process", "two processes"])
 def test_stopped_search_says_so_and_returns_only_valid_designs(monkeypatch, split):
-    import optimiser.search as S
+    import optimiser.search.workers as W
     from optimiser.request import Request
 
-    if split:       # the drawer searched on two processes (optimiser/workers.py)
-        monkeypatch.setattr(S, "PARALLEL_ABOVE", 20)
+    if split:       # the drawer searched on two processes (optimiser/search/workers.py)
+        monkeypatch.setattr(W, "PARALLEL_ABOVE", 20)
         monkeypatch.setenv("DRAWERFIT_WORKERS", "2")
     snap = _e24_drawer()
     request = Request(topology="ce", supply_v=12.0, load_ohm=10e3, source_ohm=600.0, gain=10.0,

@@ -1,4 +1,4 @@
-"""The split of the branch and bound over processes (optimiser/workers.py)."""
+"""The split of the branch and bound over processes (optimiser/search/workers.py)."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ import sys
 import pytest
 
 from inventory.errors import InputError
-from optimiser.workers import merge_stats, split_branch_and_bound, worker_count
+from optimiser.search.workers import merge_stats, split_branch_and_bound, worker_count
 
 
 def _fake_run(fail_in_child=None):
@@ -84,7 +84,7 @@ def test_worker_count_follows_the_drawer_and_the_environment(monkeypatch):
 def test_each_block_is_taken_by_exactly_one_process():
     import multiprocessing
 
-    from optimiser.workers import Shared
+    from optimiser.search.workers import Shared
 
     ctx = multiprocessing.get_context("fork")
     shared = Shared(ctx, 2, slots=64)

@@ -9,8 +9,7 @@ Each process keeps its ``top``-th best score in a shared array; every process
 prunes against the smallest of them.  That is exact: each entry is the score
 of ``top`` real designs of the drawer, so a node whose bound reaches it holds
 none of the ``top`` best, and the best ``top`` of the shares together are the
-best of the drawer.  (Until 2026-12-02 the pairs were dealt out in turn; the
-shares then finished up to half a second apart on the E96 ce benchmark.)
+best of the drawer.
 
 Processes are started by ``fork`` (the search's arrays are shared, not
 copied), on Linux only; elsewhere, or when the drawer is small, the search
@@ -35,16 +34,23 @@ MAX_WORKERS = 2
 #: Blocks of work :class:`Shared` keeps claims for (one byte each); blocks beyond
 #: are dealt out in turn (block number modulo the number of processes).
 CLAIM_SLOTS = 1 << 16
+#: Drawers with more distinct resistor values than this are searched on all cores;
+#: below it starting processes costs more than it saves.
+PARALLEL_ABOVE = 160
 
 
 class Shared:
     """What the processes of one split search share: ``kth``, each one's
-    ``top``-th best score so far (inf until it has ``top`` designs), and which
-    blocks of work are taken."""
+    ``top``-th best score so far (inf until it has ``top`` designs), which
+    blocks of work are taken, and for the status line each one's best score
+    (``best``, inf until it has one) and smallest open bound (``low``, 0 until
+    it reports one: nothing counts as proven before)."""
 
     def __init__(self, ctx, n: int, slots: int = CLAIM_SLOTS):
         self.n = n
         self.kth = ctx.RawArray("d", [math.inf] * n)
+        self.best = ctx.RawArray("d", [math.inf] * n)
+        self.low = ctx.RawArray("d", [0.0] * n)
         self._claims = ctx.RawArray("b", slots)
         self._lock = ctx.Lock()
 
@@ -59,13 +65,15 @@ class Shared:
             return True
 
 
-def worker_count(n_values: int, threshold: int) -> int:
+def worker_count(n_values: int, threshold: int | None = None) -> int:
     """How many processes to search a drawer of ``n_values`` resistor values with.
 
-    One below ``threshold`` values (starting processes costs more than it
-    saves on a small drawer), else the usable cores, at most
-    :data:`MAX_WORKERS` or ``DRAWERFIT_WORKERS``.
+    One below ``threshold`` values (default :data:`PARALLEL_ABOVE`, read at the
+    call; starting processes costs more than it saves on a small drawer), else
+    the usable cores, at most :data:`MAX_WORKERS` or ``DRAWERFIT_WORKERS``.
     """
+    if threshold is None:
+        threshold = PARALLEL_ABOVE
     cap = _env_cap()
     # fork only on Linux (macOS system libraries are not safe to fork; Windows has none)
     if n_values <= threshold or not sys.platform.startswith("linux") \

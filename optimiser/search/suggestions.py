@@ -32,9 +32,11 @@ import math
 from dataclasses import replace
 
 from inventory.parts import Capacitor, Resistor, StockSnapshot
-from inventory.values import format_value, series_values
+from inventory.values import format_si, format_value, series_values
 from optimiser.design import Design
+from optimiser.evaluate import evaluate
 from optimiser.request import Request
+from optimiser.search.tree import search_designs
 from optimiser.stage import StageBatch
 
 __all__ = ["explain", "miss_distance", "relaxed", "stock_shortfall", "miss_order", "TARGETS",
@@ -131,7 +133,6 @@ def stock_shortfall(design: Design, snapshot: StockSnapshot, builds: int) -> lis
 def _judge(request: Request, designs: list[Design], snapshot: StockSnapshot) -> list[Design]:
     """Re-evaluate real stock designs against ``request``; misses get violations and a
     distance.  Designs the stock cannot supply are dropped."""
-    from optimiser.evaluate import evaluate
     out = []
     seen = set()
     for d in designs:
@@ -158,7 +159,6 @@ def _judge(request: Request, designs: list[Design], snapshot: StockSnapshot) -> 
 
 
 def _fmt(x: float, unit: str) -> str:
-    from inventory.values import format_si
     if unit == "%":
         return f"{x:.3g} %"
     if unit == "dB":
@@ -176,7 +176,6 @@ def _outward(x: float, sense: str) -> float:
 
 def _meets(request: Request, d: Design, snapshot: StockSnapshot) -> bool:
     """The engine's verdict on design ``d`` against ``request`` (the proof of an unlock)."""
-    from optimiser.evaluate import evaluate
     ev = evaluate(request, StageBatch.from_values(d.topology, **d.values()),
                   snapshot.transistor(d.transistor), None)
     return bool(ev.meets[0])
@@ -184,7 +183,6 @@ def _meets(request: Request, d: Design, snapshot: StockSnapshot) -> bool:
 
 def _run(request: Request, snapshot: StockSnapshot, stats: dict, name: str):
     """(designs, complete) of the exact search of ``request`` within RELAX_BUDGET_S."""
-    from optimiser.search import search_designs
     s: dict = {"pruned": {}}
     found, _ = search_designs(request, snapshot, RELAX_TOP, s, budget_s=RELAX_BUDGET_S)
     stats.setdefault("relax_searches", {})[name] = len(found)
@@ -261,9 +259,8 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
             limits=()):
     """(nearest misses, unlock advice, unlock changes) for a request nothing in stock meets.
 
-    ``limits`` are the request's physical limits (:func:`optimiser.search.physical_limits`).
+    ``limits`` are the request's physical limits (:func:`optimiser.search.limits.physical_limits`).
     """
-    from optimiser.search import search_designs
 
     ts = [t for t in snapshot.transistors]
     if request.transistor != "any" and snapshot.transistor(request.transistor):
@@ -338,7 +335,6 @@ def _virtual(snapshot: StockSnapshot) -> StockSnapshot:
 
 
 def _buy_one(request: Request, snapshot: StockSnapshot) -> list[str]:
-    from optimiser.search import search_designs
     s3: dict = {"pruned": {}}
     found, _ = search_designs(request, _virtual(snapshot), 20, s3, budget_s=BUY_BUDGET_S)
     out: list[str] = []

@@ -1,0 +1,366 @@
+"""Confirmation of survivors by the full engine (:func:`optimiser.evaluate.evaluate`):
+capacitor choice at the leaves, stock rows allocated with the ratings of the very
+pieces, the large-signal figures of the ranked designs."""
+
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import replace
+
+import numpy as np
+
+from inventory.parts import StockSnapshot
+from optimiser.design import Design
+from optimiser.evaluate import evaluate
+from optimiser.options import CAPACITOR_DERATING, StockOptions
+from optimiser.request import Request
+from optimiser.score import score_gain_target, score_terms
+from optimiser.search.limits import gain_window
+from optimiser.search.skeletons import Skeletons, cap_roles, resistor_roles
+from optimiser.search.stock import _alloc_caps, _ratings_best, _stresses
+from optimiser.stage import PartRatings, StageBatch
+
+#: Skeletons confirmed by one call of the engine: more vectorise better, fewer
+#: confirm less beyond the score a design of the same batch would have set to beat.
+CONFIRM_BATCH = 12
+#: Most capacitor combinations tried for one skeleton; beyond it an even sample of
+#: this many is tried and ``stats["cap_enum_truncated"]`` counts it (time against
+#: the smallest adequate capacitors of very large capacitor ranges).
+CAP_ENUM_LIMIT = 4096
+
+
+def _evaluate(request, batch, t, ratings=None, *, band_edges=True, large_signal=True,
+              corner_gain=False):
+    return evaluate(request, batch, t, ratings, band_edges=band_edges, large_signal=large_signal,
+                    corner_gain=corner_gain)
+
+
+def _cap_free_ok(ev) -> np.ndarray:
+    """Skeleton-pass checks that no choice of capacitors can change.
+
+    Validity (operating point, corners, transistor limits, resistor derating
+    at the best ratings in stock), the drift and least-current targets and a
+    missing ft/cob.
+    """
+    fails = ev.target_fail()
+    ok = np.asarray(ev.valid, dtype=bool).copy()
+    for key in ("ic_drift_pct", "ic_a", "f_high_hz"):   # f_high here only: "transistor lacks ft/cob"
+        if key in fails:
+            ok &= ~np.asarray(fails[key], dtype=bool)
+    return ok
+
+
+def _large_signal(request: Request, snapshot: StockSnapshot, designs: list[Design]) -> None:
+    """THD, swing and the clipping warning of the ranked designs, in place.
+
+    Distortion and swing do not enter the score and are a target only with
+    ``thd_max_pct`` (then they were computed while confirming); otherwise they
+    are computed here, once, for the designs returned.
+    """
+    need = [d for d in designs if d.metrics.get("thd_pct") is None]
+    groups: dict[str, list[Design]] = {}
+    for d in need:
+        groups.setdefault(d.transistor, []).append(d)
+    for label, ds in groups.items():
+        t = snapshot.transistor(label)
+        roles = sorted({r for d in ds for r in d.values()})
+        vals = {r: np.array([d.values().get(r, 0.0) for d in ds]) for r in roles}
+        ev = _evaluate(request, StageBatch.from_values(ds[0].topology, **vals), t, None,
+                       band_edges=False, large_signal=True)
+        for j, d in enumerate(ds):
+            m = ev.metrics_of(j)
+            d.metrics["thd_pct"], d.metrics["swing_vpk"] = m.get("thd_pct"), m.get("swing_vpk")
+            d.warnings += [r.text(j) for r in ev.rules
+                           if r.key == "clipping" and bool(r.fail[j])]
+
+
+#: Targets a different choice of capacitors may still meet (the others fail for
+#: every choice once they fail with the largest capacitors in stock).
+UP_KEYS = {"f_low_hz", "f_high_hz", "flat_passband", "gain"}
+
+
+def _cap_targets(request, sk: Skeletons, li: np.ndarray, rows: list[dict], croles) -> np.ndarray:
+    """First-order estimate of the smallest capacitance of each role (F), shape (k, roles).
+
+    Each capacitor gets an equal share of the lower band edge: its own corner
+    at f_low_max/len(roles) (or mid_hz/(10·len(roles)) without a target), seen
+    through the resistance around it at the skeleton's operating point.
+    """
+    nr = len(croles)
+    f = (request.f_low_max_hz if request.f_low_max_hz else request.mid_hz / 10.0) / nr
+    w = 2 * math.pi * f
+    rs = float(request.source_ohm or 0.0)
+    rl = float(request.load_ohm) if request.load_ohm else math.inf
+    out = np.zeros((len(rows), nr))
+    for a, (i, m) in enumerate(zip(li, rows, strict=False)):
+        r1, r2, rc, re, byp = (float(getattr(sk, k)[i]) for k in ("R1", "R2", "RC", "RE", "RE_BYP"))
+        ic = max(m["ic_a"], 1e-12)
+        re_small = 0.02585 / ic
+        beta = float(sk.transistor.beta_nominal)
+        rth = r1 * r2 / (r1 + r2)
+        for k, role in enumerate(croles):
+            if role == "C_IN":
+                r = rs + max(m["zin_ohm"], 1.0)
+            elif role == "C_OUT":
+                r = (max(m["zout_ohm"], 1.0) + rl) if math.isfinite(rl) else math.inf
+            elif role == "C_BYP":
+                rsx = rth * rs / (rth + rs) if rs > 0 else 0.0
+                seen = re + re_small + rsx / (beta + 1)
+                r = byp * seen / (byp + seen)
+            else:  # C_B
+                r = rth * ((beta + 1) * (re_small + (re * rs / (re + rs) if rs > 0 else 0.0))) / (
+                    rth + (beta + 1) * (re_small + (re * rs / (re + rs) if rs > 0 else 0.0)))
+            out[a, k] = 0.0 if not math.isfinite(r) else 1.0 / (w * max(r, 1e-3))
+    return out
+
+
+def _pick_at_least(values: np.ndarray, allowed: np.ndarray, need: float) -> int:
+    """Index of the smallest allowed value ≥ need, else the largest allowed."""
+    ok = allowed & (values >= need * (1 - 1e-9))
+    idx = np.flatnonzero(ok)
+    if idx.size:
+        return int(idx[0])
+    return int(np.flatnonzero(allowed)[-1])
+
+
+def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, pool):
+    """Full evaluation of skeletons of one transistor and form; returns the designs found."""
+    V = float(request.supply_v)
+    croles = cap_roles(sk.topology, sk.form)
+    cv = opts.capacitor.values
+    t = sk.transistor
+    t_empty = int(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
+    li_all, rows, allocs, allowed, st_all = [], [], [], [], []
+    for _lb2, _, _, i, row in entries:
+        st = _stresses(sk, i, {k: [v] for k, v in row.items()}, 0, V)
+        rroles = resistor_roles(sk.topology, sk.form, float(sk.RC[i]))
+        alloc = opts.allocate({r: ("resistor", float(getattr(sk, r)[i]), st[r]) for r in rroles})
+        if alloc is None:
+            stats["pruned"]["stock_or_rating"] = stats["pruned"].get("stock_or_rating", 0) + 1
+            continue
+        al = np.array([opts.capacitor.best_rating * CAPACITOR_DERATING >= st[c] * (1 - 1e-9)
+                       for c in croles]).reshape(len(croles), cv.size)
+        if not al.any(axis=1).all():
+            stats["pruned"]["capacitor_rating"] = stats["pruned"].get("capacitor_rating", 0) + 1
+            continue
+        li_all.append(i)
+        rows.append(row)
+        allocs.append(alloc)
+        allowed.append(al)
+        st_all.append(st)
+    if not li_all:
+        return []
+    stats["confirmed_skeletons"] = stats.get("confirmed_skeletons", 0) + len(li_all)
+    li = np.array(li_all)
+    part = sk.take(li)
+    need = _cap_targets(request, sk, li, rows, croles)
+    k_n = len(li)
+    vec = np.array([[_pick_at_least(cv, allowed[a][k], need[a, k]) for k in range(len(croles))]
+                    for a in range(k_n)])
+    top_vec = np.array([[int(np.flatnonzero(allowed[a][k])[-1]) for k in range(len(croles))]
+                        for a in range(k_n)])
+    accepted: dict[int, tuple] = {}
+    first: dict[int, object] = {}
+    pending = np.arange(k_n)
+    for rnd in range(4):
+        if pending.size == 0:
+            break
+        if rnd == 3:
+            vec[pending] = top_vec[pending]
+        elif rnd > 0:
+            for a in pending:
+                for k in range(len(croles)):
+                    vec[a, k] = _pick_at_least(cv, allowed[a][k], cv[vec[a, k]] * 4.0 * (1 + 1e-9))
+        ev = _eval_vectors(request, opts, part.take(pending), croles, vec[pending],
+                           large_signal=(rnd == 0 and request.thd_max_pct is not None))
+        stats["full_evaluations"] = stats.get("full_evaluations", 0) + pending.size
+        still = []
+        for j, a in enumerate(pending):
+            if rnd == 0:
+                first[a] = ev.take(np.array([j]))
+                fk = set(ev.failed_keys(j))
+                if fk - UP_KEYS - {"zin_ohm"}:
+                    pool.append(("full", sk, li[[a]], first[a]))
+                    continue            # fails on something capacitors cannot change
+            if bool(ev.meets[j]):
+                calloc = _alloc_caps(opts, croles, vec[a], st_all[a])
+                if calloc is not None:
+                    accepted[a] = (vec[a].copy(), ev.take(np.array([j])), calloc)
+                    continue
+            if rnd == 3 and not bool(ev.meets[j]):
+                pool.append(("full", sk, li[[a]], ev.take(np.array([j]))))
+                if not _cap_helpable(ev, j, request):
+                    continue
+            still.append(a)
+        pending = np.array(still, dtype=int)
+        if rnd == 3:
+            break
+    # the rest: every allowed combination the stock can supply, after a screen
+    keep = _screen_caps(request, opts, part, list(pending), croles, allowed, stats)
+    for a in pending:
+        if keep[a] is None:
+            continue
+        got = _enumerate_caps(request, opts, part.take(np.array([a])), croles, keep[a],
+                              st_all[a], stats)
+        if got is not None:
+            accepted[a] = got
+    if not accepted:
+        return []
+    # final check with the ratings of the very pieces chosen
+    keys = list(accepted)
+    vecs = np.array([accepted[a][0] for a in keys])
+    fin_part = part.take(np.array(keys))
+    caps = {r: cv[vecs[:, k]] for k, r in enumerate(croles)}
+    ratings = PartRatings(power_w={}, power_share={}, voltage_v={}, polarised={})
+    for role in ("R1", "R2", "RC", "RE", "RE_BYP") + tuple(croles):
+        vals = []
+        for a in keys:
+            rr = {**allocs[a].ratings, **accepted[a][2].ratings}.get(role)
+            vals.append(rr)
+        if all(v is None for v in vals):
+            continue
+        if role.startswith("C_"):
+            ratings.voltage_v[role] = np.array([v["voltage_v"] for v in vals])
+            ratings.polarised[role] = np.array([v["polarised"] for v in vals])
+        else:
+            ratings.power_w[role] = np.array([v["power_w"] if v else np.inf for v in vals])
+            ratings.power_share[role] = np.array([v["power_share"] if v else 1.0 for v in vals])
+    evf = _evaluate(request, fin_part.batch(caps), t, ratings, band_edges=True,
+                    large_signal=False)
+    stats["full_evaluations"] = stats.get("full_evaluations", 0) + len(keys)
+    out = []
+    for j, a in enumerate(keys):
+        if not bool(evf.meets[j]):
+            stats["pruned"]["final_check"] = stats["pruned"].get("final_check", 0) + 1
+            continue
+        out.append(_make_design(request, sk, int(li[a]), rows[a], allocs[a], accepted[a][2],
+                                evf.take(np.array([j])), first.get(a), croles, t_empty))
+    return out
+
+
+def _eval_vectors(request, opts, part: Skeletons, croles, vecs, large_signal=False):
+    cv = opts.capacitor.values
+    caps = {r: cv[vecs[:, k]] for k, r in enumerate(croles)}
+    volt = {r: opts.capacitor.best_rating[vecs[:, k]] for k, r in enumerate(croles)}
+    return _evaluate(request, part.batch(caps), part.transistor,
+                     _ratings_best(part, opts, caps_voltage=volt), band_edges=True,
+                     large_signal=large_signal)
+
+
+def _cap_helpable(ev, j, request) -> bool:
+    """Could smaller capacitors cure the failure of the largest set? (assumption A1)"""
+    keys = set(ev.failed_keys(j))
+    if not keys:
+        return True          # the engine accepted it; only the stock could not supply it
+    win = gain_window(request)
+    if "gain" in keys and not (win is not None and float(ev.metrics["gain"][j]) > win[1]):
+        return False
+    return keys <= {"gain", "zin_ohm"}
+
+
+def _screen_caps(request, opts, part: Skeletons, pending, croles, allowed, stats):
+    """Per pending skeleton, the allowed capacitor indices per role worth combining
+    (None: no combination can meet the request).  One engine call for them all.
+
+    * f_low (assumption A1, a larger capacitor never raises f_low): a value whose
+      stage misses f_low_max_hz with every other capacitor at its largest allowed
+      value misses it in every combination.
+    * Z_in (assumption A3, a smaller capacitor never lowers |Z_in|): when the
+      smallest values left miss zin_min_ohm, every combination does.
+    """
+    idx = {a: [np.flatnonzero(x) for x in allowed[a]] for a in pending}
+    live = [a for a in pending if all(i.size for i in idx[a])]
+    out = {a: None for a in pending}
+    if request.f_low_max_hz is not None and live:
+        rows, vecs = [], []
+        for a in live:
+            top = np.array([i[-1] for i in idx[a]])
+            for k, ik in enumerate(idx[a]):
+                for v in ik:
+                    x = top.copy()
+                    x[k] = v
+                    rows.append(a)
+                    vecs.append(x)
+        ev = _eval_vectors(request, opts, part.take(np.array(rows)), croles, np.array(vecs))
+        stats["full_evaluations"] = stats.get("full_evaluations", 0) + len(rows)
+        f_low = np.asarray(ev.metrics["f_low_hz"], dtype=float)
+        ok = ~(f_low > request.f_low_max_hz * (1 + 1e-9))      # NaN (no edge found) stays
+        at = 0
+        for a in live:
+            kept = []
+            for ik in idx[a]:
+                kept.append(ik[ok[at:at + ik.size]])
+                at += ik.size
+            idx[a] = kept
+        live = [a for a in live if all(i.size for i in idx[a])]
+    if request.zin_min_ohm is not None and live:
+        low = np.array([[i[0] for i in idx[a]] for a in live])
+        ev = _eval_vectors(request, opts, part.take(np.array(live)), croles, low)
+        stats["full_evaluations"] = stats.get("full_evaluations", 0) + len(live)
+        z = np.asarray(ev.metrics["zin_ohm"], dtype=float)
+        live = [a for a, zz in zip(live, z, strict=True)
+                if zz >= request.zin_min_ohm * (1 - 1e-9)]
+    for a in live:
+        out[a] = idx[a]
+    return out
+
+
+def _enumerate_caps(request, opts, one: Skeletons, croles, keep, st, stats):
+    """The first combination, smallest capacitances first, that meets the request."""
+    combos = list(itertools.product(*[list(k) for k in keep]))
+    if len(combos) > CAP_ENUM_LIMIT:
+        stats["cap_enum_truncated"] = stats.get("cap_enum_truncated", 0) + 1
+        stepk = len(combos) / CAP_ENUM_LIMIT
+        combos = [combos[int(k * stepk)] for k in range(CAP_ENUM_LIMIT)]
+    combos = [c for c in combos if _alloc_caps(opts, croles, np.array(c), st) is not None]
+    if not combos:
+        return None
+    vecs = np.array(combos)
+    order = np.argsort(np.log(opts.capacitor.values[vecs]).sum(axis=1), kind="stable")
+    vecs = vecs[order]
+    rep = one.take(np.zeros(len(vecs), dtype=int))
+    ev = _eval_vectors(request, opts, rep, croles, vecs)
+    stats["full_evaluations"] = stats.get("full_evaluations", 0) + len(vecs)
+    ok = np.flatnonzero(np.asarray(ev.meets))
+    if ok.size == 0:
+        return None
+    v = vecs[ok[0]]
+    return v, ev.take(np.array([ok[0]])), _alloc_caps(opts, croles, v, st)
+
+
+def _make_design(request, sk: Skeletons, i: int, row: dict, alloc_r, alloc_c, evc, ev_first,
+                 croles, t_empty: int) -> Design:
+    t = sk.transistor
+    picks = dict(alloc_r.picks)
+    picks.update(alloc_c.picks)
+    mm = evc.metrics_of(0)
+    if ev_first is not None:       # distortion and swing do not depend on the capacitors
+        for k in ("thd_pct", "swing_vpk"):
+            mm[k] = ev_first.metrics_of(0).get(k)
+    emptied = alloc_r.emptied + t_empty
+    terms = score_terms(gain_inf_db=row["gain_inf_db"], target_db=score_gain_target(request)[0],
+                        tol_db=score_gain_target(request)[1], drift_pct=row["drift_pct"],
+                        hd2_pct=row["hd2_pct"], supply_a=row["supply_a"], emptied=emptied,
+                        vce_v=row["vce_v"], supply_v=request.supply_v)
+    sc = float(sum(float(v) for v in terms.values()))
+    for role in croles:
+        p = evc.plus.get(role)
+        if p is not None and any(x.dielectric and x.dielectric.lower() in
+                                 ("electrolytic", "tantalum", "polymer")
+                                 for x in picks[role].pieces):
+            picks[role] = replace(picks[role], plus=str(np.atleast_1d(p)[0]))
+    order = [r for r in ("R1", "R2", "RC", "RE", "RE_BYP", "C_B", "C_BYP", "C_IN", "C_OUT")
+             if r in picks]
+    warnings = list(evc.warnings(0))
+    if ev_first is not None:
+        warnings += [w for w in ev_first.warnings(0) if w not in warnings]
+    mm["gain_inf_db"] = row["gain_inf_db"]
+    mm["supply_a"] = row["supply_a"]
+    mm["hd2_pct"] = row["hd2_pct"]
+    return Design(
+        topology=sk.topology, transistor=t.label, parts={r: picks[r] for r in order},
+        metrics=mm, meets_spec=True, violations=[], warnings=warnings, score=sc, form=sk.form,
+        extra={"score_terms": {k: float(v) for k, v in terms.items()},
+               "transistor_pick": {"id": t.id, "location": t.location, "count": 1}},
+    )

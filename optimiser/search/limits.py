@@ -1,0 +1,89 @@
+"""The request's physical limits and its check: targets no stage can reach, answered
+without searching, and the one contradiction that is bad input."""
+
+from __future__ import annotations
+
+import math
+
+from inventory.errors import InputError
+from inventory.parts import StockSnapshot
+from optimiser.device import thermal_voltage
+from optimiser.request import Request
+
+
+def gain_window(request: Request) -> tuple[float, float] | None:
+    """(lowest, highest) acceptable gain in V/V, or None without a gain target."""
+    if request.gain is None:
+        return None
+    k = 10.0 ** (request.gain_tol_db / 20.0)
+    return request.gain / k, request.gain * k
+
+
+def check_request(request: Request, snapshot: StockSnapshot | None = None) -> None:
+    """Raise :class:`InputError` for targets that contradict each other.
+
+    Only a request that leaves nothing to search for is refused: f_high_min_hz
+    at or below f_low_max_hz (no passband).  A target beyond what the topology
+    or the drawer can reach is an answer, not bad input: see
+    :func:`physical_limits`.
+    """
+    r = request
+    if r.f_low_max_hz is not None and r.f_high_min_hz is not None \
+            and r.f_high_min_hz <= r.f_low_max_hz:
+        raise InputError(
+            f"f_high_min_hz ({r.f_high_min_hz:g} Hz) must lie above f_low_max_hz "
+            f"({r.f_low_max_hz:g} Hz): no passband is left", field="f_high_min_hz")
+
+
+def physical_limits(request: Request, snapshot: StockSnapshot | None = None) -> list[dict]:
+    """Targets no stage of this topology (or built from this drawer) can reach.
+
+    Each is ``{"target", "requested", "reachable", "unit", "reason"}`` with
+    ``reachable`` the proven bound (the target must move at least to it):
+
+    * gain_db: a follower's gain is below 1 (0 dB); a ce or cb stage's is below
+      V_supply/V_T (g_m·R_C = I_C·R_C/V_T < V_supply/V_T), and a cb stage's
+      below R_L/R_S (i_e ≤ v_s/R_S, v_out ≤ i_e·R_L);
+    * zin_min_ohm: Z_in is below R1‖R2 ≤ R_max/2 (ce, cc) or below RE ≤ R_max
+      (cb), R_max the largest resistor in stock (twice it with combinations).
+    """
+
+    out: list[dict] = []
+    r = request
+    win = gain_window(r)
+    if win is not None:
+        lo = win[0]
+        limit, why = None, ""
+        if r.topology == "cc":
+            limit, why = 1.0, "a common-collector stage (emitter follower) has a gain below 1"
+        else:
+            vt = thermal_voltage(min(r.temp_c))
+            limit = r.supply_v / vt       # g_m·R_C ≤ I_C·R_C/V_T < V_supply/V_T
+            why = (f"a {r.topology} stage from {r.supply_v:g} V reaches less than "
+                   f"V_supply/V_T = {limit:.0f} V/V")
+            if r.load_ohm and r.source_ohm and r.topology == "cb":
+                lim2 = r.load_ohm / r.source_ohm   # i_e ≤ v_s/R_S, v_out ≤ i_e·R_L
+                if lim2 < limit:
+                    limit = lim2
+                    why = (f"a cb stage from a {r.source_ohm:g} Ω source into "
+                           f"{r.load_ohm:g} Ω reaches less than R_L/R_S = {lim2:.3g} V/V")
+        if lo >= limit:
+            reach = 20 * math.log10(limit)
+            out.append({"target": "gain_db", "requested": r.gain_db, "reachable": reach,
+                        "unit": "dB",
+                        "reason": f"{why} ({reach:.1f} dB); {r.gain_db:.1f} dB ± "
+                                  f"{r.gain_tol_db:g} dB cannot be met"})
+    if r.zin_min_ohm is not None and snapshot is not None:
+        stocked = [x.value for x in snapshot.resistors if x.qty > 0]
+        rmax = max(stocked, default=0.0) * (2.0 if r.allow_combos else 1.0)
+        if r.topology in ("ce", "cc"):
+            bound, what = rmax / 2.0, "R1‖R2"
+        else:
+            bound, what = rmax, "RE"
+        if rmax > 0 and r.zin_min_ohm >= bound:
+            out.append({"target": "zin_min_ohm", "requested": r.zin_min_ohm, "reachable": bound,
+                        "unit": "Ω",
+                        "reason": f"a {r.topology} stage built from this drawer has Z_in below "
+                                  f"{what} ≤ {bound:g} Ω (the largest resistor in stock "
+                                  f"{rmax:g} Ω)"})
+    return out

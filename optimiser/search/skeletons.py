@@ -1,0 +1,114 @@
+"""Skeletons: a transistor and resistor values with the capacitors still open, the
+roles of each topology's forms and the capacitor-independent figures the search
+and its checks share."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from inventory.parts import Transistor
+from optimiser.ac import small_signal
+from optimiser.dc import operating_point
+from optimiser.device import device_from_transistor
+from optimiser.evaluate import corner_points
+from optimiser.prune import midband_estimate
+from optimiser.request import Request
+from optimiser.score import degeneration, hd2_pct
+from optimiser.stage import StageBatch
+
+#: Capacitance standing for "shorted" in the skeleton pass (F).
+SHORT_F = 1.0
+#: The ce forms and the roles each adds.
+FORMS = {"ce": ("unbypassed", "fully bypassed", "partly bypassed"), "cb": (None,), "cc": (None,)}
+
+
+@dataclass
+class Skeletons:
+    """Candidate stages without capacitors, as parallel arrays of shape (n,)."""
+
+    topology: str
+    transistor: Transistor
+    form: str | None
+    R1: np.ndarray
+    R2: np.ndarray
+    RC: np.ndarray
+    RE: np.ndarray
+    RE_BYP: np.ndarray
+
+    @property
+    def n(self) -> int:
+        return int(self.R1.size)
+
+    def take(self, idx) -> "Skeletons":
+        return replace(self, R1=self.R1[idx], R2=self.R2[idx], RC=self.RC[idx],
+                       RE=self.RE[idx], RE_BYP=self.RE_BYP[idx])
+
+    def batch(self, caps: dict[str, np.ndarray] | None = None) -> StageBatch:
+        caps = caps or {}
+        vals = dict(R1=self.R1, R2=self.R2, RC=self.RC, RE=self.RE, RE_BYP=self.RE_BYP)
+        for role in cap_roles(self.topology, self.form):
+            vals[role] = caps.get(role, SHORT_F)
+        return StageBatch.from_values(self.topology, **vals)
+
+
+def cap_roles(topology: str, form: str | None) -> tuple[str, ...]:
+    if topology == "ce":
+        return ("C_IN", "C_OUT", "C_BYP") if form != "unbypassed" else ("C_IN", "C_OUT")
+    if topology == "cb":
+        return ("C_IN", "C_OUT", "C_B")
+    return ("C_IN", "C_OUT")
+
+
+def resistor_roles(topology: str, form: str | None, rc) -> tuple[str, ...]:
+    if topology == "ce":
+        return {"unbypassed": ("R1", "R2", "RC", "RE"),
+                "fully bypassed": ("R1", "R2", "RC", "RE_BYP"),
+                "partly bypassed": ("R1", "R2", "RC", "RE", "RE_BYP")}[form]
+    if topology == "cb":
+        return ("R1", "R2", "RC", "RE")
+    return ("R1", "R2", "RC", "RE") if rc > 0 else ("R1", "R2", "RE")
+
+
+def _emitter_options(topology: str, form: str | None, rv: np.ndarray):
+    """(RE, RE_BYP) arrays of the emitter side of one form."""
+    z = np.zeros_like(rv)
+    if topology != "ce" or form == "unbypassed":
+        return rv.copy(), z
+    if form == "fully bypassed":
+        return z, rv.copy()
+    a, b = np.meshgrid(rv, rv, indexing="ij")
+    return a.ravel(), b.ravel()
+
+
+def _take_all(c: Skeletons, idx) -> Skeletons:
+    sub = c.take(idx)
+    for k in ("lb", "gdb", "hd2", "supply", "stock_lb"):
+        setattr(sub, k, getattr(c, k)[idx])
+    return sub
+
+
+def skeleton_figures(request: Request, batch: StageBatch, transistor: Transistor) -> dict:
+    """The capacitor-independent inputs of the score for ``batch``, as arrays.
+
+    ``gain_inf_db`` (midband gain with capacitors shorted), ``hd2_pct``,
+    ``supply_a`` (through R1 plus I_C), ``drift_pct`` (the engine's four
+    corners).  The search and any check of it use this one function.
+    """
+
+    model = device_from_transistor(transistor)
+    op = operating_point(batch.topology, request.supply_v, batch, model)
+    ss = small_signal(op, model)
+    g, drive = midband_estimate(batch.topology, r1=batch.R1, r2=batch.R2, rc=batch.RC,
+                                re=batch.RE, source_ohm=request.source_ohm,
+                                load_ohm=request.load_ohm, mid_hz=request.mid_hz, ss=ss)
+    cop, _, _ = corner_points(request, batch, model)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        drift = 100.0 * np.max(np.abs(cop.ic - op.ic[:, None]), axis=1) / op.ic
+    return {"gain_inf_db": 20 * np.log10(np.maximum(g, 1e-300)),
+            "hd2_pct": hd2_pct(request.input_vpk, drive, np.asarray(ss["gm"]) * degeneration(
+                batch.topology, batch.RE, request.source_ohm, request.load_ohm)),
+            "supply_a": (request.supply_v - op.vb) / batch.R1 + op.ic,
+            "drift_pct": drift,
+            "vce_v": op.vce}

@@ -1,0 +1,65 @@
+"""Stock allocation: pieces per copy of each resistor value against the snapshot,
+the best ratings the drawer offers and the DC stresses the pieces must bear."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from optimiser.options import StockOptions
+from optimiser.search.skeletons import Skeletons, cap_roles
+from optimiser.stage import PartRatings
+
+
+def _ratings_best(sk: Skeletons, opts: StockOptions, caps_voltage: dict | None = None) -> PartRatings:
+    """Most permissive ratings the drawer offers for each resistor value of ``sk``."""
+    pw, share = {}, {}
+    for role in ("R1", "R2", "RC", "RE", "RE_BYP"):
+        vals = getattr(sk, role)
+        r = np.full(vals.shape, np.inf)
+        nz = vals > 0
+        if nz.any():
+            idx = np.clip(np.searchsorted(opts.resistor.values, vals[nz]), 0,
+                          len(opts.resistor) - 1)
+            r[nz] = opts.resistor.best_rating[idx]
+        pw[role] = r
+        share[role] = np.ones(vals.shape)
+    volt = {} if caps_voltage is None else dict(caps_voltage)
+    for role in cap_roles(sk.topology, sk.form):
+        volt.setdefault(role, np.full(sk.n, np.inf))
+    return PartRatings(power_w=pw, power_share=share, voltage_v=volt)
+
+
+def _stresses(sk: Skeletons, i: int, m: dict, j: int, V: float) -> dict[str, float]:
+    """DC dissipation (W) of each resistor role, |DC voltage| (V) of each capacitor role."""
+    vb, ve, vc = float(m["vb_v"][j]), float(m["ve_v"][j]), float(m["vc_v"][j])
+    r1, r2, rc, re, byp = (float(getattr(sk, k)[i]) for k in ("R1", "R2", "RC", "RE", "RE_BYP"))
+    ie = ve / (re + byp) if re + byp > 0 else 0.0
+    s = {"R1": (V - vb) ** 2 / r1, "R2": vb ** 2 / r2, "RE": ie * ie * re,
+         "RE_BYP": ie * ie * byp, "RC": (V - vc) ** 2 / rc if rc > 0 else 0.0}
+    topo = sk.topology
+    s["C_IN"] = abs(ve if topo == "cb" else vb)
+    s["C_OUT"] = abs(ve if topo == "cc" else vc)
+    s["C_BYP"] = abs(ie * byp)
+    s["C_B"] = abs(vb)
+    return s
+
+
+def _alloc_caps(opts, croles, vec, st):
+    return opts.allocate({r: ("capacitor", float(opts.capacitor.values[vec[k]]), st[r])
+                          for k, r in enumerate(croles)})
+
+
+def stock_units(opts: StockOptions, rv: np.ndarray):
+    """Per resistor value: pieces per copy (rows pooled; inf with joined pairs),
+    the largest row, and whether it may be bought (a virtual row)."""
+    units = np.zeros(rv.size)
+    for k, v in enumerate(rv):
+        rows = opts.rows_of("resistor", v)
+        units[k] = sum(opts.rows[i].qty // opts.builds for i in rows) if rows else np.inf
+        if opts.allow_combos:
+            units[k] = np.inf       # a joined pair may stand in: no cheap count
+    maxq = np.array([max((opts.rows[i].qty for i in opts.rows_of("resistor", v)),
+                         default=0) for v in rv], dtype=float)
+    virtual = np.array([any((opts.rows[i].id is not None and opts.rows[i].id < 0)
+                            for i in opts.rows_of("resistor", v)) for v in rv])
+    return units, maxq, virtual

@@ -1,0 +1,399 @@
+"""The best-first branch and bound over the levels of the jobs (docs/search.md).
+
+Heaps per level hold nodes with a lower bound of the score of every design below
+them; a node is dropped when its bound reaches the ``top``-th best score known."""
+
+from __future__ import annotations
+
+import heapq
+import itertools
+import math
+import time
+from dataclasses import dataclass
+from typing import NamedTuple
+
+import numpy as np
+
+from inventory.errors import InputError
+from inventory.parts import StockSnapshot, Transistor
+from optimiser.dc import operating_point
+from optimiser.design import Design
+from optimiser.device import device_from_transistor
+from optimiser.evaluate import corner_points
+from optimiser.options import StockOptions
+from optimiser.request import Request
+from optimiser.search.bounds import skeleton_bound
+from optimiser.search.confirm import (
+    CONFIRM_BATCH,
+    _cap_free_ok,
+    _confirm_group,
+    _evaluate,
+    _large_signal,
+)
+from optimiser.search.job import _Job
+from optimiser.search.limits import gain_window
+from optimiser.search.seeding import _seed_designs
+from optimiser.search.skeletons import FORMS, Skeletons, _take_all
+from optimiser.search.stock import _ratings_best
+from optimiser.search.workers import split_branch_and_bound, worker_count
+
+#: Skeletons per heap entry of the "cands" level (one operating-point and corner
+#: solve each): larger batches vectorise better, smaller ones drop more by the
+#: score to beat before they are solved.
+QUICK_BATCH = 2000
+#: Bias nodes (and blocks of pairs' emitter runs) per heap entry: the same trade at
+#: the upper levels.
+NODE_BLOCK = 8192
+#: Aspiration levels of the score (search_designs); the last run is unbounded.
+ASPIRATION = (0.5, 1.0, 2.0, 4.0)
+
+
+
+def _transistors(request: Request, snapshot: StockSnapshot) -> list[Transistor]:
+    if request.transistor and request.transistor != "any":
+        t = snapshot.transistor(request.transistor)
+        if t is None:
+            labels = ", ".join(sorted(x.label for x in snapshot.transistors)) or "none"
+            raise InputError(f"transistor {request.transistor!r} is not in stock "
+                             f"(stocked: {labels})", field="transistor")
+        ts = [t]
+    else:
+        ts = list(snapshot.transistors)
+    return [t for t in ts if t.qty >= request.builds
+            and (t.vceo is None or request.supply_v <= t.vceo)]
+
+
+def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
+                   progress=None, budget_s: float | None = None, given=None, workers=None,
+                   finish: bool = True):
+    """Steps 2–5 as a best-first branch and bound; (designs, pool of evaluated misses).
+
+    The branch and bound runs first with an aspiration level: every node whose
+    bound reaches ``ASPIRATION[0]`` is dropped as if ``top`` designs that good
+    were already known.  If ``top`` designs at or below that level are found,
+    no dropped node could hold a better one and the ranking is proven; if not,
+    the search runs again with the next, higher level (the last is unbounded).
+    This only makes the search faster: the designs returned are the same.
+    """
+    t_start = time.perf_counter()
+    seeds = list(given) if given is not None else _seed_designs(request, snapshot, top, stats,
+                                                                search_designs, budget_s)
+    opts = StockOptions(snapshot, request.builds, request.allow_combos)
+    ts = _transistors(request, snapshot)
+    cache: dict = {}            # what the jobs share (pairs, emitter options, stock)
+    jobs = [_Job(request, opts, t, f, stats, cache) for t in ts for f in FORMS[request.topology]
+            if opts.resistor.values.size]
+    jobs = [j for j in jobs if j.live]
+    found, pool = [], []
+    # with top designs already in hand the score to beat is known: no aspiration
+    levels = (math.inf,) if len(seeds) >= top else ASPIRATION + (math.inf,)
+    if workers is None:
+        n_values = np.unique([r.value for r in snapshot.resistors]).size
+        workers = worker_count(n_values)
+    for cap in levels:
+        left = None if budget_s is None else max(budget_s - (time.perf_counter() - t_start), 0.0)
+
+        def run(part, shared, st, cap=cap, left=left):
+            return _branch_and_bound(request, opts, jobs, top, st,
+                                     progress if part[0] == 0 else None, left, cap, seeds,
+                                     part, shared)
+
+        if workers > 1:
+            found, pool = split_branch_and_bound(run, workers, stats)
+            found = _distinct(found)
+        else:
+            found, pool = run((0, 1), None, stats)
+        if stats.get("stopped_at_budget") or (len(found) >= top and found[top - 1].score <= cap):
+            break
+        stats["aspiration_rounds"] = stats.get("aspiration_rounds", 0) + 1
+    found = found[:top]
+    if finish:              # (seed searches leave it to the search they seed)
+        _large_signal(request, snapshot, found)
+    for r, d in enumerate(found, 1):
+        d.rank = r
+    return found, pool
+
+
+def _distinct(designs: list[Design]) -> list[Design]:
+    """Designs of distinct networks, best first (shares of a split search may
+    both hold a seed)."""
+    out, seen = [], set()
+    for d in sorted(designs, key=_rank_key):
+        if _design_key(d) not in seen:
+            seen.add(_design_key(d))
+            out.append(d)
+    return out
+
+
+def _design_key(d: Design) -> tuple:
+    """A design's resistor/transistor network (its score does not depend on the rest)."""
+    return (d.transistor, d.form, tuple(sorted((r, p.value) for r, p in d.parts.items()
+                                               if not r.startswith("C"))))
+
+
+def _rank_key(d: Design) -> tuple:
+    """Order of the ranking: score, then the network (so that ties rank the same
+    however the search was split)."""
+    return (d.score, _design_key(d))
+
+
+@dataclass(frozen=True)
+class SearchStatus:
+    """How far a running search has got: what the ``progress`` callback receives.
+
+    In a search split over processes the figures are those of the process that
+    reports, with the best score and the open bound of all of them: the count
+    of proven ranks is then a lower bound of the whole search's.
+    """
+
+    found: int                  # designs meeting the request found so far
+    top: int                    # how many ranks are asked for
+    best_score: float | None    # the best score found so far (None: none yet)
+    proven_ranks: int           # leading ranks no unexamined design can beat
+    nodes_left: int             # entries still open in the heaps
+    open_bound: float           # the least score any unexamined design could have
+
+    def text(self) -> str:
+        """The status as one line."""
+        best = "none yet" if self.best_score is None else f"{self.best_score:.4g}"
+        bound = "none" if not math.isfinite(self.open_bound) else f"{self.open_bound:.4g}"
+        return (f"best score {best} · {self.proven_ranks} of {self.top} ranks proven · "
+                f"{self.nodes_left} nodes left (least bound {bound})")
+
+
+def _status(found: list[Design], top: int, low: float, cap: float, heaps: dict,
+            shared) -> SearchStatus:
+    bound = min(low, cap)
+    best = found[0].score if found else math.inf
+    if shared is not None:
+        bound = min(bound, min(shared.low))
+        best = min(best, min(shared.best))
+    proven = 0
+    for d in found[:top]:
+        if d.score is None or d.score > bound:
+            break
+        proven += 1
+    return SearchStatus(found=len(found), top=top,
+                        best_score=best if math.isfinite(best) else None,
+                        proven_ranks=proven, nodes_left=sum(len(h) for h in heaps.values()),
+                        open_bound=bound)
+
+
+#: The levels of the tree, top down; each has a heap of :class:`Entry`.
+LEVELS = ("pairs", "blocks", "nodes", "cands", "skel")
+
+
+class PairBlock(NamedTuple):
+    """A block of (R1, R2) pairs shared by the forms of one transistor."""
+
+    jobs: tuple[int, ...]       # indices of the jobs (forms) it expands into
+    pairs: np.ndarray           # pair indices
+    block: int                  # its number (the same in every process of a split search)
+
+
+class NodeBlock(NamedTuple):
+    """Pairs of one job, each with the run of its DC emitter totals still open."""
+
+    job: int
+    pairs: np.ndarray
+    first: np.ndarray           # index of the run's first total
+    last: np.ndarray            # ... and of its last (inclusive)
+
+
+class BiasNodes(NamedTuple):
+    """Bias nodes of one job: pair × DC emitter total, with the collector current
+    bracket and the drift bound of each."""
+
+    job: int
+    pairs: np.ndarray
+    totals: np.ndarray          # index of each node's DC emitter total
+    ic_bracket: np.ndarray      # shape (2, n): bottom and top of the current bracket
+    drift_lb: np.ndarray
+
+
+class SkeletonPick(NamedTuple):
+    """One skeleton of a batch with the engine's capacitor-free figures of it."""
+
+    skeletons: Skeletons
+    index: int
+    row: dict
+
+
+class Entry(NamedTuple):
+    """A heap entry: the lower bound of every design below it first, then a
+    sequence number (ties never compare the payloads)."""
+
+    lb: float
+    seq: int
+    level: str
+    payload: PairBlock | NodeBlock | BiasNodes | Skeletons | SkeletonPick
+
+
+def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, seeds=(),
+                      part=(0, 1), shared=None):
+    """One run of the branch and bound, dropping nodes whose bound reaches ``cap``.
+
+    ``seeds`` are designs of this drawer already known (they count towards the
+    ``top`` to beat and are not reported twice).  Returns every design found
+    (sorted by score) and the pool of evaluated misses.
+
+    ``part`` = (k, n): this is process k of a search split over n
+    (:mod:`optimiser.search.workers`); ``shared`` (a :class:`optimiser.search.workers.Shared`)
+    then says which blocks of (R1, R2) pairs another process has taken — this
+    one searches only the blocks it takes itself — and holds each process's
+    ``top``-th best score, slot k this one's: each is the score of ``top`` real
+    designs, so any of them is a score to beat.
+    """
+
+    levels = LEVELS
+    heaps: dict[str, list[Entry]] = {k: [] for k in levels}
+
+    def push(item: Entry):
+        heapq.heappush(heaps[item.level], item)
+
+    def smallest() -> float:
+        return min((h[0].lb for h in heaps.values() if h), default=math.inf)
+
+    seq = itertools.count()
+    k_part = part[0]
+    block = itertools.count()       # (the same numbers in every process: same jobs)
+    # the forms of one transistor share their pairs and the DC bounds of their first
+    # level (_Job.span_dc_of): one heap entry per transistor and block of pairs
+    groups: dict[str, list[int]] = {}
+    for j, job in enumerate(jobs):
+        groups.setdefault(job.t.label, []).append(j)
+    for js in groups.values():
+        for lb, p in jobs[js[0]].pair_blocks():
+            push(Entry(lb, next(seq), "pairs", PairBlock(tuple(js), p, next(block))))
+    found: list[Design] = sorted(seeds, key=_rank_key)
+    known = {_design_key(d) for d in found}
+    pool: list = []
+    win = gain_window(request)
+    stats.setdefault("drift_checked", 0)
+    stats.setdefault("quick_evaluations", 0)
+    steps = 0
+    t_start = time.perf_counter()
+    while any(heaps.values()):
+        if budget_s is not None and time.perf_counter() - t_start > budget_s:
+            # stopped by the time limit: every design left unexamined scores at
+            # least the smallest bound still in the heaps
+            stats["stopped_at_budget"] = True
+            stats["open_bound"] = min(smallest(), cap)
+            break
+        kth = min(found[top - 1].score if len(found) >= top else math.inf, cap)
+        if shared is not None:
+            shared.kth[k_part] = kth
+            kth = min(kth, min(shared.kth))
+        low = smallest()
+        if shared is not None:
+            shared.low[k_part] = min(low, cap)
+            if found:
+                shared.best[k_part] = found[0].score
+        if low >= kth:
+            break
+        steps += 1
+        if progress and steps % 5 == 0:
+            progress(_status(found, top, low, cap, heaps, shared))
+        if len(found) < top:
+            # dive: the deepest level first, so that a bound to beat is known early
+            level = next(k for k in reversed(levels) if heaps[k])
+        else:
+            # best first: the level holding the smallest bound — but in a split
+            # search a new block of pairs only once this process's own work is done,
+            # so that blocks are taken as the processes free up (they balance)
+            open_ = [k for k in levels if heaps[k] and not (shared is not None and k == "pairs")]
+            level = min(open_ or ["pairs"], key=lambda k: heaps[k][0].lb)
+        lb, _, kind, payload = heapq.heappop(heaps[level])
+        if lb >= kth:
+            continue
+        if kind == "pairs":
+            js, p, blk = payload.jobs, payload.pairs, payload.block
+            if shared is not None and not shared.claim(blk, k_part):
+                continue                # another process searches this block
+            dc = None
+            if len(js) > 1 and request.topology == "ce":
+                dc = jobs[js[0]].span_dc_of(p, kth, [jobs[j] for j in js])
+            for j in js:
+                P, a, b, blb = jobs[j].expand_pairs(p, kth, dc)
+                for s0 in range(0, P.size, NODE_BLOCK):
+                    sl = slice(s0, s0 + NODE_BLOCK)
+                    push(Entry(float(blb[s0]), next(seq), "blocks",
+                               NodeBlock(j, P[sl], a[sl], b[sl])))
+        elif kind == "blocks":
+            j, P, a, b = payload.job, payload.pairs, payload.first, payload.last
+            P, E, ic_lo, d_lb, nlb = jobs[j].expand_blocks(P, a, b, kth)
+            for s0 in range(0, P.size, NODE_BLOCK):
+                sl = slice(s0, s0 + NODE_BLOCK)
+                push(Entry(float(nlb[s0]), next(seq), "nodes",
+                           BiasNodes(j, P[sl], E[sl], ic_lo[:, sl], d_lb[sl])))
+        elif kind == "nodes":
+            j, P, E, ic_lo, d_lb = (payload.job, payload.pairs, payload.totals, payload.ic_bracket,
+                                    payload.drift_lb)
+            sk = jobs[j].expand_nodes(P, E, ic_lo, d_lb, kth)
+            if sk is not None:
+                for s in range(0, sk.n, QUICK_BATCH):
+                    sub = _take_all(sk, np.arange(s, min(s + QUICK_BATCH, sk.n)))
+                    push(Entry(float(sub.lb[0]), next(seq), "cands", sub))
+        elif kind == "cands":
+            sk = payload
+            keep = sk.lb < kth
+            if not keep.all():
+                sk = _take_all(sk, np.flatnonzero(keep))
+            if sk.n == 0:
+                continue
+            b = sk.batch()
+            model = device_from_transistor(sk.transistor)
+            op = operating_point(b.topology, request.supply_v, b, model)
+            cop, _, _ = corner_points(request, b, model)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                drift = 100.0 * np.max(np.abs(cop.ic - op.ic[:, None]), axis=1) / op.ic
+            stats["drift_checked"] += sk.n
+            ok = np.isfinite(drift)
+            if request.ic_drift_max_pct is not None:
+                ok &= drift <= request.ic_drift_max_pct
+            lb15 = skeleton_bound(request, sk.gdb, drift, sk.hd2, sk.supply, op.vce, sk.stock_lb)
+            for i in np.flatnonzero(ok & (lb15 < kth)):
+                push(Entry(float(lb15[i]), next(seq), "skel",
+                           SkeletonPick(sk, int(i), {"drift_pct": float(drift[i]),
+                                                     "gain_inf_db": float(sk.gdb[i]),
+                                                     "hd2_pct": float(sk.hd2[i]),
+                                                     "supply_a": float(sk.supply[i]),
+                                                     "vce_v": float(op.vce[i])})))
+        else:
+            batch = [(lb, payload)]
+            while heaps["skel"] and len(batch) < CONFIRM_BATCH and heaps["skel"][0].lb < kth:
+                e = heapq.heappop(heaps["skel"])
+                batch.append((e.lb, e.payload))
+            groups: dict[int, list] = {}
+            for lbx, (sk, i, row) in batch:
+                groups.setdefault(id(sk), []).append((lbx, sk, i, row))
+            for entries in groups.values():
+                sk = entries[0][1]
+                li = np.array([e[2] for e in entries])
+                part = sk.take(li)
+                ev = _evaluate(request, part.batch(), sk.transistor, _ratings_best(part, opts),
+                               band_edges=False, large_signal=False)
+                stats["quick_evaluations"] += part.n
+                ok = _cap_free_ok(ev)
+                if win is not None:
+                    ok &= np.asarray(ev.metrics["gain"]) >= win[0]
+                good = []
+                for jj, e in enumerate(entries):
+                    if ok[jj]:
+                        row = dict(e[3])
+                        row.update({k: float(v[jj]) for k, v in ev.metrics.items()
+                                    if k not in row})
+                        good.append((e[0], None, None, e[2], row))
+                bad = np.flatnonzero(~ok)
+                if bad.size and len(pool) < 400:
+                    pool.append(("quick", sk, li[bad], ev.take(bad)))
+                for d in _confirm_group(request, opts, sk, good, stats, pool):
+                    if _design_key(d) not in known:
+                        known.add(_design_key(d))
+                        found.append(d)
+            found.sort(key=_rank_key)
+    if shared is not None:      # what this process leaves open, for the others' status
+        shared.low[k_part] = min(smallest(), cap)
+    stats["heap_steps"] = stats.get("heap_steps", 0) + steps
+    found.sort(key=_rank_key)
+    return found, pool
