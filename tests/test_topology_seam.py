@@ -29,9 +29,9 @@ ROOT = Path(__file__).resolve().parents[1]
 PACKAGES = ("optimiser", "drawerfit", "inventory")
 #: Where a topology may be compared with its name: its own package ...
 STAGES_DIR = "optimiser/stages/"
-#: ... and, until they ask the topology too, the search and its helpers (the next step).
-SEARCH_ALLOWED = ("optimiser/search.py", "optimiser/search/", "optimiser/prune.py",
-                  "optimiser/misses.py", "optimiser/f_low_bounds.py", "optimiser/workers.py")
+#: ... and, until they ask the topology too, the search and its bound modules (the next step).
+SEARCH_ALLOWED = ("optimiser/search/", "optimiser/prune.py", "optimiser/f_low_bounds.py")
+
 KNOWN_ROLES = set(RESISTOR_ROLES) | set(CAPACITOR_ROLES)
 TERMINALS = ("base", "emitter", "collector")
 

@@ -54,11 +54,15 @@ def _cap_free_ok(ev) -> np.ndarray:
 def _large_signal(request: Request, snapshot: StockSnapshot, designs: list[Design]) -> None:
     """THD, swing and the clipping warning of the ranked designs, in place.
 
-    Distortion and swing do not enter the score and are a target only with
-    ``thd_max_pct`` (then they were computed while confirming); otherwise they
-    are computed here, once, for the designs returned.
+    Distortion and swing do not enter the score; THD is a target only with
+    ``thd_max_pct`` (then it was computed while confirming, without the swing);
+    what is missing is computed here, once, for the designs returned.
     """
-    need = [d for d in designs if d.metrics.get("thd_pct") is None]
+    def missing(v) -> bool:
+        return v is None or (isinstance(v, float) and math.isnan(v))
+
+    need = [d for d in designs
+            if missing(d.metrics.get("thd_pct")) or missing(d.metrics.get("swing_vpk"))]
     groups: dict[str, list[Design]] = {}
     for d in need:
         groups.setdefault(d.transistor, []).append(d)
@@ -173,7 +177,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                 for k in range(len(croles)):
                     vec[a, k] = _pick_at_least(cv, allowed[a][k], cv[vec[a, k]] * 4.0 * (1 + 1e-9))
         ev = _eval_vectors(request, opts, part.take(pending), croles, vec[pending],
-                           large_signal=(rnd == 0 and request.thd_max_pct is not None))
+                           large_signal=("thd" if rnd == 0 and request.thd_max_pct is not None
+                                         else False))
         stats["full_evaluations"] = stats.get("full_evaluations", 0) + pending.size
         still = []
         for j, a in enumerate(pending):
