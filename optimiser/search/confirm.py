@@ -24,9 +24,11 @@ from optimiser.stage import PartRatings, StageBatch
 #: Skeletons confirmed by one call of the engine: more vectorise better, fewer
 #: confirm less beyond the score a design of the same batch would have set to beat.
 CONFIRM_BATCH = 12
-#: Most capacitor combinations tried for one skeleton; beyond it an even sample of
-#: this many is tried and ``stats["cap_enum_truncated"]`` counts it (time against
-#: the smallest adequate capacitors of very large capacitor ranges).
+#: Capacitor combinations evaluated at once for one skeleton; beyond it an even
+#: sample of this many is tried first (``stats["cap_enum_truncated"]`` counts it) and
+#: the rest only when none of the sample meets the request: the capacitors picked
+#: may then not be the smallest adequate ones (the score does not depend on them),
+#: but a skeleton is never dropped while some combination would meet the request.
 CAP_ENUM_LIMIT = 4096
 
 
@@ -312,16 +314,42 @@ def _screen_caps(request, opts, part: Skeletons, pending, croles, allowed, stats
 
 
 def _enumerate_caps(request, opts, one: Skeletons, croles, keep, st, stats):
-    """The first combination, smallest capacitances first, that meets the request."""
+    """The first combination, smallest capacitances first, that meets the request.
+
+    Over CAP_ENUM_LIMIT combinations an even sample is tried first; when none of
+    it meets the request the rest are tried too, in blocks of the same size, so
+    that "no capacitors meet it" is only said of every combination.
+    """
     combos = list(itertools.product(*[list(k) for k in keep]))
-    if len(combos) > CAP_ENUM_LIMIT:
-        stats["cap_enum_truncated"] = stats.get("cap_enum_truncated", 0) + 1
-        stepk = len(combos) / CAP_ENUM_LIMIT
-        combos = [combos[int(k * stepk)] for k in range(CAP_ENUM_LIMIT)]
     combos = [c for c in combos if _alloc_caps(opts, croles, np.array(c), st) is not None]
     if not combos:
         return None
-    vecs = np.array(combos)
+    if len(combos) > CAP_ENUM_LIMIT:
+        stats["cap_enum_truncated"] = stats.get("cap_enum_truncated", 0) + 1
+    for block in combination_blocks(len(combos), CAP_ENUM_LIMIT):
+        found = _first_meeting(request, opts, one, croles, np.array([combos[j] for j in block]),
+                               stats)
+        if found is not None:
+            v, ev_one = found
+            return v, ev_one, _alloc_caps(opts, croles, v, st)
+    return None
+
+
+def combination_blocks(n: int, limit: int) -> list[list[int]]:
+    """Indices 0..n-1 in blocks of at most ``limit``: an even sample first, then the
+    rest in order; every index in exactly one block."""
+    if n <= limit:
+        return [list(range(n))]
+    step = n / limit
+    first = sorted({int(k * step) for k in range(limit)})
+    taken = set(first)
+    rest = [j for j in range(n) if j not in taken]
+    return [first] + [rest[k:k + limit] for k in range(0, len(rest), limit)]
+
+
+def _first_meeting(request, opts, one: Skeletons, croles, vecs, stats):
+    """Of capacitor vectors ``vecs``, the one of least total log-capacitance that meets
+    the request, with its evaluation; None when none does."""
     order = np.argsort(np.log(opts.capacitor.values[vecs]).sum(axis=1), kind="stable")
     vecs = vecs[order]
     rep = one.take(np.zeros(len(vecs), dtype=int))
@@ -330,8 +358,7 @@ def _enumerate_caps(request, opts, one: Skeletons, croles, keep, st, stats):
     ok = np.flatnonzero(np.asarray(ev.meets))
     if ok.size == 0:
         return None
-    v = vecs[ok[0]]
-    return v, ev.take(np.array([ok[0]])), _alloc_caps(opts, croles, v, st)
+    return vecs[ok[0]], ev.take(np.array([ok[0]]))
 
 
 def _make_design(request, sk: Skeletons, i: int, row: dict, alloc_r, alloc_c, evc, ev_first,

@@ -1,6 +1,8 @@
 """The search: request checks, the pruning bounds against the engine, stock counting."""
 
 
+import itertools
+
 import numpy as np
 import pytest
 
@@ -753,3 +755,33 @@ def test_ce_gain_per_load_holds_against_the_engine(rs, rl, vaf, mid):
     # without the search's margin (B15_MARGIN) the ratio stays below 1: measured 0.9994
     assert ratio.max() <= 1.0 < B15_MARGIN, ratio.max()
     assert np.median(ratio) > 0.9
+
+
+def test_capacitor_combinations_are_all_tried_when_the_sample_meets_nothing(monkeypatch):
+    """Over CAP_ENUM_LIMIT combinations an even sample goes first; when nothing in it
+    meets the request the rest are tried too, so a skeleton is never dropped while a
+    combination outside the sample would meet it."""
+    import optimiser.search.confirm as confirm
+
+    for n, limit in ((10, 3), (4096 * 3 + 7, 4096), (5, 5), (1, 1)):
+        blocks = confirm.combination_blocks(n, limit)
+        flat = [j for b in blocks for j in b]
+        assert sorted(flat) == list(range(n)) and all(len(b) <= limit for b in blocks)
+    keep = [np.arange(4), np.arange(5)]                # 20 combinations
+    good = (3, 2)
+    sample = {tuple(int(x) for x in c) for c in
+              [list(itertools.product(*keep))[j]
+               for j in confirm.combination_blocks(20, 6)[0]]}
+    assert good not in sample                          # only the rest holds it
+
+    def first_meeting(request, opts, one, croles, vecs, stats):
+        hit = [v for v in vecs if tuple(int(x) for x in v) == good]
+        return (hit[0], "ev") if hit else None
+
+    monkeypatch.setattr(confirm, "CAP_ENUM_LIMIT", 6)
+    monkeypatch.setattr(confirm, "_alloc_caps", lambda opts, croles, v, st: "alloc")
+    monkeypatch.setattr(confirm, "_first_meeting", first_meeting)
+    stats = {}
+    got = confirm._enumerate_caps(None, None, None, ("C_IN", "C_OUT"), keep, None, stats)
+    assert got is not None and tuple(int(x) for x in got[0]) == good
+    assert stats["cap_enum_truncated"] == 1
