@@ -14,12 +14,15 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from importlib import resources
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import click
 
 from drawerfit.console import out
 from drawerfit.render.stock import print_stock
-from inventory.store import Store, open_store
+
+if TYPE_CHECKING:
+    from inventory.store import Store
 
 __all__ = ["command", "demo_csv_path", "demo_store", "show_demo_stock"]
 
@@ -34,6 +37,8 @@ def demo_csv_path() -> Iterator[Path]:
 @contextmanager
 def demo_store() -> Iterator[Store]:
     """A throwaway store in a temporary folder, loaded with the demo drawer."""
+    from inventory.store import open_store  # the store loads when first needed
+
     with tempfile.TemporaryDirectory(prefix="drawerfit-demo-") as tmp:
         store = open_store(str(Path(tmp) / "demo.sqlite"))
         try:

@@ -7,10 +7,12 @@ owns stdout.
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import click
 
-from drawerfit.sheet import WrittenSheet, echo_sheet, write_sheet
+if TYPE_CHECKING:
+    from drawerfit.sheet import WrittenSheet
 from inventory.errors import InputError
 
 __all__ = ["sheet_option", "sheet_for_design", "sheet_for_build", "spice_option",
@@ -30,7 +32,10 @@ def sheet_for_design(directory, design, request, transistor, *, evaluation=None,
     ``quiet``: print to stderr (``--json`` owns stdout).  ``cautions_shown``:
     the command's own view has just printed this design's cautions.
     """
+    # the sheet (plots, schematic, the engine) loads only when a sheet is asked for,
+    # so that the command line starts quickly
     from drawerfit.console import err, out
+    from drawerfit.sheet import echo_sheet, write_sheet
 
     written = write_sheet(directory, design, request, transistor, evaluation=evaluation,
                           yield_result=yield_result)

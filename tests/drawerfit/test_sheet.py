@@ -347,7 +347,7 @@ def test_matplotlib_draws_off_screen():
 def test_the_drift_corners_come_from_the_designs_own_row(tmp_path):
     # An evaluation of several candidates (as the search has it): the sheet must take the
     # corners of the row whose values are the design's, not row 0.
-    from drawerfit.sheet import _matching_row
+    from drawerfit.sheet.writer import _matching_row
 
     d, req = evaluated("ce")
     vals = d.values()
@@ -364,8 +364,8 @@ def test_drift_plot_adds_the_yield_histogram_when_computed(tmp_path):
 
     from PIL import Image
 
-    from drawerfit.sheet import _yield_samples
     from drawerfit.sheet.plots import plot_drift
+    from drawerfit.sheet.writer import _yield_samples
 
     d, req = evaluated("ce")
     ev = evaluate(req, StageBatch.from_values("ce", **d.values()), Q, band_edges=False,
