@@ -29,6 +29,7 @@ Pure functions over plain objects; no I/O.
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import replace
 
 from inventory.parts import Capacitor, Resistor, StockSnapshot
@@ -40,13 +41,21 @@ from optimiser.search.tree import search_designs
 from optimiser.stage import StageBatch
 
 __all__ = ["explain", "miss_distance", "relaxed", "stock_shortfall", "miss_order", "TARGETS",
-           "MISS_BUDGET_S", "BUY_BUDGET_S", "RELAX_BUDGET_S", "GAIN_STEPS_DB"]
+           "MISS_BUDGET_S", "BUY_BUDGET_S", "RELAX_BUDGET_S", "EXPLAIN_BUDGET_S", "GAIN_STEPS_DB"]
 
 #: Time budgets (s) of the suggestion searches; a budget only shortens the list of
 #: suggestions (and a search stopped by it proves no "none within").
 MISS_BUDGET_S = 20.0
 BUY_BUDGET_S = 10.0
 RELAX_BUDGET_S = 10.0
+#: Time (s) all the suggestions of one answer share: past it the searches not yet run
+#: are skipped and named in the answer.  Trades how much advice an infeasible answer
+#: carries against how long the user waits for it; the proof of infeasibility itself
+#: is not bounded by it.
+EXPLAIN_BUDGET_S = 8.0
+#: Share of EXPLAIN_BUDGET_S the nearest-miss search may take first (the misses are
+#: what an infeasible answer shows; the relaxations and the bought value share the rest).
+MISS_SHARE = 0.4
 #: How far (dB) the gain window is widened, one step after the other, until a
 #: stock design meeting every other target falls inside it.
 GAIN_STEPS_DB = (3.0, 6.0, 12.0, 24.0, 48.0, 96.0)
@@ -181,15 +190,36 @@ def _meets(request: Request, d: Design, snapshot: StockSnapshot) -> bool:
     return bool(ev.meets[0])
 
 
-def _run(request: Request, snapshot: StockSnapshot, stats: dict, name: str):
-    """(designs, complete) of the exact search of ``request`` within RELAX_BUDGET_S."""
+class _Clock:
+    """What is left of the time all the suggestions of one answer share, and which
+    searches it left out."""
+
+    def __init__(self, seconds: float) -> None:
+        self.deadline = time.perf_counter() + seconds
+        self.skipped: list[str] = []
+
+    def budget(self, own: float, name: str) -> float | None:
+        """The budget of the next search (its own, or what is left), or None (skipped)."""
+        left = self.deadline - time.perf_counter()
+        if left <= 0.05:
+            self.skipped.append(name)
+            return None
+        return min(own, left)
+
+
+def _run(request: Request, snapshot: StockSnapshot, stats: dict, name: str, clock: _Clock):
+    """(designs, complete) of the exact search of ``request`` within RELAX_BUDGET_S and
+    the answer's shared clock."""
+    budget = clock.budget(RELAX_BUDGET_S, name)
+    if budget is None:
+        return [], False
     s: dict = {"pruned": {}}
-    found, _ = search_designs(request, snapshot, RELAX_TOP, s, budget_s=RELAX_BUDGET_S)
+    found, _ = search_designs(request, snapshot, RELAX_TOP, s, budget_s=budget)
     stats.setdefault("relax_searches", {})[name] = len(found)
     return found, not s.get("stopped_at_budget", False)
 
 
-def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits):
+def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits, clock: _Clock):
     """(designs found, change) for the gain target, or (designs, None)."""
     base = replace(request, min_yield_pct=None)
     tol = request.gain_tol_db
@@ -201,7 +231,7 @@ def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits):
         steps = [empty_within - tol + 3.0] + steps
     for d in steps:
         found, complete = _run(replace(base, gain_tol_db=tol + d), snapshot, stats,
-                               f"gain_tol_db {tol + d:g}")
+                               f"gain_tol_db {tol + d:g}", clock)
         if not found:
             if complete:
                 empty_within = max(empty_within, tol + d)
@@ -224,11 +254,12 @@ def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits):
     return [], None
 
 
-def _relax_limit(request: Request, key: str, snapshot: StockSnapshot, stats: dict):
+def _relax_limit(request: Request, key: str, snapshot: StockSnapshot, stats: dict,
+                 clock: _Clock):
     """(designs found, change) for one limit target relaxed (removed), or (designs, None)."""
     metric, sense = {k: (mm, s) for k, mm, s in TARGETS}[key]
     found, _ = _run(replace(request, **{key: None}, min_yield_pct=None), snapshot, stats,
-                    f"without {key}")
+                    f"without {key}", clock)
     vals = [(float(d.metrics[metric]), d) for d in found
             if d.metrics.get(metric) is not None and math.isfinite(d.metrics[metric])]
     if not vals:
@@ -278,27 +309,29 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
                     f"{best:g} V): lower supply_v to {best:g} V or buy a higher-voltage type"], []
     candidates: list[Design] = []
     changes: list[dict] = []
+    clock = _Clock(EXPLAIN_BUDGET_S)
+    # the nearest misses first (what the answer shows), with a share of the clock
+    if not any(x["target"] == "gain_db" for x in limits):
+        s2: dict = {"pruned": {}}
+        found, _ = search_designs(relaxed(request), snapshot, max(4 * misses, 20), s2,
+                                  budget_s=min(MISS_BUDGET_S, MISS_SHARE * EXPLAIN_BUDGET_S))
+        stats["misses_search"] = {k: v for k, v in s2.items() if k != "pruned"}
+        candidates += found
     # past a physical limit nothing unlocks the request but relaxing the limited
     # targets: the other relaxations would search in vain
     only = {x["target"] for x in limits} or None
     if request.gain is not None and (only is None or "gain_db" in only):
-        found, change = _relax_gain(request, snapshot, stats, list(limits))
+        found, change = _relax_gain(request, snapshot, stats, list(limits), clock)
         candidates += found
         if change:
             changes.append(change)
     for key, _, _ in TARGETS:
         if getattr(request, key) is None or (only is not None and key not in only):
             continue
-        found, change = _relax_limit(request, key, snapshot, stats)
+        found, change = _relax_limit(request, key, snapshot, stats, clock)
         candidates += found
         if change:
             changes.append(change)
-    if not any(x["target"] == "gain_db" for x in limits):
-        s2: dict = {"pruned": {}}
-        found, _ = search_designs(relaxed(request), snapshot, max(4 * misses, 20), s2,
-                                  budget_s=MISS_BUDGET_S)
-        stats["misses_search"] = {k: v for k, v in s2.items() if k != "pruned"}
-        candidates += found
     judged = _judge(request, candidates, snapshot)
     nearest = judged[:misses]
     for r, d in enumerate(nearest, 1):
@@ -306,13 +339,19 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
     unlock = [unlock_text(request, c) for c in changes]
     # one value bought (a topology's gain limit no part can lift)
     if not any(x["target"] == "gain_db" for x in limits):
-        try:
-            unlock += _buy_one(request, snapshot)
-        except Exception as exc:  # a suggestion only; never fail the answer for it
-            stats["buy_one_error"] = str(exc)
+        budget = clock.budget(BUY_BUDGET_S, "one bought value")
+        if budget is not None:
+            try:
+                unlock += _buy_one(request, snapshot, budget)
+            except Exception as exc:  # a suggestion only; never fail the answer for it
+                stats["buy_one_error"] = str(exc)
     if not unlock:
         unlock.append("no single relaxed target or single bought value found within the "
                       "searches' time budgets; see the nearest misses")
+    if clock.skipped:
+        stats["suggestions_skipped"] = list(clock.skipped)
+        unlock.append(f"not examined within the {EXPLAIN_BUDGET_S:g} s given to suggestions: "
+                      + ", ".join(clock.skipped))
     return nearest, unlock, changes
 
 
@@ -334,9 +373,10 @@ def _virtual(snapshot: StockSnapshot) -> StockSnapshot:
     return replace(snapshot, resistors=tuple(res), capacitors=tuple(caps))
 
 
-def _buy_one(request: Request, snapshot: StockSnapshot) -> list[str]:
+def _buy_one(request: Request, snapshot: StockSnapshot, budget_s: float = BUY_BUDGET_S
+             ) -> list[str]:
     s3: dict = {"pruned": {}}
-    found, _ = search_designs(request, _virtual(snapshot), 20, s3, budget_s=BUY_BUDGET_S)
+    found, _ = search_designs(request, _virtual(snapshot), 20, s3, budget_s=budget_s)
     out: list[str] = []
     for d in found:
         bought = {(p.kind, p.value) for rp in d.parts.values() for p in rp.pieces
