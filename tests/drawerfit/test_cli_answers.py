@@ -249,3 +249,17 @@ def test_a_ce_request_without_a_gain_gets_the_default_target(store, tmp_path):
         "hfe_min": 100, "hfe_max": 300}, "parts": {"R1": "47k", "R2": "10k", "RC": "4k7",
                                                    "RE": "1k", "C_IN": "1u", "C_OUT": "1u"}})
     assert circuit.request.gain is None and "gain_db" not in circuit.request.assumed
+
+
+def test_suggestions_share_one_clock_and_name_what_they_left_out(store, tmp_path, monkeypatch):
+    """Every search behind an infeasible answer shares EXPLAIN_BUDGET_S; with a clock
+    too short for them all, the answer still comes, and names the searches left out
+    instead of claiming there is nothing to suggest."""
+    import optimiser.search.suggestions as sg
+
+    monkeypatch.setattr(sg, "EXPLAIN_BUDGET_S", 1e-3)
+    out = as_json(design(store, tmp_path, CE50, "--json"))
+    assert out["feasible"] is False
+    left_out = [u for u in out["unlock"] if u.startswith("not examined within")]
+    assert len(left_out) == 1 and "gain_tol_db" in left_out[0]
+    assert "one bought value" in left_out[0]
