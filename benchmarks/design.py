@@ -55,7 +55,7 @@ sys.path.insert(0, str(ROOT))
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor  # noqa: E402
 from inventory.values import series_values  # noqa: E402
 from optimiser.evaluate import evaluate  # noqa: E402
-from optimiser.request import Request, load_request  # noqa: E402
+from optimiser.request import Request, load_request, parse_request  # noqa: E402
 from optimiser.search import FORMS, cap_roles, search  # noqa: E402
 from optimiser.stage import StageBatch  # noqa: E402
 
@@ -200,7 +200,12 @@ def mixed_drawer(cap_max: float | None = None, seed: int = 7) -> StockSnapshot:
 
 
 def _req(topo, **kw) -> Request:
-    return Request(topology=topo, supply_v=kw.pop("supply_v", 12.0), **kw)
+    """The request as a user's file gives it: read by parse_request, so the documented
+    defaults (a THD ceiling, a least I_C, a ce gain target) apply as they would."""
+    mapping = {"topology": topo, "supply_v": kw.pop("supply_v", 12.0)}
+    mapping.update({k: list(v) if isinstance(v, tuple) else v
+                    for k, v in kw.items() if v is not None})
+    return parse_request(mapping, file="benchmark family")
 
 
 _TYP = dict(load_ohm=10e3, source_ohm=600.0)
