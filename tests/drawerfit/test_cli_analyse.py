@@ -8,6 +8,7 @@ import pytest
 from click.testing import CliRunner
 
 from drawerfit.cli import cli
+from tests.drawerfit.circuits import CE_PARTS, CE_TRANSISTOR
 
 GOOD = """\
 topology = "ce"
@@ -17,23 +18,7 @@ source_ohm = "600"
 gain_db = 20.0
 f_low_max_hz = 50
 temp_c = [0, 50]
-
-[parts]
-R1 = "47k"
-R2 = "10k"
-RC = "4k7"
-RE = "220"
-RE_BYP = "820"
-C_BYP = "47u"
-C_IN = "1u"
-C_OUT = "1u"
-
-[transistor]
-hfe_min = 100
-hfe_max = 300
-ft = "250M"
-cob = "4p"
-"""
+""" + CE_PARTS + CE_TRANSISTOR
 
 
 def _run(tmp_path, text, *args):

@@ -17,6 +17,7 @@ import pytest
 from click.testing import CliRunner
 
 from drawerfit.cli import cli
+from tests.drawerfit.circuits import CE_PARTS
 from tests.drawerfit.test_cli_plan import BUFFER, PREAMP, TWENTY_PREAMPS_E24, TWO, fake_search
 
 DRAWER = """\
@@ -39,17 +40,7 @@ supply_v = 12.0
 load_ohm = "10k"
 source_ohm = "600"
 transistor = "GP-N1"
-
-[parts]
-R1 = "47k"
-R2 = "10k"
-RC = "4k7"
-RE = "220"
-RE_BYP = "820"
-C_BYP = "47u"
-C_IN = "1u"
-C_OUT = "1u"
-"""
+""" + CE_PARTS
 
 
 @pytest.fixture

@@ -6,18 +6,9 @@ import pytest
 from click.testing import CliRunner
 
 from drawerfit.cli import cli
+from tests.drawerfit.circuits import SMALL_DRAWER_CSV
 
-STOCK = """kind,value,qty,location,hfe_min,hfe_max,ft,cob,vceo,ic_max,pd
-resistor,1k0,10,A1,,,,,,,
-resistor,2k2,10,A2,,,,,,,
-resistor,4k7,10,A3,,,,,,,
-resistor,10k,10,A4,,,,,,,
-resistor,22k,10,A5,,,,,,,
-resistor,47k,10,A6,,,,,,,
-capacitor,1u,10,B1,,,,,,,
-capacitor,10u,10,B2,,,,,,,
-npn,GP-N1,5,C1,100,300,250M,4p,40,0.1,0.5
-"""
+STOCK = SMALL_DRAWER_CSV
 
 REQUEST = """topology = "cc"
 supply_v = 12.0

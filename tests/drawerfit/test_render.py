@@ -26,6 +26,7 @@ from drawerfit.render.designs import _table, show_result
 from inventory.values import format_si
 from optimiser.cautions import SEVERITIES, Caution
 from optimiser.request import load_request
+from tests.drawerfit.circuits import CE_PARTS, CE_TRANSISTOR
 
 WIDTHS = (80, 120)
 
@@ -181,23 +182,7 @@ f_low_max_hz = 50
 temp_c = {temp}
 yield_samples = 200
 seed = 3
-
-[parts]
-R1 = "47k"
-R2 = "10k"
-RC = "4k7"
-RE = "220"
-RE_BYP = "820"
-C_BYP = "47u"
-C_IN = "1u"
-C_OUT = "1u"
-
-[transistor]
-hfe_min = 100
-hfe_max = 300
-ft = "250M"
-cob = "4p"
-"""
+""" + CE_PARTS + CE_TRANSISTOR
 
 
 def analysed(tmp_path, temp):

@@ -197,14 +197,20 @@ temp_c = [0, 50]
 """
 
 
-def test_design_sheet_draws_the_chosen_rank(tmp_path):
-    # A small invented drawer so that the search takes a moment only.
+def _small_store(tmp_path):
+    """(runner, db) with the small invented drawer imported and req.toml beside it, so
+    that a search takes a moment only."""
     (tmp_path / "stock.csv").write_text(SMALL_STOCK)
     (tmp_path / "req.toml").write_text(SMALL_REQUEST)
     db = str(tmp_path / "s.db")
     runner = CliRunner()
     assert runner.invoke(cli, ["--db", db, "stock", "import",
                                str(tmp_path / "stock.csv")]).exit_code == 0
+    return runner, db
+
+
+def test_design_sheet_draws_the_chosen_rank(tmp_path):
+    runner, db = _small_store(tmp_path)
     out = tmp_path / "sheet"
     r = runner.invoke(cli, ["--db", db, "design", str(tmp_path / "req.toml"), "--json",
                             "--sheet", str(out), "--rank", "2"])
@@ -281,12 +287,7 @@ def test_spice_to_a_bad_path_is_one_line_and_exit_2(tmp_path, bad, monkeypatch):
 
 def test_design_spice_writes_the_chosen_rank(tmp_path):
     # Reference: ngspice's reading of the deck's part values and its .op I_C.
-    (tmp_path / "stock.csv").write_text(SMALL_STOCK)
-    (tmp_path / "req.toml").write_text(SMALL_REQUEST)
-    db = str(tmp_path / "s.db")
-    runner = CliRunner()
-    assert runner.invoke(cli, ["--db", db, "stock", "import",
-                               str(tmp_path / "stock.csv")]).exit_code == 0
+    runner, db = _small_store(tmp_path)
     for rank in (1, 2):
         cir = tmp_path / f"rank{rank}.cir"
         r = runner.invoke(cli, ["--db", db, "design", str(tmp_path / "req.toml"), "--json",
