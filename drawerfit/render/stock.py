@@ -255,13 +255,13 @@ def print_orders(console: Console, orders: Sequence[dict]) -> None:
     t = Table(title="Awaiting arrival", title_justify="left")
     for col, just in (("order", "right"), ("created (UTC)", "left"), ("kind", "left"),
                       ("value", "right"), ("qty", "right"), ("for build", "right"),
-                      ("taken by it", "right"), ("to the drawer", "right")):
-        t.add_column(col, justify=just)
+                      ("taken by it", "right"), ("arrived", "right")):
+        t.add_column(col, justify=just, no_wrap=col == "arrived")
     for o in orders:
         t.add_row(str(o["id"]), (o["created"] or "").replace("T", " ").rstrip("Z"), o["kind"],
                   order_value(o), str(o["qty"]),
                   "" if o.get("build") is None else str(o["build"]), str(o.get("used", 0)),
-                  arrival(o))
+                  arrival(o).removeprefix("arrived "))
     console.print(t)
 
 
