@@ -907,7 +907,8 @@ class Store:
         stands); an order whose share is complete is closed, one still short
         stays awaited with what arrived counted.  Pieces beyond every such order
         are stock like any other.  Returns the batch id (``stock undo`` reverses
-        it: its pieces are no longer counted and the orders it completed re-open).
+        it: its counts are taken back, and every order it closed, or counted towards
+        and is now short, is awaited again).
         """
         bin = (bin or "").strip()
         rows = tabular.read_stock_csv(path, ignore_columns=("packs", "cost", "label"))
