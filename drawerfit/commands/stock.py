@@ -204,12 +204,25 @@ def history(app, limit: int | None, as_json: bool) -> None:
 @click.argument("batch", type=int)
 @pass_app
 def undo(app, batch: int) -> None:
-    """Reverse a whole batch (an import, adjustment, build or receipt).
+    """Reverse a whole batch (an import, stock-take, adjustment, build, receipt or order
+    cancellation).
 
-    Refused, with nothing changed, where it would take a quantity below zero.
+    Refused, with nothing changed, where it would take a quantity below zero. The
+    orders whose arrivals or state it changes are named.
     """
-    new = app.store().undo(batch)
+    store = app.store()
+    before = {o["id"]: o["arrived"] for o in store.pending_orders()}
+    new = store.undo(batch)
     out.print(f"Batch {batch} undone (batch {new}).")
+    after = store.pending_orders()
+    for o in after:
+        if before.get(o["id"]) != o["arrived"]:
+            again = "" if o["id"] in before else ", awaited again"
+            out.print(f"  order {o['id']} ({o['kind']} {view.order_value(o)}): "
+                      f"{view.arrival(o)}{again}")
+    dropped = sorted(set(before) - {o["id"] for o in after})
+    if dropped:
+        out.print(f"  orders {', '.join(map(str, dropped))} are no longer awaited")
 
 
 @command.command(name="low")

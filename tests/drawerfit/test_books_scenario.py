@@ -217,7 +217,8 @@ def test_bench_bookkeeping_from_first_import_to_last_undo(bench):
 
     # 8. undo the receipt that completed the 4k7 order: its 3 pieces leave, the order
     # is awaited again with the first parcel's 5 counted
-    bench.run("stock", "undo", str(rest))
+    r = bench.run("stock", "undo", str(rest))
+    assert "arrived 5 of 8, awaited again" in _words(r.stdout)
     expected[new_4k7] = 5
     _ledger(bench, expected)
     assert _awaited(bench) == [("4k7", 10, 2, 5, 8)]
