@@ -40,8 +40,17 @@ from sqlalchemy.orm import Session, selectinload, sessionmaker
 from inventory import tabular
 from inventory.errors import DrawerfitError, InputError, StockShortage, StoreError
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
-from inventory.schema import (Base, Batch, Build, BuildItem, BuildLine, Item, Movement, Order,
-                              OrderArrival)
+from inventory.schema import (
+    Base,
+    Batch,
+    Build,
+    BuildItem,
+    BuildLine,
+    Item,
+    Movement,
+    Order,
+    OrderArrival,
+)
 
 __all__ = ["open_store", "Store", "default_store_path", "describe", "head_revision",
            "MIGRATIONS_DIR"]
