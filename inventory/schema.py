@@ -30,7 +30,7 @@ from sqlalchemy import (
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
 __all__ = ["Base", "Item", "Batch", "Movement", "Build", "BuildItem", "BuildLine", "Order",
-           "BATCH_KINDS", "ITEM_KINDS", "utcnow"]
+           "OrderArrival", "BATCH_KINDS", "ITEM_KINDS", "utcnow"]
 
 #: What a batch of movements was.
 BATCH_KINDS = ("import", "take", "adjust", "build", "undo", "receive", "add", "restore",
@@ -87,6 +87,9 @@ class Item(Base):
     ft: Mapped[float | None] = mapped_column(Float)
     cob: Mapped[float | None] = mapped_column(Float)
     created: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+    #: The batch that brought the row into the drawer (NULL where no batch did).  While
+    #: that batch is undone and the row holds no pieces, the row is not shown.
+    batch_id: Mapped[int | None] = mapped_column(ForeignKey("batches.id"))
 
 
 class Batch(Base):
@@ -190,8 +193,9 @@ class Order(Base):
     power: Mapped[float | None] = mapped_column(Float)
     voltage: Mapped[float | None] = mapped_column(Float)
     dielectric: Mapped[str | None] = mapped_column(String(40))
+    #: Closed: every piece it sends to the drawer has arrived (see OrderArrival).
     received: Mapped[bool] = mapped_column(Boolean, default=False)
-    #: The receive batch that booked it, if received.
+    #: The receive batch that closed it, if received.
     received_batch_id: Mapped[int | None] = mapped_column(ForeignKey("batches.id"))
     #: The batch of the commit that ordered it.
     batch_id: Mapped[int | None] = mapped_column(ForeignKey("batches.id"))
@@ -201,3 +205,22 @@ class Order(Base):
     #: The batch that dropped it (``stock orders cancel`` or the undo of its build).
     cancelled_batch_id: Mapped[int | None] = mapped_column(
         ForeignKey("batches.id", name="fk_orders_cancelled_batch"))
+
+
+class OrderArrival(Base):
+    """Pieces of an order's share for the drawer booked by one receipt.
+
+    What has arrived of an order is the sum over the receipts that stand (whose
+    batch is not undone), so undoing a receipt takes back exactly its pieces.
+    """
+
+    __tablename__ = "order_arrivals"
+    __table_args__ = (CheckConstraint("qty > 0", name="ck_order_arrivals_qty_positive"),
+                      Index("ix_order_arrivals_order", "order_id"),
+                      Index("ix_order_arrivals_batch", "batch_id"))
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    order_id: Mapped[int] = mapped_column(ForeignKey("orders.id"))
+    #: The receive batch.
+    batch_id: Mapped[int] = mapped_column(ForeignKey("batches.id"))
+    qty: Mapped[int] = mapped_column(Integer)

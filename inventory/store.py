@@ -40,7 +40,17 @@ from sqlalchemy.orm import Session, selectinload, sessionmaker
 from inventory import tabular
 from inventory.errors import DrawerfitError, InputError, StockShortage, StoreError
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
-from inventory.schema import Base, Batch, Build, BuildItem, BuildLine, Item, Movement, Order
+from inventory.schema import (
+    Base,
+    Batch,
+    Build,
+    BuildItem,
+    BuildLine,
+    Item,
+    Movement,
+    Order,
+    OrderArrival,
+)
 
 __all__ = ["open_store", "Store", "default_store_path", "describe", "head_revision",
            "MIGRATIONS_DIR"]
@@ -52,8 +62,8 @@ MIGRATIONS_DIR = Path(__file__).resolve().parent.parent / "migrations"
 _SQLITE_MAGIC = b"SQLite format 3\x00"
 #: Key of the PostgreSQL advisory lock that serialises writers.
 _PG_LOCK_KEY = 0x64726177  # "draw"
-_TABLE_ORDER = ("items", "batches", "movements", "builds", "build_items", "build_lines",
-                "orders")
+_TABLE_ORDER = ("batches", "items", "movements", "builds", "build_items", "build_lines",
+                "orders", "order_arrivals")
 
 
 # ------------------------------------------------------------------ opening
@@ -354,11 +364,13 @@ class Store:
     # -- reading -----------------------------------------------------------
 
     def snapshot(self) -> StockSnapshot:
-        """Everything in the store as plain values (rows with qty 0 included)."""
+        """Everything in the store as plain values (rows with qty 0 included, except a
+        row whose only batch was undone: it never was in the drawer)."""
         with self._session(write=False) as s:
             items = s.scalars(select(Item).order_by(Item.kind, Item.value, Item.label,
                                                     Item.id)).all()
-            parts = [_to_part(i) for i in items]
+            gone = self._undone_batches(s)
+            parts = [_to_part(i) for i in items if not self._withdrawn(i, gone)]
         return StockSnapshot(
             resistors=tuple(p for p in parts if isinstance(p, Resistor)),
             capacitors=tuple(p for p in parts if isinstance(p, Capacitor)),
@@ -422,6 +434,15 @@ class Store:
 
     # -- booking -----------------------------------------------------------
 
+    @staticmethod
+    def _undone_batches(s: Session) -> set[int]:
+        return set(s.scalars(select(Batch.id).where(Batch.undone_by.is_not(None))).all())
+
+    @staticmethod
+    def _withdrawn(item: Item, undone: set[int]) -> bool:
+        """A row brought in by a batch since undone, holding no pieces: as if never made."""
+        return item.qty == 0 and item.batch_id is not None and item.batch_id in undone
+
     def _locked_items(self, s: Session, ids) -> dict[int, Item]:
         rows = s.scalars(select(Item).where(Item.id.in_(list(ids))).with_for_update()).all()
         return {r.id: r for r in rows}
@@ -441,6 +462,7 @@ class Store:
         """Add the rows to stock: existing items gain pieces, new ones are created."""
         items = s.scalars(select(Item).with_for_update()).all()
         by_key = {tabular.part_key(_to_part(i)): i for i in items}
+        undone = self._undone_batches(s)
         problems: list[InputError] = []
         plan: list[tuple[tabular.StockRow, Item]] = []
         new: list[Item] = []
@@ -462,8 +484,11 @@ class Store:
                     continue
             if item is None:
                 item = _new_item(part)
+                item.batch_id = batch.id
                 new.append(item)
                 by_key[key] = item
+            elif self._withdrawn(item, undone):
+                item.batch_id = batch.id       # this batch brings the row back in
             plan.append((row, item))
         if problems:
             raise problems[0] if len(problems) == 1 else _errors(problems)
@@ -603,9 +628,21 @@ class Store:
         batch.undone_by = undo.id
         for b in s.scalars(select(Build).where(Build.batch_id == batch.id)).all():
             b.undone = True
-        for o in s.scalars(select(Order).where(Order.received_batch_id == batch.id)).all():
-            o.received = False
-            o.received_batch_id = None
+        # a receipt's pieces no longer count: the orders it closed, and those it made
+        # complete, are awaited again (with what the other receipts booked)
+        credited = set(s.scalars(select(OrderArrival.order_id).where(
+            OrderArrival.batch_id == batch.id)).all())
+        touched = s.scalars(select(Order).where(
+            (Order.received_batch_id == batch.id) | Order.id.in_(credited))).all()
+        if touched:
+            s.flush()
+            standing = self._standing(s)
+            arrived = self._arrived(s, [o.id for o in touched])
+            for o in touched:
+                if o.received and (o.received_batch_id == batch.id
+                                   or arrived[o.id] < self._share(o, standing)):
+                    o.received = False
+                    o.received_batch_id = None
         for o in s.scalars(select(Order).where(Order.cancelled_batch_id == batch.id)).all():
             o.cancelled_batch_id = None
         if batch.kind == "build":
@@ -778,16 +815,42 @@ class Store:
     # -- orders ------------------------------------------------------------
 
     @staticmethod
-    def _order_dict(s: Session, o: Order) -> dict:
+    def _standing(s: Session) -> set[int]:
+        """The batches of the builds that stand (not undone)."""
+        return set(s.scalars(select(Build.batch_id).where(Build.undone.is_(False))).all())
+
+    @staticmethod
+    def _share(o: Order, standing: set[int]) -> int:
+        """Pieces an order sends to the drawer: its ``qty``, less the ``used`` pieces its
+        build takes on arrival while that build stands."""
+        return o.qty - (o.used if o.batch_id in standing else 0)
+
+    @staticmethod
+    def _arrived(s: Session, order_ids) -> dict[int, int]:
+        """Pieces booked against each order by the receipts that stand."""
+        ids = list(order_ids)
+        if not ids:
+            return {}
+        rows = s.execute(select(OrderArrival.order_id, func.sum(OrderArrival.qty))
+                         .join(Batch, Batch.id == OrderArrival.batch_id)
+                         .where(OrderArrival.order_id.in_(ids), Batch.undone_by.is_(None))
+                         .group_by(OrderArrival.order_id)).all()
+        got = {int(i): int(q) for i, q in rows}
+        return {i: got.get(i, 0) for i in ids}
+
+    def _order_dict(self, s: Session, o: Order, *, standing: set[int] | None = None) -> dict:
         build = None
         if o.batch_id is not None:
             build = s.scalar(select(Build.id).where(Build.batch_id == o.batch_id))
         state = ("cancelled" if o.cancelled_batch_id is not None
                  else "received" if o.received else "awaited")
+        if standing is None:
+            standing = self._standing(s)
         return {"id": o.id, "created": _iso(o.created), "kind": o.kind, "value": o.value,
                 "label": o.label, "qty": o.qty, "used": o.used, "tolerance": o.tolerance,
                 "power": o.power, "voltage": o.voltage, "dielectric": o.dielectric,
-                "build": build, "state": state}
+                "build": build, "state": state, "due": self._share(o, standing),
+                "arrived": self._arrived(s, [o.id])[o.id]}
 
     @staticmethod
     def _pending(s: Session, *, lock: bool = False) -> list[Order]:
@@ -798,9 +861,27 @@ class Store:
     def pending_orders(self) -> list[dict]:
         """Ordered parts awaited (neither received nor cancelled), oldest first:
         ``{"id", "created", "kind", "value", "label", "qty", "used", "tolerance", "power",
-        "voltage", "dielectric", "build", "state"}``."""
+        "voltage", "dielectric", "build", "state", "due", "arrived"}``; ``due`` is what
+        the order sends to the drawer (``qty``, less ``used`` while its build stands),
+        ``arrived`` how much of that the receipts that stand have booked."""
         with self._session(write=False) as s:
-            return [self._order_dict(s, o) for o in self._pending(s)]
+            standing = self._standing(s)
+            return [self._order_dict(s, o, standing=standing) for o in self._pending(s)]
+
+    def receipt_orders(self, batch_id: int) -> list[dict]:
+        """The orders a receipt booked pieces against or closed, as in
+        :meth:`pending_orders`, each with ``"pieces"``: what this receipt booked
+        against it."""
+        with self._session(write=False) as s:
+            credited = dict(s.execute(select(OrderArrival.order_id, OrderArrival.qty).where(
+                OrderArrival.batch_id == int(batch_id))).all())
+            ids = set(credited) | set(s.scalars(select(Order.id).where(
+                Order.received_batch_id == int(batch_id))).all())
+            standing = self._standing(s)
+            return [{**self._order_dict(s, o, standing=standing),
+                     "pieces": int(credited.get(o.id, 0))}
+                    for o in s.scalars(select(Order).where(Order.id.in_(ids))
+                                       .order_by(Order.id)).all()]
 
     def cancel_order(self, order_id: int, reason: str = "") -> int:
         """Drop an awaited order: nothing is awaited from it any more.  Returns the
@@ -823,16 +904,20 @@ class Store:
             return batch.id
 
     def receive(self, path: str | Path, *, bin: str | None = None) -> int:
-        """Book an arrived order file into stock; close the awaited orders it covers.
+        """Book an arrived order file into stock; count it against the awaited orders.
 
         The file has the stock-file format; extra columns ``packs`` and ``cost``
         are ignored.  Every row needs a bin: its ``location`` cell, or ``bin`` for
         rows whose cell is empty; a row with neither is refused (nothing is
         booked).  Every piece that arrived is booked, more than was ordered
-        included.  An awaited order of the same kind and value (oldest first) is
-        closed when the file's pieces not yet counted against another order
-        cover its pieces for the drawer (``qty - used`` while its build stands).
-        Returns the batch id (``stock undo`` reverses it and re-opens the orders).
+        included.  Each row's pieces go to the awaited orders of the same kind
+        and value (a transistor: label), oldest first, each taking what it still
+        lacks of its share for the drawer (``qty - used`` while its build
+        stands); an order whose share is complete is closed, one still short
+        stays awaited with what arrived counted.  Pieces beyond every such order
+        are stock like any other.  Returns the batch id (``stock undo`` reverses
+        it: its counts are taken back, and every order it closed, or counted towards
+        and is now short, is awaited again).
         """
         bin = (bin or "").strip()
         rows = tabular.read_stock_csv(path, ignore_columns=("packs", "cost", "label"))
@@ -856,8 +941,8 @@ class Store:
             s.flush()
             self._book(s, placed, batch, str(path), f"receive {Path(path).name}")
             pending = self._pending(s, lock=True)
-            standing = {b.batch_id for b in s.scalars(select(Build).where(
-                Build.undone.is_(False))).all()}
+            standing = self._standing(s)
+            arrived = self._arrived(s, [o.id for o in pending])
             for row in tabular.merge_rows(placed):
                 p = row.part
                 left = p.qty
@@ -869,9 +954,14 @@ class Store:
                     else:
                         match = o.value is not None and math.isclose(o.value, p.value,
                                                                      rel_tol=1e-9)
-                    drawer = o.qty - (o.used if o.batch_id in standing else 0)
-                    if match and left >= drawer:
-                        left -= drawer
+                    if not match:
+                        continue
+                    take = min(left, max(self._share(o, standing) - arrived[o.id], 0))
+                    if take:
+                        s.add(OrderArrival(order_id=o.id, batch_id=batch.id, qty=take))
+                        arrived[o.id] += take
+                        left -= take
+                    if arrived[o.id] >= self._share(o, standing):
                         o.received = True
                         o.received_batch_id = batch.id
             return batch.id
@@ -888,8 +978,9 @@ class Store:
         """Problems found in the store (an empty list when it is sound).
 
         Checks the schema revision, that no quantity is negative, that every
-        item's quantity equals the sum of its movements, and that builds and
-        batches agree.
+        item's quantity equals the sum of its movements, that builds and
+        batches agree, and that what has arrived of each order lies between
+        nothing and its quantity (an awaited order still lacking some).
         """
         problems = []
         head = head_revision()
@@ -932,6 +1023,25 @@ class Store:
                         by_lines[int(k)] += int(v)
                 if dict(by_lines) != listed:
                     problems.append(f"build {b.id}: its lines' pieces differ from its total")
+            standing = self._standing(s)
+            orders = s.scalars(select(Order).order_by(Order.id)).all()
+            arrived = self._arrived(s, [o.id for o in orders])
+            for o in orders:
+                share = self._share(o, standing)
+                if not 0 <= arrived[o.id] <= o.qty:
+                    problems.append(f"order {o.id}: {arrived[o.id]} pieces arrived of "
+                                    f"{o.qty} ordered")
+                awaited = not o.received and o.cancelled_batch_id is None
+                if awaited and share > 0 and arrived[o.id] >= share:
+                    problems.append(f"order {o.id}: awaited, but all {share} pieces of its "
+                                    "share have arrived")
+                if o.received and o.received_batch_id is None:
+                    problems.append(f"order {o.id}: received, but by no batch")
+            for a in s.scalars(select(OrderArrival).order_by(OrderArrival.id)).all():
+                batch = s.get(Batch, a.batch_id)
+                if batch is None or batch.kind != "receive":
+                    problems.append(f"order {a.order_id}: pieces counted from batch "
+                                    f"{a.batch_id}, which is not a receipt")
         return problems
 
     def dump(self) -> dict[str, list[dict]]:
@@ -975,7 +1085,8 @@ class Store:
                     else:
                         s.execute(table.insert(), rows)
             if self.dialect == "postgresql":
-                for name in ("items", "batches", "movements", "builds", "build_lines", "orders"):
+                for name in ("items", "batches", "movements", "builds", "build_lines", "orders",
+                             "order_arrivals"):
                     s.execute(text(f"SELECT setval(pg_get_serial_sequence('{name}', 'id'), "
                                    f"COALESCE((SELECT MAX(id) FROM {name}), 0) + 1, false)"))
 

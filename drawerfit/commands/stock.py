@@ -204,12 +204,25 @@ def history(app, limit: int | None, as_json: bool) -> None:
 @click.argument("batch", type=int)
 @pass_app
 def undo(app, batch: int) -> None:
-    """Reverse a whole batch (an import, adjustment, build or receipt).
+    """Reverse a whole batch (an import, stock-take, adjustment, build, receipt or order
+    cancellation).
 
-    Refused, with nothing changed, where it would take a quantity below zero.
+    Refused, with nothing changed, where it would take a quantity below zero. The
+    orders whose arrivals or state it changes are named.
     """
-    new = app.store().undo(batch)
+    store = app.store()
+    before = {o["id"]: o["arrived"] for o in store.pending_orders()}
+    new = store.undo(batch)
     out.print(f"Batch {batch} undone (batch {new}).")
+    after = store.pending_orders()
+    for o in after:
+        if before.get(o["id"]) != o["arrived"]:
+            again = "" if o["id"] in before else ", awaited again"
+            out.print(f"  order {o['id']} ({o['kind']} {view.order_value(o)}): "
+                      f"{view.arrival(o)}{again}")
+    dropped = sorted(set(before) - {o["id"] for o in after})
+    if dropped:
+        out.print(f"  orders {', '.join(map(str, dropped))} are no longer awaited")
 
 
 @command.command(name="low")
@@ -251,8 +264,9 @@ def receive(app, file: str, bin_: str | None) -> None:
     """Book an arrived order (stock-file format; packs and cost columns are ignored).
 
     Every row needs a bin: its location cell, or --bin LOC. Everything that arrived
-    is booked, more than was ordered included; the awaited orders it covers are
-    closed. `stock undo BATCH` reverses it and re-opens them.
+    is booked, more than was ordered included; it counts against the awaited orders
+    of its value, oldest first, closing each whose share is complete (a part of an
+    order leaves it awaited with what arrived counted). `stock undo BATCH` reverses it.
     """
     store = app.store()
     if bin_ is not None and not bin_.strip():
@@ -260,14 +274,20 @@ def receive(app, file: str, bin_: str | None) -> None:
     batch = store.receive(file, bin=bin_)
     moves = store.batch(batch)["movements"]
     out.print(f"Received {file}: {len(moves)} items, {sum(m['change'] for m in moves)} pieces "
-              f"(batch {batch}). {len(store.pending_orders())} orders still awaited.")
+              f"(batch {batch}).")
+    for o in store.receipt_orders(batch):
+        done = "closed" if o["state"] == "received" else "still awaited"
+        out.print(f"  order {o['id']} ({o['kind']} {view.order_value(o)}): {o['pieces']} "
+                  f"pieces counted, {view.arrival(o)}, {done}")
+    out.print(f"{len(store.pending_orders())} orders still awaited.")
 
 
 @command.group(name="orders", invoke_without_command=True)
 @click.option("--json", "as_json", is_flag=True, help="Print JSON.")
 @click.pass_context
 def orders(ctx, as_json: bool) -> None:
-    """Parts ordered with a committed plan and still awaited (`orders cancel ID` drops one)."""
+    """Parts ordered with a committed plan and still awaited, with what has arrived of
+    each (`orders cancel ID` drops one)."""
     if ctx.invoked_subcommand is not None:
         return
     pending = ctx.obj.store().pending_orders()

@@ -255,14 +255,23 @@ def print_orders(console: Console, orders: Sequence[dict]) -> None:
     t = Table(title="Awaiting arrival", title_justify="left")
     for col, just in (("order", "right"), ("created (UTC)", "left"), ("kind", "left"),
                       ("value", "right"), ("qty", "right"), ("for build", "right"),
-                      ("taken by it", "right")):
-        t.add_column(col, justify=just)
+                      ("taken by it", "right"), ("arrived", "right")):
+        t.add_column(col, justify=just, no_wrap=col == "arrived")
     for o in orders:
-        if o["value"] is not None and o["kind"] in ("resistor", "capacitor"):
-            val = format_value(o["value"], o["kind"])
-        else:
-            val = o.get("label") or "—"
         t.add_row(str(o["id"]), (o["created"] or "").replace("T", " ").rstrip("Z"), o["kind"],
-                  val, str(o["qty"]), "" if o.get("build") is None else str(o["build"]),
-                  str(o.get("used", 0)))
+                  order_value(o), str(o["qty"]),
+                  "" if o.get("build") is None else str(o["build"]), str(o.get("used", 0)),
+                  arrival(o).removeprefix("arrived "))
     console.print(t)
+
+
+def order_value(o: dict) -> str:
+    """An order's value as a technician writes it, or its transistor label."""
+    if o["value"] is not None and o["kind"] in ("resistor", "capacitor"):
+        return format_value(o["value"], o["kind"])
+    return o.get("label") or "—"
+
+
+def arrival(o: dict) -> str:
+    """What has arrived of an order's share for the drawer: ``arrived 5 of 8``."""
+    return f"arrived {o.get('arrived', 0)} of {o.get('due', o['qty'])}"

@@ -179,3 +179,110 @@ def test_a_store_at_revision_0001_upgrades_its_builds_to_lines(store_url):
         assert store.check() == []
     finally:
         store.close()
+
+
+def _at_revision(store_url, rev, statements=()):
+    """Bring a new store on ``store_url`` to revision ``rev`` only and run ``statements``
+    (plain SQL) in the same transaction."""
+    from alembic import command
+    from sqlalchemy import text
+
+    from inventory.store import _alembic_config, _resolve
+
+    url, _ = _resolve(store_url)
+    engine = create_engine(url)
+    try:
+        with engine.begin() as conn:
+            cfg = _alembic_config()
+            cfg.attributes["connection"] = conn
+            command.upgrade(cfg, rev)
+            for sql in statements:
+                conn.execute(text(sql))
+            if engine.dialect.name == "postgresql":
+                for name in ("items", "batches", "movements", "builds", "orders"):
+                    conn.execute(text(f"SELECT setval(pg_get_serial_sequence('{name}', 'id'), "
+                                      f"COALESCE((SELECT MAX(id) FROM {name}), 0) + 1, false)"))
+    finally:
+        engine.dispose()
+
+
+T = "'2026-12-02 09:00:00'"
+#: A store at 0002: 10 pieces of 4k7 imported (batch 1), a build of 2 (batch 2) that
+#: ordered 10 of 10k (used 3) and 5 of 1u (used 0), and the 10k order received whole,
+#: 7 pieces (batch 3).
+STORE_0002 = [
+    "INSERT INTO items (id, kind, value, qty, min_qty, location, tolerance, power, created) "
+    f"VALUES (1, 'resistor', 4700.0, 8, 0, 'A1', 0.05, 0.25, {T}), "
+    f"(2, 'resistor', 10000.0, 7, 0, 'A2', 0.01, 0.25, {T})",
+    f'INSERT INTO batches (id, "when", kind, note) VALUES (1, {T}, \'import\', \'i\'), '
+    f"(2, {T}, 'build', 'build 1'), (3, {T}, 'receive', 'receive order.csv')",
+    f'INSERT INTO movements (id, batch_id, item_id, change, reason, "when") VALUES '
+    f"(1, 1, 1, 10, 'i', {T}), (2, 2, 1, -2, 'build 1', {T}), (3, 3, 2, 7, 'r', {T})",
+    "INSERT INTO builds (id, request, copies, created, design, undone, batch_id) VALUES "
+    f"(1, 'a.toml', 1, {T}, '{{}}', false, 2)",
+    "INSERT INTO build_items (build_id, item_id, qty) VALUES (1, 1, 2)",
+    "INSERT INTO build_lines (id, build_id, position, request, copies, design, pieces) "
+    "VALUES (1, 1, 1, 'a.toml', 1, '{}', '{\"1\": 2}')",
+    "INSERT INTO orders (id, created, kind, value, qty, received, received_batch_id, "
+    f"batch_id, used) VALUES (1, {T}, 'resistor', 10000.0, 10, true, 3, 2, 3), "
+    f"(2, {T}, 'capacitor', 1e-6, 5, false, NULL, 2, 0)",
+]
+
+
+def test_revision_0003_counts_what_older_stores_received(store_url):
+    """On each database: a store at 0002 with a received order and an awaited one is
+    upgraded; the received order counts its whole share (10 ordered, 3 used by its
+    standing build: 7) as arrived from the receipt that closed it, the awaited one
+    nothing; each row names the batch of its first movement; undoing the receipt
+    re-opens the order with nothing arrived."""
+    _at_revision(store_url, "0002", STORE_0002)
+    store = open_store(store_url)
+    try:
+        assert store.revision() == head_revision()
+        assert store.check() == []
+        [received] = store.receipt_orders(3)
+        assert (received["id"], received["state"], received["arrived"], received["due"],
+                received["pieces"]) == (1, "received", 7, 7, 7)
+        [awaited] = store.pending_orders()
+        assert (awaited["id"], awaited["arrived"], awaited["due"]) == (2, 0, 5)
+        store.undo(3)
+        assert [(o["id"], o["arrived"], o["due"]) for o in store.pending_orders()] == [
+            (1, 0, 7), (2, 0, 5)]
+        # the 10k row came with the receipt: undone and empty, it is no longer listed
+        assert [p.id for p in store.parts()] == [1]
+        assert store.check() == []
+    finally:
+        store.close()
+
+
+def test_revision_0003_downgrades_and_upgrades_again(store_url):
+    """On each database: a store at head with a partial arrival goes down to 0002 (the
+    table and column of 0003 gone, the rest kept) and back up again."""
+    from alembic import command
+    from sqlalchemy import inspect as sa_inspect
+
+    from inventory.store import _alembic_config, _resolve
+
+    _at_revision(store_url, "0002", STORE_0002)
+    store = open_store(store_url)
+    store.close()
+    url, _ = _resolve(store_url)
+    engine = create_engine(url)
+    try:
+        with engine.begin() as conn:
+            cfg = _alembic_config()
+            cfg.attributes["connection"] = conn
+            command.downgrade(cfg, "0002")
+        insp = sa_inspect(engine)
+        assert "order_arrivals" not in insp.get_table_names()
+        assert "batch_id" not in {c["name"] for c in insp.get_columns("items")}
+        assert "used" in {c["name"] for c in insp.get_columns("orders")}
+    finally:
+        engine.dispose()
+    store = open_store(store_url)
+    try:
+        assert store.revision() == head_revision()
+        assert store.check() == []
+        assert {p.id: p.qty for p in store.parts()} == {1: 8, 2: 7}
+    finally:
+        store.close()

@@ -229,6 +229,86 @@ def test_receive_books_pieces_and_marks_orders(store, stock_csv, tmp_path):
     assert store.check() == []
 
 
+def _parcel(tmp_path, name, rows):
+    p = tmp_path / name
+    p.write_text("kind,value,qty,tolerance,location,hfe_min,hfe_max,ft,cob\n" + rows)
+    return p
+
+
+def _awaited(store):
+    return [(o["id"], o["arrived"], o["due"]) for o in store.pending_orders()]
+
+
+def test_parcels_count_against_orders_oldest_first(store, stock_csv, tmp_path):
+    """Two orders of 2k2 (shares 8 and 10: the first build keeps 2 of its ten) and one
+    of a transistor type.  A parcel of 12 closes the older order and counts 4 against
+    the newer; one of 20 completes the newer and books the surplus; transistors are
+    matched by label.  Counted by hand."""
+    store.import_csv(stock_csv)
+    store.commit_builds([_build({}, orders=[{"kind": "resistor", "value": 2200.0,
+                                             "qty": 10, "used": 2}])])
+    store.commit_builds([_build({}, orders=[
+        {"kind": "resistor", "value": 2200.0, "qty": 10},
+        {"kind": "npn", "label": "GP-N1", "qty": 5}])])
+    (a, _, _), (b, _, _), (q, _, _) = _awaited(store)
+    assert _awaited(store) == [(a, 0, 8), (b, 0, 10), (q, 0, 5)]
+    first = store.receive(_parcel(tmp_path, "p1.csv", "resistor,2k2,12,1%,A9,,,,\n"))
+    assert _awaited(store) == [(b, 4, 10), (q, 0, 5)]
+    assert [(o["id"], o["pieces"], o["state"]) for o in store.receipt_orders(first)] == [
+        (a, 8, "received"), (b, 4, "awaited")]
+    second = store.receive(_parcel(tmp_path, "p2.csv", "resistor,2k2,20,1%,A9,,,,\n"
+                                   "npn,GP-N1,2,,C1,110,220,250M,4p\n"))
+    assert _awaited(store) == [(q, 2, 5)]
+    assert [(o["id"], o["pieces"]) for o in store.receipt_orders(second)] == [(b, 6), (q, 2)]
+    assert sum(p.qty for p in store.snapshot().resistors if p.value == 2200.0) == 32
+    assert store.check() == []
+    # undoing the first parcel takes back exactly its counts: the older order is awaited
+    # again with nothing, the newer keeps the second parcel's 6 of 10
+    store.undo(first)
+    assert _awaited(store) == [(a, 0, 8), (b, 6, 10), (q, 2, 5)]
+    assert sum(p.qty for p in store.snapshot().resistors if p.value == 2200.0) == 20
+    store.undo(second)
+    assert _awaited(store) == [(a, 0, 8), (b, 0, 10), (q, 0, 5)]
+    assert not any(p.value == 2200.0 for p in store.snapshot().resistors)
+    assert store.check() == []
+
+
+def test_cancelling_a_partly_arrived_order_keeps_what_arrived(store, stock_csv, tmp_path):
+    store.import_csv(stock_csv)
+    store.commit_builds([_build({}, orders=[{"kind": "resistor", "value": 2200.0,
+                                             "qty": 10}])])
+    [(o, _, _)] = _awaited(store)
+    store.receive(_parcel(tmp_path, "p.csv", "resistor,2k2,3,1%,A9,,,,\n"))
+    cancel = store.cancel_order(o)
+    assert _awaited(store) == []
+    # a later parcel of that value is stock, counted against no order
+    later = store.receive(_parcel(tmp_path, "q.csv", "resistor,2k2,7,1%,A9,,,,\n"))
+    assert store.receipt_orders(later) == []
+    store.undo(cancel)
+    assert _awaited(store) == [(o, 3, 10)]
+    assert store.check() == []
+
+
+def test_check_finds_an_awaited_order_whose_share_has_arrived(store, stock_csv, tmp_path):
+    """The store's check is a check that can fail: an order marked awaited again by hand
+    after all of it arrived is named."""
+    from sqlalchemy import update
+
+    from inventory.schema import Order
+
+    store.import_csv(stock_csv)
+    store.commit_builds([_build({}, orders=[{"kind": "resistor", "value": 2200.0,
+                                             "qty": 4}])])
+    [(o, _, _)] = _awaited(store)
+    store.receive(_parcel(tmp_path, "p.csv", "resistor,2k2,4,1%,A9,,,,\n"))
+    assert store.check() == []
+    with store.engine.begin() as conn:
+        conn.execute(update(Order).where(Order.id == o).values(received=False,
+                                                               received_batch_id=None))
+    assert store.check() == [f"order {o}: awaited, but all 4 pieces of its share have "
+                             "arrived"]
+
+
 def test_export_then_import_into_an_empty_store_reproduces_it(store, stock_csv, tmp_path):
     from inventory.store import open_store
 

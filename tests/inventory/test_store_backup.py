@@ -26,6 +26,9 @@ def _fill(store, tmp_path):
     b2 = store.commit_builds([{"request": "c.toml", "copies": 1, "design": {},
                                "pieces": {t: 1}}])
     store.undo_build(b2)
+    parcel = tmp_path / "parcel.csv"                 # part of the 2k2 order arrives
+    parcel.write_text("kind,value,qty,location\nresistor,2k2,4,A9\n")
+    store.receive(parcel)
     return batch
 
 
@@ -40,6 +43,8 @@ def test_backup_then_restore_into_an_empty_store_reproduces_everything(store, tm
     try:
         target.restore(backup)
         assert target.dump() == store.dump()
+        assert target.dump()["order_arrivals"] != []
+        assert [(o["arrived"], o["due"]) for o in target.pending_orders()] == [(4, 10)]
         assert target.check() == []
         # the restored store goes on: new ids follow the old ones
         new_batch = target.adjust(1, -1, "after restore")
