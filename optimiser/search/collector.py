@@ -120,7 +120,7 @@ class CollectorLevel:
             nb = np.minimum(np.searchsorted(self.rc_vals, rc_b * (1 - 1e-9), side="left"), nrc)
             self.count("f_low_bypass", np.maximum(nb - n0, 0).sum())
             n0 = np.maximum(n0, nb)
-        if topo == "cb" and self.loop_need > 0:     # B20: C_IN against RE‖Z_e
+        if self.emitter_input and self.loop_need > 0:     # B20: C_IN against RE‖Z_e
             gone = self._f_low_cb_input(REv + BYv, ic_lo, ic_hi, rc_max)
             self.count("f_low_input", (nrc - n0)[gone].sum())
             n0 = np.where(gone, nrc, n0)

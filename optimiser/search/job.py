@@ -25,6 +25,7 @@ from optimiser.search.limits import gain_window
 from optimiser.search.pairs import PairLevel
 from optimiser.search.stock import stock_units
 from optimiser.stages import module
+from optimiser.stages.base import base_held
 
 
 class _Job(PairLevel, FLowFloors, EmitterSpans, CollectorLevel):
@@ -43,6 +44,8 @@ class _Job(PairLevel, FLowFloors, EmitterSpans, CollectorLevel):
         # what the topology gives the search, looked up once per job (optimiser/stages/base.py)
         self.mod = module(self.topo)
         self.rules = self.mod.SEARCH
+        # driven at the emitter with the base held at AC ground (cb): C_IN sees RE‖Z_e
+        self.emitter_input = self.mod.INPUT == "emitter" and base_held(self.mod)
         self.V = V = float(request.supply_v)
         self.model = model = device_from_transistor(t)
         rv = self.rv = opts.resistor.values
