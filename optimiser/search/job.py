@@ -44,6 +44,8 @@ class _Job(PairLevel, FLowFloors, EmitterSpans, CollectorLevel):
         # what the topology gives the search, looked up once per job (optimiser/stages/base.py)
         self.mod = module(self.topo)
         self.rules = self.mod.SEARCH
+        # which gain, distortion and floor lemmas bound this topology (docs/search.md)
+        self.law = self.rules.gain_law
         # driven at the emitter with the base held at AC ground (cb): C_IN sees RE‖Z_e
         self.emitter_input = self.mod.INPUT == "emitter" and base_held(self.mod)
         self.V = V = float(request.supply_v)
@@ -76,6 +78,7 @@ class _Job(PairLevel, FLowFloors, EmitterSpans, CollectorLevel):
         self.rel = DRIFT_REL_SLACK * (V + 1.0) / model.vaf if math.isfinite(model.vaf) else 0.0
         # an optional RC (a follower's) may also be absent: 0 before every value
         rc_required = "RC" in self.mod.REQUIRED
+        self.rc_optional = not rc_required
         self.rc_vals = rv if rc_required else np.concatenate([[0.0], rv])
         self.rc_best = rbest if rc_required else np.concatenate([[np.inf], rbest])
         self.t_empty = float(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
