@@ -15,8 +15,8 @@ from scipy.special import wrightomega
 
 from . import score as weights
 from . import stages
-from .stages.base import base_held
 from .device import DeviceModel, scaled, thermal_voltage
+from .stages.base import base_held
 
 __all__ = ["wright_omega", "bias_current", "early_bounds", "early_factor_max", "midband_estimate", "junction_floor",
            "emitter_hd2_floor", "gain_headroom_floor", "common_base_hd2_floor",

@@ -10,6 +10,7 @@ import pytest
 from scipy import signal
 
 from inventory.parts import Transistor
+from optimiser import stages
 from optimiser.ac import EDGE_DB
 from optimiser.device import thermal_voltage
 from optimiser.evaluate import evaluate
@@ -23,7 +24,6 @@ from optimiser.f_low_bounds import (
     loop_resistance_needed,
 )
 from optimiser.request import Request
-from optimiser import stages
 from optimiser.stage import StageBatch
 
 T = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=60.0)
