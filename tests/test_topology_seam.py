@@ -180,6 +180,25 @@ def test_search_rules_agree_with_the_textbook_stages(mod):
     assert (law == "degenerated") == (mod.INPUT == "base" and mod.OUTPUT == "collector")
 
 
+def test_search_roles_of_each_form_make_a_stage_of_that_form(mod):
+    # the search's emitter options and roles (optimiser/search/skeletons.py) build,
+    # for every form, stages the topology accepts and reads back as that form
+    from optimiser.search.skeletons import _emitter_options, cap_roles, resistor_roles
+
+    rv = np.array([100.0, 1e3, 10e3])
+    for form in mod.FORMS:
+        re_a, byp_a = _emitter_options(mod.NAME, form, rv)
+        em = mod.SEARCH.emitter[form]
+        assert re_a.size == rv.size ** len(em)
+        for re_, byp in zip(re_a, byp_a, strict=True):
+            for rc in ((0.0, 4.7e3) if "RC" not in mod.REQUIRED else (4.7e3,)):
+                values = {"R1": 47e3, "R2": 10e3, "RC": rc, "RE": re_, "RE_BYP": byp}
+                roles = resistor_roles(mod.NAME, form, rc) + cap_roles(mod.NAME, form)
+                used = {r: values.get(r, 1e-6) for r in roles}
+                assert all(v > 0 for v in used.values()), (form, used)
+                assert not role_problems(mod, set(used)) and mod.form_of(used) == form
+
+
 def test_search_rules_refuse_an_unknown_law():
     with pytest.raises(ValueError):
         SearchRules(emitter={None: ("RE",)}, capacitors={None: ()}, gain_law="xx")
