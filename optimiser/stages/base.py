@@ -1,4 +1,4 @@
-"""What a topology module provides: the protocol every layer outside the search asks.
+"""What a topology module provides: the protocol every other layer, the search included, asks.
 
 A topology is one module in :mod:`optimiser.stages` (``ce``, ``cb``, ``cc``) whose
 module-level names satisfy :class:`Topology` (a :class:`typing.Protocol`; the
@@ -43,10 +43,11 @@ What a module gives:
   holds the base at AC ground) and ``capacitors(batch, op)`` (each capacitor's
   DC voltage).
 
-Adding a topology is one module here (listed in :data:`optimiser.stages.NAMES`),
-its schematic drawing in :mod:`drawerfit.sheet.schematic` and its tests; the
-conformance test (tests/optimiser/test_topology_seam.py) checks every listed
-module against this protocol.
+Adding a topology is one module here (listed in :data:`optimiser.stages.NAMES`)
+with its ``SEARCH`` rules (a new gain law also needs its bounds in
+:mod:`optimiser.prune` and their branch in the search's levels), its schematic
+drawing in :mod:`drawerfit.sheet.schematic` and its tests; the conformance test
+(tests/test_topology_seam.py) checks every listed module against this protocol.
 """
 
 from __future__ import annotations
