@@ -164,35 +164,39 @@ def largest_capacitance(values, pieces_ok=None) -> float:
     return float(v.max()) if v.size else 0.0
 
 
-def input_loop_max(topology: str, source_ohm: float, rth=None, re_total=None):
-    """The largest resistance C_IN can see: R_S + R_TH (ce, cc: Z_in ≤ R1‖R2) or
-    R_S + RE + RE_BYP (cb: Z_in ≤ the emitter resistance).  Arrays broadcast."""
+def input_loop_max(input_at: str, source_ohm: float, rth=None, re_total=None):
+    """The largest resistance C_IN can see, by the terminal the source drives (the
+    topology's ``INPUT``): R_S + R_TH at the base (ce, cc: Z_in ≤ R1‖R2) or
+    R_S + RE + RE_BYP at the emitter (cb: Z_in ≤ the emitter resistance).
+    Arrays broadcast."""
     rs = float(source_ohm or 0.0)
-    if topology == "cb":
+    if input_at == "emitter":
         return rs + np.asarray(re_total, dtype=float)
     return rs + np.asarray(rth, dtype=float)
 
 
-def output_loop_max(topology: str, load_ohm: float | None, rc=None, re_total=None):
-    """The largest resistance C_OUT can see: R_L + RC (ce, cb: Z_out ≤ RC) or
-    R_L + RE + RE_BYP (cc: Z_out ≤ the emitter resistance); inf without a load
-    (no load branch, so no C_OUT edge)."""
+def output_loop_max(output_at: str, load_ohm: float | None, rc=None, re_total=None):
+    """The largest resistance C_OUT can see, by the terminal the load hangs from
+    (the topology's ``OUTPUT``): R_L + RC at the collector (ce, cb: Z_out ≤ RC) or
+    R_L + RE + RE_BYP at the emitter (cc: Z_out ≤ the emitter resistance); inf
+    without a load (no load branch, so no C_OUT edge)."""
     if load_ohm is None:
-        shape = np.shape(rc if topology != "cc" else re_total)
+        shape = np.shape(rc if output_at != "emitter" else re_total)
         return np.full(shape, np.inf)
-    x = re_total if topology == "cc" else rc
+    x = re_total if output_at == "emitter" else rc
     return float(load_ohm) + np.asarray(x, dtype=float)
 
 
-def f_low_floor(topology: str, c_in_max: float, c_out_max: float, mid_hz: float,
-                source_ohm: float, load_ohm: float | None, rth, rc, re_total,
+def f_low_floor(input_at: str, output_at: str, c_in_max: float, c_out_max: float,
+                mid_hz: float, source_ohm: float, load_ohm: float | None, rth, rc, re_total,
                 slack_db: float = FLAT_PASSBAND_DB):
     """Over stages with these resistors (arrays) and capacitors up to the maxima:
     f_low ≥ the larger of the C_IN and C_OUT floors (Hz; by A1 each capacitor's
-    floor with the others shorted is a floor of the whole stage)."""
-    fin = edge_floor_hz(c_in_max, input_loop_max(topology, source_ohm, rth, re_total),
+    floor with the others shorted is a floor of the whole stage).  ``input_at``,
+    ``output_at``: the topology's ``INPUT`` and ``OUTPUT`` terminals."""
+    fin = edge_floor_hz(c_in_max, input_loop_max(input_at, source_ohm, rth, re_total),
                         mid_hz, slack_db)
-    fout = edge_floor_hz(c_out_max, output_loop_max(topology, load_ohm, rc, re_total),
+    fout = edge_floor_hz(c_out_max, output_loop_max(output_at, load_ohm, rc, re_total),
                          mid_hz, slack_db)
     return np.maximum(fin, fout)
 

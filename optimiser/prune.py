@@ -14,7 +14,9 @@ import numpy as np
 from scipy.special import wrightomega
 
 from . import score as weights
+from . import stages
 from .device import DeviceModel, scaled, thermal_voltage
+from .stages.base import base_held
 
 __all__ = ["wright_omega", "bias_current", "early_bounds", "early_factor_max", "midband_estimate", "junction_floor",
            "emitter_hd2_floor", "gain_headroom_floor", "common_base_hd2_floor",
@@ -131,6 +133,21 @@ def bias_current(v_th, r_th, r_e, model: DeviceModel, temp_c=25.0, beta=None, q=
     return x
 
 
+#: Node numbers of :func:`midband_estimate`'s three nodes.
+_NODES = {"base": 0, "emitter": 1, "collector": 2}
+_TERMINALS: dict[str, tuple[int, int, bool]] = {}
+
+
+def _terminals(topology: str) -> tuple[int, int, bool]:
+    """(input node, output node, base held at AC ground) of ``topology``, from its
+    module's ``INPUT``, ``OUTPUT`` and ``WIRING`` (read once)."""
+    t = _TERMINALS.get(topology)
+    if t is None:
+        mod = stages.module(topology)
+        t = _TERMINALS[topology] = (_NODES[mod.INPUT], _NODES[mod.OUTPUT], base_held(mod))
+    return t
+
+
 def midband_estimate(topology: str, *, r1, r2, rc, re, source_ohm, load_ohm, mid_hz, ss):
     """Gain |v_load/v_emf| and junction drive |v_be/v_emf| with every capacitor shorted.
 
@@ -141,7 +158,9 @@ def midband_estimate(topology: str, *, r1, r2, rc, re, source_ohm, load_ohm, mid
     with capacitors shorted, to rounding.  ``re`` is the unbypassed emitter
     resistance (0: emitter grounded); ``rc`` = 0 ties the collector to the
     supply; ``load_ohm`` None is an open load.  ``ss`` is
-    :func:`optimiser.ac.small_signal` at the operating point.
+    :func:`optimiser.ac.small_signal` at the operating point.  The topology
+    (a name of :data:`optimiser.stages.NAMES`) gives the terminals: its
+    ``INPUT``, ``OUTPUT`` and whether a capacitor holds its base.
 
     Returns
     -------
@@ -176,24 +195,22 @@ def midband_estimate(topology: str, *, r1, r2, rc, re, source_ohm, load_ohm, mid
     Y[..., E, B] -= y_be + y_bc + y_ce + y_cc
     Y[..., E, E] += y_be + y_ce
     Y[..., E, C] += y_bc + y_cc
-    if topology == "ce":
-        Y[..., B, B] += gbias + gs
-        Y[..., E, E] += gre
-        Y[..., C, C] += grc + gl
-        J[..., B] = gs
-        out = C
-    elif topology == "cb":
-        Y[..., B, B] += big
-        Y[..., E, E] += gre + gs
-        Y[..., C, C] += grc + gl
-        J[..., E] = gs
-        out = C
-    else:  # cc
-        Y[..., B, B] += gbias + gs
-        Y[..., E, E] += gre + gl
-        Y[..., C, C] += grc
-        J[..., B] = gs
-        out = E
+    # the passive stamps by the topology's terminals: the source drives INPUT, the
+    # load hangs from OUTPUT, a base held at AC ground (a capacitor to ground) is a
+    # short; the divider loads the base otherwise, RE the emitter, RC the collector
+    inp, out, held = _terminals(topology)
+    if held:
+        yb = big
+    else:
+        yb = gbias + gs if inp == B else gbias
+    ye = gre + gs if inp == E else gre
+    if out == E:
+        ye = ye + gl
+    yc = grc + gl if out == C else grc
+    Y[..., B, B] += yb
+    Y[..., E, E] += ye
+    Y[..., C, C] += yc
+    J[..., inp] = gs
     v = _solve3(Y, J)
     return np.abs(v[..., out]), np.abs(v[..., B] - v[..., E])
 

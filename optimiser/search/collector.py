@@ -25,6 +25,7 @@ from optimiser.search.bounds import (
 )
 from optimiser.search.levels import _expand
 from optimiser.search.skeletons import Skeletons
+from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
 
 
 class CollectorLevel:
@@ -54,8 +55,8 @@ class CollectorLevel:
         rc_max = self._rc_max(ic_lo, ve_lo)
         nrc = np.searchsorted(self.rc_vals, rc_max * (1 + 1e-9), side="right")
         self.count("headroom", (self.rc_vals.size - nrc).sum())
-        if topo == "cc":
-            # a follower's collector resistor only where the transistor would
+        if self.rc_optional:
+            # a follower's collector resistor (optional) only where the transistor would
             # otherwise dissipate more than its pd (docs/search.md)
             few = np.minimum(nrc, 1)
             need = self._cc_needs_rc(P, REv + BYv)
@@ -65,7 +66,7 @@ class CollectorLevel:
         # Once a score to beat is known, the gain term alone confines the gain to
         # target·10^(±upper·tol/20) (B11), on both sides for ce.
         n0 = np.zeros_like(nrc)
-        if self.win is not None and topo in ("ce", "cb"):
+        if self.win is not None and self.law in (DEGENERATED, EMITTER_DRIVEN):
             vt = thermal_voltage(25.0)
             g_lo, g_hi = self.win[0], self.win[1] * 10 ** (HIGH_GAIN_SLACK_DB / 20)
             if math.isfinite(upper):
@@ -94,7 +95,7 @@ class CollectorLevel:
             rs = float(request.source_ohm or 0.0)
             ro = (model.vaf - 1.0) / ic_hi if math.isfinite(model.vaf) else np.inf
             with np.errstate(divide="ignore", invalid="ignore"):
-                if topo == "ce":
+                if self.law == DEGENERATED:
                     rpi_max = b * self.q_hi * vt / ic_lo
                     rpi_min = b * self.q_lo * vt / ic_hi
                     rth = self.rth[P]
@@ -120,7 +121,7 @@ class CollectorLevel:
             nb = np.minimum(np.searchsorted(self.rc_vals, rc_b * (1 - 1e-9), side="left"), nrc)
             self.count("f_low_bypass", np.maximum(nb - n0, 0).sum())
             n0 = np.maximum(n0, nb)
-        if topo == "cb" and self.loop_need > 0:     # B20: C_IN against RE‖Z_e
+        if self.emitter_input and self.loop_need > 0:     # B20: C_IN against RE‖Z_e
             gone = self._f_low_cb_input(REv + BYv, ic_lo, ic_hi, rc_max)
             self.count("f_low_input", (nrc - n0)[gone].sum())
             n0 = np.where(gone, nrc, n0)
@@ -139,7 +140,7 @@ class CollectorLevel:
         # on the candidates the cheaper ones left, all before the exact DC point
         pre = drift_term(dlb) + current_term(V / (self.R1[Pc] + self.R2[Pc]) + ic_lo[rep])
         sel = np.flatnonzero(pre < upper)
-        if sel.size and self.win is not None and topo in ("ce", "cb"):
+        if sel.size and self.win is not None and self.law in (DEGENERATED, EMITTER_DRIVEN):
             rl = request.load_ohm
             rs_ = rep[sel]
             zc = RCc[sel] if not rl else RCc[sel] * rl / (RCc[sel] + rl)
@@ -150,11 +151,11 @@ class CollectorLevel:
                     25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
                         1.0 + ic_hi[rs_] * rdeg / thermal_voltage(25.0)))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
-            floor = 0.0 if topo == "cb" else self._floor(
+            floor = 0.0 if self.law != DEGENERATED else self._floor(
                 Pc[sel], ic_lo[rs_], ic_hi[rs_], ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel])
-            if topo == "cb":            # B16 with RE known
+            if self.law == EMITTER_DRIVEN:            # B16 with RE known
                 h = np.maximum(h, self._cb_hd2(ic_hi[rs_], REc[sel], REc[sel]))
-            if topo == "ce":            # B14 with RE and RC known
+            if self.law == DEGENERATED:            # B14 with RE and RC known
                 h = np.maximum(h, self._junction_hd2(Pc[sel], ic_hi[rs_], REc[sel], zc))
             # the gain and headroom terms of this very RC (B6/B11 and B15 made exact
             # in RC), added to the distortion bounds; the junction floor stands apart

@@ -33,6 +33,7 @@ from optimiser.search.bounds import (
 )
 from optimiser.search.skeletons import SHORT_F
 from optimiser.stage import StageBatch
+from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
 
 
 class EmitterSpans:
@@ -123,7 +124,7 @@ class EmitterSpans:
 
     def _per_z(self, P, ic_lo, ic_hi, re):
         """Largest gain per ohm of collector load of a ce or cb node of unbypassed RE."""
-        if self.topo == "ce":
+        if self.law == DEGENERATED:
             return self._ce_per_z(P, ic_lo, ic_hi, re, re)
         return self._cb_per_z(ic_hi, re)
 
@@ -175,7 +176,7 @@ class EmitterSpans:
             ro = (model.vaf - 1.0) / ic_hi if math.isfinite(model.vaf) else np.inf
             zlo = 1.0 / (1.0 / RC + (1.0 / rl if rl else 0.0) + 1.0 / ro)
             g_hi = self._per_z(P, ic_lo, ic_hi, RE) * zc
-            if self.topo == "ce":
+            if self.law == DEGENERATED:
                 rth = self.rth[P]
                 rpi_max = b * self.q_hi * vt / ic_lo
                 rpi_min = b * self.q_lo * vt / ic_hi
@@ -200,7 +201,7 @@ class EmitterSpans:
 
     def _distortion_lb(self, P, ic_lo, ic_hi, RE):
         """B14 (ce) or B16 (cb) for bias nodes of unbypassed RE ``RE``."""
-        if self.topo == "cb":
+        if self.law == EMITTER_DRIVEN:
             return self._cb_hd2(ic_hi, RE, RE)
         with np.errstate(divide="ignore", invalid="ignore"):
             z = np.where(ic_lo > 0, self.V / np.where(ic_lo > 0, ic_lo, 1.0), np.inf)
@@ -316,9 +317,9 @@ class EmitterSpans:
             top = np.maximum(top, bias_current(v_th, r_th, r_e, self.model, tc, b, self.q_hi))
         cand = np.flatnonzero(top * self.V * (1 + 1e-6) > self.model.pd)
         if cand.size:
-            b = StageBatch.from_values("cc", R1=self.R1[P[cand]], R2=self.R2[P[cand]], RC=0.0,
+            b = StageBatch.from_values(self.topo, R1=self.R1[P[cand]], R2=self.R2[P[cand]], RC=0.0,
                                        RE=r_e[cand], C_IN=SHORT_F, C_OUT=SHORT_F)
-            op = operating_point("cc", self.V, b, self.model)
+            op = operating_point(self.topo, self.V, b, self.model)
             cop, _, _ = corner_points(self.request, b, self.model)
             need[cand] = np.maximum(op.pq, cop.pq.max(axis=1)) > self.model.pd
         return need
@@ -326,7 +327,7 @@ class EmitterSpans:
     def _floor(self, P, ic_lo, ic_hi, ve_lo, rc=None):
         r = self.request
         k_in = None
-        if self.topo == "ce":     # R_in ≤ R_TH: the input divider is at most this
+        if self.law == DEGENERATED:     # R_in ≤ R_TH: the input divider is at most this
             rth = self.rth[P]
             k_in = rth / (rth + float(r.source_ohm or 0.0))
         return junction_floor(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ve_lo, supply_v=self.V,

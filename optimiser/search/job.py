@@ -24,6 +24,8 @@ from optimiser.search.levels import CHUNK, SPAN_BLOCKS, TOTALS_BLOCK, _corner_po
 from optimiser.search.limits import gain_window
 from optimiser.search.pairs import PairLevel
 from optimiser.search.stock import stock_units
+from optimiser.stages import module
+from optimiser.stages.base import base_held
 
 
 class _Job(PairLevel, FLowFloors, EmitterSpans, CollectorLevel):
@@ -39,6 +41,13 @@ class _Job(PairLevel, FLowFloors, EmitterSpans, CollectorLevel):
                  cache: dict | None = None):
         self.request, self.opts, self.t, self.form, self.stats = request, opts, t, form, stats
         self.topo = request.topology
+        # what the topology gives the search, looked up once per job (optimiser/stages/base.py)
+        self.mod = module(self.topo)
+        self.rules = self.mod.SEARCH
+        # which gain, distortion and floor lemmas bound this topology (docs/search.md)
+        self.law = self.rules.gain_law
+        # driven at the emitter with the base held at AC ground (cb): C_IN sees RE‖Z_e
+        self.emitter_input = self.mod.INPUT == "emitter" and base_held(self.mod)
         self.V = V = float(request.supply_v)
         self.model = model = device_from_transistor(t)
         rv = self.rv = opts.resistor.values
@@ -67,14 +76,16 @@ class _Job(PairLevel, FLowFloors, EmitterSpans, CollectorLevel):
         # bound needs only these two
         self.drift_corners = [self.corners[0], self.corners[-1]]
         self.rel = DRIFT_REL_SLACK * (V + 1.0) / model.vaf if math.isfinite(model.vaf) else 0.0
-        self.rc_vals = rv if self.topo != "cc" else np.concatenate([[0.0], rv])
-        self.rc_best = rbest if self.topo != "cc" else np.concatenate([[np.inf], rbest])
+        # an optional RC (a follower's) may also be absent: 0 before every value
+        rc_required = "RC" in self.mod.REQUIRED
+        self.rc_optional = not rc_required
+        self.rc_vals = rv if rc_required else np.concatenate([[0.0], rv])
+        self.rc_best = rbest if rc_required else np.concatenate([[np.inf], rbest])
         self.t_empty = float(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
-        # B2, the drift: three closed-form solves; for ce cheaper than the emitter and
-        # junction bounds and on fine runs the one that discards the most, so first,
-        # before even the top of the current bracket (measured: a tenth off the E96
-        # search; :meth:`_span_dc`); for cb and cc last, after their own cheaper bounds
-        self.drift_first = self.topo == "ce"
+        # B2, the drift: three closed-form solves; where the topology says so
+        # (``SEARCH.drift_first``) first, before even the top of the current bracket
+        # (:meth:`_span_dc`), else last, after the topology's own cheaper bounds
+        self.drift_first = self.rules.drift_first
 
     @property
     def live(self) -> bool:

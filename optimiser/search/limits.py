@@ -9,6 +9,8 @@ from inventory.errors import InputError
 from inventory.parts import StockSnapshot
 from optimiser.device import thermal_voltage
 from optimiser.request import Request
+from optimiser.stages import module
+from optimiser.stages.base import EMITTER_DRIVEN, FOLLOWER
 
 
 def gain_window(request: Request) -> tuple[float, float] | None:
@@ -41,31 +43,36 @@ def physical_limits(request: Request, snapshot: StockSnapshot | None = None) -> 
     Each is ``{"target", "requested", "reachable", "unit", "reason"}`` with
     ``reachable`` the proven bound (the target must move at least to it):
 
-    * gain_db: a follower's gain is below 1 (0 dB); a ce or cb stage's is below
-      V_supply/V_T (g_m·R_C = I_C·R_C/V_T < V_supply/V_T), and a cb stage's
-      below R_L/R_S (i_e ≤ v_s/R_S, v_out ≤ i_e·R_L);
-    * zin_min_ohm: Z_in is below R1‖R2 ≤ R_max/2 (ce, cc) or below RE ≤ R_max
-      (cb), R_max the largest resistor in stock (twice it with combinations).
+    * gain_db, by the topology's gain law (``SEARCH.gain_law``): a follower's
+      gain is below 1 (0 dB); a stage with its output at the collector (ce, cb)
+      is below V_supply/V_T (g_m·R_C = I_C·R_C/V_T < V_supply/V_T), and one
+      driven at the emitter (cb) below R_L/R_S (i_e ≤ v_s/R_S, v_out ≤ i_e·R_L);
+    * zin_min_ohm, by the topology's ``INPUT``: Z_in is below R1‖R2 ≤ R_max/2
+      (driven at the base: ce, cc) or below RE ≤ R_max (at the emitter: cb),
+      R_max the largest resistor in stock (twice it with combinations).
     """
 
     out: list[dict] = []
     r = request
+    mod = module(r.topology)
+    law = mod.SEARCH.gain_law
     win = gain_window(r)
     if win is not None:
         lo = win[0]
         limit, why = None, ""
-        if r.topology == "cc":
-            limit, why = 1.0, "a common-collector stage (emitter follower) has a gain below 1"
+        if law == FOLLOWER:
+            also = f" ({mod.ALSO_CALLED})" if mod.ALSO_CALLED else ""
+            limit, why = 1.0, f"a {mod.LONG_NAME.replace(' ', '-')} stage{also} has a gain below 1"
         else:
             vt = thermal_voltage(min(r.temp_c))
             limit = r.supply_v / vt       # g_m·R_C ≤ I_C·R_C/V_T < V_supply/V_T
             why = (f"a {r.topology} stage from {r.supply_v:g} V reaches less than "
                    f"V_supply/V_T = {limit:.0f} V/V")
-            if r.load_ohm and r.source_ohm and r.topology == "cb":
+            if r.load_ohm and r.source_ohm and law == EMITTER_DRIVEN:
                 lim2 = r.load_ohm / r.source_ohm   # i_e ≤ v_s/R_S, v_out ≤ i_e·R_L
                 if lim2 < limit:
                     limit = lim2
-                    why = (f"a cb stage from a {r.source_ohm:g} Ω source into "
+                    why = (f"a {r.topology} stage from a {r.source_ohm:g} Ω source into "
                            f"{r.load_ohm:g} Ω reaches less than R_L/R_S = {lim2:.3g} V/V")
         if lo >= limit:
             reach = 20 * math.log10(limit)
@@ -76,7 +83,7 @@ def physical_limits(request: Request, snapshot: StockSnapshot | None = None) -> 
     if r.zin_min_ohm is not None and snapshot is not None:
         stocked = [x.value for x in snapshot.resistors if x.qty > 0]
         rmax = max(stocked, default=0.0) * (2.0 if r.allow_combos else 1.0)
-        if r.topology in ("ce", "cc"):
+        if mod.INPUT == "base":
             bound, what = rmax / 2.0, "R1‖R2"
         else:
             bound, what = rmax, "RE"

@@ -22,6 +22,7 @@ from optimiser.search.bounds import (
 )
 from optimiser.search.levels import SPAN_BLOCKS, TOTAL_BIN
 from optimiser.search.skeletons import _emitter_options
+from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN, FOLLOWER
 
 
 class PairLevel:
@@ -48,7 +49,7 @@ class PairLevel:
         plb = current_term(V / (R1 + R2))
         o = np.argsort(plb, kind="stable")
         R1, R2, vth, rth, plb = R1[o], R2[o], vth[o], rth[o], plb[o]
-        if self.topo == "cc":
+        if self.law == FOLLOWER:
             # B13 at the pair: the divider alone caps a follower's gain
             self.rth = rth
             short = self._gain_shortfall(self._follower_gain_max(np.arange(R1.size)))
@@ -107,7 +108,7 @@ class PairLevel:
         if s.size == 0:
             return np.zeros(n, dtype=bool), ic_lo, ic_hi, d_lb, nlb
         v_th, r_th = self.vth[P], self.rth[P]
-        if self.topo == "ce":
+        if self.law == DEGENERATED:
             # B6 and B14: what the unbypassed RE allows of gain and distortion
             e = self._emitter_terms(P[s], ic_lo[s], ic_hi[s], ve_lo[s],
                                     re_bounds[0][s], re_bounds[1][s], lb_s, upper,
@@ -118,7 +119,7 @@ class PairLevel:
                 fl = fl[keep]
             if self.win is None or s.size == 0:
                 lb_s = lb_s + e
-        if s.size and self.topo == "cb":
+        if s.size and self.law == EMITTER_DRIVEN:
             # B16: the distortion of a common-base stage is set by I_C and RE; B15:
             # the collector drop its gain needs, against the headroom
             e = self._cb_hd2(ic_hi[s], r_small[s], r_big[s])
@@ -135,11 +136,11 @@ class PairLevel:
                 lb_s = lb_s + e
         # B8: a gain G needs a junction drive v_be ≥ G·v_in·V_T/(I_C·R) with
         # I_C·R ≤ min(I_C·R_L, V − vce_sat), so HD2 ≥ 25 %·G·v_in/min(...)
-        if s.size and self.win is not None and self.topo in ("ce", "cb"):
+        if s.size and self.win is not None and self.law in (DEGENERATED, EMITTER_DRIVEN):
             room = np.full(s.size, V - model.vce_sat)
             if self.request.load_ohm:
                 room = np.minimum(room, ic_hi[s] * self.request.load_ohm)
-            rdeg = re_bounds[1][s] if self.topo == "ce" \
+            rdeg = re_bounds[1][s] if self.law == DEGENERATED \
                 else float(self.request.source_ohm or 0.0)
             with np.errstate(divide="ignore", invalid="ignore"):
                 h = distortion_term(
@@ -207,7 +208,7 @@ class PairLevel:
             keep = ic_hi[s] * IC_MIN_MARGIN >= self.request.ic_min_a
             self.count("ic_min", int((~keep).sum()))
             s, lb_s = s[keep], lb_s[keep]
-        if self.topo == "cc":
+        if self.law == FOLLOWER:
             # B13: a follower's gain is at most k_in·A_f, the divider's share of the
             # source (Z_in ≤ R_TH) times RE‖RL over r_e + RE‖RL
             g_hi = self._follower_gain_max(P[s], r_big[s], ic_hi[s])
@@ -220,7 +221,7 @@ class PairLevel:
                 keep = lb_s < upper
                 s, lb_s = s[keep], lb_s[keep]
         fl = None
-        if s.size and self.topo == "ce" and self.win is not None:
+        if s.size and self.law == DEGENERATED and self.win is not None:
             # B12: gain, distortion and headroom together, over every RC and split
             # (ce only: for cb, B16 and B15 already hold nearly all of it — measured
             # again with B12 in closed form: a fifth fewer nodes, 5 % more time).  In

@@ -17,11 +17,12 @@ from optimiser.prune import midband_estimate
 from optimiser.request import Request
 from optimiser.score import degeneration, hd2_pct
 from optimiser.stage import StageBatch
+from optimiser.stages import NAMES, module
 
 #: Capacitance standing for "shorted" in the skeleton pass (F).
 SHORT_F = 1.0
-#: The ce forms and the roles each adds.
-FORMS = {"ce": ("unbypassed", "fully bypassed", "partly bypassed"), "cb": (None,), "cc": (None,)}
+#: Each topology's forms (its module's ``FORMS``), by name.
+FORMS = {name: module(name).FORMS for name in NAMES}
 
 
 @dataclass
@@ -54,29 +55,27 @@ class Skeletons:
 
 
 def cap_roles(topology: str, form: str | None) -> tuple[str, ...]:
-    if topology == "ce":
-        return ("C_IN", "C_OUT", "C_BYP") if form != "unbypassed" else ("C_IN", "C_OUT")
-    if topology == "cb":
-        return ("C_IN", "C_OUT", "C_B")
-    return ("C_IN", "C_OUT")
+    """The capacitor roles of ``form``, in the order the leaves choose them
+    (the topology's ``SEARCH.capacitors``)."""
+    return module(topology).SEARCH.capacitors[form]
 
 
 def resistor_roles(topology: str, form: str | None, rc) -> tuple[str, ...]:
-    if topology == "ce":
-        return {"unbypassed": ("R1", "R2", "RC", "RE"),
-                "fully bypassed": ("R1", "R2", "RC", "RE_BYP"),
-                "partly bypassed": ("R1", "R2", "RC", "RE", "RE_BYP")}[form]
-    if topology == "cb":
-        return ("R1", "R2", "RC", "RE")
-    return ("R1", "R2", "RC", "RE") if rc > 0 else ("R1", "R2", "RE")
+    """The resistor roles a skeleton of ``form`` uses: R1, R2, RC (unless the
+    topology lets RC be absent and ``rc`` is 0), then the form's emitter roles."""
+    mod = module(topology)
+    has_rc = rc > 0 or "RC" in mod.REQUIRED
+    return ("R1", "R2") + (("RC",) if has_rc else ()) + mod.SEARCH.emitter[form]
 
 
 def _emitter_options(topology: str, form: str | None, rv: np.ndarray):
-    """(RE, RE_BYP) arrays of the emitter side of one form."""
+    """(RE, RE_BYP) arrays of the emitter side of one form: every value in the
+    one emitter role the form fills (the other 0), or every pair of values."""
     z = np.zeros_like(rv)
-    if topology != "ce" or form == "unbypassed":
+    roles = module(topology).SEARCH.emitter[form]
+    if roles == ("RE",):
         return rv.copy(), z
-    if form == "fully bypassed":
+    if roles == ("RE_BYP",):
         return z, rv.copy()
     a, b = np.meshgrid(rv, rv, indexing="ij")
     return a.ravel(), b.ravel()

@@ -3,11 +3,14 @@ the best ratings the drawer offers and the DC stresses the pieces must bear."""
 
 from __future__ import annotations
 
+from types import SimpleNamespace
+
 import numpy as np
 
 from optimiser.options import StockOptions
 from optimiser.search.skeletons import Skeletons, cap_roles
 from optimiser.stage import PartRatings
+from optimiser.stages import module
 
 
 def _ratings_best(sk: Skeletons, opts: StockOptions, caps_voltage: dict | None = None) -> PartRatings:
@@ -36,11 +39,11 @@ def _stresses(sk: Skeletons, i: int, m: dict, j: int, V: float) -> dict[str, flo
     ie = ve / (re + byp) if re + byp > 0 else 0.0
     s = {"R1": (V - vb) ** 2 / r1, "R2": vb ** 2 / r2, "RE": ie * ie * re,
          "RE_BYP": ie * ie * byp, "RC": (V - vc) ** 2 / rc if rc > 0 else 0.0}
-    topo = sk.topology
-    s["C_IN"] = abs(ve if topo == "cb" else vb)
-    s["C_OUT"] = abs(ve if topo == "cc" else vc)
-    s["C_BYP"] = abs(ie * byp)
-    s["C_B"] = abs(vb)
+    # each capacitor's DC voltage as the topology places it (its ``capacitors``);
+    # the junction of RE and RE_BYP sits at I_E·RE_BYP
+    node = SimpleNamespace(vb=vb, ve=ve, vc=vc, vx=ie * byp)
+    for role, (v, _, _) in module(sk.topology).capacitors(sk, node).items():
+        s[role] = abs(v)
     return s
 
 

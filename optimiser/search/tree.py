@@ -311,7 +311,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             if shared is not None and not shared.claim(blk, k_part):
                 continue                # another process searches this block
             dc = None
-            if len(js) > 1 and request.topology == "ce":
+            if len(js) > 1 and len(FORMS[request.topology]) > 1:
                 dc = jobs[js[0]].span_dc_of(p, kth, [jobs[j] for j in js])
             for j in js:
                 P, a, b, blb = jobs[j].expand_pairs(p, kth, dc)

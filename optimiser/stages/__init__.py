@@ -1,6 +1,7 @@
 """One module per topology (ce, cb, cc), each satisfying :class:`.base.Topology`:
 its roles and forms, role rules, wiring, small-signal netlist, quasi-static
-Thevenins, capacitor placement, score terms and default gain.  :func:`module`
+Thevenins, capacitor placement, score terms, default gain and what the stock
+search needs (``SEARCH``).  :func:`module`
 picks one by name; :data:`NAMES` lists them."""
 
 from __future__ import annotations

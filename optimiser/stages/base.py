@@ -1,4 +1,4 @@
-"""What a topology module provides: the protocol every layer outside the search asks.
+"""What a topology module provides: the protocol every other layer, the search included, asks.
 
 A topology is one module in :mod:`optimiser.stages` (``ce``, ``cb``, ``cc``) whose
 module-level names satisfy :class:`Topology` (a :class:`typing.Protocol`; the
@@ -33,12 +33,21 @@ What a module gives:
 * ``score_gain_target()``: the score's (target dB, tolerance dB) when the request
   sets no gain, or ``None`` for no gain term;
 * ``DEFAULT_GAIN_DB``: the gain target a request to design gets when it names
-  none (``None``: no target).
+  none (``None``: no target);
+* ``SEARCH``: a :class:`SearchRules`, what the stock search needs beyond the
+  names above (the emitter options and capacitors of each form, the gain law
+  whose bounds apply, the order of the DC bounds).  The search also reads
+  ``REQUIRED`` (an optional RC may be absent), ``INPUT`` and ``OUTPUT`` (which
+  resistances the coupling capacitors' loops see, which terminal a midband
+  estimate drives and reads), ``WIRING`` (a capacitor from the base to ground
+  holds the base at AC ground) and ``capacitors(batch, op)`` (each capacitor's
+  DC voltage).
 
-Adding a topology is one module here (listed in :data:`optimiser.stages.NAMES`),
-its schematic drawing in :mod:`drawerfit.sheet.schematic` and its tests; the
-conformance test (tests/optimiser/test_topology_seam.py) checks every listed
-module against this protocol.
+Adding a topology is one module here (listed in :data:`optimiser.stages.NAMES`)
+with its ``SEARCH`` rules (a new gain law also needs its bounds in
+:mod:`optimiser.prune` and their branch in the search's levels), its schematic
+drawing in :mod:`drawerfit.sheet.schematic` and its tests; the conformance test
+(tests/test_topology_seam.py) checks every listed module against this protocol.
 """
 
 from __future__ import annotations
@@ -47,8 +56,9 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Protocol, runtime_checkable
 
-__all__ = ["Role", "OneOf", "Together", "Topology", "NODE_WORDS", "role_names",
-           "required_names", "role_problems", "capacitor_sides"]
+__all__ = ["Role", "OneOf", "Together", "Topology", "NODE_WORDS", "SearchRules", "DEGENERATED",
+           "EMITTER_DRIVEN", "FOLLOWER", "GAIN_LAWS", "role_names", "required_names",
+           "role_problems", "capacitor_sides", "base_held"]
 
 #: How the builder is told where a node is (the + side of a polarised capacitor).
 NODE_WORDS: Mapping[str, str] = {
@@ -104,6 +114,42 @@ class Together:
         return None
 
 
+#: The gain laws of the search's bounds (docs/search.md, "which bound for which
+#: topology"): a stage driven at the base with its output at the collector and an
+#: unbypassed emitter resistance RE (gain ≤ k_in·Z'/(V_T/I_C + RE) plus the
+#: feed-forward through C_μ; distortion by the junction with RE as feedback) ...
+DEGENERATED = "degenerated"
+#: ... a stage driven at the emitter with its output at the collector (gain
+#: ≤ Z'/(V_T/I_C·(1 + R_S/RE) + R_S); distortion set by I_C and R_S‖RE) ...
+EMITTER_DRIVEN = "emitter-driven"
+#: ... and a follower, output at the emitter (gain below k_in·R'/(r_e + R'), R' = RE‖R_L).
+FOLLOWER = "follower"
+GAIN_LAWS = (DEGENERATED, EMITTER_DRIVEN, FOLLOWER)
+
+
+@dataclass(frozen=True)
+class SearchRules:
+    """What the stock search asks a topology beyond the protocol's other names.
+
+    ``emitter``: for each form, the emitter roles its emitter options fill —
+    ``("RE",)`` (every resistor value as RE), ``("RE_BYP",)`` (as RE_BYP) or
+    ``("RE", "RE_BYP")`` (every pair of values).  ``capacitors``: for each form,
+    its capacitor roles in the order the leaves choose them.  ``gain_law``: one of
+    :data:`GAIN_LAWS`, which gain, distortion and physical-limit lemmas bound the
+    stage.  ``drift_first``: whether the drift bound (B2) runs before the top of
+    the current bracket (where it discards the most for its cost) or last.
+    """
+
+    emitter: Mapping[str | None, tuple[str, ...]]
+    capacitors: Mapping[str | None, tuple[str, ...]]
+    gain_law: str
+    drift_first: bool = False
+
+    def __post_init__(self):
+        if self.gain_law not in GAIN_LAWS:
+            raise ValueError(f"unknown gain law {self.gain_law!r}")
+
+
 @runtime_checkable
 class Topology(Protocol):
     """The module-level names a topology module defines (see the module docstring)."""
@@ -121,6 +167,7 @@ class Topology(Protocol):
     INPUT: str
     OUTPUT: str
     DEFAULT_GAIN_DB: float | None
+    SEARCH: SearchRules
     form_of: Callable
     network: Callable
     quasi_static: Callable
@@ -152,3 +199,10 @@ def capacitor_sides(topology) -> dict[str, tuple[str, str]]:
     """role -> (transistor-side node, other node) of each capacitor role, from ``WIRING``."""
     caps = {r.name for r in topology.ROLES if r.kind == "capacitor"}
     return {role: (a, b) for role, a, b in topology.WIRING if role in caps}
+
+
+def base_held(topology) -> bool:
+    """Whether a capacitor joins the base to ground (``WIRING``): with the
+    capacitors shorted the base is then at AC ground."""
+    caps = capacitor_sides(topology)
+    return any({a, b} == {"base", "ground"} for a, b in caps.values())

@@ -10,12 +10,20 @@ from __future__ import annotations
 import numpy as np
 
 from ..stage import StageBatch
-from .base import NODE_WORDS, Role, required_names, role_names
+from .base import (
+    EMITTER_DRIVEN,
+    NODE_WORDS,
+    Role,
+    SearchRules,
+    required_names,
+    role_names,
+)
 from .common import GROUND, Element, Network, par_thevenin
 
 __all__ = ["NAME", "LONG_NAME", "ALSO_CALLED", "ROLES", "ROLE_NAMES", "REQUIRED", "RULES",
            "FORMS", "form_of", "WIRING", "NODE_WORDS", "INPUT", "OUTPUT", "DEFAULT_GAIN_DB",
-           "network", "quasi_static", "capacitors", "degeneration", "score_gain_target"]
+           "network", "quasi_static", "capacitors", "degeneration", "score_gain_target",
+           "SEARCH"]
 
 NAME = "cb"
 LONG_NAME = "common base"
@@ -98,3 +106,9 @@ def capacitors(batch: StageBatch, op):
         "C_OUT": (op.vc, "collector", "load"),
         "C_B": (op.vb, "base", "ground"),
     }
+
+
+#: What the stock search asks (:class:`.base.SearchRules`): RE from every value,
+#: C_B holding the base, the emitter-driven gain law.
+SEARCH = SearchRules(emitter={None: ("RE",)}, capacitors={None: ("C_IN", "C_OUT", "C_B")},
+                     gain_law=EMITTER_DRIVEN)

@@ -10,12 +10,20 @@ from __future__ import annotations
 import numpy as np
 
 from ..stage import StageBatch
-from .base import NODE_WORDS, Role, required_names, role_names
+from .base import (
+    FOLLOWER,
+    NODE_WORDS,
+    Role,
+    SearchRules,
+    required_names,
+    role_names,
+)
 from .common import GROUND, Element, Network, par_thevenin
 
 __all__ = ["NAME", "LONG_NAME", "ALSO_CALLED", "ROLES", "ROLE_NAMES", "REQUIRED", "RULES",
            "FORMS", "form_of", "WIRING", "NODE_WORDS", "INPUT", "OUTPUT", "DEFAULT_GAIN_DB",
-           "network", "quasi_static", "capacitors", "degeneration", "score_gain_target"]
+           "network", "quasi_static", "capacitors", "degeneration", "score_gain_target",
+           "SEARCH"]
 
 NAME = "cc"
 LONG_NAME = "common collector"
@@ -96,3 +104,9 @@ def capacitors(batch: StageBatch, op):
         "C_IN": (op.vb, "base", "source"),
         "C_OUT": (op.ve, "emitter", "load"),
     }
+
+
+#: What the stock search asks (:class:`.base.SearchRules`): RE from every value
+#: (RC, optional, from every value or none), the follower's gain law.
+SEARCH = SearchRules(emitter={None: ("RE",)}, capacitors={None: ("C_IN", "C_OUT")},
+                     gain_law=FOLLOWER)

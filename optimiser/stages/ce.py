@@ -11,12 +11,22 @@ from __future__ import annotations
 import numpy as np
 
 from ..stage import StageBatch
-from .base import NODE_WORDS, OneOf, Role, Together, required_names, role_names
+from .base import (
+    DEGENERATED,
+    NODE_WORDS,
+    OneOf,
+    Role,
+    SearchRules,
+    Together,
+    required_names,
+    role_names,
+)
 from .common import GROUND, Element, Network, par_thevenin
 
 __all__ = ["NAME", "LONG_NAME", "ALSO_CALLED", "ROLES", "ROLE_NAMES", "REQUIRED", "RULES",
            "FORMS", "form_of", "WIRING", "NODE_WORDS", "INPUT", "OUTPUT", "DEFAULT_GAIN_DB",
-           "network", "quasi_static", "capacitors", "degeneration", "score_gain_target"]
+           "network", "quasi_static", "capacitors", "degeneration", "score_gain_target",
+           "SEARCH"]
 
 NAME = "ce"
 LONG_NAME = "common emitter"
@@ -115,3 +125,16 @@ def capacitors(batch: StageBatch, op) -> dict[str, tuple[np.ndarray, str, str]]:
         "C_OUT": (op.vc, "collector", "load"),
         "C_BYP": (op.vx, "emitter", "ground"),
     }
+
+
+#: What the stock search asks (:class:`.base.SearchRules`): each form's emitter
+#: options fill RE, RE_BYP or both; C_BYP only where RE_BYP is bypassed; the
+#: degenerated gain law; the drift bound first (three closed-form solves, cheaper
+#: here than the emitter and junction bounds and on fine runs of emitter options the
+#: one that discards the most: measured, a tenth off the E96 search).
+SEARCH = SearchRules(
+    emitter={"unbypassed": ("RE",), "fully bypassed": ("RE_BYP",),
+             "partly bypassed": ("RE", "RE_BYP")},
+    capacitors={"unbypassed": ("C_IN", "C_OUT"), "fully bypassed": ("C_IN", "C_OUT", "C_BYP"),
+                "partly bypassed": ("C_IN", "C_OUT", "C_BYP")},
+    gain_law=DEGENERATED, drift_first=True)

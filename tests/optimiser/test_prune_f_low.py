@@ -10,6 +10,7 @@ import pytest
 from scipy import signal
 
 from inventory.parts import Transistor
+from optimiser import stages
 from optimiser.ac import EDGE_DB
 from optimiser.device import thermal_voltage
 from optimiser.evaluate import evaluate
@@ -133,7 +134,9 @@ def test_floor_never_above_the_engine(topo, rs, rl, mid, capsys):
     ev = evaluate(req, b, T, None, band_edges=True, large_signal=False, corner_gain=False)
     f_low = np.asarray(ev.metrics["f_low_hz"], dtype=float)
     rth = b.R1 * b.R2 / (b.R1 + b.R2)
-    floor = f_low_floor(topo, b.C_IN, b.C_OUT, mid, rs, rl, rth, b.RC, b.RE + b.RE_BYP)
+    mod = stages.module(topo)
+    floor = f_low_floor(mod.INPUT, mod.OUTPUT, b.C_IN, b.C_OUT, mid, rs, rl, rth, b.RC,
+                        b.RE + b.RE_BYP)
     if topo == "cb":
         # the common-base input: R_S + RE‖Z_e,max at the stage's own I_C
         ic = np.asarray(ev.metrics["ic_a"], dtype=float)

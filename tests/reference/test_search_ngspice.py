@@ -3,19 +3,25 @@
 Reference: ngspice with the ``.model`` line of docs/model.md, TEMP = TNOM = 25 °C, through
 the shared harness tests/reference/spice.py.  For the best design of several
 requests: I_C within 0.5 %, the midband gain within 1 % and inside the request's
-window (with the same 1 % allowance), f_low within 3 % and at or below the target.
+window (with the same 1 % allowance), f_low within 3 % and at or below the target,
+and each capacitor's DC stress as the search allocates it equal to ngspice's
+voltage across it.
 """
 
 from __future__ import annotations
 
 import math
 
+import numpy as np
 import pytest
 
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
+from optimiser import stages
 from optimiser.device import device_from_transistor
 from optimiser.request import Request
-from optimiser.search import search
+from optimiser.search import Skeletons, cap_roles, search
+from optimiser.search.stock import _stresses
+from optimiser.stages.base import capacitor_sides
 
 from .spice import SpiceDesign, edge_from_sweep, require_ngspice, run_op_ac
 
@@ -62,3 +68,18 @@ def test_top_design_in_ngspice(req, tmp_path):
     f_low = edge_from_sweep(sp["freqs"], sp["h"], req.mid_hz, sp["gain"], below=True)
     assert math.isfinite(f_low) and abs(f_low - m["f_low_hz"]) / m["f_low_hz"] < 0.03
     assert f_low <= req.f_low_max_hz * 1.03
+    # each capacitor's DC stress as the search allocates it (the topology's
+    # capacitors() through optimiser/search/stock.py) against ngspice's voltages on
+    # its two sides (the source, load and ground sides at 0 V DC)
+    vals = d.values()
+    sk = Skeletons(d.topology, T, d.form, *(np.array([float(vals.get(r) or 0.0)])
+                                            for r in ("R1", "R2", "RC", "RE", "RE_BYP")))
+    st = _stresses(sk, 0, {"vb_v": [sp["vb"]], "ve_v": [sp["ve"]], "vc_v": [sp["vc"]]}, 0,
+                   req.supply_v)
+    node = {"base": sp["vb"], "emitter": sp["ve"], "collector": sp["vc"], "junction": sp["vx"]}
+    roles = cap_roles(d.topology, d.form)
+    assert set(roles) == {r for r in vals if r.startswith("C_") and vals[r]}
+    for role, (a, b) in capacitor_sides(stages.module(d.topology)).items():
+        if role in roles:
+            want = abs(node.get(a, 0.0) - node.get(b, 0.0))
+            assert st[role] == pytest.approx(want, rel=1e-4, abs=1e-6), role
