@@ -573,6 +573,21 @@ def _solve_nodes_group(nodes, fixed, elements, vals, joined, devices, pars, gues
         vcrit = vt * np.log(vt / (np.sqrt(2.0) * is_))
         prev.append((voltage(x, wb_) - voltage(x, we), voltage(x, wb_) - voltage(x, wc), vcrit))
     started = bool(guess)
+    with np.errstate(over="ignore", invalid="ignore"):
+        x, done = _newton_nodes(x, m, M, resistors, pars, dev, prev, started, voltage, stamp,
+                                tol, max_iter)
+    out = {}
+    for n in parent:
+        out[n] = voltage(x, where[n])
+    junctions = []
+    for wb_, we, wc in dev:
+        junctions.append((voltage(x, wb_) - voltage(x, we), voltage(x, wb_) - voltage(x, wc)))
+    return out, junctions, done
+
+
+def _newton_nodes(x, m, M, resistors, pars, dev, prev, started, voltage, stamp, tol,
+                  max_iter):
+    """The Newton iterations of :func:`solve_nodes` on one group of designs."""
     done = np.zeros(m, dtype=bool)
     sq = np.sqrt(tol)
     for it in range(max_iter):
@@ -628,10 +643,4 @@ def _solve_nodes_group(nodes, fixed, elements, vals, joined, devices, pars, gues
         done = ok & ~limited & (step <= sq * vt_min * 1e-3)
         if done.all():
             break
-    out = {}
-    for n in parent:
-        out[n] = voltage(x, where[n])
-    junctions = []
-    for wb_, we, wc in dev:
-        junctions.append((voltage(x, wb_) - voltage(x, we), voltage(x, wb_) - voltage(x, wc)))
-    return out, junctions, done
+    return x, done
