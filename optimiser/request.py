@@ -229,19 +229,23 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
         else:
             kw["topology"] = topo.strip().lower()
     with collect():
-        if "coupling" in m:
+        if "coupling" in m and "topology" not in kw and pairs:
+            pass                            # the topology's own error says what is wrong
+        elif "coupling" in m:
             c = m["coupling"]
             if not pairs:
                 raise err("coupling", _SEARCH_SINGLE.format(choice=_TOPOLOGY_CHOICE))
             if not isinstance(kw.get("topology", ()), tuple):
                 raise err("coupling", "coupling joins the two stages of a chain: give "
                                       "topology as a list of two stages, e.g. [\"ce\", \"cc\"]")
-            if not isinstance(c, str) or c.strip().lower() not in ("capacitor", "direct"):
-                raise err("coupling", f"unknown coupling {c!r}: use \"capacitor\" or \"direct\"")
+            choice = " or ".join(f'"{x}"' for x in _stages.PAIR_COUPLINGS)
+            if not isinstance(c, str) or c.strip().lower() not in _stages.PAIR_COUPLINGS:
+                raise err("coupling", f"unknown coupling {c!r}: use {choice}")
             c = c.strip().lower()
-            if c == "direct" and kw["topology"] != ("ce", "cc"):
-                raise err("coupling", "coupling = \"direct\" is for [\"ce\", \"cc\"] (the "
-                                      "follower's base on the first collector)")
+            try:
+                _stages.pair_form(kw["topology"], c)      # the form says which joins exist
+            except ValueError as e:
+                raise err("coupling", str(e)) from None
             kw["coupling"] = c
         elif isinstance(kw.get("topology"), tuple):
             kw["coupling"] = "capacitor"
