@@ -63,10 +63,14 @@ def _committed(name: str, text: str) -> None:
 def compared(request, tmp_path_factory):
     require_ngspice()
     form = request.param
+    return compare(form, tmp_path_factory.mktemp(form))
+
+
+def compare(form, wd):
+    """The engine's and ngspice's figures of the seeded circuits of ``form`` (run in ``wd``)."""
     req, batch, t, ev, model = _case(form)
     circuits = [batch.one(i) for i in range(batch.n)]
     kw = dict(supply_v=req.supply_v, source_ohm=req.source_ohm, load_ohm=req.load_ohm)
-    wd = tmp_path_factory.mktemp(form)
     deck = op_ac_deck(form, circuits, model, mid_hz=req.mid_hz, sweep_dir=".", **kw)
     _committed(f"{form}-op-ac.cir", deck)
     sp = parse_op_ac(run_ngspice(deck, wd, "opac"), batch.n, form, circuits, model, **kw)
