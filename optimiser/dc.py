@@ -631,11 +631,12 @@ def _newton_nodes(x, m, M, resistors, pars, dev, prev, started, voltage, stamp, 
         if M == 0:
             done[:] = True
             break
-        with np.errstate(invalid="ignore"):
-            try:
-                dx = np.linalg.solve(J, -F[..., None])[..., 0]
-            except np.linalg.LinAlgError:
-                dx = np.full_like(x, np.nan)
+        try:
+            dx = np.linalg.solve(J, -F[..., None])[..., 0]
+        except np.linalg.LinAlgError:
+            # a node held only by cut-off junctions leaves its row empty: the least-squares
+            # step for the whole group (rare; the other designs' steps are the same)
+            dx = (np.linalg.pinv(J) @ -F[..., None])[..., 0]
         step = np.max(np.abs(dx), axis=1)
         vt_min = np.min([p[2] for p in pars], axis=0)
         ok = np.isfinite(step)
