@@ -569,7 +569,7 @@ def _solve_nodes_group(nodes, fixed, elements, vals, joined, devices, pars, gues
                 x[:, k] = gv - off
     # previous junction voltages for the limiting
     prev = []
-    for (is_, beta, vt, iva), (wb_, we, wc) in zip(pars, dev, strict=True):
+    for (is_, _beta, vt, _iva), (wb_, we, wc) in zip(pars, dev, strict=True):
         vcrit = vt * np.log(vt / (np.sqrt(2.0) * is_))
         prev.append((voltage(x, wb_) - voltage(x, we), voltage(x, wb_) - voltage(x, wc), vcrit))
     started = bool(guess)

@@ -32,8 +32,14 @@ from .device import DeviceModel, device_from_transistor, junction_currents, scal
 from .evaluate import DERATING, FLAT_PASSBAND_DB, _g, _Rule, _si
 from .request import Request
 from .stage import PartRatings, StageBatch
-from .stages.pair import PairBatch, ac_network, capacitor_volts, dc_elements, qs_elements
-from .stages.pair import resistor_volts
+from .stages.pair import (
+    PairBatch,
+    ac_network,
+    capacitor_volts,
+    dc_elements,
+    qs_elements,
+    resistor_volts,
+)
 
 __all__ = ["PairEvaluation", "evaluate_pair", "pair_operating_point", "pair_transfer",
            "stage_batches", "CORNERS"]
@@ -214,7 +220,7 @@ def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: Part
     t_c, b_c = _corner_arrays(request, models)
     cops, _ = pair_operating_point(batch, request.supply_v, models, temp_c=t_c, betas=b_c)
     corners = []
-    for k, (op, cop) in enumerate(zip(ops, cops, strict=True)):
+    for k, cop in enumerate(cops):
         corners.append({"beta25": np.broadcast_to(b_c[k], cop.ic.shape).copy(),
                         "temp_c": np.broadcast_to(t_c, cop.ic.shape).copy(),
                         "ic_a": np.asarray(cop.ic), "vce_v": np.asarray(cop.vce),
@@ -253,7 +259,7 @@ def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: Part
                "thd_pct": thd, "swing_vpk": swing}
 
     rules: list[_Rule] = []
-    for k, (stage, op, m, cop) in enumerate(zip(form.stages, ops, models, cops, strict=True)):
+    for stage, op, m, cop in zip(form.stages, ops, models, cops, strict=True):
         vs = m.vce_sat
         rules.append(_Rule("validity", f"{stage}.converged", ~np.asarray(op.converged),
                            lambda i, s=stage: f"{s}: the operating point could not be solved "

@@ -7,8 +7,6 @@ thresholds of :class:`optimiser.cautions.CautionSettings` (the single stages' ow
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
 from inventory.parts import DEFAULT_CAPACITOR_VOLTAGE_V, DEFAULT_RESISTOR_POWER_W

@@ -234,7 +234,7 @@ def show_pair_analysis(report: dict, ev, circuit, console=None) -> None:
     # a capacitor-coupled stage's corners depend on its own hFE only
     joint = report["coupling"] != "capacitor"
     stages = list(report["stages"])
-    for k, (stage, st) in enumerate(report["stages"].items()):
+    for stage, st in report["stages"].items():
         ct = Table(title=f"Drift corners of {stage}", header_style="bold")
         shown = stages if joint else [stage]
         for h in [f"hFE of {s} (25 °C)" for s in shown] + ["T", "I_C", "V_CE"]:

@@ -13,11 +13,10 @@ import numpy as np
 import pytest
 
 from inventory.parts import Transistor
-from optimiser.dc import DCElement, solve_bias, solve_nodes, thevenin
+from optimiser.dc import DCElement, operating_point, solve_bias, solve_nodes, thevenin
 from optimiser.device import device_from_transistor, scaled, thermal_voltage
 from optimiser.pair_evaluate import evaluate_pair, pair_operating_point, stage_batches
 from optimiser.request import Request
-from optimiser.dc import operating_point
 from optimiser.stages import pair_form
 from optimiser.stages.pair import PairBatch
 

@@ -28,8 +28,14 @@ from optimiser.pair_evaluate import evaluate_pair
 
 from .pair_spice import op_ac_deck, parse_op_ac, qs_deck, read_sweep, zout_deck
 from .random_pairs import FORMS, random_pairs
-from .spice import _prints, edge_from_sweep, require_ngspice, run_ngspice, swing_from_curve
-from .spice import thd_from_curve
+from .spice import (
+    _prints,
+    edge_from_sweep,
+    require_ngspice,
+    run_ngspice,
+    swing_from_curve,
+    thd_from_curve,
+)
 
 pytestmark = [pytest.mark.reference]
 MIN_CIRCUITS = 20
