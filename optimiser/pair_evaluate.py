@@ -271,6 +271,10 @@ def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: Part
         rules.append(_Rule("validity", f"{stage}.cutoff", op.cutoff,
                            lambda i, s=stage, op=op: f"{s}: the transistor is cut off "
                                                      f"(I_C {_si(op.ic[i], 'A')})"))
+        cconv = np.asarray(cop.converged).all(axis=1) | ~np.asarray(op.converged)
+        rules.append(_Rule("validity", f"{stage}.corner_converged", ~cconv,
+                           lambda i, s=stage: f"{s}: the operating point at a drift corner "
+                                              "could not be solved (no convergence)"))
         csat = (cop.vce < vs).any(axis=1) & ~(op.vce < vs)
         rules.append(_Rule("validity", f"{stage}.corner_saturated", csat,
                            lambda i, s=stage, cop=cop, vs=vs:

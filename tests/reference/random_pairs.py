@@ -20,14 +20,14 @@ FORMS = ("ce-cc", "ce-ce", "cb-cc", "direct", "cascode")
 
 
 def _stage(variant, seed, count, vcc):
-    """Role values of ``count`` single stages of ``variant`` at supply ``vcc`` (the
-    single-stage generator's draws, re-aimed at this supply)."""
+    """Role values of ``count`` single stages of ``variant`` at supply ``vcc``: the
+    single-stage generator's draws with the divider ratio kept and the emitter and
+    collector resistors scaled with the supply (the caller keeps the circuits that come
+    out forward-active with margin)."""
     req, batch, _ = random_case(variant, seed, count)
     scale = vcc / req.supply_v
     vals = {r: np.asarray(getattr(batch, r)) for r in ("R1", "R2", "RC", "RE", "RE_BYP",
                                                         "C_IN", "C_OUT", "C_BYP", "C_B")}
-    # the same bias fractions at the new supply: the divider ratio is kept, so the
-    # emitter resistor and RC scale with (V_B − 0.65) ≈ linearly; good enough to aim
     vals["RE"] = vals["RE"] * scale
     vals["RE_BYP"] = vals["RE_BYP"] * scale
     vals["RC"] = vals["RC"] * scale
