@@ -9,8 +9,9 @@ shape ``(nf, n, N, N)`` with frequency as the leading axis, solved by
   the two nodes, so designs are grouped by which resistors are shorts);
 * the source branch ``R_S + 1/(jωC_IN)`` from the EMF to the input node and the
   load branch ``1/(jωC_OUT) + R_L`` from the output node, as series admittances;
-* the transistor: the linearised base and collector currents of the device
-  model, ``i_b = y_be·v_be + y_bc·v_bc`` and ``i_c = y_ce·v_be + y_cc·v_bc`` with
+* each transistor of the network (one for a stage, two for a chain or a
+  cascode, each with its own operating point): the linearised base and
+  collector currents of the device model, ``i_b = y_be·v_be + y_bc·v_bc`` and ``i_c = y_ce·v_be + y_cc·v_bc`` with
   the charges ``Q_D`` (C_π = ∂Q_D/∂V_BE and the transcapacitance ∂Q_D/∂V_BC,
   base to emitter) and ``C_μ = CJC`` (base to collector).
 
@@ -38,8 +39,11 @@ __all__ = [
     "network_of",
     "solve_network",
     "frequency_response",
+    "response_of",
     "midband",
+    "midband_of",
     "band_edges",
+    "band_edges_of",
     "EDGE_DB",
     "F_MIN_HZ",
     "F_MAX_HZ",
@@ -132,7 +136,12 @@ def _why_singular(net: Network, index, ss_sel, mode) -> str:
             f"conducts) [{mode}]")
 
 
-def solve_network(net: Network, ss: SmallSignal, freqs, *, source_ohm: float = 0.0,
+def _ss_list(ss) -> tuple[SmallSignal, ...]:
+    """The small-signal values of each transistor (one SmallSignal, or one per device)."""
+    return tuple(ss) if isinstance(ss, (list, tuple)) else (ss,)
+
+
+def solve_network(net: Network, ss, freqs, *, source_ohm: float = 0.0,
                   load_ohm: float | None = None, mode: str = "transfer",
                   per_design: bool = False) -> dict[str, np.ndarray]:
     """Node voltages of the small-signal network.
@@ -141,8 +150,8 @@ def solve_network(net: Network, ss: SmallSignal, freqs, *, source_ohm: float = 0
     ----------
     net : Network
         From :func:`network_of`; element arrays of shape (n,).
-    ss : SmallSignal
-        Arrays of shape (n,).
+    ss : SmallSignal or sequence of SmallSignal
+        Arrays of shape (n,); one per transistor of ``net.transistors``.
     freqs : array_like
         Frequencies in Hz, shape (nf,); with ``per_design`` shape (n,), one
         frequency per design (then the result has nf = 1).
@@ -215,24 +224,28 @@ def _solve_group(net, ss, part, index, size, w, source_ohm, load_ohm, mode):
                 continue
             add2(Cm, e.a, e.b, np.where(val > 0, val, 0.0))
 
-    # transistor: i_b = y_be·v_be + y_bc·v_bc, i_c = y_ce·v_be + y_cc·v_bc, i_e = −(i_b + i_c)
-    s = {k: np.asarray(v)[part] for k, v in ss.items()}
-    B, E, C = index[net.base], index[net.emitter], index[net.collector]
-    parts_g = {"be": s["gpi"], "bc": s["gmu_dc"], "ce": s["gm"], "cc": s["gx"]}
-    parts_c = {"be": s["cpi"], "bc": s["ctx"] + s["cmu"], "ce": 0.0 * s["gm"], "cc": -s["cmu"]}
-    for M, y in ((G, parts_g), (Cm, parts_c)):
-        def add(i, j, val, M=M):
-            if i >= 0 and j >= 0:
-                M[:, i, j] += val
-        add(B, B, y["be"] + y["bc"])
-        add(B, E, -y["be"])
-        add(B, C, -y["bc"])
-        add(C, B, y["ce"] + y["cc"])
-        add(C, E, -y["ce"])
-        add(C, C, -y["cc"])
-        add(E, B, -(y["be"] + y["bc"] + y["ce"] + y["cc"]))
-        add(E, E, y["be"] + y["ce"])
-        add(E, C, y["bc"] + y["cc"])
+    # each transistor: i_b = y_be·v_be + y_bc·v_bc, i_c = y_ce·v_be + y_cc·v_bc,
+    # i_e = −(i_b + i_c)
+    sss = _ss_list(ss)
+    for (nb, ne, nc), one in zip(net.transistors, sss, strict=True):
+        s = {k: np.asarray(v)[part] for k, v in one.items()}
+        B, E, C = index[nb], index[ne], index[nc]
+        parts_g = {"be": s["gpi"], "bc": s["gmu_dc"], "ce": s["gm"], "cc": s["gx"]}
+        parts_c = {"be": s["cpi"], "bc": s["ctx"] + s["cmu"], "ce": 0.0 * s["gm"],
+                   "cc": -s["cmu"]}
+        for M, y in ((G, parts_g), (Cm, parts_c)):
+            def add(i, j, val, M=M):
+                if i >= 0 and j >= 0:
+                    M[:, i, j] += val
+            add(B, B, y["be"] + y["bc"])
+            add(B, E, -y["be"])
+            add(B, C, -y["bc"])
+            add(C, B, y["ce"] + y["cc"])
+            add(C, E, -y["ce"])
+            add(C, C, -y["cc"])
+            add(E, B, -(y["be"] + y["bc"] + y["ce"] + y["cc"]))
+            add(E, E, y["be"] + y["ce"])
+            add(E, C, y["bc"] + y["cc"])
 
     Y = G[None] + (1j * w)[:, :, None, None] * Cm[None]
     J = np.zeros((nf, m, size), dtype=complex)
@@ -257,7 +270,7 @@ def _solve_group(net, ss, part, index, size, w, source_ohm, load_ohm, mode):
     try:
         v = np.linalg.solve(Y, J[..., None])[..., 0]
     except np.linalg.LinAlgError:
-        raise SingularCircuitError(_why_singular(net, index, s, mode)) from None
+        raise SingularCircuitError(_why_singular(net, index, sss, mode)) from None
     return v
 
 
@@ -275,14 +288,20 @@ def _load_voltage(net: Network, nodes, freqs, load_ohm, per_design=False, part=N
     return vout * load_ohm / (load_ohm + zc)
 
 
+def response_of(net: Network, ss, freqs, source_ohm: float,
+                load_ohm: float | None) -> np.ndarray:
+    """v_load / v_emf of a network (any number of transistors) at ``freqs``: (nf, n)."""
+    nodes = solve_network(net, ss, freqs, source_ohm=source_ohm, load_ohm=load_ohm,
+                          mode="transfer")
+    return _load_voltage(net, nodes, freqs, load_ohm)
+
+
 def frequency_response(request, batch: StageBatch, model: DeviceModel, op: OperatingPoint,
                        freqs, ss: SmallSignal | None = None) -> np.ndarray:
     """v_load / v_emf at ``freqs`` (Hz): complex array of shape (nf, n)."""
     net = network_of(batch.topology, batch)
     ss = small_signal(op, model) if ss is None else ss
-    nodes = solve_network(net, ss, freqs, source_ohm=request.source_ohm,
-                          load_ohm=request.load_ohm, mode="transfer")
-    return _load_voltage(net, nodes, freqs, request.load_ohm)
+    return response_of(net, ss, freqs, request.source_ohm, request.load_ohm)
 
 
 def _h_at(net, ss, f_per_design, source_ohm, load_ohm):
@@ -291,16 +310,10 @@ def _h_at(net, ss, f_per_design, source_ohm, load_ohm):
     return _load_voltage(net, nodes, f_per_design, load_ohm, per_design=True)[0]
 
 
-def midband(request, batch: StageBatch, model: DeviceModel, op: OperatingPoint,
-            ss: SmallSignal | None = None, want_zout: bool = True) -> dict[str, np.ndarray]:
-    """Gain (complex, V/V), Zin and Zout (ohm) at ``request.mid_hz``; arrays (n,).
-
-    ``want_zout=False`` skips the output-impedance solve (Zout is then NaN).
-    """
-    net = network_of(batch.topology, batch)
-    ss = small_signal(op, model) if ss is None else ss
+def midband_of(net: Network, ss, request, want_zout: bool = True) -> dict[str, np.ndarray]:
+    """Gain (complex, V/V), Zin and Zout (ohm) of a network at ``request.mid_hz``; (n,)."""
     f = [request.mid_hz]
-    h = frequency_response(request, batch, model, op, f, ss)[0]
+    h = response_of(net, ss, f, request.source_ohm, request.load_ohm)[0]
     zin_nodes = solve_network(net, ss, f, source_ohm=request.source_ohm,
                               load_ohm=request.load_ohm, mode="zin")
     w = 2.0 * math.pi * request.mid_hz
@@ -315,6 +328,17 @@ def midband(request, batch: StageBatch, model: DeviceModel, op: OperatingPoint,
     else:
         zout = np.full(zin.shape, np.nan + 0j)
     return {"h": h, "zin": zin, "zout": zout}
+
+
+def midband(request, batch: StageBatch, model: DeviceModel, op: OperatingPoint,
+            ss: SmallSignal | None = None, want_zout: bool = True) -> dict[str, np.ndarray]:
+    """Gain (complex, V/V), Zin and Zout (ohm) at ``request.mid_hz``; arrays (n,).
+
+    ``want_zout=False`` skips the output-impedance solve (Zout is then NaN).
+    """
+    net = network_of(batch.topology, batch)
+    ss = small_signal(op, model) if ss is None else ss
+    return midband_of(net, ss, request, want_zout)
 
 
 def edge_grid(mid_hz: float) -> np.ndarray:
@@ -337,9 +361,14 @@ def band_edges(request, batch: StageBatch, model: DeviceModel, op: OperatingPoin
     """
     net = network_of(batch.topology, batch)
     ss = small_signal(op, model) if ss is None else ss
-    n = batch.n
+    return band_edges_of(net, ss, request, gain_mid, want_high)
+
+
+def band_edges_of(net: Network, ss, request, gain_mid: np.ndarray, want_high: bool = True):
+    """:func:`band_edges` of a network with any number of transistors (``ss`` one per device)."""
+    n = int(np.asarray(net.c_in).shape[0])
     grid = edge_grid(request.mid_hz)
-    H = np.abs(frequency_response(request, batch, model, op, grid, ss))   # (nf, n)
+    H = np.abs(response_of(net, ss, grid, request.source_ohm, request.load_ohm))   # (nf, n)
     g = np.asarray(gain_mid, dtype=float)
     thresh = g * 10.0 ** (-EDGE_DB / 20.0)
     below = H < thresh[None, :]
@@ -404,5 +433,7 @@ def _sub_net(net: Network, k) -> Network:
                    c_out=np.asarray(net.c_out)[k])
 
 
-def _sub_ss(ss: SmallSignal, k) -> SmallSignal:
+def _sub_ss(ss, k):
+    if isinstance(ss, (list, tuple)):
+        return tuple(_sub_ss(one, k) for one in ss)
     return SmallSignal({key: np.asarray(v)[k] for key, v in ss.items()})

@@ -18,6 +18,13 @@ targets), plus::
     [tolerances]          # optional; default 5 % for resistors, 20 % for capacitors
     R1 = "1%"
 
+Two transistors (a chain of two stages, or a cascode; docs/requests.md): ``topology
+= ["ce", "cc"]`` (with ``coupling = "capacitor"``, the default, or ``"direct"``) or
+``topology = "cascode"``; parts by their namespaced roles (``S1.RC = "4k7"``,
+``C_COUPLE = "1u"``; a cascode's own ``R1``, ``R2``, ``R3``, ``C_B``, ...), and the
+transistor once for both or per stage (``[S1.transistor]``, ``S2.transistor = "LABEL"``).
+:func:`parse_circuit` returns a :class:`PairCircuit` for those.
+
 Stock references (``"#id"`` parts, a transistor label) are resolved through a
 ``store`` object with ``item(id)`` and ``transistor(label)`` (the inventory store),
 fetched lazily, so a circuit with plain values never opens the store.
@@ -46,7 +53,7 @@ from .stages import NAMES as TOPOLOGY_NAMES
 from .stages import module as stage_module
 from .stages.base import role_problems
 
-__all__ = ["Circuit", "parse_circuit", "load_circuit", "TRANSISTOR_KEYS"]
+__all__ = ["Circuit", "PairCircuit", "parse_circuit", "load_circuit", "TRANSISTOR_KEYS"]
 
 TRANSISTOR_KEYS = ("label", "hfe_min", "hfe_max", "hfe_typ", "vbe", "ic_ref", "vaf", "vce_sat",
                    "vceo", "ic_max", "pd", "ft", "cob", "polarity")
@@ -68,6 +75,41 @@ class Circuit:
 
     def batch(self) -> StageBatch:
         return StageBatch.from_values(self.request.topology, **self.values)
+
+
+@dataclass
+class PairCircuit:
+    """Two transistors with given values, for :func:`optimiser.pair_evaluate.evaluate_pair`."""
+
+    request: Request
+    form: object                         # optimiser.stages.pair.PairForm
+    values: dict[str, float]
+    transistors: tuple[Transistor, Transistor]
+    tolerances: dict[str, float]
+    labels: dict[str, str] = field(default_factory=dict)
+    stock_ids: dict[str, int] = field(default_factory=dict)
+    ratings: PartRatings = field(default_factory=PartRatings)
+    stock_parts: dict[str, object] = field(default_factory=dict)
+
+    def batch(self):
+        from .stages.pair import PairBatch
+        return PairBatch.from_values(self.form, **self.values)
+
+
+#: The names of a two-transistor circuit's parts (each a table for its roles or
+#: its transistor).
+STAGE_TABLES = ("S1", "S2")
+
+
+def _flatten(table: dict) -> dict:
+    """``{"S1": {"RC": x}}`` (TOML's dotted keys and [parts.S1]) as ``{"S1.RC": x}``."""
+    out = {}
+    for k, v in table.items():
+        if k in STAGE_TABLES and isinstance(v, dict):
+            out.update({f"{k}.{r}": x for r, x in v.items()})
+        else:
+            out[k] = v
+    return out
 
 
 def _kind(role: str) -> str:
@@ -99,7 +141,14 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
     req = None
     with collect():
         req = parse_request(mapping, file=file, text=text,
-                            extra_keys=CIRCUIT_KEYS + ("transistor",), default_gain=False)
+                            extra_keys=CIRCUIT_KEYS + ("transistor",) + STAGE_TABLES,
+                            default_gain=False, pairs=True)
+    if req is not None and req.is_pair:
+        return _parse_pair(mapping, req, problems, file=file, text=text, store=store)
+    for key in STAGE_TABLES:
+        if key in mapping:
+            errors.append(err(key, f"'{key}' names a stage of a two-transistor circuit; a "
+                                   f"{mapping.get('topology')} stage has one transistor"))
     topo = req.topology if req is not None else (
         mapping.get("topology", "").strip().lower()
         if isinstance(mapping.get("topology"), str) else None)
@@ -197,16 +246,17 @@ def _all(errors: list[InputError]) -> InputError:
 
 
 def _part(role, raw, topo, err, get_store, values, labels, ids, stock_parts, power_w,
-          voltage_v, polarised, tol_stock) -> None:
-    """Read one ``[parts]`` entry into the tables (raises InputError for a bad one)."""
+          voltage_v, polarised, tol_stock, form=None) -> None:
+    """Read one ``[parts]`` entry into the tables (raises InputError for a bad one);
+    ``form``: the two-transistor form whose roles these are (``topo`` unused then)."""
     from inventory import values as V
 
     key = f"parts.{role}"
-    names = stage_module(topo).ROLE_NAMES
+    names = stage_module(topo).ROLE_NAMES if form is None else form.role_names
     if role not in names:
-        raise err(key, f"unknown role '{role}' for a {topo} stage "
-                       f"(roles: {', '.join(names)})", role)
-    kind = _kind(role)
+        what = f"a {topo} stage" if form is None else f"a {form.name} circuit"
+        raise err(key, f"unknown role '{role}' for {what} (roles: {', '.join(names)})", role)
+    kind = _kind(role) if form is None else form.kind(role)
     m = _ID.match(raw) if isinstance(raw, str) else None
     if m:
         item_id = int(m[1])
@@ -302,7 +352,138 @@ def _inline_transistor(tr: dict, err) -> Transistor:
     return Transistor(label, **kw)
 
 
-def load_circuit(path, *, store: Callable[[], object] | None = None) -> Circuit:
+def _parse_pair(mapping, req, problems, *, file, text, store) -> PairCircuit:
+    """The two-transistor part of :func:`parse_circuit` (the request already read)."""
+    from inventory import values as V
+
+    from .stages import pair_form
+
+    errors, collect = problems.errors, problems.collect
+
+    def line(key):
+        for k in (key, f'"{key}"', key.split(".")[-1]):
+            n = _line_of(text, k)
+            if n is not None:
+                return n
+        return None
+
+    def err(key, msg, line_key=None):
+        return InputError(msg, file=file, line=line(line_key or key.split(".", 1)[-1]),
+                          field=key)
+
+    form = pair_form(req.topology, req.coupling)
+    for key, v in mapping.items():
+        if key in STAGE_TABLES:
+            if not isinstance(v, dict):
+                errors.append(err(key, f"expected a table [{key}.transistor] or "
+                                       f"{key}.transistor = \"LABEL\""))
+                continue
+            for sub in v:
+                if sub != "transistor":
+                    errors.append(err(f"{key}.{sub}", f"unknown key '{key}.{sub}': parts go "
+                                                      f"in [parts] as {key}.{sub} = value, "
+                                                      f"the transistor in [{key}.transistor]"))
+    parts = mapping.get("parts")
+    if not isinstance(parts, dict) or not parts:
+        errors.append(err("parts", "missing [parts] table: give role = value for each part "
+                                   f"({', '.join(form.required)} for a {form.name} circuit)",
+                          "[parts]"))
+        parts = {}
+    parts = _flatten(parts)
+    _store = None
+
+    def get_store():
+        nonlocal _store
+        if _store is None:
+            if store is None:
+                raise InputError("stock references need the store", file=file)
+            _store = store()
+        return _store
+
+    values, labels, ids, stock_parts = {}, {}, {}, {}
+    power_w, voltage_v, polarised, tol_stock = {}, {}, {}, {}
+    bad: set[str] = set()
+    for role, raw in parts.items():
+        with collect():
+            bad.add(role)
+            _part(role, raw, None, err, get_store, values, labels, ids, stock_parts, power_w,
+                  voltage_v, polarised, tol_stock, form=form)
+            bad.discard(role)
+    missing = [r for r in form.required if r not in values and r not in bad]
+    if missing and parts:
+        errors.append(err("parts", f"missing part{'s' if len(missing) > 1 else ''} "
+                                   f"{', '.join(missing)} for a {form.name} circuit", "[parts]"))
+    if parts and not bad:
+        for problem in form.problems(values):
+            errors.append(err("parts", problem, "[parts]"))
+
+    # transistors: once for both, or per stage
+    both = mapping.get("transistor")
+    transistors = []
+    read: dict[int, Transistor | None] = {}
+    for stage in STAGE_TABLES:
+        own = mapping.get(stage, {}).get("transistor") if isinstance(mapping.get(stage),
+                                                                     dict) else None
+        tr, where = (own, f"{stage}.transistor") if own is not None else (both, "transistor")
+        if id(tr) in read and tr is not None:
+            transistors.append(read[id(tr)])
+            continue
+        t = None
+        with collect():
+            if isinstance(tr, str):
+                if tr.strip().lower() == "any":
+                    raise err(where, "analyse needs given transistors: a stock label or a "
+                                     "[transistor] table with hfe_min and hfe_max")
+                t = get_store().transistor(tr.strip())
+                if t is None:
+                    raise err(where, f"no transistor labelled '{tr.strip()}' in stock")
+            elif isinstance(tr, dict):
+                t = _inline_transistor(tr, lambda k, msg, lk=None, w=where: err(
+                    f"{w}.{k.split('.', 1)[-1]}", msg, lk))
+            else:
+                raise err(where, f"missing transistor for {stage}: give transistor = "
+                                 "\"LABEL\" or a [transistor] table for both, or "
+                                 f"[{stage}.transistor]", "[transistor]")
+        read[id(tr)] = t
+        transistors.append(t)
+
+    tols: dict[str, float] = {}
+    raw_t = mapping.get("tolerances", {})
+    if not isinstance(raw_t, dict):
+        errors.append(err("tolerances", "expected a [tolerances] table of role = tolerance"))
+        raw_t = {}
+    for role, tv in _flatten(raw_t).items():
+        with collect():
+            if role not in values:
+                if role in bad:
+                    continue
+                raise err(f"tolerances.{role}",
+                          f"tolerance for '{role}', which is not among the parts", role)
+            try:
+                tols[role] = V.parse_tolerance(tv)
+            except InputError as e:
+                raise err(f"tolerances.{role}", e.message, role) from None
+    if req.wants_yield:
+        errors.append(err("min_yield_pct" if req.min_yield_pct is not None else
+                          "yield_samples", "the yield of a two-transistor circuit is not "
+                                           "computed: leave min_yield_pct and yield_samples "
+                                           "out"))
+    if errors:
+        raise _all(errors)
+    for role in values:
+        if role not in tols:
+            tols[role] = tol_stock.get(role, DEFAULT_RESISTOR_TOLERANCE if form.kind(role) ==
+                                       "resistor" else DEFAULT_CAPACITOR_TOLERANCE)
+    ratings = PartRatings(
+        power_w={k: np.asarray(v) for k, v in power_w.items()},
+        voltage_v={k: np.asarray(v) for k, v in voltage_v.items()},
+        polarised={k: np.asarray(v) for k, v in polarised.items()},
+    )
+    return PairCircuit(req, form, values, tuple(transistors), tols, labels, ids, ratings,
+                       stock_parts)
+
+
+def load_circuit(path, *, store: Callable[[], object] | None = None) -> Circuit | PairCircuit:
     """Read and check a circuit file (TOML) for ``analyse``."""
     mapping, text = read_toml(path)
     return parse_circuit(mapping, file=str(path), text=text, store=store)

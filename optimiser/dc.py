@@ -35,6 +35,8 @@ __all__ = [
     "operating_point",
     "thevenin",
     "forward_active_ic",
+    "DCElement",
+    "solve_nodes",
 ]
 
 #: Below this collector current (A) a candidate is reported as cut off.
@@ -393,3 +395,253 @@ def forward_active_ic(v_th, r_th, re, model: DeviceModel, temp_c=25.0, beta=None
     reff = r_th / beta_t + re * (q + 1.0 / beta_t)
     u = _initial_vbe(np.asarray(v_th, dtype=float), reff, is_t, vt)
     return q * is_t * np.exp(u / vt)
+
+
+# --------------------------------------------------------------------------------------
+# Networks of several transistors: Newton on the node voltages
+# --------------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class DCElement:
+    """A branch of a DC network: ``"R"`` (ohm; 0 joins the nodes, inf leaves them
+    open) or ``"V"`` (a source holding ``v_a − v_b = value``; NaN: absent).
+    ``value`` broadcasts against the problem's shape."""
+
+    kind: str
+    a: str
+    b: str
+    value: object
+
+
+def _join(parent, offset, fixed_names, a, b, val):
+    """Union of nodes a and b with v_a − v_b = val (offsets are arrays)."""
+    def find(n):
+        off = 0.0
+        while parent[n] != n:
+            off = off + offset[n]
+            n = parent[n]
+        return n, off
+
+    ra, oa = find(a)
+    rb, ob = find(b)
+    if ra == rb:
+        return
+    # v_ra + oa − (v_rb + ob) = val
+    if rb in fixed_names and ra not in fixed_names:
+        parent[ra] = rb
+        offset[ra] = val + ob - oa          # v_ra = v_rb + (val + ob − oa)
+    elif ra in fixed_names and rb in fixed_names:
+        return                               # two fixed nodes: nothing to join
+    else:
+        parent[rb] = ra
+        offset[rb] = oa - val - ob           # v_rb = v_ra + (oa − val − ob)
+
+
+def solve_nodes(nodes, fixed, elements, devices, params, guess=None, *, tol: float = 1e-10,
+                max_iter: int = 300):
+    """DC node voltages of a network of resistors, held voltages and transistors.
+
+    Newton's method on Kirchhoff's current law at every free node, each transistor the
+    device model of :func:`optimiser.device.junction_currents` linearised at its junction
+    voltages, with SPICE's junction limiting between iterations (as
+    :func:`solve_terminals`).  Zero-ohm resistors and ``"V"`` elements join nodes
+    (with an offset), so designs are grouped by which are present.
+
+    Parameters
+    ----------
+    nodes : sequence of str
+        The node names besides the fixed ones.
+    fixed : dict
+        Node name -> voltage (array_like) of nodes held by ideal sources (ground,
+        the supply, the signal source).
+    elements : sequence of DCElement
+    devices : sequence of (base, emitter, collector)
+        Node names of each transistor.
+    params : sequence of (is_, beta, vt, inv_vaf)
+        Device values of each transistor (array_like).
+    guess : dict, optional
+        Node name -> starting voltage; nodes left out start from the network with
+        every transistor removed.
+
+    Returns
+    -------
+    volts : dict node -> ndarray
+        Every node's voltage (the fixed ones included), broadcast shape.
+    junctions : list of (vbe, vbc)
+        Each transistor's junction voltages.
+    converged : ndarray of bool
+    """
+    guess = guess or {}
+    arrays = [np.asarray(v, dtype=float) for v in fixed.values()]
+    arrays += [np.asarray(e.value, dtype=float) for e in elements]
+    arrays += [np.asarray(x, dtype=float) for p in params for x in p]
+    arrays += [np.asarray(v, dtype=float) for v in guess.values()]
+    shape = np.broadcast_shapes(*[a.shape for a in arrays])
+    m = int(np.prod(shape)) if shape else 1
+    flat = lambda x: np.broadcast_to(np.asarray(x, dtype=float), shape).reshape(m)  # noqa: E731
+    fixed_f = {k: flat(v) for k, v in fixed.items()}
+    vals = [flat(e.value) for e in elements]
+    pars = [tuple(flat(x) for x in p) for p in params]
+    guess_f = {k: flat(v) for k, v in guess.items()}
+    joins = np.stack([(v == 0) if e.kind == "R" else np.isfinite(v)
+                      for e, v in zip(elements, vals, strict=True)], axis=1) \
+        if elements else np.zeros((m, 0), bool)
+    code = (joins.astype(np.int64) << np.arange(joins.shape[1], dtype=np.int64)).sum(axis=1)
+    all_nodes = tuple(nodes) + tuple(fixed)
+    volts = {n: np.full(m, np.nan) for n in all_nodes}
+    junc = [(np.full(m, np.nan), np.full(m, np.nan)) for _ in devices]
+    conv = np.zeros(m, dtype=bool)
+    for c in np.flatnonzero(np.bincount(code)):
+        sel = np.nonzero(code == c)[0]
+        v, j, ok = _solve_nodes_group(
+            nodes, {k: a[sel] for k, a in fixed_f.items()}, elements, [a[sel] for a in vals],
+            joins[sel[0]], devices, [tuple(x[sel] for x in p) for p in pars],
+            {k: a[sel] for k, a in guess_f.items()}, tol, max_iter)
+        for n in all_nodes:
+            volts[n][sel] = v[n]
+        for k in range(len(devices)):
+            junc[k][0][sel], junc[k][1][sel] = j[k]
+        conv[sel] = ok
+    return ({n: a.reshape(shape) for n, a in volts.items()},
+            [(u.reshape(shape), w.reshape(shape)) for u, w in junc], conv.reshape(shape))
+
+
+def _solve_nodes_group(nodes, fixed, elements, vals, joined, devices, pars, guess, tol,
+                       max_iter):
+    m = next(iter(fixed.values())).shape[0]
+    parent = {n: n for n in tuple(nodes) + tuple(fixed)}
+    offset = {n: np.zeros(m) for n in parent}
+    fixed_names = set(fixed)
+    for e, v, j in zip(elements, vals, joined, strict=True):
+        if j:
+            _join(parent, offset, fixed_names, e.a, e.b, 0.0 if e.kind == "R" else v)
+
+    def find(n):
+        off = np.zeros(m)
+        while parent[n] != n:
+            off = off + offset[n]
+            n = parent[n]
+        return n, off
+
+    roots = [n for n in nodes if parent[n] == n and n not in fixed_names]
+    col = {r: i for i, r in enumerate(roots)}
+    M = len(roots)
+    where = {}                       # node -> (column or −1, offset + fixed voltage)
+    for n in parent:
+        r, off = find(n)
+        where[n] = (col[r], off) if r in col else (-1, off + fixed[r])
+
+    resistors = [(where[e.a], where[e.b], v) for e, v, j in zip(elements, vals, joined,
+                                                                  strict=True)
+                 if e.kind == "R" and not j]
+    dev = [tuple(where[t] for t in d) for d in devices]
+
+    def voltage(x, w):
+        k, off = w
+        return off if k < 0 else x[:, k] + off
+
+    def stamp(J, F, wa, wb, g, i):
+        """Current i leaving a (into b) with conductance g on v_a − v_b."""
+        ka, kb = wa[0], wb[0]
+        if ka >= 0:
+            F[:, ka] += i
+            J[:, ka, ka] += g
+            if kb >= 0:
+                J[:, ka, kb] -= g
+        if kb >= 0:
+            F[:, kb] -= i
+            J[:, kb, kb] += g
+            if ka >= 0:
+                J[:, kb, ka] -= g
+
+    # start: the guess, else the resistive network with the transistors removed
+    x = np.zeros((m, M))
+    if M:
+        J0 = np.zeros((m, M, M)) + 1e-12 * np.eye(M)
+        F0 = np.zeros((m, M))
+        for wa, wb, r in resistors:
+            g = np.where(np.isfinite(r) & (r > 0), 1.0 / np.where(r > 0, r, 1.0), 0.0)
+            stamp(J0, F0, wa, wb, g, g * (voltage(x, wa) - voltage(x, wb)))
+        x = np.linalg.solve(J0, -F0[..., None])[..., 0]
+        for n, gv in guess.items():
+            k, off = where[n]
+            if k >= 0 and n == roots[k]:
+                x[:, k] = gv - off
+    # previous junction voltages for the limiting
+    prev = []
+    for (is_, _beta, vt, _iva), (wb_, we, wc) in zip(pars, dev, strict=True):
+        vcrit = vt * np.log(vt / (np.sqrt(2.0) * is_))
+        prev.append((voltage(x, wb_) - voltage(x, we), voltage(x, wb_) - voltage(x, wc), vcrit))
+    started = bool(guess)
+    with np.errstate(over="ignore", invalid="ignore"):
+        x, done = _newton_nodes(x, m, M, resistors, pars, dev, prev, started, voltage, stamp,
+                                tol, max_iter)
+    out = {}
+    for n in parent:
+        out[n] = voltage(x, where[n])
+    junctions = []
+    for wb_, we, wc in dev:
+        junctions.append((voltage(x, wb_) - voltage(x, we), voltage(x, wb_) - voltage(x, wc)))
+    return out, junctions, done
+
+
+def _newton_nodes(x, m, M, resistors, pars, dev, prev, started, voltage, stamp, tol,
+                  max_iter):
+    """The Newton iterations of :func:`solve_nodes` on one group of designs."""
+    done = np.zeros(m, dtype=bool)
+    sq = np.sqrt(tol)
+    for it in range(max_iter):
+        J = np.zeros((m, M, M))
+        F = np.zeros((m, M))
+        for wa, wb, r in resistors:
+            g = np.where(np.isfinite(r) & (r > 0), 1.0 / np.where(r > 0, r, 1.0), 0.0)
+            stamp(J, F, wa, wb, g, g * (voltage(x, wa) - voltage(x, wb)))
+        limited = np.zeros(m, dtype=bool)
+        lin = []
+        for k, ((is_, beta, vt, iva), (wb_, we, wc)) in enumerate(zip(pars, dev, strict=True)):
+            u_prev, w_prev, vcrit = prev[k]
+            u_new = voltage(x, wb_) - voltage(x, we)
+            w_new = voltage(x, wb_) - voltage(x, wc)
+            if it == 0 and not started:
+                # no starting point given: the junctions start as SPICE starts them, the
+                # emitter junction near 1 mA and the collector junction off
+                u = np.minimum(u_new, vt * np.log(1e-3 / is_))
+                w = np.minimum(w_new, 0.0)
+            else:
+                u = _pnjlim(u_new, u_prev, vt, vcrit)
+                w = _pnjlim(w_new, w_prev, vt, vcrit)
+            limited |= (u != u_new) | (w != w_new)
+            ic, ib, dcu, dcw, dbu, dbw = junction_currents(u, w, is_, beta, vt, iva)
+            # currents linearised at the limited point, evaluated at the present voltages
+            icl = ic + dcu * (u_new - u) + dcw * (w_new - w)
+            ibl = ib + dbu * (u_new - u) + dbw * (w_new - w)
+            lin.append((u, w))
+            kb, ke, kc = wb_[0], we[0], wc[0]
+            # KCL: i_c leaves the collector node, i_b the base node, −(i_c + i_b) the emitter
+            for node, cur, du_, dw_ in ((kc, icl, dcu, dcw), (kb, ibl, dbu, dbw),
+                                        (ke, -(icl + ibl), -(dcu + dbu), -(dcw + dbw))):
+                if node < 0:
+                    continue
+                F[:, node] += cur
+                # v_be = v_b − v_e, v_bc = v_b − v_c
+                for term, coef in ((kb, du_ + dw_), (ke, -du_), (kc, -dw_)):
+                    if term >= 0:
+                        J[:, node, term] += coef
+        prev = [(u, w, p[2]) for (u, w), p in zip(lin, prev, strict=True)]
+        if M == 0:
+            done[:] = True
+            break
+        try:
+            dx = np.linalg.solve(J, -F[..., None])[..., 0]
+        except np.linalg.LinAlgError:
+            # a node held only by cut-off junctions leaves its row empty: the least-squares
+            # step for the whole group (rare; the other designs' steps are the same)
+            dx = (np.linalg.pinv(J) @ -F[..., None])[..., 0]
+        step = np.max(np.abs(dx), axis=1)
+        vt_min = np.min([p[2] for p in pars], axis=0)
+        ok = np.isfinite(step)
+        x = np.where(ok[:, None], x + dx, x)
+        done = ok & ~limited & (step <= sq * vt_min * 1e-3)
+        if done.all():
+            break
+    return x, done

@@ -18,7 +18,7 @@ from .stage import StageBatch
 from .stages import module as stage_module
 
 __all__ = ["N_POINTS", "HARMONICS", "transfer", "waveform", "thd_pct", "swing_vpk",
-           "IC_FLOOR"]
+           "IC_FLOOR", "waveform_of", "thd_of", "thd_of_wave", "swing_of"]
 
 N_POINTS = 256
 HARMONICS = range(2, 10)
@@ -63,13 +63,10 @@ def transfer(request, batch: StageBatch, model: DeviceModel, op: OperatingPoint,
     return load(VB, VE, VC), vbe - vbc, ic
 
 
-def waveform(request, batch, model, op, amplitude=None, points: int = N_POINTS):
-    """v_load over one period of a sine EMF of ``amplitude`` (default input_vpk).
-
-    Returns (phase_emf (n, points), v_load (n, points)).
-    """
-    a = request.input_vpk if amplitude is None else amplitude
-    a = np.broadcast_to(np.asarray(a, dtype=float), (batch.n,))[:, None]
+def waveform_of(transfer_fn, amplitude, n: int, points: int = N_POINTS):
+    """One period of a sine EMF of ``amplitude`` (V, scalar or (n,)) through
+    ``transfer_fn(emf (n, k)) -> v_load (n, k)``: (phase_emf, v_load), each (n, points)."""
+    a = np.broadcast_to(np.asarray(amplitude, dtype=float), (n,))[:, None]
     k = np.arange(points)
     emf = a * np.sin(2.0 * np.pi * k / points)[None, :]
     if points % 4 == 0:
@@ -77,20 +74,37 @@ def waveform(request, batch, model, op, amplitude=None, points: int = N_POINTS):
         q = points // 4
         j = np.where(k <= q, k, np.where(k <= 3 * q, 2 * q - k, k - points))
         distinct = a * np.sin(2.0 * np.pi * np.arange(-q, q + 1) / points)[None, :]
-        v_d, _, _ = transfer(request, batch, model, op, distinct)
-        return emf, v_d[:, j + q]
-    v, _, _ = transfer(request, batch, model, op, emf)
-    return emf, v
+        return emf, transfer_fn(distinct)[:, j + q]
+    return emf, transfer_fn(emf)
 
 
-def thd_pct(request, batch, model, op) -> np.ndarray:
-    """THD of v_load over harmonics 2–9, in %, for the EMF amplitude input_vpk; (n,)."""
-    _, v = waveform(request, batch, model, op)
+def waveform(request, batch, model, op, amplitude=None, points: int = N_POINTS):
+    """v_load over one period of a sine EMF of ``amplitude`` (default input_vpk).
+
+    Returns (phase_emf (n, points), v_load (n, points)).
+    """
+    a = request.input_vpk if amplitude is None else amplitude
+    return waveform_of(lambda e: transfer(request, batch, model, op, e)[0], a, batch.n, points)
+
+
+def thd_of_wave(v) -> np.ndarray:
+    """THD (%) over harmonics 2–9 of sampled periods ``v`` (n, points)."""
     X = np.fft.rfft(v, axis=1)
     fund = np.abs(X[:, 1])
     harm = np.sqrt(np.sum(np.abs(X[:, list(HARMONICS)]) ** 2, axis=1))
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(fund > 0, 100.0 * harm / fund, np.nan)
+
+
+def thd_of(transfer_fn, amplitude, n: int) -> np.ndarray:
+    """THD (%) of v_load for a sine EMF of ``amplitude`` through ``transfer_fn``; (n,)."""
+    return thd_of_wave(waveform_of(transfer_fn, amplitude, n)[1])
+
+
+def thd_pct(request, batch, model, op) -> np.ndarray:
+    """THD of v_load over harmonics 2–9, in %, for the EMF amplitude input_vpk; (n,)."""
+    _, v = waveform(request, batch, model, op)
+    return thd_of_wave(v)
 
 
 def swing_vpk(request, batch, model, op):
@@ -120,7 +134,16 @@ def swing_vpk(request, batch, model, op):
         v, vce, ic = transfer(request, b, model, o, emf)
         return v, (vce >= model.vce_sat) & (ic >= IC_FLOOR * (ic0 if rows is None else ic0[rows]))
 
-    top = float(request.supply_v)
+    return swing_of(state, n, request.supply_v)
+
+
+def swing_of(state, n: int, supply_v: float):
+    """The swing search of :func:`swing_vpk` over ``state(emf (r, k), rows) -> (v_load,
+    forward_active)`` (``rows``: the designs of ``emf``'s rows, ``None`` for all ``n``).
+
+    Returns (swing_vpk, emf_limit_vpk), each (n,).
+    """
+    top = float(supply_v)
     grid = top * np.geomspace(_GRID_FLOOR, 1.0, _GRID)            # (k,)
     signed = np.concatenate([grid, -grid])                          # (2k,): + then −
     v_grid = np.full((n, 2 * _GRID), np.nan)

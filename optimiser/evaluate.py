@@ -399,6 +399,11 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
         z = metrics["zin_ohm"]
         rules.append(_Rule("target", "zin_ohm", ~(z >= lim),
                            lambda i, lim=lim: f"zin_ohm {_g(z[i])} < {lim:g}"))
+    if getattr(request, "zout_max_ohm", None) is not None:
+        lim = request.zout_max_ohm
+        zo = metrics["zout_ohm"]
+        rules.append(_Rule("target", "zout_ohm", ~(zo <= lim),
+                           lambda i, lim=lim: f"zout_ohm {_g(zo[i])} > {lim:g}"))
     if request.ic_drift_max_pct is not None:
         lim = request.ic_drift_max_pct
         rules.append(_Rule("target", "ic_drift_pct", ~(drift <= lim),

@@ -21,7 +21,8 @@ _TOPOLOGY_CHOICE = f"{', '.join(TOPOLOGIES[:-1])} or {TOPOLOGIES[-1]}"
 
 @dataclass(frozen=True)
 class Request:
-    topology: str
+    #: a single stage's name, a chain's two stage names, or "cascode"
+    topology: str | tuple[str, str]
     supply_v: float
     load_ohm: float | None = None          # None: open (no load)
     source_ohm: float = 0.0
@@ -43,12 +44,19 @@ class Request:
     yield_samples: int | None = None       # None: yield not asked for (unless min_yield_pct)
     seed: int = 0
     mains: bool = False                    # the supply is derived from the mains (cautions)
+    zout_max_ohm: float | None = None      # largest output impedance, ohm (analyse)
+    coupling: str | None = None            # a chain's coupling: "capacitor" or "direct"
     #: keys the file left out whose default (:data:`DEFAULTS`) was filled in
     assumed: tuple[str, ...] = ()
 
     @property
     def gain_db(self) -> float | None:
         return None if self.gain is None else 20.0 * math.log10(self.gain)
+
+    @property
+    def is_pair(self) -> bool:
+        """Two transistors: a chain of two stages or a cascode."""
+        return not isinstance(self.topology, str) or self.topology == PAIR_TOPOLOGY
 
     @property
     def wants_yield(self) -> bool:
@@ -63,6 +71,10 @@ class Request:
         d["temp_c"] = list(self.temp_c)
         d["gain_db"] = self.gain_db
         d["assumed"] = list(self.assumed)
+        if not isinstance(self.topology, str):
+            d["topology"] = list(self.topology)
+        if not self.is_pair:
+            del d["coupling"]
         return d
 
 
@@ -76,8 +88,14 @@ REQUEST_KEYS = (
     "topology", "supply_v", "load_ohm", "source_ohm", "mid_hz", "gain_db", "gain",
     "gain_tol_db", "f_low_max_hz", "f_high_min_hz", "zin_min_ohm", "ic_drift_max_pct",
     "temp_c", "input_vpk", "thd_max_pct", "ic_min_a", "builds", "transistor", "allow_combos",
-    "min_yield_pct", "yield_samples", "seed", "mains",
+    "min_yield_pct", "yield_samples", "seed", "mains", "zout_max_ohm", "coupling",
 )
+#: The two-transistor form named by a word (chains are named by a list of two stages).
+PAIR_TOPOLOGY = "cascode"
+#: Why ``design`` and ``plan`` refuse what only ``analyse`` reads.
+_SEARCH_SINGLE = ("the search designs single stages ({choice}); a two-transistor circuit "
+                  "(a chain or a cascode) with given values can be checked with "
+                  "`drawerfit analyse`")
 CIRCUIT_KEYS = ("parts", "tolerances")
 #: Targets a request file gets when it leaves them out, so that an unstated target
 #: never ranks a stage a bench would refuse (common practice: a stage distorting
@@ -119,7 +137,7 @@ def _header_line(text: str | None, table: str) -> int | None:
 
 def parse_request(mapping: dict, *, file: str | None = None, text: str | None = None,
                   extra_keys: tuple[str, ...] = CIRCUIT_KEYS,
-                  default_gain: bool = True) -> Request:
+                  default_gain: bool = True, pairs: bool = False) -> Request:
     """A :class:`Request` from a parsed TOML mapping, every value checked.
 
     Values may be numbers (SI) or text with SI prefixes (``"10k"``, ``"100e3"``,
@@ -130,7 +148,10 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     :data:`DEFAULTS` (and, with ``default_gain``, the gain of
     :data:`DEFAULT_GAIN_DB`: a request to design from, not a given circuit) the
     mapping leaves out are filled in and listed in
-    ``Request.assumed``.
+    ``Request.assumed``.  With ``pairs`` (a given circuit for ``analyse``) the
+    topology may also be two stages (``["ce", "cc"]``, with ``coupling``) or
+    ``"cascode"``, and ``zout_max_ohm`` is read; without it (a request to design)
+    both are refused with the reason.
     """
     from inventory import values as V
     from inventory.errors import ErrorList, InputError
@@ -189,9 +210,53 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
         if "topology" not in mapping:
             raise err("topology", f"missing required key 'topology' ({_TOPOLOGY_CHOICE})")
         topo = mapping["topology"]
-        if not isinstance(topo, str) or topo.strip().lower() not in TOPOLOGIES:
-            raise err("topology", f"unknown topology {topo!r}: use {_TOPOLOGY_CHOICE}")
-        kw["topology"] = topo.strip().lower()
+        pair = isinstance(topo, list) or (isinstance(topo, str)
+                                          and topo.strip().lower() == PAIR_TOPOLOGY)
+        if pair and not pairs:
+            raise err("topology", _SEARCH_SINGLE.format(choice=_TOPOLOGY_CHOICE))
+        if isinstance(topo, list):
+            names = [t.strip().lower() if isinstance(t, str) else t for t in topo]
+            if len(names) != 2 or any(t not in TOPOLOGIES for t in names):
+                raise err("topology", f"a chain is two stages, each {_TOPOLOGY_CHOICE}, "
+                                      f"e.g. [\"ce\", \"cc\"]; got {topo!r}")
+            kw["topology"] = tuple(names)
+        elif pair:
+            kw["topology"] = PAIR_TOPOLOGY
+        elif not isinstance(topo, str) or topo.strip().lower() not in TOPOLOGIES:
+            more = (f", two of them as a list (a chain) or \"{PAIR_TOPOLOGY}\"" if pairs
+                    else "")
+            raise err("topology", f"unknown topology {topo!r}: use {_TOPOLOGY_CHOICE}{more}")
+        else:
+            kw["topology"] = topo.strip().lower()
+    with collect():
+        if "coupling" in m and "topology" not in kw and pairs:
+            pass                            # the topology's own error says what is wrong
+        elif "coupling" in m:
+            c = m["coupling"]
+            if not pairs:
+                raise err("coupling", _SEARCH_SINGLE.format(choice=_TOPOLOGY_CHOICE))
+            if not isinstance(kw.get("topology", ()), tuple):
+                raise err("coupling", "coupling joins the two stages of a chain: give "
+                                      "topology as a list of two stages, e.g. [\"ce\", \"cc\"]")
+            choice = " or ".join(f'"{x}"' for x in _stages.PAIR_COUPLINGS)
+            if not isinstance(c, str) or c.strip().lower() not in _stages.PAIR_COUPLINGS:
+                raise err("coupling", f"unknown coupling {c!r}: use {choice}")
+            c = c.strip().lower()
+            try:
+                _stages.pair_form(kw["topology"], c)      # the form says which joins exist
+            except ValueError as e:
+                raise err("coupling", str(e)) from None
+            kw["coupling"] = c
+        elif isinstance(kw.get("topology"), tuple):
+            kw["coupling"] = "capacitor"
+    with collect():
+        if "zout_max_ohm" in m:
+            if not pairs:
+                raise err("zout_max_ohm", "zout_max_ohm is judged by `drawerfit analyse`; the "
+                                          "search does not use it: leave it out of a request "
+                                          "to design")
+            kw["zout_max_ohm"] = num("zout_max_ohm", m["zout_max_ohm"], lo=0, lo_open=True,
+                                     hi=MAX_OHM, reader=ohm)
     with collect():
         if "supply_v" not in mapping:
             raise err("supply_v", "missing required key 'supply_v' (the supply voltage)")
@@ -249,8 +314,8 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
             kw["input_vpk"] = num("input_vpk", m["input_vpk"], lo=0, lo_open=True,
                                   hi=kw.get("supply_v", MAX_SUPPLY_V), reader=volt)
     assumed = []
-    if ("gain_db" not in m and "gain" not in m
-            and default_gain and kw.get("topology") in DEFAULT_GAIN_DB):
+    if ("gain_db" not in m and "gain" not in m and default_gain
+            and isinstance(kw.get("topology"), str) and kw.get("topology") in DEFAULT_GAIN_DB):
         kw["gain"] = 10.0 ** (DEFAULT_GAIN_DB[kw["topology"]] / 20.0)
         assumed.append("gain_db")
     for key, lo, hi, reader in (("thd_max_pct", 0, 100, None), ("ic_min_a", 0, 1.0, amp)):

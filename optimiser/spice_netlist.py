@@ -28,7 +28,8 @@ from .design import Design
 from .device import device_from_transistor, spice_model_line
 from .request import Request
 
-__all__ = ["spice_netlist", "spice_number", "NODE_MEANING", "NO_LOAD_OHM", "RELTOL"]
+__all__ = ["spice_netlist", "pair_spice_netlist", "spice_number", "NODE_MEANING", "NO_LOAD_OHM",
+           "RELTOL"]
 
 #: What each node of a stage is, for the netlist's comments.
 NODE_MEANING = {
@@ -200,6 +201,91 @@ def spice_netlist(design: Design, request: Request, transistor) -> str:
     lines.append("*")
     lines += parts
     lines.append(spice_model_line(device_from_transistor(transistor), "Q"))
+    lines.append(f".options TEMP=25 TNOM=25 RELTOL={RELTOL:g}")
+    lines.append(".op")
+    lines.append(f".ac dec {GRID_PER_DECADE} {spice_number(F_MIN_HZ)} {spice_number(F_MAX_HZ)}")
+    lines.append(".end")
+    return "\n".join(lines) + "\n"
+
+
+def pair_spice_netlist(circuit, transistors) -> str:
+    """The SPICE deck of a two-transistor circuit (a chain or a cascode) as text.
+
+    ``circuit`` is a :class:`optimiser.circuit_file.PairCircuit`: its form gives where
+    every part sits (``WIRING``) and where the two transistors are; parts under their
+    role names (``RS1_RC``, ``C_COUPLE``: SPICE names carry no dot and begin with the
+    element's letter), one ``.model`` line
+    for each transistor type, then the same options and analyses as a single stage.
+    """
+    form = circuit.form
+    request = circuit.request
+    values = dict(circuit.values)
+    nodes = _Nodes()
+    for role, a, b in form.wiring:
+        if form.kind(role) == "resistor" and values.get(role, 0.0) == 0.0:
+            nodes.join(a, b)
+    if not request.source_ohm:
+        nodes.join("emf", "source")
+
+    def spice_node(n: str) -> str:
+        return nodes.spice(n).replace(".", "_")
+
+    labels = " and ".join(dict.fromkeys(t.label for t in transistors))
+    title = (f"drawerfit {form.name} circuit ({form.long_name}), transistors {labels}, "
+             f"supply {format_si(request.supply_v, 'V')}")
+    lines = [_comment(title.replace("→", "->")), "*"]
+    parts: list[str] = []
+    used: set[str] = set()
+
+    def element(name, a, b, value, note):
+        na, nb = spice_node(a), spice_node(b)
+        parts.append(f"* {_comment(note)}")
+        parts.append(f"{name} {na} {nb} {value}")
+        used.update((na, nb))
+
+    element("VSUPPLY", "supply", "ground", f"DC {spice_number(request.supply_v)}",
+            f"supply: {format_si(request.supply_v, 'V')}")
+    src = "DC 0 AC 1"
+    if request.input_vpk:
+        src += f" SIN(0 {spice_number(request.input_vpk)} {spice_number(request.mid_hz)})"
+    element("VSIGNAL", "emf", "ground", src, "signal source: AC 1 V for the response")
+    if request.source_ohm:
+        element("RSOURCE", "emf", "source", spice_number(request.source_ohm),
+                f"source resistance: {format_value(request.source_ohm, 'resistor')}")
+    for role, a, b in form.wiring:
+        v = values.get(role, 0.0)
+        if v == 0.0 or nodes.find(a) == nodes.find(b):
+            continue
+        kind = form.kind(role)
+        note = f"{role}: {format_value(v, kind)}"
+        letter = "R" if kind == "resistor" else "C"
+        name = role.replace(".", "_")
+        if "." in role or not name.startswith(letter):
+            name = letter + name                 # SPICE reads the kind from the first letter
+        element(name, a, b, spice_number(v), note)
+    load = request.load_ohm or NO_LOAD_OHM
+    element("RLOAD", "load", "ground", spice_number(load),
+            f"load: {format_value(request.load_ohm, 'resistor')}" if request.load_ohm
+            else f"no load: {spice_number(NO_LOAD_OHM)} ohm only gives the open output a "
+                 "DC path")
+    models = []
+    for stage, (b, e, c), t in zip(form.stages, form.devices, transistors, strict=True):
+        model = f"Q{stage}"
+        parts.append(f"* {stage}: {_comment(t.label)} (nominal hFE, 25 degC)")
+        parts.append(f"Q{stage} {spice_node(c)} {spice_node(b)} {spice_node(e)} {model}")
+        used.update(spice_node(x) for x in (b, e, c))
+        models.append(spice_model_line(device_from_transistor(t), model))
+    lines.append("* nodes (0 is ground):")
+    for n in sorted(used):
+        if n == "0":
+            continue
+        meaning = NODE_MEANING.get(n) or form.node_words.get(n.replace("_", ".", 1)) \
+            or form.node_words.get(n)
+        if meaning:
+            lines.append(f"*   {n}: {meaning}")
+    lines.append("*")
+    lines += parts
+    lines += models
     lines.append(f".options TEMP=25 TNOM=25 RELTOL={RELTOL:g}")
     lines.append(".op")
     lines.append(f".ac dec {GRID_PER_DECADE} {spice_number(F_MIN_HZ)} {spice_number(F_MAX_HZ)}")

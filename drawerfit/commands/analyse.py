@@ -1,4 +1,5 @@
-"""`drawerfit analyse CIRCUIT.toml`: every figure of one given stage."""
+"""`drawerfit analyse CIRCUIT.toml`: every figure of one given stage, or of two
+transistors (a chain of two stages or a cascode)."""
 
 from __future__ import annotations
 
@@ -24,13 +25,18 @@ def command(app, circuit: str, as_json: bool, sheet_dir: str | None = None,
 
     CIRCUIT is a TOML file with the request keys, a [parts] table (role = value, or
     "#id" for a stock item) and a [transistor] table (or transistor = "LABEL" from stock).
-    The store is opened only when the file refers to stock. The file's format:
-    docs/requests.md; the figures: docs/model.md.
+    Two transistors: topology = ["ce", "cc"] (a chain; coupling = "capacitor" or
+    "direct") or "cascode", parts as S1.RC, S2.RE, C_COUPLE, ... The store is opened
+    only when the file refers to stock. The file's format: docs/requests.md; the
+    figures: docs/model.md.
     """
-    from optimiser.circuit_file import load_circuit
+    from optimiser.circuit_file import PairCircuit, load_circuit
     from optimiser.evaluate import design_of, evaluate
 
     c = load_circuit(circuit, store=app.store)
+    if isinstance(c, PairCircuit):
+        _analyse_pair(c, as_json, sheet_dir, spice_file)
+        return
     batch = c.batch()
     ev = evaluate(c.request, batch, c.transistor, c.ratings)
     design = design_of(ev, 0, picks=_stock_picks(c), label=c.transistor.label)
@@ -93,3 +99,42 @@ def _stock_picks(c):
                       dielectric=None if is_r else getattr(part, "dielectric", None))
         picks[role] = RolePick(role, float(part.value), c.labels.get(role, ""), (piece,))
     return picks
+
+
+def _analyse_pair(c, as_json: bool, sheet_dir, spice_file) -> None:
+    """``analyse`` of a two-transistor circuit: figures, cautions, JSON, SPICE deck."""
+    from drawerfit.console import err, out
+    from inventory.errors import InputError
+    from optimiser.pair_evaluate import evaluate_pair
+    from optimiser.pair_report import pair_cautions, pair_report
+
+    if sheet_dir is not None:
+        raise InputError("the build sheet is drawn for single stages; for a two-transistor "
+                         "circuit use --json or --spice", field="--sheet")
+    ev = evaluate_pair(c.request, c.batch(), c.transistors, c.ratings)
+    notes = pair_cautions(ev, 0, c)
+    report = pair_report(ev, 0, c, notes)
+    if as_json:
+        emit_json({"request": c.request.to_json(), "design": report})
+    else:
+        from drawerfit.render.analysis import show_pair_analysis
+        from drawerfit.render.designs import assumed_line
+
+        show_pair_analysis(report, ev, c)
+        _show_cautions(notes)
+        line = assumed_line(c.request)
+        if line:
+            out.print(line)
+    if spice_file is not None:
+        from pathlib import Path
+
+        from optimiser.spice_netlist import pair_spice_netlist
+
+        path = Path(spice_file)
+        try:
+            path.write_text(pair_spice_netlist(c, c.transistors), encoding="utf-8")
+        except OSError as exc:
+            raise InputError(f"cannot write {path}: {exc.strerror or exc}",
+                             field="--spice") from None
+        (err if as_json else out).print(f"SPICE netlist written: {path}", markup=False,
+                                        highlight=False, soft_wrap=True)

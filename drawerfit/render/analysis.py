@@ -12,7 +12,8 @@ from drawerfit.console import out as _out
 from inventory.values import format_si
 from optimiser.stages import module as stage_module
 
-__all__ = ["show_analysis", "show_cautions", "drift_rows", "capacitor_table"]
+__all__ = ["show_analysis", "show_pair_analysis", "show_cautions", "drift_rows",
+           "capacitor_table"]
 
 _ROLE_KIND = {"R1": "resistor", "R2": "resistor", "RC": "resistor", "RE": "resistor",
               "RE_BYP": "resistor"}
@@ -169,3 +170,89 @@ def show_cautions(notes, console=None) -> None:
     """Print the cautions, most serious first, each in its severity's style."""
     for n in notes:
         (console or _out).print(caution_line(n))
+
+
+def show_pair_analysis(report: dict, ev, circuit, console=None) -> None:
+    """Print a two-transistor circuit: parts, both operating points, the DC voltages to
+    probe, the whole circuit's figures, each stage's drift, violations and warnings."""
+    out = console or _out
+    req = circuit.request
+    m = report["metrics"]
+    names = ", ".join(f"{s} {t}" for s, t in report["transistors"].items())
+    out.print(f"[bold]{escape(report['form'])}[/bold] on {format_si(req.supply_v, 'V')}, "
+              f"transistors {escape(names)}")
+
+    parts = Table(title="Parts", header_style="bold")
+    for h, j in (("role", "left"), ("value", "right"), ("tolerance", "right"), ("note", "left")):
+        parts.add_column(h, justify=j)
+    for role, p in report["parts"].items():
+        note = []
+        if p.get("plus"):
+            note.append(f"DC + side: {circuit.form.node_words.get(p['plus'], p['plus'])}")
+        if role in circuit.stock_ids:
+            note.append(f"stock #{circuit.stock_ids[role]}")
+        tol = circuit.tolerances.get(role)
+        parts.add_row(role, p["label"], f"{tol * 100:g} %" if tol is not None else "",
+                      ", ".join(note))
+    out.print(parts)
+
+    op = Table(title="Operating points (25 °C, nominal hFE)", header_style="bold")
+    for h in ("stage", "kind", "V_B", "V_E", "V_C", "I_C", "V_CE", "P_Q", "I_C drift"):
+        op.add_column(h, justify="right" if h not in ("stage", "kind") else "left")
+    for stage, st in report["stages"].items():
+        op.add_row(stage, st["kind"], _si(st["vb_v"], "V"), _si(st["ve_v"], "V"),
+                   _si(st["vc_v"], "V"), _si(st["ic_a"], "A"), _si(st["vce_v"], "V"),
+                   _si(st["pd_q_w"], "W"), f"{_num(st['ic_drift_pct'])} %")
+    out.print(op)
+
+    probe = Table(title="DC voltages to check with a meter (to ground)", header_style="bold")
+    probe.add_column("node")
+    probe.add_column("V", justify="right")
+    for node, v in report["nodes"].items():
+        probe.add_row(circuit.form.node_words.get(node, node), _si(v, "V"))
+    out.print(probe)
+
+    fig = Table(title="The whole circuit", header_style="bold")
+    fig.add_column("figure")
+    fig.add_column("value", justify="right")
+    has_fh = all(mo.has_ft and mo.has_cob for mo in ev.models)
+    for a, b in (
+        ("gain at mid_hz", f"{_num(m['gain'])} V/V  ({_num(m['gain_db'], '{:.2f}')} dB)"),
+        ("f_low (−3 dB)", _si(m["f_low_hz"], "Hz") if m["f_low_hz"] is not None
+         else "none in range"),
+        ("f_high (−3 dB)", _si(m["f_high_hz"], "Hz") if m["f_high_hz"] is not None else
+         ("none in range" if has_fh else "not computed (no ft/cob)")),
+        ("Zin", _si(m["zin_ohm"], "Ω")),
+        ("Zout", _si(m["zout_ohm"], "Ω")),
+        ("swing at the load", _si(m["swing_vpk"], "V") + " peak" if m["swing_vpk"] is not None
+         else "not reached"),
+        (f"THD at {format_si(req.input_vpk, 'V')} peak", f"{_num(m['thd_pct'])} %"),
+    ):
+        fig.add_row(a, b)
+    out.print(fig)
+
+    # a capacitor-coupled stage's corners depend on its own hFE only
+    joint = report["coupling"] != "capacitor"
+    stages = list(report["stages"])
+    for stage, st in report["stages"].items():
+        ct = Table(title=f"Drift corners of {stage}", header_style="bold")
+        shown = stages if joint else [stage]
+        for h in [f"hFE of {s} (25 °C)" for s in shown] + ["T", "I_C", "V_CE"]:
+            ct.add_column(h, justify="right")
+        seen = set()
+        for j, row in enumerate(st["drift"]):
+            betas = [float(ev.corners[stages.index(s)]["beta25"][0, j]) for s in shown]
+            key = (*betas, float(row["temp_c"]))
+            if key in seen:
+                continue
+            seen.add(key)
+            ct.add_row(*[_num(b, "{:.0f}") for b in betas], f"{row['temp_c']:g} °C",
+                       _si(row["ic_a"], "A"), _si(row["vce_v"], "V"))
+        out.print(ct)
+
+    if report["meets_spec"]:
+        out.print("[green]Valid, and meets every target given.[/green]")
+    for v in report["violations"]:
+        out.print(f"[red]✗[/red] {escape(v)}")
+    for w in report["warnings"]:
+        out.print(f"[{SEVERITY_STYLE['note']}]note:[/] {escape(w)}")

@@ -38,7 +38,7 @@ class Element:
 
 @dataclass(frozen=True)
 class Network:
-    """Small-signal netlist of ``n`` stages of one topology (transistor aside)."""
+    """Small-signal netlist of ``n`` circuits of one form (transistors aside)."""
 
     nodes: tuple[str, ...]
     elements: tuple[Element, ...]
@@ -49,6 +49,14 @@ class Network:
     output: str                # node the load branch (C_OUT + R_L) hangs from
     c_in: np.ndarray = field(repr=False, default=None)
     c_out: np.ndarray = field(repr=False, default=None)
+    #: every transistor as (base, emitter, collector) nodes; ``None``: the one
+    #: transistor of ``base``, ``emitter``, ``collector`` (a single stage)
+    devices: tuple[tuple[str, str, str], ...] | None = None
+
+    @property
+    def transistors(self) -> tuple[tuple[str, str, str], ...]:
+        """(base, emitter, collector) of each transistor, in the order of their SmallSignals."""
+        return self.devices or ((self.base, self.emitter, self.collector),)
 
 
 def resistor_voltages(batch: StageBatch, supply_v: float, op) -> dict[str, np.ndarray]:
