@@ -197,10 +197,12 @@ def show_pair_analysis(report: dict, ev, circuit, console=None) -> None:
     out.print(parts)
 
     op = Table(title="Operating points (25 °C, nominal hFE)", header_style="bold")
-    for h in ("stage", "kind", "V_B", "V_E", "V_C", "I_C", "V_CE", "P_Q", "I_C drift"):
-        op.add_column(h, justify="right" if h not in ("stage", "kind") else "left")
+    op.add_column("stage", no_wrap=True)
+    for h in ("V_B", "V_E", "V_C", "I_C", "V_CE", "P_Q", "I_C drift"):
+        # a figure is never broken over two lines; a long header wraps instead
+        op.add_column(h, justify="right", no_wrap=h != "I_C drift")
     for stage, st in report["stages"].items():
-        op.add_row(stage, st["kind"], _si(st["vb_v"], "V"), _si(st["ve_v"], "V"),
+        op.add_row(f"{stage} {st['kind']}", _si(st["vb_v"], "V"), _si(st["ve_v"], "V"),
                    _si(st["vc_v"], "V"), _si(st["ic_a"], "A"), _si(st["vce_v"], "V"),
                    _si(st["pd_q_w"], "W"), f"{_num(st['ic_drift_pct'])} %")
     out.print(op)
