@@ -300,3 +300,22 @@ def test_infeasible_answer_names_the_floor_of_the_capacitors_in_stock():
 def replace_f(req, f):
     from dataclasses import replace
     return replace(req, f_low_max_hz=f)
+
+
+@pytest.mark.parametrize("topo", ["ce", "cb", "cc"])
+@pytest.mark.parametrize("lim, mid", [(3.0, 1e3), (20.0, 1e3), (300.0, 1e5)])
+def test_f_low_missed_is_the_engines_verdict(topo, lim, mid):
+    # the confirmation's screen (grid points first, the edge search for the rest)
+    # says "missed" exactly where the engine's f_low exceeds f_low_max_hz
+    from optimiser.search.confirm import f_low_missed
+
+    rng = np.random.default_rng(zlib.crc32(repr(("missed", topo, lim, mid)).encode()))
+    b = _stages(topo, rng, 600)
+    req = Request(topology=topo, supply_v=12.0, load_ohm=1e4, source_ohm=600.0, mid_hz=mid,
+                  f_low_max_hz=lim)
+    ev = evaluate(req, b, T, None, band_edges=True, large_signal=False, corner_gain=False)
+    f_low = np.asarray(ev.metrics["f_low_hz"], dtype=float)
+    want = np.isfinite(f_low) & (f_low > lim)
+    got = f_low_missed(req, b, T)
+    assert 20 < want.sum() < b.n - 20           # both verdicts occur
+    assert np.array_equal(got, want)
