@@ -33,6 +33,15 @@ gain_db = 50
 """
 
 
+@pytest.fixture(autouse=True)
+def whole_suggestions(monkeypatch):
+    """These tests check what the suggestions say, not how long they take: on a busy
+    machine the answer's clock (EXPLAIN_BUDGET_S) would leave searches out."""
+    import optimiser.search.suggestions as sg
+
+    monkeypatch.setattr(sg, "EXPLAIN_BUDGET_S", 10.0)
+
+
 @pytest.fixture
 def store(tmp_path):
     db = tmp_path / "s.sqlite"
