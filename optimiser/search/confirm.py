@@ -192,6 +192,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                 fk = set(ev.failed_keys(j))
                 if fk - UP_KEYS - {"zin_ohm"}:
                     pool.append(("full", sk, li[[a]], first[a]))
+                    _pool_design(request, opts, sk, li[a], rows[a], allocs[a], vec[a], st_all[a],
+                                 first[a], croles, t_empty, stats, pool)
                     continue            # fails on something capacitors cannot change
             if bool(ev.meets[j]):
                 calloc = _alloc_caps(opts, croles, vec[a], st_all[a])
@@ -200,6 +202,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                     continue
             if rnd == 3 and not bool(ev.meets[j]):
                 pool.append(("full", sk, li[[a]], ev.take(np.array([j]))))
+                _pool_design(request, opts, sk, li[a], rows[a], allocs[a], vec[a], st_all[a],
+                             ev.take(np.array([j])), croles, t_empty, stats, pool)
                 if not _cap_helpable(ev, j, request):
                     continue
             still.append(a)
@@ -349,6 +353,28 @@ def _top_screen(request, opts, part: Skeletons, croles, need, top_vec, stats):
     stats["pruned"]["f_low_largest_caps"] = (stats["pruned"].get("f_low_largest_caps", 0)
                                             + len(drop))
     return np.array([a for a in range(k_n) if a not in drop], dtype=int)
+
+
+#: How many of the designs the confirmation evaluated and rejected are kept, as
+#: stock designs, for the nearest misses of an infeasible answer (the first ones
+#: met: the branch and bound confirms the best-bounded skeletons first).
+POOL_DESIGNS = 40
+
+
+def _pool_design(request, opts, sk, i, row, alloc, vec, st, ev_one, croles, t_empty, stats,
+                 pool) -> None:
+    """Keep a rejected skeleton with the capacitors it was evaluated with as a stock
+    design (``("design", Design)`` in ``pool``), up to :data:`POOL_DESIGNS`: the
+    nearest misses start from what the search itself saw.  Its verdict is the
+    caller's to give again (:func:`optimiser.search.suggestions.explain` judges it)."""
+    if stats.get("pool_designs", 0) >= POOL_DESIGNS:
+        return
+    calloc = _alloc_caps(opts, croles, vec, st)
+    if calloc is None:
+        return
+    stats["pool_designs"] = stats.get("pool_designs", 0) + 1
+    pool.append(("design", _make_design(request, sk, int(i), row, alloc, calloc, ev_one, None,
+                                        croles, t_empty)))
 
 
 def _eval_vectors(request, opts, part: Skeletons, croles, vecs, large_signal=False):

@@ -12,7 +12,9 @@
   nearest the original target is named; a nearer one is not ruled out, except
   where a completed search proved that none exists within a window (the gain
   steps say so).
-* **Nearest misses.**  The designs of those searches and of one search with
+* **Nearest misses.**  The stock designs the proof's confirmation evaluated and
+  rejected (:func:`optimiser.search.confirm._pool_design`, in ``pool``), and the
+  designs of those searches and of one search with
   every target loosened (gain window + 6 dB, no other target; validity rules
   stay), judged against the *original* request.  Only real designs whose pieces
   the stock supplies for ``builds`` copies are kept; they are ordered by the
@@ -335,6 +337,9 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
         stats["f_low_floor"] = note[1]
         first.append(note[0])
     clock = _Clock(EXPLAIN_BUDGET_S)
+    # what the proof itself evaluated and rejected: stock designs, judged below with
+    # the rest (the searches after it may add nearer ones)
+    candidates += [p[1] for p in pool or () if p[0] == "design"]
     # the nearest misses first (what the answer shows), with a share of the clock
     if not any(x["target"] == "gain_db" for x in limits):
         s2: dict = {"pruned": {}}
