@@ -95,6 +95,8 @@ __all__ = [
     "bypass_load_needed",
     "cb_emitter_impedance_max",
     "CB_EMITTER_MARGIN",
+    "drawer_f_low_floor",
+    "capacitance_needed",
 ]
 
 
@@ -239,3 +241,40 @@ def cb_emitter_impedance_max(ic_lo, ic_hi, z_load_max, vaf: float, vt: float):
     with np.errstate(divide="ignore", invalid="ignore"):
         z = vt / ic_lo * (1.0 + np.asarray(z_load_max, dtype=float) / ro) * CB_EMITTER_MARGIN
     return np.where(ic_lo > 0, np.nan_to_num(z, nan=np.inf), np.inf)
+
+
+def drawer_f_low_floor(topology: str, c_max: float, r_max: float, emitter_roles: int,
+                       mid_hz: float, source_ohm: float, load_ohm: float | None,
+                       slack_db: float = FLAT_PASSBAND_DB) -> dict:
+    """Over every stage of ``topology`` whose resistors are at most ``r_max`` (ohm;
+    twice the largest stocked value where two may be joined in series) and whose
+    capacitors are at most ``c_max`` (F): f_low ≥ ``floor_hz``.
+
+    The node bounds of the module at their largest: R1‖R2 ≤ r_max/2 (ce, cc),
+    an emitter total of ``emitter_roles`` resistors ≤ emitter_roles·r_max
+    (RE + RE_BYP: cb's input, cc's output), RC ≤ r_max (ce, cb output).  Each
+    design's f_low is at least its C_IN floor and at least its C_OUT floor, and
+    each of those falls as its loop resistance grows (:func:`edge_floor_hz`), so the
+    floors at the largest loops bound every design.  Returns ``{"floor_hz",
+    "input_loop_ohm", "output_loop_ohm", "input_floor_hz", "output_floor_hz"}``
+    (an infinite output loop without a load).
+    """
+    re_tot = emitter_roles * r_max
+    rin = float(input_loop_max(topology, source_ohm, rth=r_max / 2.0, re_total=re_tot))
+    rout = float(output_loop_max(topology, load_ohm, rc=r_max, re_total=re_tot))
+    fin = float(edge_floor_hz(c_max, rin, mid_hz, slack_db)) if c_max > 0 else 0.0
+    fout = float(edge_floor_hz(c_max, rout, mid_hz, slack_db)) if c_max > 0 else 0.0
+    return {"floor_hz": max(fin, fout), "input_loop_ohm": rin, "output_loop_ohm": rout,
+            "input_floor_hz": fin, "output_floor_hz": fout}
+
+
+def capacitance_needed(f_low_max: float, loop_ohm: float, mid_hz: float,
+                       slack_db: float = FLAT_PASSBAND_DB) -> float:
+    """The least coupling capacitance (F) for which :func:`edge_floor_hz` in a loop
+    of at most ``loop_ohm`` stays at or below ``f_low_max``: a smaller capacitor in
+    that loop cannot reach f_low_max (a necessary value, not a sufficient one).
+    The floor depends on R·C only, so this is :func:`loop_resistance_needed` for
+    1 F divided by the loop; 0 where nothing is excluded, inf without a loop."""
+    if not (loop_ohm > 0) or not math.isfinite(loop_ohm):
+        return 0.0 if not math.isfinite(loop_ohm) else math.inf
+    return loop_resistance_needed(f_low_max, 1.0, mid_hz, slack_db) / loop_ohm

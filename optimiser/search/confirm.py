@@ -11,7 +11,10 @@ from dataclasses import replace
 import numpy as np
 
 from inventory.parts import StockSnapshot
+from optimiser import ac
+from optimiser.dc import operating_point
 from optimiser.design import Design
+from optimiser.device import device_from_transistor
 from optimiser.evaluate import evaluate
 from optimiser.options import CAPACITOR_DERATING, StockOptions
 from optimiser.request import Request
@@ -168,7 +171,7 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                         for a in range(k_n)])
     accepted: dict[int, tuple] = {}
     first: dict[int, object] = {}
-    pending = np.arange(k_n)
+    pending = _top_screen(request, opts, part, croles, need, top_vec, stats)
     for rnd in range(4):
         if pending.size == 0:
             break
@@ -189,6 +192,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                 fk = set(ev.failed_keys(j))
                 if fk - UP_KEYS - {"zin_ohm"}:
                     pool.append(("full", sk, li[[a]], first[a]))
+                    _pool_design(request, opts, sk, li[a], rows[a], allocs[a], vec[a], st_all[a],
+                                 first[a], croles, t_empty, stats, pool)
                     continue            # fails on something capacitors cannot change
             if bool(ev.meets[j]):
                 calloc = _alloc_caps(opts, croles, vec[a], st_all[a])
@@ -197,6 +202,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                     continue
             if rnd == 3 and not bool(ev.meets[j]):
                 pool.append(("full", sk, li[[a]], ev.take(np.array([j]))))
+                _pool_design(request, opts, sk, li[a], rows[a], allocs[a], vec[a], st_all[a],
+                             ev.take(np.array([j])), croles, t_empty, stats, pool)
                 if not _cap_helpable(ev, j, request):
                     continue
             still.append(a)
@@ -244,6 +251,130 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
         out.append(_make_design(request, sk, int(li[a]), rows[a], allocs[a], accepted[a][2],
                                 evf.take(np.array([j])), first.get(a), croles, t_empty))
     return out
+
+
+def f_low_missed(request: Request, batch: StageBatch, transistor) -> np.ndarray:
+    """True where the engine's f_low of these stages lies above ``f_low_max_hz``; (n,) bool.
+
+    The engine's own figure (:func:`optimiser.ac.band_edges` against the midband gain,
+    at the nominal operating point, as :func:`optimiser.evaluate.evaluate` takes it),
+    without the upper edge, the corners and the rules.  The engine takes as f_low a
+    root between the largest grid point below mid_hz where |H| is under
+    |H(mid)|·10^(−EDGE_DB/20) and the next one; so where some grid point above
+    f_low_max_hz (and below mid_hz) is under that line, f_low lies above it, and
+    only the stages this leaves open get the full edge search.
+    """
+    model = device_from_transistor(transistor)
+    lim = float(request.f_low_max_hz)
+
+    def solve(b):
+        op = operating_point(b.topology, request.supply_v, b, model)
+        ss = ac.small_signal(op, model)
+        h_mid = np.abs(ac.midband(request, b, model, op, ss, want_zout=False)["h"])
+        return op, ss, h_mid
+
+    op, ss, h_mid = solve(batch)
+    grid = ac.edge_grid(request.mid_hz)
+    pts = grid[(grid > lim * (1 + 1e-9)) & (grid < request.mid_hz)]
+    missed = np.zeros(batch.n, dtype=bool)
+    if pts.size:
+        h = np.abs(ac.frequency_response(request, batch, model, op, pts, ss))
+        missed = (h < (h_mid * 10.0 ** (-ac.EDGE_DB / 20.0))[None, :]).any(axis=0)
+    rest = np.flatnonzero(~missed)
+    if rest.size:
+        sub = batch.take(rest)
+        op, ss, h_mid = solve(sub)
+        f_low, _, _ = ac.band_edges(request, sub, model, op, h_mid, ss, want_high=False)
+        missed[rest] = np.isfinite(f_low) & (f_low > lim)
+    return missed
+
+
+#: Skeletons the confirmation's screen (:func:`_top_screen`) must have dropped before
+#: every later skeleton of the search is screened the same way ahead of its quick
+#: evaluation (:func:`f_low_prescreen`): where f_low_max is not what stops them, the
+#: screen would only add its cost.  Either way the screen is exact (A1).
+PRESCREEN_AFTER = 10
+
+
+def prescreen_active(request, stats) -> bool:
+    """Whether :func:`f_low_prescreen` is in effect in this search: f_low_max_hz is
+    set and the confirmation's screen has dropped :data:`PRESCREEN_AFTER` skeletons."""
+    return (request.f_low_max_hz is not None
+            and stats["pruned"].get("f_low_largest_caps", 0) >= PRESCREEN_AFTER)
+
+
+def f_low_prescreen(request, opts, part: Skeletons, stats) -> np.ndarray:
+    """Mask of the skeletons ``part`` to keep: while :func:`prescreen_active`, each
+    skeleton is checked before its quick evaluation with every capacitor at the
+    largest value in stock (rating aside: a larger capacitor never raises f_low,
+    A1) by :func:`f_low_missed`; those that miss are dropped."""
+    keep = np.ones(part.n, dtype=bool)
+    if part.n == 0 or opts.capacitor.values.size == 0 or not prescreen_active(request, stats):
+        return keep
+    c_max = float(np.max(opts.capacitor.values))
+    caps = {r: np.full(part.n, c_max) for r in cap_roles(part.topology, part.form)}
+    missed = f_low_missed(request, part.batch(caps), part.transistor)
+    stats["pruned"]["f_low_largest_caps"] = (stats["pruned"].get("f_low_largest_caps", 0)
+                                            + int(missed.sum()))
+    return ~missed
+
+
+def prescreen_backlog(request, opts, picks, stats) -> np.ndarray:
+    """Mask of the queued skeletons ``picks`` ((Skeletons, index) pairs, queued
+    before :func:`f_low_prescreen` took effect) to keep, one call per skeleton set."""
+    keep = np.ones(len(picks), dtype=bool)
+    by: dict[int, list[int]] = {}
+    for k, (sk, _) in enumerate(picks):
+        by.setdefault(id(sk), []).append(k)
+    for ks in by.values():
+        sk = picks[ks[0]][0]
+        keep[ks] = f_low_prescreen(request, opts, sk.take(np.array([picks[k][1] for k in ks])),
+                                   stats)
+    return keep
+
+
+def _top_screen(request, opts, part: Skeletons, croles, need, top_vec, stats):
+    """The skeletons worth the rounds of capacitor choice: with f_low_max_hz, those
+    whose first-order estimate asks more than the largest capacitor allowed in
+    some role are first checked with every capacitor at its largest allowed value
+    (:func:`f_low_missed`); by assumption A1 a skeleton that misses f_low_max there
+    misses it with every choice, and is dropped without the rounds."""
+    k_n = part.n
+    if request.f_low_max_hz is None or k_n == 0:
+        return np.arange(k_n)
+    cv = opts.capacitor.values
+    short = np.flatnonzero((need > cv[top_vec] * (1 + 1e-9)).any(axis=1))
+    if short.size == 0:
+        return np.arange(k_n)
+    caps = {r: cv[top_vec[short, k]] for k, r in enumerate(croles)}
+    missed = f_low_missed(request, part.take(short).batch(caps), part.transistor)
+    drop = set(short[missed].tolist())
+    stats["f_low_screened"] = stats.get("f_low_screened", 0) + short.size
+    stats["pruned"]["f_low_largest_caps"] = (stats["pruned"].get("f_low_largest_caps", 0)
+                                            + len(drop))
+    return np.array([a for a in range(k_n) if a not in drop], dtype=int)
+
+
+#: How many of the designs the confirmation evaluated and rejected are kept, as
+#: stock designs, for the nearest misses of an infeasible answer (the first ones
+#: met: the branch and bound confirms the best-bounded skeletons first).
+POOL_DESIGNS = 40
+
+
+def _pool_design(request, opts, sk, i, row, alloc, vec, st, ev_one, croles, t_empty, stats,
+                 pool) -> None:
+    """Keep a rejected skeleton with the capacitors it was evaluated with as a stock
+    design (``("design", Design)`` in ``pool``), up to :data:`POOL_DESIGNS`: the
+    nearest misses start from what the search itself saw.  Its verdict is the
+    caller's to give again (:func:`optimiser.search.suggestions.explain` judges it)."""
+    if stats.get("pool_designs", 0) >= POOL_DESIGNS:
+        return
+    calloc = _alloc_caps(opts, croles, vec, st)
+    if calloc is None:
+        return
+    stats["pool_designs"] = stats.get("pool_designs", 0) + 1
+    pool.append(("design", _make_design(request, sk, int(i), row, alloc, calloc, ev_one, None,
+                                        croles, t_empty)))
 
 
 def _eval_vectors(request, opts, part: Skeletons, croles, vecs, large_signal=False):

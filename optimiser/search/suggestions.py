@@ -12,11 +12,19 @@
   nearest the original target is named; a nearer one is not ruled out, except
   where a completed search proved that none exists within a window (the gain
   steps say so).
-* **Nearest misses.**  The designs of those searches and of one search with
+* **Nearest misses.**  The stock designs the proof's confirmation evaluated and
+  rejected (:func:`optimiser.search.confirm._pool_design`, in ``pool``), and the
+  designs of those searches and of one search with
   every target loosened (gain window + 6 dB, no other target; validity rules
   stay), judged against the *original* request.  Only real designs whose pieces
   the stock supplies for ``builds`` copies are kept; they are ordered by the
   number of targets they miss, then by their distance (:func:`miss_distance`).
+* **What the capacitors in stock allow.**  With an f_low target, the floor every
+  stage of the drawer obeys (:func:`optimiser.f_low_bounds.drawer_f_low_floor`: the
+  largest capacitor in stock against the largest loop resistance a stage can
+  give it); when it lies above the target, the answer says so and names the
+  least C_IN and C_OUT the target needs (necessary values, not sufficient ones).
+  Closed form, no search: it comes first and costs no time.
 * **Buy one value.**  The search is run on the drawer plus every E12 resistor
   and E6 capacitor within (a little beyond) the span of values the drawer holds
   (at most 10 Ω–1 MΩ, 10 pF–1000 µF) as rows "to order"; a design meeting the
@@ -36,12 +44,14 @@ from inventory.parts import Capacitor, Resistor, StockSnapshot
 from inventory.values import format_si, format_value, series_values
 from optimiser.design import Design
 from optimiser.evaluate import evaluate
+from optimiser.f_low_bounds import capacitance_needed, drawer_f_low_floor
 from optimiser.request import Request
 from optimiser.search.tree import search_designs
 from optimiser.stage import StageBatch
+from optimiser.stages import module as stage_module
 
 __all__ = ["explain", "miss_distance", "relaxed", "stock_shortfall", "miss_order", "TARGETS",
-           "MISS_BUDGET_S", "BUY_BUDGET_S", "RELAX_BUDGET_S", "EXPLAIN_BUDGET_S", "GAIN_STEPS_DB"]
+           "MISS_BUDGET_S", "BUY_BUDGET_S", "RELAX_BUDGET_S", "EXPLAIN_BUDGET_S", "GAIN_STEPS_DB", "f_low_floor_note"]
 
 #: Time budgets (s) of the suggestion searches; a budget only shortens the list of
 #: suggestions (and a search stopped by it proves no "none within").
@@ -52,7 +62,7 @@ RELAX_BUDGET_S = 10.0
 #: are skipped and named in the answer.  Trades how much advice an infeasible answer
 #: carries against how long the user waits for it; the proof of infeasibility itself
 #: is not bounded by it.
-EXPLAIN_BUDGET_S = 8.0
+EXPLAIN_BUDGET_S = 2.0
 #: Share of EXPLAIN_BUDGET_S the nearest-miss search may take first (the misses are
 #: what an infeasible answer shows; the relaxations and the bought value share the rest).
 MISS_SHARE = 0.4
@@ -141,30 +151,42 @@ def stock_shortfall(design: Design, snapshot: StockSnapshot, builds: int) -> lis
 
 def _judge(request: Request, designs: list[Design], snapshot: StockSnapshot) -> list[Design]:
     """Re-evaluate real stock designs against ``request``; misses get violations and a
-    distance.  Designs the stock cannot supply are dropped."""
-    out = []
+    distance.  Designs the stock cannot supply are dropped.  One engine call per
+    transistor and topology (a role a design lacks is 0, as the engine reads it)."""
+    kept = []
     seen = set()
     for d in designs:
         key = (d.transistor, d.form, tuple(sorted((r, p.value) for r, p in d.parts.items())))
         if key in seen or stock_shortfall(d, snapshot, request.builds):
             continue
         seen.add(key)
-        t = snapshot.transistor(d.transistor)
-        vals = {r: p.value for r, p in d.parts.items()}
-        ev = evaluate(request, StageBatch.from_values(d.topology, **vals), t, None)
-        m = ev.metrics_of(0)
-        for k in ("gain_inf_db", "hd2_pct", "supply_a"):
-            if k in d.metrics:
-                m[k] = d.metrics[k]
-        viol = ev.violations(0)
-        if not viol:
-            continue
-        dist = miss_distance(request, m, bool(ev.valid[0]))
-        out.append(replace(d, metrics=m, meets_spec=False, violations=viol, rank=None,
-                           extra={**d.extra, "miss_distance": dist,
-                                  "shortfalls": _shortfalls(request, m)}))
-    out.sort(key=miss_order)
-    return out
+        kept.append(d)
+    groups: dict[tuple, list[int]] = {}
+    for k, d in enumerate(kept):
+        groups.setdefault((d.transistor, d.topology), []).append(k)
+    out = []
+    for (label, topo), idx in groups.items():
+        ds = [kept[k] for k in idx]
+        roles = sorted({r for d in ds for r in d.values()})
+        vals = {r: [d.values().get(r, 0.0) for d in ds] for r in roles}
+        ev = evaluate(request, StageBatch.from_values(topo, **vals),
+                      snapshot.transistor(label), None)
+        for j, d in enumerate(ds):
+            m = ev.metrics_of(j)
+            for k in ("gain_inf_db", "hd2_pct", "supply_a"):
+                if k in d.metrics:
+                    m[k] = d.metrics[k]
+            viol = ev.violations(j)
+            if not viol:
+                continue
+            dist = miss_distance(request, m, bool(ev.valid[j]))
+            out.append((idx[j], replace(d, metrics=m, meets_spec=False, violations=viol,
+                                        rank=None, extra={**d.extra, "miss_distance": dist,
+                                                          "shortfalls": _shortfalls(request, m)})))
+    out.sort(key=lambda x: x[0])            # the order of ``designs`` among equals
+    res = [d for _, d in out]
+    res.sort(key=miss_order)
+    return res
 
 
 def _fmt(x: float, unit: str) -> str:
@@ -309,7 +331,15 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
                     f"{best:g} V): lower supply_v to {best:g} V or buy a higher-voltage type"], []
     candidates: list[Design] = []
     changes: list[dict] = []
+    first: list[str] = []
+    note = f_low_floor_note(request, snapshot)
+    if note is not None:
+        stats["f_low_floor"] = note[1]
+        first.append(note[0])
     clock = _Clock(EXPLAIN_BUDGET_S)
+    # what the proof itself evaluated and rejected: stock designs, judged below with
+    # the rest (the searches after it may add nearer ones)
+    candidates += [p[1] for p in pool or () if p[0] == "design"]
     # the nearest misses first (what the answer shows), with a share of the clock
     if not any(x["target"] == "gain_db" for x in limits):
         s2: dict = {"pruned": {}}
@@ -336,7 +366,7 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
     nearest = judged[:misses]
     for r, d in enumerate(nearest, 1):
         d.rank = r
-    unlock = [unlock_text(request, c) for c in changes]
+    unlock = first + [unlock_text(request, c) for c in changes]
     # one value bought (a topology's gain limit no part can lift)
     if not any(x["target"] == "gain_db" for x in limits):
         budget = clock.budget(BUY_BUDGET_S, "one bought value")
@@ -345,7 +375,7 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
                 unlock += _buy_one(request, snapshot, budget)
             except Exception as exc:  # a suggestion only; never fail the answer for it
                 stats["buy_one_error"] = str(exc)
-    if not unlock:
+    if len(unlock) == len(first):
         unlock.append("no single relaxed target or single bought value found within the "
                       "searches' time budgets; see the nearest misses")
     if clock.skipped:
@@ -353,6 +383,38 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
         unlock.append(f"not examined within the {EXPLAIN_BUDGET_S:g} s given to suggestions: "
                       + ", ".join(clock.skipped))
     return nearest, unlock, changes
+
+
+def f_low_floor_note(request: Request, snapshot: StockSnapshot) -> tuple[str, dict] | None:
+    """(line, figures) when no stage of this drawer can reach ``f_low_max_hz``
+    because of the capacitors in stock (:func:`drawer_f_low_floor` above the target),
+    else None.  The line names the least C_IN and C_OUT the target needs."""
+    r = request
+    if r.f_low_max_hz is None:
+        return None
+    caps = [c.value for c in snapshot.capacitors if c.qty >= r.builds and c.value > 0]
+    res = [x.value for x in snapshot.resistors if x.qty > 0 and x.value > 0]
+    if not caps or not res:
+        return None
+    c_max = max(caps)
+    r_max = max(res) * (2.0 if r.allow_combos else 1.0)
+    roles = stage_module(r.topology).ROLE_NAMES
+    fl = drawer_f_low_floor(r.topology, c_max, r_max, sum(x in roles for x in ("RE", "RE_BYP")),
+                            r.mid_hz, r.source_ohm, r.load_ohm)
+    if not fl["floor_hz"] > r.f_low_max_hz:
+        return None
+    need = {"C_IN": capacitance_needed(r.f_low_max_hz, fl["input_loop_ohm"], r.mid_hz),
+            "C_OUT": capacitance_needed(r.f_low_max_hz, fl["output_loop_ohm"], r.mid_hz)}
+    short = [f"{role} at least {format_si(_outward(v, 'max'), 'F')}" for role, v in need.items()
+             if v > c_max * (1 + 1e-9)]
+    loops = f"{format_si(_outward(fl['input_loop_ohm'], 'max'), 'Ω')} at the input"
+    if math.isfinite(fl["output_loop_ohm"]):
+        loops += f" and {format_si(_outward(fl['output_loop_ohm'], 'max'), 'Ω')} at the output"
+    text = (f"f_low cannot fall below {format_si(_outward(fl['floor_hz'], 'min'), 'Hz')} with "
+            f"the capacitors in stock (the largest, {format_si(c_max, 'F')}, against at most "
+            f"{loops}); {_fmt(r.f_low_max_hz, 'Hz')} needs " + " and ".join(short)
+            + " (necessary, not sufficient)")
+    return text, {**fl, "c_max_f": c_max, "needed_f": need}
 
 
 def _virtual(snapshot: StockSnapshot) -> StockSnapshot:

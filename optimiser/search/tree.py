@@ -29,6 +29,9 @@ from optimiser.search.confirm import (
     _confirm_group,
     _evaluate,
     _large_signal,
+    f_low_prescreen,
+    prescreen_active,
+    prescreen_backlog,
 )
 from optimiser.search.job import _Job
 from optimiser.search.limits import gain_window
@@ -272,6 +275,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
     stats.setdefault("drift_checked", 0)
     stats.setdefault("quick_evaluations", 0)
     steps = 0
+    backlog_screened = False
     t_start = time.perf_counter()
     while any(heaps.values()):
         if budget_s is not None and time.perf_counter() - t_start > budget_s:
@@ -352,7 +356,9 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             if request.ic_drift_max_pct is not None:
                 ok &= drift <= request.ic_drift_max_pct
             lb15 = skeleton_bound(request, sk.gdb, drift, sk.hd2, sk.supply, op.vce, sk.stock_lb)
-            for i in np.flatnonzero(ok & (lb15 < kth)):
+            live = np.flatnonzero(ok & (lb15 < kth))
+            live = live[f_low_prescreen(request, opts, sk.take(live), stats)]
+            for i in live:
                 push(Entry(float(lb15[i]), next(seq), "skel",
                            SkeletonPick(sk, int(i), {"drift_pct": float(drift[i]),
                                                      "gain_inf_db": float(sk.gdb[i]),
@@ -392,6 +398,13 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                         known.add(_design_key(d))
                         found.append(d)
             found.sort(key=_rank_key)
+            if not backlog_screened and prescreen_active(request, stats):
+                # the f_low screen took effect: the skeletons queued before it, at once
+                backlog_screened = True
+                keep = prescreen_backlog(request, opts, [(e.payload.skeletons, e.payload.index)
+                                                         for e in heaps["skel"]], stats)
+                heaps["skel"] = [e for e, k in zip(heaps["skel"], keep, strict=True) if k]
+                heapq.heapify(heaps["skel"])
     if shared is not None:      # what this process leaves open, for the others' status
         shared.low[k_part] = min(smallest(), cap)
     stats["heap_steps"] = stats.get("heap_steps", 0) + steps

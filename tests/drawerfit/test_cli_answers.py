@@ -33,6 +33,15 @@ gain_db = 50
 """
 
 
+@pytest.fixture(autouse=True)
+def whole_suggestions(monkeypatch):
+    """These tests check what the suggestions say, not how long they take: on a busy
+    machine the answer's clock (EXPLAIN_BUDGET_S) would leave searches out."""
+    import optimiser.search.suggestions as sg
+
+    monkeypatch.setattr(sg, "EXPLAIN_BUDGET_S", 10.0)
+
+
 @pytest.fixture
 def store(tmp_path):
     db = tmp_path / "s.sqlite"
@@ -254,3 +263,21 @@ def test_suggestions_share_one_clock_and_name_what_they_left_out(store, tmp_path
     left_out = [u for u in out["unlock"] if u.startswith("not examined within")]
     assert len(left_out) == 1 and "gain_tol_db" in left_out[0]
     assert "one bought value" in left_out[0]
+
+
+def test_misses_come_first_from_what_the_proof_evaluated(store, tmp_path, monkeypatch):
+    """With no time left for the suggestions' own searches, the nearest misses are the
+    stock designs the proof itself evaluated and rejected: each is judged again by the
+    engine against the request (its THD above the limit), and names its bins."""
+    import optimiser.search.suggestions as sg
+
+    monkeypatch.setattr(sg, "EXPLAIN_BUDGET_S", 1e-3)
+    text = CE50.replace("gain_db = 50", "gain_db = 20\nthd_max_pct = 0.01")
+    out = as_json(design(store, tmp_path, text, "--json"))
+    assert out["feasible"] is False and out["limits"] == []
+    misses = out["nearest_misses"]
+    assert misses
+    for m in misses:
+        assert any(v.startswith("thd_pct") for v in m["violations"]), m["violations"]
+        assert m["metrics"]["thd_pct"] > 0.01
+        assert all(p["pieces"] for p in m["parts"].values())

@@ -230,3 +230,95 @@ def test_bypass_floor_never_above_the_engine(rs, rl):
         checked += int(claimed.sum())
         assert np.all(f_low[claimed] > f), (f, f_low[claimed].min())
     assert checked > 50
+
+
+@pytest.mark.parametrize("topo", ["ce", "cb", "cc"])
+@pytest.mark.parametrize("rs, rl", [(50.0, 1e4), (600.0, 1e3)])
+def test_drawer_floor_never_above_the_engine(topo, rs, rl, capsys):
+    # drawer_f_low_floor claims: every stage whose resistors are at most r_max and
+    # whose capacitors are at most c_max has f_low >= the floor.  Against the
+    # engine's nodal f_low on random valid stages of such a drawer (values drawn up
+    # to r_max and c_max, capacitors near the top so that the claim is tested where
+    # it is tight); the tightness (floor / least f_low seen) is printed.
+    from optimiser.f_low_bounds import drawer_f_low_floor
+    from optimiser.stages import module
+
+    rng = np.random.default_rng(zlib.crc32(repr(("drawer", topo, rs, rl)).encode()))
+    r_max, c_max, mid, n = 47e3, 1e-6, 1e3, 3000
+    b = _stages(topo, rng, n)
+    clip = {r: np.minimum(getattr(b, r), r_max) for r in ("R1", "R2", "RC", "RE", "RE_BYP")}
+    caps = {r: np.where(getattr(b, r) > 0, c_max * rng.uniform(0.5, 1.0, n), 0.0)
+            for r in ("C_IN", "C_OUT", "C_BYP", "C_B")}
+    b = StageBatch.from_values(topo, **{k: v for k, v in {**clip, **caps}.items()
+                                        if k in module(topo).ROLE_NAMES})
+    req = Request(topology=topo, supply_v=12.0, load_ohm=rl, source_ohm=rs, mid_hz=mid)
+    ev = evaluate(req, b, T, None, band_edges=True, large_signal=False, corner_gain=False)
+    f_low = np.asarray(ev.metrics["f_low_hz"], dtype=float)
+    ok = np.asarray(ev.valid, dtype=bool) & np.isfinite(f_low)
+    assert ok.sum() > 100
+    roles = module(topo).ROLE_NAMES
+    fl = drawer_f_low_floor(topo, c_max, r_max, sum(x in roles for x in ("RE", "RE_BYP")),
+                            mid, rs, rl)
+    assert fl["floor_hz"] > 0
+    assert f_low[ok].min() >= fl["floor_hz"], (f_low[ok].min(), fl)
+    with capsys.disabled():
+        print(f"\n  drawer floor {topo} R_S={rs:g} R_L={rl:g}: {fl['floor_hz']:.4g} Hz, "  # noqa: T201 (tightness, reported)
+              f"least f_low of {ok.sum()} stages {f_low[ok].min():.4g} Hz "
+              f"(ratio {fl['floor_hz'] / f_low[ok].min():.3f})")
+
+
+def test_capacitance_needed_inverts_the_floor():
+    from optimiser.f_low_bounds import capacitance_needed
+
+    rng = np.random.default_rng(3)
+    for _ in range(200):
+        r = 10 ** rng.uniform(1, 6)
+        mid = 10 ** rng.uniform(2, 6)
+        f = 10 ** rng.uniform(-2, math.log10(mid) - 0.5)
+        c = capacitance_needed(f, r, mid)
+        assert float(edge_floor_hz(c, r, mid)) == pytest.approx(f, rel=1e-9)
+        assert float(edge_floor_hz(c * 0.99, r, mid)) > f      # a smaller C cannot reach f
+    assert capacitance_needed(1.0, math.inf, 1e3) == 0.0
+
+
+def test_infeasible_answer_names_the_floor_of_the_capacitors_in_stock():
+    # a drawer whose capacitors stop at 1 µF cannot reach 10 mHz: the answer says so
+    # first, with the least C_IN and C_OUT (each inverts the floor at the largest loop)
+    from inventory.parts import Capacitor, Resistor, StockSnapshot
+    from optimiser.search.suggestions import f_low_floor_note
+
+    snap = StockSnapshot(
+        tuple(Resistor(v, 10, id=k) for k, v in enumerate([1e3, 10e3, 100e3])),
+        (Capacitor(1e-6, 10, id=50), Capacitor(100e-6, 0, id=51)), (T,))
+    req = Request(topology="cb", supply_v=12.0, load_ohm=1e3, source_ohm=50.0,
+                  f_low_max_hz=0.01)
+    text, fl = f_low_floor_note(req, snap)
+    assert fl["c_max_f"] == 1e-6                    # the empty 100 µF row does not count
+    assert fl["input_loop_ohm"] == 50.0 + 100e3     # R_S + the largest RE
+    assert fl["floor_hz"] > 0.01 and text.startswith("f_low cannot fall below")
+    assert "C_IN at least" in text and "necessary, not sufficient" in text
+    assert f_low_floor_note(replace_f(req, 10.0), snap) is None     # within reach: nothing said
+
+
+def replace_f(req, f):
+    from dataclasses import replace
+    return replace(req, f_low_max_hz=f)
+
+
+@pytest.mark.parametrize("topo", ["ce", "cb", "cc"])
+@pytest.mark.parametrize("lim, mid", [(3.0, 1e3), (20.0, 1e3), (300.0, 1e5)])
+def test_f_low_missed_is_the_engines_verdict(topo, lim, mid):
+    # the confirmation's screen (grid points first, the edge search for the rest)
+    # says "missed" exactly where the engine's f_low exceeds f_low_max_hz
+    from optimiser.search.confirm import f_low_missed
+
+    rng = np.random.default_rng(zlib.crc32(repr(("missed", topo, lim, mid)).encode()))
+    b = _stages(topo, rng, 600)
+    req = Request(topology=topo, supply_v=12.0, load_ohm=1e4, source_ohm=600.0, mid_hz=mid,
+                  f_low_max_hz=lim)
+    ev = evaluate(req, b, T, None, band_edges=True, large_signal=False, corner_gain=False)
+    f_low = np.asarray(ev.metrics["f_low_hz"], dtype=float)
+    want = np.isfinite(f_low) & (f_low > lim)
+    got = f_low_missed(req, b, T)
+    assert 20 < want.sum() < b.n - 20           # both verdicts occur
+    assert np.array_equal(got, want)

@@ -145,8 +145,9 @@ EXAMPLES = int(os.environ.get("DRAWERFIT_COMPLETE_EXAMPLES", "16"))
 
 
 @settings(max_examples=EXAMPLES, deadline=None, suppress_health_check=list(HealthCheck))
-@given(cases(), st.booleans())
-def test_search_agrees_with_exhaustive_enumeration(case, seeded):
+@given(cases(), st.booleans(), st.booleans())
+def test_search_agrees_with_exhaustive_enumeration(case, seeded, screened):
+    import optimiser.search.confirm as C
     import optimiser.search.seeding as S
 
     req, snap = case
@@ -156,10 +157,16 @@ def test_search_agrees_with_exhaustive_enumeration(case, seeded):
     above, values = S.SEED_ABOVE, S.SEED_VALUES
     if seeded:
         S.SEED_ABOVE, S.SEED_VALUES = 2, 2
+    # half go through the f_low screen of every skeleton from the start (it takes
+    # effect by itself only once the confirmation has dropped a few on f_low)
+    after = C.PRESCREEN_AFTER
+    if screened:
+        C.PRESCREEN_AFTER = 0
     try:
         designs, _ = search_designs(req, snap, 3, stats)
     finally:
         S.SEED_ABOVE, S.SEED_VALUES = above, values
+        C.PRESCREEN_AFTER = after
     best = exhaustive(req, snap)
     assert (best is not None) == bool(designs), (req, snap, best, designs)
     if best is None:
