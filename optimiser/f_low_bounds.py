@@ -243,10 +243,12 @@ def cb_emitter_impedance_max(ic_lo, ic_hi, z_load_max, vaf: float, vt: float):
     return np.where(ic_lo > 0, np.nan_to_num(z, nan=np.inf), np.inf)
 
 
-def drawer_f_low_floor(topology: str, c_max: float, r_max: float, emitter_roles: int,
+def drawer_f_low_floor(input_at: str, output_at: str, c_max: float, r_max: float,
+                       emitter_roles: int,
                        mid_hz: float, source_ohm: float, load_ohm: float | None,
                        slack_db: float = FLAT_PASSBAND_DB) -> dict:
-    """Over every stage of ``topology`` whose resistors are at most ``r_max`` (ohm;
+    """Over every stage driven at ``input_at`` and loaded at ``output_at`` (the
+    topology's ``INPUT`` and ``OUTPUT`` terminals) whose resistors are at most ``r_max`` (ohm;
     twice the largest stocked value where two may be joined in series) and whose
     capacitors are at most ``c_max`` (F): f_low ≥ ``floor_hz``.
 
@@ -260,8 +262,8 @@ def drawer_f_low_floor(topology: str, c_max: float, r_max: float, emitter_roles:
     (an infinite output loop without a load).
     """
     re_tot = emitter_roles * r_max
-    rin = float(input_loop_max(topology, source_ohm, rth=r_max / 2.0, re_total=re_tot))
-    rout = float(output_loop_max(topology, load_ohm, rc=r_max, re_total=re_tot))
+    rin = float(input_loop_max(input_at, source_ohm, rth=r_max / 2.0, re_total=re_tot))
+    rout = float(output_loop_max(output_at, load_ohm, rc=r_max, re_total=re_tot))
     fin = float(edge_floor_hz(c_max, rin, mid_hz, slack_db)) if c_max > 0 else 0.0
     fout = float(edge_floor_hz(c_max, rout, mid_hz, slack_db)) if c_max > 0 else 0.0
     return {"floor_hz": max(fin, fout), "input_loop_ohm": rin, "output_loop_ohm": rout,

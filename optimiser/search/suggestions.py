@@ -398,8 +398,9 @@ def f_low_floor_note(request: Request, snapshot: StockSnapshot) -> tuple[str, di
         return None
     c_max = max(caps)
     r_max = max(res) * (2.0 if r.allow_combos else 1.0)
-    roles = stage_module(r.topology).ROLE_NAMES
-    fl = drawer_f_low_floor(r.topology, c_max, r_max, sum(x in roles for x in ("RE", "RE_BYP")),
+    mod = stage_module(r.topology)
+    roles = mod.ROLE_NAMES
+    fl = drawer_f_low_floor(mod.INPUT, mod.OUTPUT, c_max, r_max, sum(x in roles for x in ("RE", "RE_BYP")),
                             r.mid_hz, r.source_ohm, r.load_ohm)
     if not fl["floor_hz"] > r.f_low_max_hz:
         return None

@@ -257,7 +257,7 @@ def test_drawer_floor_never_above_the_engine(topo, rs, rl, capsys):
     ok = np.asarray(ev.valid, dtype=bool) & np.isfinite(f_low)
     assert ok.sum() > 100
     roles = module(topo).ROLE_NAMES
-    fl = drawer_f_low_floor(topo, c_max, r_max, sum(x in roles for x in ("RE", "RE_BYP")),
+    fl = drawer_f_low_floor(module(topo).INPUT, module(topo).OUTPUT, c_max, r_max, sum(x in roles for x in ("RE", "RE_BYP")),
                             mid, rs, rl)
     assert fl["floor_hz"] > 0
     assert f_low[ok].min() >= fl["floor_hz"], (f_low[ok].min(), fl)
