@@ -166,11 +166,17 @@ def largest_capacitance(values, pieces_ok=None) -> float:
     return float(v.max()) if v.size else 0.0
 
 
+#: The transistor terminals a source or a load can meet (a topology's INPUT, OUTPUT).
+TERMINALS = ("base", "emitter", "collector")
+
+
 def input_loop_max(input_at: str, source_ohm: float, rth=None, re_total=None):
     """The largest resistance C_IN can see, by the terminal the source drives (the
     topology's ``INPUT``): R_S + R_TH at the base (ce, cc: Z_in ≤ R1‖R2) or
     R_S + RE + RE_BYP at the emitter (cb: Z_in ≤ the emitter resistance).
     Arrays broadcast."""
+    if input_at not in TERMINALS:
+        raise ValueError(f"input_at is a terminal ({', '.join(TERMINALS)}), not {input_at!r}")
     rs = float(source_ohm or 0.0)
     if input_at == "emitter":
         return rs + np.asarray(re_total, dtype=float)
@@ -182,6 +188,8 @@ def output_loop_max(output_at: str, load_ohm: float | None, rc=None, re_total=No
     (the topology's ``OUTPUT``): R_L + RC at the collector (ce, cb: Z_out ≤ RC) or
     R_L + RE + RE_BYP at the emitter (cc: Z_out ≤ the emitter resistance); inf
     without a load (no load branch, so no C_OUT edge)."""
+    if output_at not in TERMINALS:
+        raise ValueError(f"output_at is a terminal ({', '.join(TERMINALS)}), not {output_at!r}")
     if load_ohm is None:
         shape = np.shape(rc if output_at != "emitter" else re_total)
         return np.full(shape, np.inf)

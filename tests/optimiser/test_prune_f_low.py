@@ -322,3 +322,15 @@ def test_f_low_missed_is_the_engines_verdict(topo, lim, mid):
     got = f_low_missed(req, b, T)
     assert 20 < want.sum() < b.n - 20           # both verdicts occur
     assert np.array_equal(got, want)
+
+
+def test_loops_refuse_a_topology_name_for_a_terminal():
+    # the loops are keyed by the terminal the source drives / the load hangs from;
+    # a topology's name in its place would silently bound the wrong loop
+    from optimiser.f_low_bounds import input_loop_max, output_loop_max
+    with pytest.raises(ValueError):
+        input_loop_max("cb", 50.0, rth=1e3, re_total=1e3)
+    with pytest.raises(ValueError):
+        output_loop_max("cc", 1e3, rc=1e3, re_total=1e3)
+    assert input_loop_max("emitter", 50.0, rth=1e3, re_total=2e3) == 2050.0
+    assert output_loop_max("emitter", 1e3, rc=5e3, re_total=2e3) == 3000.0
