@@ -133,8 +133,12 @@ def pair_cautions(ev: PairEvaluation, i: int, circuit, settings=DEFAULT_SETTINGS
     return first + rest
 
 
-def pair_report(ev: PairEvaluation, i: int, circuit, notes=None) -> dict:
-    """The ``design`` object of ``analyse --json`` for a two-transistor circuit."""
+def pair_report(ev: PairEvaluation, i: int, circuit, notes=None, yield_result=None) -> dict:
+    """The ``design`` object of ``analyse --json`` for a two-transistor circuit.
+
+    With ``yield_result`` (:func:`optimiser.yield_.monte_carlo_pair`), ``yield_pct`` is
+    among the metrics, the Monte Carlo summary under ``yield``, and a yield below the
+    request's ``min_yield_pct`` is a violation."""
     form = ev.batch.form
     plus = ev.extra.get("plus", {})
     parts = {}
@@ -161,6 +165,18 @@ def pair_report(ev: PairEvaluation, i: int, circuit, notes=None) -> dict:
                         "ic_a": _clean(c["ic_a"][i, j]), "vce_v": _clean(c["vce_v"][i, j]),
                         "pq_w": _clean(c["pq_w"][i, j])} for j in range(len(CORNERS))]
         stages[stage] = st
+    metrics = {k: _clean(v[i]) for k, v in ev.metrics.items()}
+    meets, violations = bool(ev.meets[i]), ev.violations(i)
+    extra = {}
+    if yield_result is not None:
+        from .yield_ import yield_violation
+
+        metrics["yield_pct"] = yield_result.yield_pct
+        extra["yield"] = yield_result.to_json()
+        miss = yield_violation(yield_result, ev.request)
+        if miss:
+            meets = False
+            violations.append(miss)
     return {
         "topology": list(form.topology) if isinstance(form.topology, list) else form.topology,
         "coupling": form.coupling,
@@ -168,13 +184,14 @@ def pair_report(ev: PairEvaluation, i: int, circuit, notes=None) -> dict:
         "transistors": {stage: t.label for stage, t in zip(form.stages, ev.transistors,
                                                            strict=True)},
         "parts": parts,
-        "metrics": {k: _clean(v[i]) for k, v in ev.metrics.items()},
+        "metrics": metrics,
         "stages": stages,
         "nodes": {n: _clean(v) for n, v in probe_nodes(ev, i).items()},
-        "meets_spec": bool(ev.meets[i]),
-        "violations": ev.violations(i),
+        "meets_spec": meets,
+        "violations": violations,
         "warnings": ev.warnings(i),
         "cautions": [c.to_json() for c in (notes or [])],
+        **extra,
     }
 
 
