@@ -102,7 +102,8 @@ def _stock_picks(c):
 
 
 def _analyse_pair(c, as_json: bool, sheet_dir, spice_file) -> None:
-    """``analyse`` of a two-transistor circuit: figures, cautions, JSON, SPICE deck."""
+    """``analyse`` of a two-transistor circuit: figures, yield, cautions, JSON, the build
+    sheet and the SPICE deck."""
     from drawerfit.console import err, out
     from inventory.errors import InputError
     from optimiser.pair_evaluate import evaluate_pair
@@ -132,6 +133,10 @@ def _analyse_pair(c, as_json: bool, sheet_dir, spice_file) -> None:
         line = assumed_line(c.request)
         if line:
             out.print(line)
+    if sheet_dir is not None:
+        from drawerfit.sheet.cli import sheet_for_pair
+
+        sheet_for_pair(sheet_dir, ev, 0, c, yield_result=yres, notes=notes, quiet=as_json)
     if spice_file is not None:
         from pathlib import Path
 
