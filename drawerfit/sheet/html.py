@@ -315,7 +315,8 @@ def render_pair_html(report: dict, request: Request, *, node_words: dict[str, st
     ``data-value`` as ``--json`` prints it; each probe ``data-node`` (``S1.base``,
     ``middle``, …) and ``data-volts``.
     """
-    who = " and ".join(dict.fromkeys(report["transistors"].values()))
+    given = [t for t in dict.fromkeys(report["transistors"].values()) if t not in ("", "inline")]
+    who = " and ".join(given) or "the given transistors"
     title = f"Build sheet: {report['form']}, with {who}"
     sub = [", ".join(f"{s} {st['kind']}" for s, st in report["stages"].items())]
     status = ('<span class="meets">meets the request</span>' if report["meets_spec"] else

@@ -155,6 +155,8 @@ class _Sheet:
                           "bottom")
         else:
             self.probe_at(node, (e_node[0] - 0.5, e_node[1]), "right", "center")
+        if junction is not None and not self.has(re):
+            self.probe_at(junction, *self.anchors[node])     # one node when RE is absent
         here = e_node
         for r in (re, re_byp):
             if not self.has(r):

@@ -65,8 +65,24 @@ def test_polarised_plus_on_the_higher_node(name, c):
     assert volts
 
 
-def test_every_form_has_a_drawing():
-    assert {drawing_key(c.form) for _, c in CASES} <= set(PAIR_DRAWINGS)
+def test_every_form_has_a_drawing_and_is_drawn_here():
+    """Every two-transistor form the engine offers (each chain of two of the stages,
+    each other coupling, the cascode) has a registered drawing, and the cases above
+    draw each of them."""
+    from optimiser.stages import NAMES, PAIR_COUPLINGS, pair_form
+
+    forms = {pair_form("cascode").name}
+    for a in NAMES:
+        for b in NAMES:
+            for coupling in PAIR_COUPLINGS:
+                try:
+                    forms.add(pair_form([a, b], coupling).name)
+                except ValueError:
+                    continue
+    drawn = {c.form.name for _, c in CASES}
+    assert forms == drawn
+    for _, c in CASES:
+        assert drawing_key(c.form) in PAIR_DRAWINGS
 
 
 def test_the_check_catches_a_label_moved_onto_a_resistor():
