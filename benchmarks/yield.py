@@ -1,11 +1,13 @@
 # ruff: noqa: T201  (a benchmark script prints its figures)
 """Monte Carlo speed: 10^4 samples of one design (DC and midband AC) in one vectorised run.
 
-    python benchmarks/yield.py [--samples N] [--loop M]
+    python benchmarks/yield.py [--samples N] [--loop M] [--pair-samples K]
 
 Prints samples per second and the ratio to running the nominal engine once per sample
 in a Python loop (M samples timed, measured in the same run).  Target:
-10^4 samples in ≤ 0.1 s.
+10^4 samples in ≤ 0.1 s.  Then the same for a two-transistor circuit (the bench's
+capacitor-coupled ce→cc, examples/bench/preamp-buffer.toml): K samples through
+``monte_carlo_pair`` against ``evaluate_pair`` once per sample in a loop.
 """
 
 from __future__ import annotations
@@ -33,6 +35,7 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--samples", type=int, default=10_000)
     ap.add_argument("--loop", type=int, default=200)
+    ap.add_argument("--pair-samples", type=int, default=2000)
     a = ap.parse_args(argv)
     monte_carlo(REQ, VALUES, T, None, samples=100, seed=0)       # warm up
     t0 = time.perf_counter()
@@ -48,6 +51,34 @@ def main(argv=None):
         evaluate(REQ, one, T, band_edges=False, large_signal=False, corner_gain=False)
     per = (time.perf_counter() - t0) / a.loop
     print(f"nominal engine once per sample in a Python loop: {1 / per:,.0f} samples/s; "
+          f"vectorised is {rate * per:.0f}x faster")
+    pair(a.pair_samples, max(10, a.loop // 10))
+
+
+def pair(samples: int, loop: int) -> None:
+    """Two transistors: monte_carlo_pair against evaluate_pair once per sample."""
+    from optimiser.circuit_file import load_circuit
+    from optimiser.pair_evaluate import evaluate_pair
+    from optimiser.yield_ import draw_pair, monte_carlo_pair
+
+    c = load_circuit(Path(__file__).resolve().parents[1] / "examples" / "bench" /
+                     "preamp-buffer.toml")
+    monte_carlo_pair(c.request, c.form, c.values, c.transistors, c.tolerances, samples=50)
+    t0 = time.perf_counter()
+    res = monte_carlo_pair(c.request, c.form, c.values, c.transistors, c.tolerances,
+                           samples=samples, seed=0)
+    dt = time.perf_counter() - t0
+    rate = samples / dt
+    print(f"two transistors (ce→cc chain; DC, midband AC, f_low, THD): {samples} samples in "
+          f"{dt:.2f} s = {rate:,.0f} /s (yield {res.yield_pct:.1f} %)")
+    batch, betas, temps = draw_pair(c.form, c.values, c.transistors, c.tolerances,
+                                    c.request.temp_c, loop, 0)
+    t0 = time.perf_counter()
+    for i in range(loop):
+        evaluate_pair(c.request, batch.take([i]), c.transistors, large_signal="thd",
+                      temp_c=float(temps[i]), betas=(float(betas[0][i]), float(betas[1][i])))
+    per = (time.perf_counter() - t0) / loop
+    print(f"evaluate_pair once per sample in a Python loop: {1 / per:,.0f} samples/s; "
           f"vectorised is {rate * per:.0f}x faster")
 
 

@@ -463,11 +463,6 @@ def _parse_pair(mapping, req, problems, *, file, text, store) -> PairCircuit:
                 tols[role] = V.parse_tolerance(tv)
             except InputError as e:
                 raise err(f"tolerances.{role}", e.message, role) from None
-    if req.wants_yield:
-        errors.append(err("min_yield_pct" if req.min_yield_pct is not None else
-                          "yield_samples", "the yield of a two-transistor circuit is not "
-                                           "computed: leave min_yield_pct and yield_samples "
-                                           "out"))
     if errors:
         raise _all(errors)
     for role in values:

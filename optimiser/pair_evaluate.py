@@ -189,10 +189,14 @@ def _corner_arrays(request: Request, models):
 
 def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: PartRatings |
                   None = None, *, band_edges: bool = True, large_signal: bool = True,
-                  derating: dict | None = None) -> PairEvaluation:
+                  derating: dict | None = None, temp_c=25.0,
+                  betas=(None, None)) -> PairEvaluation:
     """All figures and verdicts of docs/model.md for two-transistor circuits.
 
     ``transistors`` is one :class:`~inventory.parts.Transistor` per transistor (S1, S2).
+    The figures are taken at ``temp_c`` with each transistor's β at 25 °C ``betas``
+    (``None``: nominal); each may be an array (n,), one value per circuit (the Monte
+    Carlo samples of :func:`optimiser.yield_.monte_carlo_pair`).
     """
     der = dict(DERATING)
     if derating:
@@ -202,7 +206,8 @@ def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: Part
     models = tuple(device_from_transistor(t) for t in transistors)
     n = batch.n
     nan = np.full(n, np.nan)
-    ops, volts = pair_operating_point(batch, request.supply_v, models)
+    ops, volts = pair_operating_point(batch, request.supply_v, models, temp_c=temp_c,
+                                      betas=betas)
     ss = tuple(ac.small_signal(op, m) for op, m in zip(ops, models, strict=True))
     net = ac_network(batch)
     mid = ac.midband_of(net, ss, request)

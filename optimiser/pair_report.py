@@ -15,7 +15,8 @@ from .cautions import DEFAULT_SETTINGS, POLARISED_DIELECTRICS, SEVERITIES, Cauti
 from .design import Design, _clean
 from .pair_evaluate import CORNERS, PairEvaluation
 
-__all__ = ["pair_report", "pair_cautions", "probe_nodes"]
+__all__ = ["pair_report", "pair_cautions", "probe_nodes", "pair_response", "pair_waveform",
+           "probe_ranges"]
 
 
 def _fmt_v(v: float) -> str:
@@ -52,6 +53,75 @@ def probe_nodes(ev: PairEvaluation, i: int) -> dict[str, float]:
             continue
         seen.add(r)
         out[n] = float(ev.volts[n][i])
+    return out
+
+
+def _one(ev: PairEvaluation, i: int):
+    """Circuit ``i`` of ``ev``: (batch, operating points, node voltages), each of one row."""
+    return (ev.batch.take([i]), [op.take([i]) for op in ev.ops],
+            {k: np.asarray(v)[[i]] for k, v in ev.volts.items()})
+
+
+def pair_response(ev: PairEvaluation, i: int, freqs) -> np.ndarray:
+    """v_load / v_emf of circuit ``i`` at ``freqs`` (Hz), source and load in place, at
+    its nominal operating points: complex (nf,)."""
+    from . import ac
+    from .stages.pair import ac_network
+
+    batch, ops, _ = _one(ev, i)
+    ss = tuple(ac.small_signal(op, m) for op, m in zip(ops, ev.models, strict=True))
+    return ac.response_of(ac_network(batch), ss, freqs, ev.request.source_ohm,
+                          ev.request.load_ohm)[:, 0]
+
+
+def pair_waveform(ev: PairEvaluation, i: int, amplitude: float | None = None,
+                  points: int = 256) -> tuple[np.ndarray, np.ndarray]:
+    """One period of the load voltage of circuit ``i`` for a sine EMF of ``amplitude``
+    (default the request's ``input_vpk``), through the quasi-static midband network that
+    gives its THD: (emf, v_load), each (points,)."""
+    from . import distortion
+    from .pair_evaluate import pair_transfer
+
+    batch, ops, volts = _one(ev, i)
+    a = ev.request.input_vpk if amplitude is None else amplitude
+    emf, v = distortion.waveform_of(
+        lambda e: pair_transfer(ev.request, batch, ev.models, ops, volts, e)[0], a, 1, points)
+    return emf[0], v[0]
+
+
+def probe_ranges(ev: PairEvaluation, i: int, tolerances: dict[str, float],
+                 nodes=None) -> dict[str, tuple[float, float]]:
+    """The range of each probed node's DC voltage (V) over every vertex of the resistor
+    tolerance box (each resistor at value × (1 ± its tolerance)), each at the nominal
+    point and at the eight drift corners (both hFE spreads × the ends of ``temp_c``).
+    ``tolerances``: role -> fraction (a resistor not named: 5 %)."""
+    import itertools
+
+    from inventory.parts import DEFAULT_RESISTOR_TOLERANCE
+
+    from .pair_evaluate import _corner_arrays, pair_operating_point
+    from .stages.pair import PairBatch
+
+    form = ev.batch.form
+    values = ev.batch.one(i)
+    nodes = list(probe_nodes(ev, i) if nodes is None else nodes)
+    roles = [r for r in form.role_names if form.kind(r) == "resistor" and r in values]
+    signs = np.array(list(itertools.product((-1.0, 1.0), repeat=len(roles))))
+    arrays = {r: np.full(len(signs), v) for r, v in values.items()}
+    for j, r in enumerate(roles):
+        t = tolerances.get(r, DEFAULT_RESISTOR_TOLERANCE)
+        arrays[r] = values[r] * (1.0 + signs[:, j] * t)
+    batch = PairBatch.from_values(form, **arrays)
+    _, nominal = pair_operating_point(batch, ev.request.supply_v, ev.models)
+    t_c, b_c = _corner_arrays(ev.request, ev.models)
+    _, corner = pair_operating_point(batch, ev.request.supply_v, ev.models, temp_c=t_c,
+                                     betas=b_c)
+    out = {}
+    for n in nodes:
+        pool = np.concatenate([np.ravel(nominal[n]), np.ravel(corner[n])])
+        pool = pool[np.isfinite(pool)]
+        if pool.size:
+            out[n] = (float(pool.min()), float(pool.max()))
     return out
 
 
@@ -133,8 +203,12 @@ def pair_cautions(ev: PairEvaluation, i: int, circuit, settings=DEFAULT_SETTINGS
     return first + rest
 
 
-def pair_report(ev: PairEvaluation, i: int, circuit, notes=None) -> dict:
-    """The ``design`` object of ``analyse --json`` for a two-transistor circuit."""
+def pair_report(ev: PairEvaluation, i: int, circuit, notes=None, yield_result=None) -> dict:
+    """The ``design`` object of ``analyse --json`` for a two-transistor circuit.
+
+    With ``yield_result`` (:func:`optimiser.yield_.monte_carlo_pair`), ``yield_pct`` is
+    among the metrics, the Monte Carlo summary under ``yield``, and a yield below the
+    request's ``min_yield_pct`` is a violation."""
     form = ev.batch.form
     plus = ev.extra.get("plus", {})
     parts = {}
@@ -161,6 +235,18 @@ def pair_report(ev: PairEvaluation, i: int, circuit, notes=None) -> dict:
                         "ic_a": _clean(c["ic_a"][i, j]), "vce_v": _clean(c["vce_v"][i, j]),
                         "pq_w": _clean(c["pq_w"][i, j])} for j in range(len(CORNERS))]
         stages[stage] = st
+    metrics = {k: _clean(v[i]) for k, v in ev.metrics.items()}
+    meets, violations = bool(ev.meets[i]), ev.violations(i)
+    extra = {}
+    if yield_result is not None:
+        from .yield_ import yield_violation
+
+        metrics["yield_pct"] = yield_result.yield_pct
+        extra["yield"] = yield_result.to_json()
+        miss = yield_violation(yield_result, ev.request)
+        if miss:
+            meets = False
+            violations.append(miss)
     return {
         "topology": list(form.topology) if isinstance(form.topology, list) else form.topology,
         "coupling": form.coupling,
@@ -168,13 +254,14 @@ def pair_report(ev: PairEvaluation, i: int, circuit, notes=None) -> dict:
         "transistors": {stage: t.label for stage, t in zip(form.stages, ev.transistors,
                                                            strict=True)},
         "parts": parts,
-        "metrics": {k: _clean(v[i]) for k, v in ev.metrics.items()},
+        "metrics": metrics,
         "stages": stages,
         "nodes": {n: _clean(v) for n, v in probe_nodes(ev, i).items()},
-        "meets_spec": bool(ev.meets[i]),
-        "violations": ev.violations(i),
+        "meets_spec": meets,
+        "violations": violations,
         "warnings": ev.warnings(i),
         "cautions": [c.to_json() for c in (notes or [])],
+        **extra,
     }
 
 

@@ -10,6 +10,14 @@ once) and it is forward-active with margin (V_CE ≥ vce_sat, not cut off) and w
 transistor's limits.  Draws come from ``numpy.random.default_rng(seed)`` in a fixed
 order (roles in the order of the topology's ``ROLE_NAMES``, :mod:`optimiser.stages`,
 then hFE, then temperature), so the same seed and design give the same samples in ``analyse``, ``design`` and ``plan``.
+
+Two transistors (a chain or a cascode, :func:`monte_carlo_pair`) follow the same rules
+and the same draw order: every role of the form in ``role_names`` order, then the hFE
+of S1, then of S2 (each transistor's own spread, drawn independently), then the
+temperature; the samples are one :class:`~optimiser.stages.pair.PairBatch` through
+:func:`optimiser.pair_evaluate.evaluate_pair`, each at its own hFE pair and temperature.
+A sample passes when the whole circuit meets every target but the drift ones and both
+transistors are forward-active and within their limits.
 """
 
 from __future__ import annotations
@@ -28,7 +36,8 @@ from .request import Request
 from .stage import RESISTOR_ROLES, StageBatch
 from .stages import module as stage_module
 
-__all__ = ["YieldResult", "draw", "monte_carlo", "worst_case", "WorstCase", "apply_yield"]
+__all__ = ["YieldResult", "draw", "monte_carlo", "worst_case", "WorstCase", "apply_yield",
+           "draw_pair", "monte_carlo_pair", "yield_violation"]
 
 
 @dataclass
@@ -73,27 +82,76 @@ class YieldResult:
         }
 
 
-def _tol(role: str, tolerances: dict[str, float] | None) -> float:
+def _tol(role: str, tolerances: dict[str, float] | None, resistor: bool | None = None) -> float:
+    """The role's tolerance: given, else 5 % for a resistor and 20 % for a capacitor
+    (``resistor`` None: the kind read from the role's name, ``S1.RC`` as ``RC``)."""
     t = (tolerances or {}).get(role)
     if t is not None:
         return float(t)
-    return DEFAULT_RESISTOR_TOLERANCE if role in RESISTOR_ROLES else DEFAULT_CAPACITOR_TOLERANCE
+    if resistor is None:
+        resistor = role.rsplit(".", 1)[-1] in RESISTOR_ROLES
+    return DEFAULT_RESISTOR_TOLERANCE if resistor else DEFAULT_CAPACITOR_TOLERANCE
+
+
+def _draw_parts(rng, roles, values, tolerances, samples: int, resistor=lambda role: None):
+    """Each role uniformly within ± its tolerance, in the order of ``roles``."""
+    vals = {}
+    for role in roles:
+        v = float(values.get(role, 0.0) or 0.0)
+        u = rng.uniform(-1.0, 1.0, samples)          # drawn for every role: fixed order
+        t = _tol(role, tolerances, resistor(role))
+        vals[role] = v * (1.0 + t * u) if v > 0 else np.zeros(samples)
+    return vals
+
+
+def _draw_hfe(rng, transistor: Transistor, samples: int) -> np.ndarray:
+    """hFE at 25 °C, log-uniform between the transistor's hfe_min and hfe_max."""
+    lo, hi = float(transistor.hfe_min), float(transistor.hfe_max)
+    return np.exp(rng.uniform(math.log(lo), math.log(hi), samples))
+
+
+def _draw_temps(rng, temp_c, samples: int) -> np.ndarray:
+    t_lo, t_hi = float(temp_c[0]), float(temp_c[1])
+    return rng.uniform(t_lo, t_hi, samples) if t_hi > t_lo else np.full(samples, t_lo)
 
 
 def draw(topology: str, values: dict[str, float], transistor: Transistor,
          tolerances: dict[str, float] | None, temp_c, samples: int, seed: int):
     """The random draws: (StageBatch of ``samples`` stages, beta25 (n,), temp_c (n,))."""
     rng = np.random.default_rng(seed)
-    vals = {}
-    for role in stage_module(topology).ROLE_NAMES:
-        v = float(values.get(role, 0.0) or 0.0)
-        u = rng.uniform(-1.0, 1.0, samples)          # drawn for every role: fixed order
-        vals[role] = v * (1.0 + _tol(role, tolerances) * u) if v > 0 else np.zeros(samples)
-    lo, hi = float(transistor.hfe_min), float(transistor.hfe_max)
-    beta25 = np.exp(rng.uniform(math.log(lo), math.log(hi), samples))
-    t_lo, t_hi = float(temp_c[0]), float(temp_c[1])
-    temps = rng.uniform(t_lo, t_hi, samples) if t_hi > t_lo else np.full(samples, t_lo)
+    vals = _draw_parts(rng, stage_module(topology).ROLE_NAMES, values, tolerances, samples)
+    beta25 = _draw_hfe(rng, transistor, samples)
+    temps = _draw_temps(rng, temp_c, samples)
     return StageBatch.from_values(topology, **vals), beta25, temps
+
+
+def draw_pair(form, values: dict[str, float], transistors, tolerances: dict[str, float] | None,
+              temp_c, samples: int, seed: int):
+    """The random draws of a two-transistor circuit of ``form`` (a
+    :class:`~optimiser.stages.pair.PairForm`): (PairBatch of ``samples`` circuits,
+    (beta25 of S1, beta25 of S2), temp_c), each array (n,)."""
+    from .stages.pair import PairBatch
+
+    rng = np.random.default_rng(seed)
+    vals = _draw_parts(rng, form.role_names, values, tolerances, samples,
+                       lambda role: form.kind(role) == "resistor")
+    betas = tuple(_draw_hfe(rng, t, samples) for t in transistors)
+    temps = _draw_temps(rng, temp_c, samples)
+    return PairBatch.from_values(form, **vals), betas, temps
+
+
+def _within_limits(op, model, supply_v: float) -> tuple[np.ndarray, np.ndarray]:
+    """(forward-active with margin, within the transistor's limits), each (n,): V_CE ≥
+    vce_sat, not cut off, solved; I_C ≤ ic_max, P ≤ pd, the supply ≤ V_CEO."""
+    fa = (op.vce >= model.vce_sat) & ~op.cutoff & op.converged
+    lim = np.ones(np.shape(op.ic), bool)
+    if math.isfinite(model.ic_max):
+        lim &= op.ic <= model.ic_max
+    if math.isfinite(model.pd):
+        lim &= op.pq <= model.pd
+    if math.isfinite(model.vceo):
+        lim &= supply_v <= model.vceo
+    return fa, lim
 
 
 def _figures(request: Request, batch: StageBatch, transistor: Transistor, beta25, temps,
@@ -108,14 +166,7 @@ def _figures(request: Request, batch: StageBatch, transistor: Transistor, beta25
         out = {"gain": gain, "gain_db": 20 * np.log10(gain), "ic_a": op.ic, "vce_v": op.vce,
                "zin_ohm": np.abs(mid["zin"]), "pd_q_w": op.pq}
     n = batch.n
-    fa = (op.vce >= model.vce_sat) & ~op.cutoff & op.converged
-    lim = np.ones(n, bool)
-    if math.isfinite(model.ic_max):
-        lim &= op.ic <= model.ic_max
-    if math.isfinite(model.pd):
-        lim &= op.pq <= model.pd
-    if math.isfinite(model.vceo):
-        lim &= request.supply_v <= model.vceo
+    fa, lim = _within_limits(op, model, request.supply_v)
     if edges:
         want_high = model.has_ft and model.has_cob and request.f_high_min_hz is not None
         f_low, f_high, _ = ac.band_edges(request, batch, model, op, gain, ss, want_high=want_high)
@@ -127,7 +178,10 @@ def _figures(request: Request, batch: StageBatch, transistor: Transistor, beta25
 
 
 def _target_fails(request: Request, fig: dict, model) -> dict[str, np.ndarray]:
+    """Per sample, which of the request's targets it misses.  ``model`` is the device
+    model, or a bool: whether f_high can be computed (every transistor has ft and cob)."""
     n = fig["gain"].shape[0]
+    has_fhigh = model if isinstance(model, bool) else bool(model.has_ft and model.has_cob)
     fails = {}
     if request.gain is not None:
         tdb = 20 * math.log10(request.gain)
@@ -136,13 +190,15 @@ def _target_fails(request: Request, fig: dict, model) -> dict[str, np.ndarray]:
         f = fig["f_low_hz"]
         fails["f_low_hz"] = np.isfinite(f) & (f > request.f_low_max_hz)
     if request.f_high_min_hz is not None:
-        if not (model.has_ft and model.has_cob):
+        if not has_fhigh:
             fails["f_high_hz"] = np.ones(n, bool)
         else:
             f = fig["f_high_hz"]
             fails["f_high_hz"] = np.isfinite(f) & (f < request.f_high_min_hz)
     if request.zin_min_ohm is not None:
         fails["zin_ohm"] = ~(fig["zin_ohm"] >= request.zin_min_ohm)
+    if getattr(request, "zout_max_ohm", None) is not None and "zout_ohm" in fig:
+        fails["zout_ohm"] = ~(fig["zout_ohm"] <= request.zout_max_ohm)
     if request.thd_max_pct is not None and "thd_pct" in fig:
         fails["thd_pct"] = ~(fig["thd_pct"] <= request.thd_max_pct)
     if getattr(request, "ic_min_a", None) is not None and "ic_a" in fig:
@@ -177,21 +233,80 @@ def monte_carlo(request: Request, values: dict[str, float], transistor: Transist
     fails = _target_fails(request, fig, model)
     fails["forward_active"] = ~fa
     fails["limits"] = ~lim
+    smp = {r: batch.role(r) for r in stage_module(request.topology).ROLE_NAMES}
+    smp.update(beta25=beta25, temp_c=temps, **fig)
+    return _result(fails, fig, ("gain", "gain_db", "f_low_hz", "ic_a", "vce_v"), smp, n, sd)
+
+
+def _result(fails: dict, fig: dict, spread_keys, smp: dict, n: int, seed: int) -> YieldResult:
+    """The passing share, the share failing each check and the 5th–95th percentiles."""
     passed = np.ones(n, bool)
     for f in fails.values():
         passed &= ~f
     pct = {}
-    for k in ("gain", "gain_db", "f_low_hz", "ic_a", "vce_v"):
+    for k in spread_keys:
         if k in fig:
             x = fig[k][np.isfinite(fig[k])]
             if x.size:
                 a, b = np.percentile(x, [5, 95])
                 pct[k] = (float(a), float(b))
-    smp = {r: batch.role(r) for r in stage_module(request.topology).ROLE_NAMES}
-    smp.update(beta25=beta25, temp_c=temps, passed=passed, **fig)
+    smp["passed"] = passed
     return YieldResult(yield_pct=float(100.0 * passed.mean()),
                        fail_share={k: float(v.mean()) for k, v in fails.items()},
-                       percentiles=pct, samples=smp, n=n, seed=sd)
+                       percentiles=pct, samples=smp, n=n, seed=seed)
+
+
+def monte_carlo_pair(request: Request, form, values: dict[str, float], transistors,
+                     tolerances: dict[str, float] | None = None, samples: int | None = None,
+                     seed: int | None = None) -> YieldResult:
+    """Monte Carlo yield of one two-transistor circuit (a chain or a cascode).
+
+    The draws are :func:`draw_pair`'s; every sample is evaluated by
+    :func:`optimiser.pair_evaluate.evaluate_pair` at its own hFE pair and temperature
+    (one batch).  Checks: the request's targets on the whole circuit (gain, f_low_hz,
+    f_high_hz, zin_ohm, zout_ohm, thd_pct), ``S1.ic_a`` / ``S2.ic_a`` for ``ic_min_a``,
+    and ``forward_active`` and ``limits`` over both transistors.  Per-sample figures
+    in ``samples``: the whole circuit's, each stage's ``S1.ic_a``, ``S1.vce_v``, …, the
+    hFE draws ``S1.beta25``, ``S2.beta25`` and every node's DC voltage ``V(node)``.
+    """
+    from .pair_evaluate import evaluate_pair
+
+    n = int(samples if samples is not None else request.samples)
+    sd = int(seed if seed is not None else request.seed)
+    batch, betas, temps = draw_pair(form, values, transistors, tolerances, request.temp_c,
+                                    n, sd)
+    edges = request.f_low_max_hz is not None or request.f_high_min_hz is not None
+    ev = evaluate_pair(request, batch, transistors, band_edges=edges,
+                       large_signal="thd" if request.thd_max_pct is not None else False,
+                       temp_c=temps, betas=betas)
+    fig = {k: np.asarray(v) for k, v in ev.metrics.items()
+           if k in ("gain", "gain_db", "zin_ohm", "zout_ohm")
+           or (k in ("f_low_hz", "f_high_hz") and edges)
+           or (k == "thd_pct" and request.thd_max_pct is not None)}
+    has_fhigh = all(m.has_ft and m.has_cob for m in ev.models)
+    if request.f_high_min_hz is None:
+        fig.pop("f_high_hz", None)
+    fails = _target_fails(request, fig, has_fhigh)
+    fa = np.ones(n, bool)
+    lim = np.ones(n, bool)
+    for stage, op, m, st in zip(form.stages, ev.ops, ev.models, ev.stages, strict=True):
+        if request.ic_min_a is not None:
+            fails[f"{stage}.ic_a"] = ~(st["ic_a"] >= request.ic_min_a)
+        f, lm = _within_limits(op, m, request.supply_v)
+        fa &= f
+        lim &= lm
+        fig[f"{stage}.ic_a"] = np.asarray(st["ic_a"])
+        fig[f"{stage}.vce_v"] = np.asarray(st["vce_v"])
+    fails["forward_active"] = ~fa
+    fails["limits"] = ~lim
+    smp = {r: batch.role(r) for r in form.role_names}
+    smp.update({f"{s}.beta25": b for s, b in zip(form.stages, betas, strict=True)})
+    smp.update(temp_c=temps, **fig)
+    smp.update({f"V({node})": np.asarray(ev.volts[node]) for node in form.nodes()
+                if node in ev.volts})
+    spread_keys = ("gain", "gain_db", "f_low_hz") + tuple(
+        f"{s}.{k}" for s in form.stages for k in ("ic_a", "vce_v"))
+    return _result(fails, fig, spread_keys, smp, n, sd)
 
 
 @dataclass
@@ -288,10 +403,18 @@ def _rows_figures(request, transistor, topo, rows, edges):
     return fig
 
 
+def yield_violation(result: YieldResult, request: Request) -> str | None:
+    """The violation text when the yield is below ``min_yield_pct``, else None."""
+    if request.min_yield_pct is not None and result.yield_pct < request.min_yield_pct:
+        return f"yield_pct {result.yield_pct:.1f} < {request.min_yield_pct:g}"
+    return None
+
+
 def apply_yield(design, result: YieldResult, request: Request) -> None:
     """Put ``yield_pct`` into a Design's metrics and judge ``min_yield_pct``."""
     design.metrics["yield_pct"] = result.yield_pct
     design.extra["yield"] = result.to_json()
-    if request.min_yield_pct is not None and result.yield_pct < request.min_yield_pct:
+    miss = yield_violation(result, request)
+    if miss:
         design.meets_spec = False
-        design.violations.append(f"yield_pct {result.yield_pct:.1f} < {request.min_yield_pct:g}")
+        design.violations.append(miss)

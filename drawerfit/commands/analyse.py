@@ -102,18 +102,22 @@ def _stock_picks(c):
 
 
 def _analyse_pair(c, as_json: bool, sheet_dir, spice_file) -> None:
-    """``analyse`` of a two-transistor circuit: figures, cautions, JSON, SPICE deck."""
+    """``analyse`` of a two-transistor circuit: figures, yield, cautions, JSON, the build
+    sheet and the SPICE deck."""
     from drawerfit.console import err, out
     from inventory.errors import InputError
     from optimiser.pair_evaluate import evaluate_pair
     from optimiser.pair_report import pair_cautions, pair_report
 
-    if sheet_dir is not None:
-        raise InputError("the build sheet is drawn for single stages; for a two-transistor "
-                         "circuit use --json or --spice", field="--sheet")
     ev = evaluate_pair(c.request, c.batch(), c.transistors, c.ratings)
+    yres = None
+    if c.request.wants_yield:
+        from optimiser.yield_ import monte_carlo_pair
+
+        yres = monte_carlo_pair(c.request, c.form, c.values, c.transistors, c.tolerances,
+                                samples=c.request.samples, seed=c.request.seed)
     notes = pair_cautions(ev, 0, c)
-    report = pair_report(ev, 0, c, notes)
+    report = pair_report(ev, 0, c, notes, yield_result=yres)
     if as_json:
         emit_json({"request": c.request.to_json(), "design": report})
     else:
@@ -121,10 +125,18 @@ def _analyse_pair(c, as_json: bool, sheet_dir, spice_file) -> None:
         from drawerfit.render.designs import assumed_line
 
         show_pair_analysis(report, ev, c)
+        if yres is not None:
+            from drawerfit.render.yield_view import show_yield
+
+            show_yield(yres)
         _show_cautions(notes)
         line = assumed_line(c.request)
         if line:
             out.print(line)
+    if sheet_dir is not None:
+        from drawerfit.sheet.cli import sheet_for_pair
+
+        sheet_for_pair(sheet_dir, ev, 0, c, yield_result=yres, notes=notes, quiet=as_json)
     if spice_file is not None:
         from pathlib import Path
 

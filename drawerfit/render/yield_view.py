@@ -37,8 +37,14 @@ def show_yield(res, console=None) -> None:
               + (f"; most frequent miss: {worst}" if worst else ""))
     p = res.percentiles
     if "gain_db" in p:
-        out.print(f"gain 5–95 %: {p['gain_db'][0]:.2f} to {p['gain_db'][1]:.2f} dB; "
-                  f"I_C {1e3 * p['ic_a'][0]:.3g} to {1e3 * p['ic_a'][1]:.3g} mA; "
-                  f"V_CE {p['vce_v'][0]:.3g} to {p['vce_v'][1]:.3g} V")
+        # one transistor: ic_a, vce_v; two: S1.ic_a, S1.vce_v, S2.ic_a, S2.vce_v
+        parts = [f"gain 5–95 %: {p['gain_db'][0]:.2f} to {p['gain_db'][1]:.2f} dB"]
+        for pre in ("", "S1.", "S2."):
+            if pre + "ic_a" in p and pre + "vce_v" in p:
+                ic, vce = p[pre + "ic_a"], p[pre + "vce_v"]
+                who = f"{pre[:-1]} " if pre else ""
+                parts.append(f"{who}I_C {1e3 * ic[0]:.3g} to {1e3 * ic[1]:.3g} mA; "
+                             f"{who}V_CE {vce[0]:.3g} to {vce[1]:.3g} V")
+        out.print("; ".join(parts))
     for line in gain_histogram(res.samples["gain_db"]):
         out.print(line)

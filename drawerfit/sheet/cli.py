@@ -15,13 +15,14 @@ if TYPE_CHECKING:
     from drawerfit.sheet import WrittenSheet
 from inventory.errors import InputError
 
-__all__ = ["sheet_option", "sheet_for_design", "sheet_for_build", "spice_option",
+__all__ = ["sheet_option", "sheet_for_design", "sheet_for_build", "sheet_for_pair", "spice_option",
            "spice_for_design", "spice_for_search", "write_spice"]
 
 sheet_option = click.option(
     "--sheet", "sheet_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
     help="Also write the build sheet here: sheet.html (printable), schematic.svg, "
-         "stage.cir, response.png/.svg, drift.png, parts.csv.")
+         "stage.cir, response.png/.svg, drift.png, parts.csv (two transistors: also "
+         "waveform.png).")
 
 
 def sheet_for_design(directory, design, request, transistor, *, evaluation=None,
@@ -119,6 +120,22 @@ def sheet_for_circuit(directory, design, evaluation, circuit, yield_result=None,
     return sheet_for_design(directory, design_with_circuit_parts(design, circuit),
                             circuit.request, circuit.transistor, evaluation=evaluation,
                             yield_result=yield_result, quiet=quiet, cautions_shown=True)
+
+
+def sheet_for_pair(directory, ev, i: int, circuit, *, yield_result=None, notes=None,
+                   quiet: bool = False, cautions_shown: bool = True) -> WrittenSheet:
+    """The sheet of a two-transistor circuit (circuit ``i`` of the evaluation ``ev``),
+    then the cautions (unless ``cautions_shown``; always on stderr with ``quiet``) and
+    the files written."""
+    from drawerfit.console import err, out
+    from drawerfit.sheet import echo_sheet
+    from drawerfit.sheet.pair_writer import write_pair_sheet
+
+    written = write_pair_sheet(directory, ev, i, circuit, yield_result=yield_result,
+                               notes=notes)
+    echo_sheet(written, err if quiet else out, show_cautions=quiet or not cautions_shown,
+               title="Build sheet written:")
+    return written
 
 
 rank_option = click.option(

@@ -21,7 +21,7 @@ from optimiser.design import Design
 from optimiser.request import Request
 from optimiser.stages import module as stage_module
 
-__all__ = ["FIGURES", "render_html", "data_uri"]
+__all__ = ["FIGURES", "STAGE_FIGURES", "render_html", "render_pair_html", "data_uri"]
 
 CSS = """
 @page { size: A4; margin: 12mm; }
@@ -100,10 +100,12 @@ def _show(key: str, unit: str, v) -> str:
     return fmt.si(v, unit)
 
 
-def _req_rows(request: Request) -> list[tuple[str, str]]:
+def _req_rows(request: Request, topology: str | None = None) -> list[tuple[str, str]]:
+    """The request as understood; ``topology``: how to name a two-transistor form."""
     r = request
-    mod = stage_module(r.topology)
-    topology = f"{mod.LONG_NAME} ({mod.ALSO_CALLED})" if mod.ALSO_CALLED else mod.LONG_NAME
+    if topology is None:
+        mod = stage_module(r.topology)
+        topology = f"{mod.LONG_NAME} ({mod.ALSO_CALLED})" if mod.ALSO_CALLED else mod.LONG_NAME
     rows = [("topology", topology),
             ("supply", fmt.si(r.supply_v, "V")),
             ("load", fmt.si(r.load_ohm, "Ω") if r.load_ohm else "none (open)"),
@@ -118,6 +120,8 @@ def _req_rows(request: Request) -> list[tuple[str, str]]:
         rows.append(("upper edge at least", fmt.si(r.f_high_min_hz, "Hz")))
     if r.zin_min_ohm is not None:
         rows.append(("Zin at least", fmt.si(r.zin_min_ohm, "Ω")))
+    if getattr(r, "zout_max_ohm", None) is not None:
+        rows.append(("Zout at most", fmt.si(r.zout_max_ohm, "Ω")))
     if r.ic_drift_max_pct is not None:
         rows.append(("I_C drift at most", f"{r.ic_drift_max_pct:g} %"))
     if r.thd_max_pct is not None:
@@ -211,27 +215,8 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
                    f'<p class="small">Supply on, no signal, meter from the node to ground. '
                    f'{escape(covers)}</p>')
 
-    route_rows = []
-    defaults = False
-    for r in route:
-        kind = r["dielectric"] or r["kind"]
-        rating = r["rating"]
-        if rating.endswith(" (default)"):
-            rating, defaults = rating[:-len(" (default)")] + "*", True
-        route_rows.append((r["location"] or "—", r["role"], r["value"], kind, rating,
-                           str(r["count"]), ""))
-    route_table = _table(("bin", "role", "value", "kind", "rating", "take", "✓"), route_rows,
-                         num_cols=(5,), css="route")
-    if defaults:
-        route_table += ('<p class="small">* no rating known for this part: the stock default '
-                        'is assumed; use a part rated at least this much.</p>')
-
-    items = []
-    for c in cautions:
-        who = f"<b>{escape(c.role)}</b> " if c.role and not c.text.startswith(c.role) else ""
-        items.append(f'<li class="{c.level} {c.severity}" data-kind="{c.kind}">{who}'
-                     f'{escape(c.text)}</li>')
-    caution_list = f'<ul class="cautions">{"".join(items)}</ul>'
+    route_table = _route_table(route)
+    caution_list = _caution_list(cautions)
 
     sch = data_uri(schematic_svg, "image/svg+xml")
     resp = data_uri(response_png, "image/png")
@@ -270,7 +255,145 @@ transistor figures, the stated tolerances); verify them on the bench before rely
 """
 
 
+def _route_table(route: list[dict]) -> str:
+    """Parts in picking order: one line per stock row, with a tick column."""
+    route_rows = []
+    defaults = False
+    for r in route:
+        kind = r["dielectric"] or r["kind"]
+        rating = r["rating"]
+        if rating.endswith(" (default)"):
+            rating, defaults = rating[:-len(" (default)")] + "*", True
+        route_rows.append((r["location"] or "—", r["role"], r["value"], kind, rating,
+                           str(r["count"]), ""))
+    route_table = _table(("bin", "role", "value", "kind", "rating", "take", "✓"), route_rows,
+                         num_cols=(5,), css="route")
+    if defaults:
+        route_table += ('<p class="small">* no rating known for this part: the stock default '
+                        'is assumed; use a part rated at least this much.</p>')
+    return route_table
+
+
+def _caution_list(cautions: list[Caution]) -> str:
+    items = []
+    for c in cautions:
+        who = f"<b>{escape(c.role)}</b> " if c.role and not c.text.startswith(c.role) else ""
+        items.append(f'<li class="{c.level} {c.severity}" data-kind="{c.kind}">{who}'
+                     f'{escape(c.text)}</li>')
+    return f'<ul class="cautions">{"".join(items)}</ul>'
+
+
 def write_html(path: Path, text: str) -> Path:
     path = Path(path)
     path.write_text(text, encoding="utf-8")
     return path
+
+
+#: A two-transistor circuit's figures of each transistor: (key, what, unit).
+STAGE_FIGURES: tuple[tuple[str, str, str], ...] = (
+    ("ic_a", "collector current I_C", "A"),
+    ("vce_v", "V_CE", "V"),
+    ("ic_drift_pct", "I_C drift over hFE spread and temperature", "%"),
+    ("pd_q_w", "transistor dissipation", "W"),
+)
+
+
+def _figure_row(key: str, what: str, unit: str, v, data_key: str | None = None) -> str:
+    data = "" if v is None else repr(float(v))
+    return (f'<tr><td>{escape(what)}</td><td class="num" data-metric="{data_key or key}" '
+            f'data-value="{escape(data)}">{escape(_show(key, unit, v))}</td></tr>')
+
+
+def render_pair_html(report: dict, request: Request, *, node_words: dict[str, str],
+                     schematic_svg: bytes, response_png: bytes, waveform_png: bytes,
+                     drift_png: bytes, route: list[dict], probes: list[Probe],
+                     cautions: list[Caution]) -> str:
+    """The page of a two-transistor circuit as one string.
+
+    ``report`` is :func:`optimiser.pair_report.pair_report`'s object (figures, stages,
+    verdict); each figure is ``data-metric`` (``gain``, ``S1.ic_a``, …) with
+    ``data-value`` as ``--json`` prints it; each probe ``data-node`` (``S1.base``,
+    ``middle``, …) and ``data-volts``.
+    """
+    given = [t for t in dict.fromkeys(report["transistors"].values()) if t not in ("", "inline")]
+    who = " and ".join(given) or "the given transistors"
+    title = f"Build sheet: {report['form']}, with {who}"
+    sub = [", ".join(f"{s} {st['kind']}" for s, st in report["stages"].items())]
+    status = ('<span class="meets">meets the request</span>' if report["meets_spec"] else
+              '<span class="misses">misses the request: ' +
+              escape("; ".join(report["violations"])) + "</span>")
+    sub.append(status)
+    req = _table(("asked", ""), _req_rows(request, report["form"]))
+
+    m = report["metrics"]
+    rows = [_figure_row(key, what, unit, m.get(key)) for key, what, unit in FIGURES
+            if key in m]
+    for stage, st in report["stages"].items():
+        rows += [_figure_row(key, f"{stage}: {what}", unit, st.get(key), f"{stage}.{key}")
+                 for key, what, unit in STAGE_FIGURES if key in st]
+    figures = ('<table><thead><tr><th>figure (computed)</th><th class="num">value</th></tr>'
+               f'</thead><tbody>{"".join(rows)}</tbody></table>')
+
+    probe_rows, bases = [], []
+    for p in probes:
+        if p.low is not None and p.high is not None:
+            spread = f"{fmt.si(p.low, 'V')} to {fmt.si(p.high, 'V')}"
+            if p.basis not in bases:
+                bases.append(p.basis)
+        else:
+            spread = "nominal"
+        probe_rows.append(
+            f'<tr><td>{escape(node_words.get(p.node, p.node))}</td>'
+            f'<td class="num probe" data-node="{escape(p.node)}" data-volts="{p.volts:.6g}">'
+            f'{escape(fmt.si(p.volts, "V"))}</td>'
+            f'<td class="range">{escape(spread)}</td><td class="num">{escape(_mc(p))}</td>'
+            f'<td class="tick"></td></tr>')
+    covers = ("Range: " + "; ".join(bases) + ".") if bases else \
+        "Nominal values only: no spread was computed."
+    if any(p.p5 is not None for p in probes):
+        covers += " Monte Carlo: where 90 % of the samples lie (5th to 95th percentile)."
+    probe_table = ('<table class="probes"><thead><tr><th>node</th><th class="num">expect</th>'
+                   '<th class="num">range</th><th class="num">Monte Carlo</th><th>✓</th></tr>'
+                   f'</thead><tbody>{"".join(probe_rows)}</tbody></table>'
+                   f'<p class="small">Supply on, no signal, meter from the node to ground. '
+                   f'{escape(covers)}</p>')
+
+    sch = data_uri(schematic_svg, "image/svg+xml")
+    resp = data_uri(response_png, "image/png")
+    wave = data_uri(waveform_png, "image/png")
+    drift = data_uri(drift_png, "image/png")
+    return f"""<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<title>{escape(title)}</title>
+<style>{CSS}{severity_css("li")}</style>
+</head>
+<body>
+<h1>{escape(title)}</h1>
+<p class="sub">{" · ".join(sub)}</p>
+<section><h2>Cautions</h2>{_caution_list(cautions)}</section>
+<section><h2>Schematic</h2>
+<img class="schematic" src="{sch}" alt="schematic of both stages with role names, values and bins">
+<p class="small">Blue: DC volts to ground to expect at each transistor's base (B), emitter (E),
+collector (C) and the junction of RE and RE_BYP (J).</p>
+</section>
+<div class="cols bench">
+<section><h2>Parts, in picking order</h2>{_route_table(route)}</section>
+<section><h2>DC voltages to check</h2>{probe_table}</section>
+</div>
+<div class="cols page2">
+<section><h2>The request</h2>{req}</section>
+<section><h2>Figures</h2>{figures}</section>
+</div>
+<section><h2>Frequency response</h2>
+<img class="plot" src="{resp}" alt="Bode magnitude and phase with band edges and targets"></section>
+<section><h2>Output at the stated input</h2>
+<img class="plot" src="{wave}" alt="one period of the load voltage at the input level"></section>
+<section><h2>Bias drift{" and yield" if "yield_pct" in m else ""}</h2>
+<img class="plot" src="{drift}" alt="each transistor's collector current at the drift corners"></section>
+<footer>All figures are computed from models and nominal data (ideal parts, data-sheet
+transistor figures, the stated tolerances); verify them on the bench before relying on the circuit.</footer>
+</body>
+</html>
+"""

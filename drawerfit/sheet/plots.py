@@ -21,7 +21,7 @@ from matplotlib.figure import Figure  # noqa: E402
 from drawerfit.sheet import fmt  # noqa: E402
 from optimiser.request import Request  # noqa: E402
 
-__all__ = ["frequency_grid", "plot_response", "plot_drift"]
+__all__ = ["frequency_grid", "plot_response", "plot_drift", "plot_waveform", "plot_pair_drift"]
 
 TARGET = "#c0392b"
 EDGE = "#1f4fbf"
@@ -182,21 +182,102 @@ def plot_drift(path: Path, metrics: dict, corners: dict | None, request: Request
     axes[1].set_ylabel("gain (dB)")
     axes[1].set_title("Gain at the corners", fontsize=9)
     if yield_samples:
-        key = "gain_db" if "gain_db" in yield_samples else next(iter(yield_samples))
-        vals = np.asarray(yield_samples[key], float)
-        vals = vals[np.isfinite(vals)]
-        ax = axes[2]
-        ax.hist(vals, bins=30, color="#b9a0d6")
-        if key == "gain_db" and request.gain_db is not None:
-            for v in (request.gain_db - request.gain_tol_db, request.gain_db + request.gain_tol_db):
-                ax.axvline(v, color=TARGET, lw=1.0, ls="-.")
-        title = "Monte Carlo samples"
-        if yield_pct is not None:
-            title += f": yield {yield_pct:.1f} %"
-        ax.set_title(title, fontsize=9)
-        ax.set_xlabel(key)
-        ax.set_ylabel("samples")
+        _histogram(axes[2], request, yield_samples, yield_pct)
     fig.tight_layout()
     path = Path(path)
     fig.savefig(path, format="png", metadata=_metadata(path))
     return path
+
+
+def plot_waveform(path: Path, emf: np.ndarray, v_load: np.ndarray, request: Request,
+                  gain: float | None = None, thd_pct: float | None = None) -> Path:
+    """One period of the load voltage for a sine EMF at the request's input level.
+
+    ``emf`` and ``v_load`` are the engine's samples over one period (V); ``gain`` (V/V,
+    midband) draws the undistorted sine for comparison, ``thd_pct`` goes in the title.
+    """
+    emf = np.asarray(emf, float).reshape(-1)
+    v = np.asarray(v_load, float).reshape(-1)
+    phase = np.linspace(0.0, 360.0, v.size, endpoint=False)
+    fig = Figure(figsize=(9.0, 3.0), dpi=110)
+    ax = fig.subplots(1, 1)
+    scale, unit = (1e3, "mV") if np.nanmax(np.abs(v)) < 1.0 else (1.0, "V")
+    ax.plot(phase, v * scale, color=NOMINAL, lw=1.6, label="load voltage (computed)")
+    if gain is not None and math.isfinite(gain):
+        sign = 1.0 if np.dot(v, emf) >= 0 else -1.0
+        ax.plot(phase, sign * gain * emf * scale, color=EDGE, lw=1.0, ls="--",
+                label="midband gain × input (no distortion)")
+    title = (f"Output at {fmt.si(request.input_vpk, 'V')} peak input, "
+             f"{fmt.si(request.mid_hz, 'Hz')}")
+    if thd_pct is not None and math.isfinite(thd_pct):
+        title += f": THD {thd_pct:.3g} %"
+    ax.set_title(title, fontsize=10)
+    ax.set_xlabel("phase of the input (°)")
+    ax.set_ylabel(f"v_load ({unit})")
+    ax.set_xlim(0, 360)
+    ax.set_xticks([0, 90, 180, 270, 360])
+    ax.axhline(0.0, color="#888888", lw=0.6)
+    ax.grid(True, lw=0.4, alpha=0.6)
+    ax.legend(fontsize=8, loc="best", framealpha=0.9)
+    fig.tight_layout()
+    path = Path(path)
+    fig.savefig(path, format="png", metadata=_metadata(path))
+    return path
+
+
+def plot_pair_drift(path: Path, stages: Sequence[str], nominal_ic: Sequence[float],
+                    corners: Sequence[dict], request: Request,
+                    yield_samples: dict | None = None, yield_pct: float | None = None) -> Path:
+    """Each transistor's I_C at the drift corners of a two-transistor circuit, and the
+    yield histogram when computed.
+
+    ``corners[k]`` holds transistor ``k``'s arrays over the corners (``ic_a``, ``temp_c``)
+    and ``betas`` (a list, per corner, of both transistors' hFE at 25 °C).
+    """
+    panels = len(stages) + (1 if yield_samples else 0)
+    fig = Figure(figsize=(3.6 * panels, 3.1), dpi=110)
+    axes = fig.subplots(1, panels)
+    for k, stage in enumerate(stages):
+        c = corners[k]
+        ic = np.asarray(c["ic_a"], float).reshape(-1)
+        temp = np.asarray(c["temp_c"], float).reshape(-1)
+        labels = [f"hFE {'/'.join(f'{b:.0f}' for b in bs)}\n{t:g} °C"
+                  for bs, t in zip(c["betas"], temp, strict=True)]
+        x = np.arange(ic.size)
+        ax = axes[k]
+        ax.plot(x, ic * 1e3, "o", color=EDGE, ms=6, label="corner")
+        ic0 = _finite(nominal_ic[k])
+        if ic0:
+            ax.axhline(ic0 * 1e3, color=NOMINAL, lw=1.0, ls="--", label="nominal")
+            if request.ic_drift_max_pct is not None:
+                d = request.ic_drift_max_pct / 100.0
+                ax.axhspan(ic0 * 1e3 * (1 - d), ic0 * 1e3 * (1 + d), color=TARGET,
+                           alpha=0.10, label=f"± {request.ic_drift_max_pct:g} % allowed")
+        ax.set_xticks(x, labels, fontsize=6, rotation=90)
+        ax.set_xlim(-0.6, ic.size - 0.4)
+        ax.set_ylabel("I_C (mA)")
+        ax.set_title(f"{stage}: collector current at the corners", fontsize=9)
+        ax.legend(fontsize=7, loc="best")
+    if yield_samples:
+        _histogram(axes[-1], request, yield_samples, yield_pct)
+    fig.tight_layout()
+    path = Path(path)
+    fig.savefig(path, format="png", metadata=_metadata(path))
+    return path
+
+
+def _histogram(ax, request: Request, yield_samples: dict, yield_pct: float | None) -> None:
+    """The Monte Carlo samples' gain (dB) with the target window, else the first array."""
+    key = "gain_db" if "gain_db" in yield_samples else next(iter(yield_samples))
+    vals = np.asarray(yield_samples[key], float)
+    vals = vals[np.isfinite(vals)]
+    ax.hist(vals, bins=30, color="#b9a0d6")
+    if key == "gain_db" and request.gain_db is not None:
+        for v in (request.gain_db - request.gain_tol_db, request.gain_db + request.gain_tol_db):
+            ax.axvline(v, color=TARGET, lw=1.0, ls="-.")
+    title = "Monte Carlo samples"
+    if yield_pct is not None:
+        title += f": yield {yield_pct:.1f} %"
+    ax.set_title(title, fontsize=9)
+    ax.set_xlabel(key)
+    ax.set_ylabel("samples")

@@ -31,7 +31,8 @@ from optimiser.design import Design
 from optimiser.request import Request
 from optimiser.stages import module as stage_module
 
-__all__ = ["draw", "drawing", "DRAWINGS", "write_schematic", "role_label"]
+__all__ = ["draw", "drawing", "DRAWINGS", "write_schematic", "role_label", "pick_label",
+           "cap_symbol", "tag"]
 
 #: topology name -> its drawing: (design, request, probes) -> schemdraw.Drawing.
 DRAWINGS: dict[str, Callable[..., schemdraw.Drawing]] = {}
@@ -52,7 +53,12 @@ FONT = 14
 
 def role_label(design: Design, role: str, kind: str) -> str:
     """Three lines: role, value (with how pieces are joined), bin location."""
-    pick = design.parts[role]
+    return pick_label(design.parts[role], role, kind)
+
+
+def pick_label(pick, role: str, kind: str) -> str:
+    """Three lines for a :class:`~optimiser.design.RolePick`: role, value (with how
+    pieces are joined), bin location."""
     text = pick.label or fmt.value(pick.value, kind)
     if pick.joined:
         vals = [fmt.value(pc.value, kind) for pc in pick.pieces for _ in range(pc.count)]
@@ -110,17 +116,26 @@ def _cap(d: Design, request: Request, role: str, direction: str, label_side: str
     Polarised parts are schemdraw's polarised capacitor (curved plate and +), the
     + at the end the design says and on the side away from the label.
     """
-    if not _polarised(d, role):
+    polar = _polarised(d, role)
+    return cap_symbol(polar, polar and _plus_at_far_side(d, request, role), direction,
+                      label_side)
+
+
+def cap_symbol(polarised: bool, plus_at_end: bool, direction: str, label_side: str):
+    """A capacitor drawn toward ``direction``: schemdraw's polarised symbol (curved plate
+    and +) when ``polarised``, its + at the end (``plus_at_end``) or the start, and on
+    the side away from the label."""
+    if not polarised:
         return getattr(elm.Capacitor(), direction)(L)
     cap = getattr(elm.Capacitor2(polar=True), direction)(L)
-    if _plus_at_far_side(d, request, role):
+    if plus_at_end:
         cap = cap.reverse()
     if _PLUS_SIDE[direction] == label_side:
         cap = cap.flip()
     return cap
 
 
-def _tag(dw: schemdraw.Drawing, element, text: str, side: str, gap: float = GAP, **style):
+def tag(dw: schemdraw.Drawing, element, text: str, side: str, gap: float = GAP, **style):
     """Write ``text`` beside ``element`` (above, below, left or right of its symbol).
 
     The anchor keeps the text clear of the symbol whether or not the viewer
@@ -169,12 +184,12 @@ def _divider_biased(design: Design, request: Request,
 
     def part(element, text: str, side: str, gap: float = GAP):
         dw.add(element)
-        _tag(dw, element, text, side, gap)
+        tag(dw, element, text, side, gap)
         return element
 
     # --- transistor and the vertical stack on its emitter -------------------
     q = dw.add(elm.BjtNpn(circle=True).at((0, 0)).anchor("base"))
-    _tag(dw, q, f"Q\n{design.transistor}", "right", gap=0.1)
+    tag(dw, q, f"Q\n{design.transistor}", "right", gap=0.1)
     emitter_parts: list[str] = [r for r in ("RE", "RE_BYP") if r in p]
     stack_h = L * max(1, len(emitter_parts)) + 0.8
     y_gnd = q.emitter[1] - stack_h - 0.4

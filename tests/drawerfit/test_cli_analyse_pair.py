@@ -6,6 +6,7 @@ tests/reference/test_ngspice_pairs.py; here, that the command shows the engine's
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import pytest
@@ -104,9 +105,42 @@ def test_cascode_without_a_transistor_for_s2(tmp_path):
     assert "missing transistor for S2" in r.output
 
 
-def test_sheet_refused_for_two_transistors(tmp_path):
+def test_sheet_for_two_transistors(tmp_path):
     r, _ = _run(tmp_path, CASCODE, "--sheet", str(tmp_path / "out"))
-    assert r.exit_code == 2 and "--sheet" in r.output
+    assert r.exit_code == 0, r.output
+    assert (tmp_path / "out" / "sheet.html").is_file() and "Build sheet written:" in r.output
+
+
+@pytest.mark.parametrize("text", [CHAIN, CASCODE])
+def test_yield_in_the_json_is_the_monte_carlo_of_the_circuit(tmp_path, text):
+    """yield_samples, seed: the yield of monte_carlo_pair with the file's seed and samples,
+    in the metrics and under "yield"; min_yield_pct above it is a violation."""
+    from optimiser.yield_ import monte_carlo_pair
+
+    # a tight f_low bound, so that part of the samples miss it
+    text = text.replace("temp_c = [0, 50]", "temp_c = [0, 50]\nyield_samples = 300\nseed = 4")
+    c0 = load_circuit(_run(tmp_path, text)[1])
+    f_low = float(evaluate_pair(c0.request, c0.batch(), c0.transistors).metrics["f_low_hz"][0])
+    text = re.sub(r"f_low_max_hz = \d+", f"f_low_max_hz = {f_low:.6g}", text)
+    r, p = _run(tmp_path, text, "--json")
+    assert r.exit_code == 0, r.output
+    d = json.loads(r.output)["design"]
+    c = load_circuit(p)
+    res = monte_carlo_pair(c.request, c.form, c.values, c.transistors, c.tolerances,
+                           samples=300, seed=4)
+    assert d["metrics"]["yield_pct"] == pytest.approx(res.yield_pct)
+    assert 5.0 < res.yield_pct < 95.0 and res.fail_share["f_low_hz"] > 0.05
+    assert d["yield"]["samples"] == 300 and d["yield"]["seed"] == 4
+    assert set(d["yield"]["fail_share"]) >= {"f_low_hz", "forward_active", "limits"}
+    assert not any(v.startswith("yield_pct") for v in d["violations"])
+    floor = res.yield_pct + 1.0
+    r, _ = _run(tmp_path, text.replace("seed = 4", f"seed = 4\nmin_yield_pct = {floor:.4g}"),
+                "--json")
+    d = json.loads(r.output)["design"]
+    assert d["meets_spec"] is False
+    assert any(v.startswith("yield_pct") for v in d["violations"])
+    r, _ = _run(tmp_path, text)
+    assert r.exit_code == 0 and f"yield {res.yield_pct:.1f} %" in r.output, r.output
 
 
 def test_design_refuses_a_chain_request(tmp_path):
