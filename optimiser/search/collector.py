@@ -25,6 +25,8 @@ from optimiser.search.bounds import (
 )
 from optimiser.search.levels import _expand
 from optimiser.search.skeletons import Skeletons
+from optimiser.search.thd_floor import applies as thd_floor_applies
+from optimiser.search.thd_floor import floor_proven
 from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
 
 
@@ -199,6 +201,11 @@ class CollectorLevel:
         self.count("dc", (~good).sum())
         supply = (V - op.vb) / r1c + op.ic
         good &= drift_term(dlb) + current_term(supply) < upper        # B5 with the exact current
+        if thd_floor_applies(request):     # B22: the directly driven junction's THD floor
+            g = np.flatnonzero(good)
+            gone = g[floor_proven(request, RCc[g], op.take(g), model)]
+            self.count("thd_floor", gone.size)
+            good[gone] = False
         gdb = np.full(Pc.size, np.nan)
         hd2 = np.full(Pc.size, np.nan)
         sel = np.flatnonzero(good)
