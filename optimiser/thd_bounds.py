@@ -32,7 +32,7 @@ V_CE falls by at most R'·I_C0·(e^{a} − 1) + v̂ (the emitter follows the EMF
 I_C stays above I_C0·e^{−a}.
 
 Claim: for a stage whose base is held and whose emitter is driven from 0 Ω, with
-its quiescent I_C0 in [ic_lo, ic_hi], R' in [rl_lo, rl_hi], V_CB0 ≥ vcb_lo, and
+its quiescent I_C0 ≤ ic_hi, R' ≤ rl_hi, V_CB0 ≥ vcb_lo, and
 for which ``cannot_clip`` holds, the engine's THD at amplitude v̂ is at least
 ``emitter_driven_thd_floor``.  Checked against the engine on random stages, near
 saturation included, in tests/optimiser/test_thd_bounds.py.
@@ -40,10 +40,13 @@ saturation included, in tests/optimiser/test_thd_bounds.py.
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
-__all__ = ["THD_MARGIN", "CLIP_MARGIN", "logistic_thd_pct", "early_compression",
-           "cannot_clip", "emitter_driven_thd_floor"]
+__all__ = ["THD_MARGIN", "CLIP_MARGIN", "C_TABLE_TOP", "logistic_thd_pct",
+           "least_logistic_thd_pct", "early_compression", "cannot_clip",
+           "emitter_driven_thd_floor"]
 
 #: Relative margin taken off the logistic THD (the left-out base–collector terms
 #: and the grid over c).
@@ -59,8 +62,9 @@ _HARMONICS = np.arange(2, 10)
 _SIN = np.sin(2.0 * np.pi * np.arange(_POINTS) / _POINTS)
 #: Columns 1 (the fundamental) and 2–9 of the DFT matrix.
 _DFT = np.exp(-2j * np.pi * np.outer(np.arange(_POINTS), np.r_[1, _HARMONICS]) / _POINTS)
-#: Points of the grid over c between the ends of a bracket.
-_C_GRID = 9
+#: The grid of compressions the least THD is tabulated on (per drive).
+C_TABLE_TOP = 4.0
+_C_TABLE = np.linspace(0.0, C_TABLE_TOP, 4097)
 
 
 def logistic_thd_pct(a, c) -> np.ndarray:
@@ -103,29 +107,52 @@ def cannot_clip(input_vpk, vt, ic_hi, rl_hi, vce_lo, vce_sat, ic_floor) -> np.nd
     return (np.asarray(vce_lo, dtype=float) - drop >= vce_sat) & (fall >= ic_floor)
 
 
-def emitter_driven_thd_floor(input_vpk, vt, ic_lo, ic_hi, rl_lo, rl_hi, vcb_lo, vcb_hi,
-                             vaf, source_ohm, vce_min) -> np.ndarray:
+@functools.lru_cache(maxsize=32)
+def _least_thd_table(a: float) -> np.ndarray:
+    """At each point c_k of :data:`_C_TABLE`, a lower bound of the logistic THD at
+    every c ≤ c_k: per cell [c_(k−1), c_k] the smaller end less the largest change
+    of the THD over that cell and its two neighbours (the form is smooth: within a
+    cell it moves no further than between neighbouring points), the least of these
+    over the cells up to c_k, times 1 − THD_MARGIN."""
+    t = logistic_thd_pct(np.full(_C_TABLE.size, a), _C_TABLE)
+    d = np.abs(np.diff(t))
+    step = np.maximum(np.maximum(d, np.r_[d[1:], d[-1]]), np.r_[d[0], d[:-1]])
+    cell = np.minimum(t[:-1], t[1:]) - step
+    return (1.0 - THD_MARGIN) * np.r_[t[0], np.minimum.accumulate(cell)]
+
+
+def least_logistic_thd_pct(a, c_hi) -> np.ndarray:
+    """A lower bound (%) of the logistic THD at drive ``a`` over every c in
+    [0, c_hi] (0 beyond the table's last point, C_TABLE_TOP)."""
+    a, c_hi = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(c_hi, dtype=float))
+    out = np.zeros(a.shape)
+    k = np.searchsorted(_C_TABLE, c_hi, side="left")      # first grid point ≥ c_hi
+    inside = (k < _C_TABLE.size) & (c_hi >= 0)
+    for av in np.unique(a[inside]):
+        m = inside & (a == av)
+        out[m] = _least_thd_table(float(av))[k[m]]
+    return np.maximum(out, 0.0)
+
+
+def emitter_driven_thd_floor(input_vpk, vt, ic_hi, rl_hi, vcb_lo, vaf, source_ohm,
+                             vce_min) -> np.ndarray:
     """A lower bound (%) of the engine's THD at ``input_vpk`` for every stage whose
     base is held, whose emitter is driven from ``source_ohm`` = 0, and which stays
-    forward-active over the cycle (see :func:`cannot_clip`), with quiescent I_C0 in
-    [ic_lo, ic_hi], R' = R_C‖R_L in [rl_lo, rl_hi] and V_CB0 in [vcb_lo, vcb_hi]:
-    the least of the logistic THD over the compressions c the ranges allow, less
-    THD_MARGIN, less the share the base–collector terms may take where the cycle's
-    least V_CE (``vce_min``, e.g. V_CE0 less the drop of :func:`cannot_clip`) comes
-    near saturation: they are at most e^{−V_CE/V_T} of the junction's current, up to
+    forward-active over the cycle (see :func:`cannot_clip`), with quiescent
+    I_C0 ≤ ic_hi, R' = R_C‖R_L ≤ rl_hi and V_CB0 ≥ vcb_lo: the least logistic THD
+    over every compression c ≤ c_hi = ic_hi·rl_hi/(V_AF + vcb_lo) (so it holds
+    whether or not the THD falls with c), less THD_MARGIN and the grid's slack, less
+    the share the base–collector terms may take where the cycle's least V_CE
+    (``vce_min``, e.g. V_CE0 less the drop of :func:`cannot_clip`) comes near
+    saturation: they are at most e^{−V_CE/V_T} of the junction's current, up to
     I_C0·e^{a} over the cycle, against a fundamental of about I_C0·a/2, so
     BC_SHARE·e^{a − V_CE,min/V_T}/a of the fundamental (in %) is taken off.
     0 (no claim) for a source of any other resistance."""
     a = float(input_vpk) / np.asarray(vt, dtype=float)
-    c_lo = early_compression(ic_lo, rl_lo, vcb_hi, vaf)
     c_hi = early_compression(ic_hi, rl_hi, vcb_lo, vaf)
-    a, c_lo, c_hi = np.broadcast_arrays(a, c_lo, c_hi)
+    a, c_hi = np.broadcast_arrays(a, c_hi)
     if source_ohm != 0:
         return np.zeros(a.shape)
-    # the grid over each bracket [c_lo, c_hi] (one point where it is one value)
-    t = np.linspace(0.0, 1.0, _C_GRID) if np.any(c_hi != c_lo) else np.zeros(1)
-    cs = c_lo[..., None] + (c_hi - c_lo)[..., None] * t
-    thd = logistic_thd_pct(np.broadcast_to(a[..., None], cs.shape), cs)
     with np.errstate(over="ignore"):
         near = BC_SHARE * np.exp(a - np.asarray(vce_min, dtype=float) / np.asarray(vt, dtype=float)) / a
-    return np.maximum((1.0 - THD_MARGIN) * np.min(thd, axis=-1) - 100.0 * near, 0.0)
+        return np.maximum(least_logistic_thd_pct(a, c_hi) - 100.0 * near, 0.0)

@@ -13,11 +13,12 @@ from __future__ import annotations
 import numpy as np
 
 from optimiser import distortion
+from optimiser.device import thermal_voltage
 from optimiser.stages import module
 from optimiser.stages.base import base_held
 from optimiser.thd_bounds import cannot_clip, emitter_driven_thd_floor
 
-__all__ = ["applies", "floor_proven", "thd_keep"]
+__all__ = ["applies", "floor_proven", "floor_proven_range", "thd_keep"]
 
 
 def applies(request) -> bool:
@@ -42,8 +43,29 @@ def floor_proven(request, rc, op, model) -> np.ndarray:
     out = np.zeros(safe.shape, dtype=bool)
     s = np.flatnonzero(safe)
     if s.size:
-        floor = emitter_driven_thd_floor(v, vt[s], ic[s], ic[s], rl[s], rl[s], vcb[s], vcb[s],
-                                         model.vaf, request.source_ohm, vce_min[s])
+        floor = emitter_driven_thd_floor(v, vt[s], ic[s], rl[s], vcb[s], model.vaf,
+                                         request.source_ohm, vce_min[s])
+        out[s] = floor > request.thd_max_pct
+    return out
+
+
+def floor_proven_range(request, rc, re_total, ic_hi, model, beta) -> np.ndarray:
+    """:func:`floor_proven` before the DC point is solved, from the upper end
+    ``ic_hi`` of the node's I_C bracket (B1): V_CE0 ≥ V − I_C·R_C − I_E·R_E with
+    I_E ≤ I_C·(1 + 2/β) (the base current, with room for the base–collector
+    diode's), and V_CB0 ≥ that V_CE0 less 1 V (V_BE < 1 V, as B1 takes it)."""
+    v = request.input_vpk
+    vt = thermal_voltage(25.0)          # the nominal operating point's
+    rc, ic_hi = np.asarray(rc, dtype=float), np.asarray(ic_hi, dtype=float)
+    rl = rc if request.load_ohm is None else rc * request.load_ohm / (rc + request.load_ohm)
+    vce_lo = request.supply_v - ic_hi * rc - ic_hi * (1.0 + 2.0 / beta) * np.asarray(re_total)
+    safe = cannot_clip(v, vt, ic_hi, rl, vce_lo, model.vce_sat, distortion.IC_FLOOR)
+    out = np.zeros(safe.shape, dtype=bool)
+    s = np.flatnonzero(safe)
+    if s.size:
+        vce_min = vce_lo[s] - rl[s] * ic_hi[s] * np.expm1(v / vt) - v
+        floor = emitter_driven_thd_floor(v, vt, ic_hi[s], rl[s], vce_lo[s] - 1.0, model.vaf,
+                                         request.source_ohm, vce_min)
         out[s] = floor > request.thd_max_pct
     return out
 
