@@ -26,10 +26,10 @@ terms the form leaves out are e^{−V_CE/V_T} of the junction's current, below
 The form holds only while the transistor stays forward-active over the whole cycle:
 a stage driven into saturation has a THD below it (the swing flattens against the
 saturation edge and the harmonics of the two ends partly cancel).  ``cannot_clip``
-is a sufficient test that it does not leave forward-active at v̂: the compressed
-current never exceeds the bare exponential's, so I_C ≤ I_C0·e^{a} over the cycle,
-V_CE falls by at most R'·I_C0·(e^{a} − 1) + v̂ (the emitter follows the EMF), and
-I_C stays above I_C0·e^{−a}.
+is a sufficient test that it does not leave forward-active at v̂: the current
+rises at most to the logistic form's peak, I_C0·(1 + c)·e^{a}/(1 + c·e^{a}) ≤
+I_C0·e^{a}, so V_CE falls by at most the larger of R'·(I_C,peak − I_C0) and v̂
+(the emitter follows the EMF), and I_C stays above I_C0·e^{−a}.
 
 Claim: for a stage whose base is held and whose emitter is driven from 0 Ω, with
 its quiescent I_C0 ≤ ic_hi, R' ≤ rl_hi, V_CB0 ≥ vcb_lo, and
@@ -45,7 +45,7 @@ import functools
 import numpy as np
 
 __all__ = ["THD_MARGIN", "CLIP_MARGIN", "C_TABLE_TOP", "logistic_thd_pct",
-           "least_logistic_thd_pct", "early_compression", "cannot_clip",
+           "least_logistic_thd_pct", "early_compression", "least_vce", "cannot_clip",
            "emitter_driven_thd_floor"]
 
 #: Relative margin taken off the logistic THD (the left-out base–collector terms
@@ -96,15 +96,30 @@ def early_compression(ic, r_load, vcb, vaf) -> np.ndarray:
     return ic * r_load / (vaf + vcb)
 
 
-def cannot_clip(input_vpk, vt, ic_hi, rl_hi, vce_lo, vce_sat, ic_floor) -> np.ndarray:
+def least_vce(input_vpk, vt, ic_hi, rl_hi, vce_lo, c_lo=0.0) -> np.ndarray:
+    """A lower bound of V_CE over a cycle of amplitude ``input_vpk`` at the emitter
+    (0 Ω source) for quiescent I_C0 ≤ ic_hi, R' ≤ rl_hi, V_CE0 ≥ vce_lo and a
+    compression c ≥ c_lo: V_CE(e) = V_CE0 − R'·(I_C(e) − I_C0) − e, and the current
+    rises (e < 0) at most to the logistic form's I_C0·(1 + c)·e^a/(1 + c·e^a) (the
+    base–collector terms only lower it; CLIP_MARGIN covers their share of I_C0),
+    while it falls (e > 0) the emitter's rise is at most v̂."""
+    a = float(input_vpk) / np.asarray(vt, dtype=float)
+    ea = np.exp(a)
+    c = np.maximum(np.asarray(c_lo, dtype=float), 0.0)
+    rise = ((1.0 + c) * ea / (1.0 + c * ea) - 1.0) * (1.0 + CLIP_MARGIN) + CLIP_MARGIN * a
+    drop = np.asarray(rl_hi, dtype=float) * np.asarray(ic_hi, dtype=float) * rise
+    return np.asarray(vce_lo, dtype=float) - np.maximum(drop, float(input_vpk))
+
+
+def cannot_clip(input_vpk, vt, ic_hi, rl_hi, vce_lo, vce_sat, ic_floor, c_lo=0.0) -> np.ndarray:
     """True where a stage driven at the emitter from 0 Ω provably stays forward-active
     (V_CE ≥ vce_sat and I_C ≥ ic_floor·I_C0) over a whole cycle of amplitude
-    ``input_vpk``, for quiescent I_C0 ≤ ic_hi, R' ≤ rl_hi and V_CE0 ≥ vce_lo."""
+    ``input_vpk``, for quiescent I_C0 ≤ ic_hi, R' ≤ rl_hi, V_CE0 ≥ vce_lo and a
+    compression c ≥ c_lo (:func:`least_vce`; the current never falls below
+    I_C0·e^{−a})."""
     a = float(input_vpk) / np.asarray(vt, dtype=float)
-    rise = np.expm1(a) * (1.0 + CLIP_MARGIN) + CLIP_MARGIN * a
-    drop = np.asarray(rl_hi, dtype=float) * np.asarray(ic_hi, dtype=float) * rise + input_vpk
     fall = np.exp(-a) * (1.0 - CLIP_MARGIN)
-    return (np.asarray(vce_lo, dtype=float) - drop >= vce_sat) & (fall >= ic_floor)
+    return (least_vce(input_vpk, vt, ic_hi, rl_hi, vce_lo, c_lo) >= vce_sat) & (fall >= ic_floor)
 
 
 @functools.lru_cache(maxsize=32)

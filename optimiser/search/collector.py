@@ -191,7 +191,7 @@ class CollectorLevel:
         rep = rep[sel]
         if Pc.size and thd_floor_applies(request):
             # B22 from the top of the I_C bracket, before the DC point is solved
-            keep = ~floor_proven_range(request, RCc, REc + BYc, ic_hi[rep], model,
+            keep = ~floor_proven_range(request, RCc, REc + BYc, ic_lo[rep], ic_hi[rep], model,
                                        float(self.t.beta_nominal))
             self.count("thd_floor", (~keep).sum())
             Pc, REc, BYc, dlb, RCc, RCbest, rep, stock_lb = (

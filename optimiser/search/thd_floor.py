@@ -16,7 +16,7 @@ from optimiser import distortion
 from optimiser.device import thermal_voltage
 from optimiser.stages import module
 from optimiser.stages.base import base_held
-from optimiser.thd_bounds import cannot_clip, emitter_driven_thd_floor
+from optimiser.thd_bounds import cannot_clip, early_compression, emitter_driven_thd_floor, least_vce
 
 __all__ = ["applies", "floor_proven", "floor_proven_range", "thd_keep"]
 
@@ -38,8 +38,10 @@ def floor_proven(request, rc, op, model) -> np.ndarray:
     rl = rc if request.load_ohm is None else rc * request.load_ohm / (rc + request.load_ohm)
     ic, vce, vt = np.asarray(op.ic), np.asarray(op.vce), np.asarray(op.vt)
     vcb = vce - np.asarray(op.vbe)
-    safe = cannot_clip(v, vt, ic, rl, vce, model.vce_sat, distortion.IC_FLOOR)
-    vce_min = vce - rl * ic * np.expm1(v / vt) - v
+    # the exact point's compression, less 1 % for the base–collector terms
+    c_lo = 0.99 * early_compression(ic, rl, vcb, model.vaf)
+    safe = cannot_clip(v, vt, ic, rl, vce, model.vce_sat, distortion.IC_FLOOR, c_lo)
+    vce_min = least_vce(v, vt, ic, rl, vce, c_lo)
     out = np.zeros(safe.shape, dtype=bool)
     s = np.flatnonzero(safe)
     if s.size:
@@ -49,21 +51,23 @@ def floor_proven(request, rc, op, model) -> np.ndarray:
     return out
 
 
-def floor_proven_range(request, rc, re_total, ic_hi, model, beta) -> np.ndarray:
-    """:func:`floor_proven` before the DC point is solved, from the upper end
-    ``ic_hi`` of the node's I_C bracket (B1): V_CE0 ≥ V − I_C·R_C − I_E·R_E with
+def floor_proven_range(request, rc, re_total, ic_lo, ic_hi, model, beta) -> np.ndarray:
+    """:func:`floor_proven` before the DC point is solved, from the node's I_C
+    bracket [ic_lo, ic_hi] (B1): V_CE0 ≥ V − I_C·R_C − I_E·R_E with
     I_E ≤ I_C·(1 + 2/β) (the base current, with room for the base–collector
-    diode's), and V_CB0 ≥ that V_CE0 less 1 V (V_BE < 1 V, as B1 takes it)."""
+    diode's), V_CB0 ≥ that V_CE0 less 1 V (V_BE < 1 V, as B1 takes it), and
+    V_CB0 ≤ V for the least compression."""
     v = request.input_vpk
     vt = thermal_voltage(25.0)          # the nominal operating point's
     rc, ic_hi = np.asarray(rc, dtype=float), np.asarray(ic_hi, dtype=float)
     rl = rc if request.load_ohm is None else rc * request.load_ohm / (rc + request.load_ohm)
     vce_lo = request.supply_v - ic_hi * rc - ic_hi * (1.0 + 2.0 / beta) * np.asarray(re_total)
-    safe = cannot_clip(v, vt, ic_hi, rl, vce_lo, model.vce_sat, distortion.IC_FLOOR)
+    c_lo = early_compression(ic_lo, rl, request.supply_v, model.vaf)
+    safe = cannot_clip(v, vt, ic_hi, rl, vce_lo, model.vce_sat, distortion.IC_FLOOR, c_lo)
     out = np.zeros(safe.shape, dtype=bool)
     s = np.flatnonzero(safe)
     if s.size:
-        vce_min = vce_lo[s] - rl[s] * ic_hi[s] * np.expm1(v / vt) - v
+        vce_min = least_vce(v, vt, ic_hi[s], rl[s], vce_lo[s], c_lo[s])
         floor = emitter_driven_thd_floor(v, vt, ic_hi[s], rl[s], vce_lo[s] - 1.0, model.vaf,
                                          request.source_ohm, vce_min)
         out[s] = floor > request.thd_max_pct

@@ -18,8 +18,10 @@ from optimiser.stage import StageBatch
 from optimiser.thd_bounds import (
     THD_MARGIN,
     cannot_clip,
+    early_compression,
     emitter_driven_thd_floor,
     least_logistic_thd_pct,
+    least_vce,
     logistic_thd_pct,
 )
 
@@ -67,12 +69,13 @@ def test_floor_never_above_the_engine(vaf, supply_v, load_ohm, vpk):
     at or below the engine's THD; it keeps at least 0.99 of it (median)."""
     rng = np.random.default_rng(int(1000 * vpk) + int(supply_v))
     req, b, m, op, ok, rl = _random_cb(rng, 1500, vaf, supply_v, load_ohm, vpk)
-    safe = ok & cannot_clip(vpk, op.vt, op.ic, rl, op.vce, m.vce_sat, IC_FLOOR)
+    vcb = op.vce - op.vbe
+    c_lo = 0.99 * early_compression(op.ic, rl, vcb, m.vaf)
+    safe = ok & cannot_clip(vpk, op.vt, op.ic, rl, op.vce, m.vce_sat, IC_FLOOR, c_lo)
     assert safe.sum() > 200
     _, a_lim = swing_vpk(req, b, m, op)
     assert not np.any(safe & np.isfinite(a_lim) & (a_lim < vpk))
-    vcb = op.vce - op.vbe
-    vce_min = op.vce - rl * op.ic * np.expm1(vpk / op.vt) - vpk
+    vce_min = least_vce(vpk, op.vt, op.ic, rl, op.vce, c_lo)
     floor = emitter_driven_thd_floor(vpk, op.vt, op.ic, rl, vcb, m.vaf, 0.0, vce_min)
     thd = thd_pct(req, b, m, op)
     r = floor[safe] / thd[safe]
