@@ -25,6 +25,8 @@ from optimiser.search.bounds import (
 )
 from optimiser.search.levels import _expand
 from optimiser.search.skeletons import Skeletons
+from optimiser.search.thd_floor import applies as thd_floor_applies
+from optimiser.search.thd_floor import floor_proven, floor_proven_range
 from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
 
 
@@ -187,6 +189,13 @@ class CollectorLevel:
         stock_lb = st[ok]
         Pc, REc, BYc, dlb, RCc, RCbest = (x[sel] for x in (Pc, REc, BYc, dlb, RCc, RCbest))
         rep = rep[sel]
+        if Pc.size and thd_floor_applies(request):
+            # B22 from the top of the I_C bracket, before the DC point is solved
+            keep = ~floor_proven_range(request, RCc, REc + BYc, ic_lo[rep], ic_hi[rep], model,
+                                       float(self.t.beta_nominal))
+            self.count("thd_floor", (~keep).sum())
+            Pc, REc, BYc, dlb, RCc, RCbest, rep, stock_lb = (
+                x[keep] for x in (Pc, REc, BYc, dlb, RCc, RCbest, rep, stock_lb))
         if Pc.size == 0:
             return None
         r1c, r2c = self.R1[Pc], self.R2[Pc]
@@ -199,6 +208,11 @@ class CollectorLevel:
         self.count("dc", (~good).sum())
         supply = (V - op.vb) / r1c + op.ic
         good &= drift_term(dlb) + current_term(supply) < upper        # B5 with the exact current
+        if thd_floor_applies(request):     # B22: the directly driven junction's THD floor
+            g = np.flatnonzero(good)
+            gone = g[floor_proven(request, RCc[g], op.take(g), model)]
+            self.count("thd_floor", gone.size)
+            good[gone] = False
         gdb = np.full(Pc.size, np.nan)
         hd2 = np.full(Pc.size, np.nan)
         sel = np.flatnonzero(good)

@@ -38,6 +38,8 @@ from optimiser.search.limits import gain_window
 from optimiser.search.seeding import _seed_designs
 from optimiser.search.skeletons import FORMS, Skeletons, _take_all
 from optimiser.search.stock import _ratings_best
+from optimiser.search.thd_floor import applies as thd_floor_applies
+from optimiser.search.thd_floor import thd_keep
 from optimiser.search.workers import split_branch_and_bound, worker_count
 
 #: Skeletons per heap entry of the "cands" level (one operating-point and corner
@@ -276,6 +278,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
     stats.setdefault("quick_evaluations", 0)
     steps = 0
     backlog_screened = False
+    thd_direct = thd_floor_applies(request)
     t_start = time.perf_counter()
     while any(heaps.values()):
         if budget_s is not None and time.perf_counter() - t_start > budget_s:
@@ -358,6 +361,9 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             lb15 = skeleton_bound(request, sk.gdb, drift, sk.hd2, sk.supply, op.vce, sk.stock_lb)
             live = np.flatnonzero(ok & (lb15 < kth))
             live = live[f_low_prescreen(request, opts, sk.take(live), stats)]
+            if thd_direct and live.size:
+                live = live[thd_keep(request, sk.take(live), b.take(live), model,
+                                     op.take(live), stats)]
             for i in live:
                 push(Entry(float(lb15[i]), next(seq), "skel",
                            SkeletonPick(sk, int(i), {"drift_pct": float(drift[i]),

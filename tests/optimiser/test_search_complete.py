@@ -119,7 +119,7 @@ def cases(draw):
             for i, v in enumerate(cvals)]
     t = Transistor(T.label, T.hfe_min, T.hfe_max, qty=draw(st.sampled_from([2, 4])), ft=T.ft,
                    cob=T.cob, vceo=T.vceo, ic_max=T.ic_max, pd=draw(st.sampled_from([0.05, T.pd])),
-                   id=T.id, location="Q1")
+                   vaf=draw(st.sampled_from([None, 30.0, 80.0])), id=T.id, location="Q1")
     gain = draw(st.one_of(st.none(), st.floats(0.5, 0.95)) if topo == "cc"
                 else st.floats(1.5, 40.0))
     req = Request(
@@ -135,7 +135,7 @@ def cases(draw):
         temp_c=(0.0, 50.0), builds=builds, mid_hz=draw(st.sampled_from([1e3, 1e3, 1e5])),
         input_vpk=draw(st.sampled_from([0.001, 0.01, 0.05])),
         # the request file's defaults (optimiser.request.DEFAULTS) and other values
-        thd_max_pct=draw(st.sampled_from([None, None, 1.0, 5.0])),
+        thd_max_pct=draw(st.sampled_from([None, None, 1.0, 5.0, 8.0])),
         ic_min_a=draw(st.sampled_from([None, 1e-4, 1e-4, 1e-3])))
     return req, StockSnapshot(tuple(res), tuple(caps), (t,))
 

@@ -1,0 +1,92 @@
+"""The THD ceiling at the skeletons of a stage whose junction the source drives
+directly (docs/search.md, B22): the floor of :mod:`optimiser.thd_bounds` where the
+stage provably stays forward-active, the engine's own THD elsewhere.
+
+The engine's THD (the quasi-static transfer of :mod:`optimiser.distortion`) depends
+on the resistors, the transistor and the nominal operating point only: every
+capacitor stands for a DC source at midband, whatever its value.  So a skeleton's
+THD, computed with the capacitors shorted, is that of every design built on it.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from optimiser import distortion
+from optimiser.device import thermal_voltage
+from optimiser.stages import module
+from optimiser.stages.base import base_held
+from optimiser.thd_bounds import cannot_clip, early_compression, emitter_driven_thd_floor, least_vce
+
+__all__ = ["applies", "floor_proven", "floor_proven_range", "thd_keep"]
+
+
+def applies(request) -> bool:
+    """A THD ceiling is set and the source drives the junction directly: the input at
+    the emitter with the base held by a capacitor, from a source of 0 Ω."""
+    mod = module(request.topology)
+    return (request.thd_max_pct is not None and request.source_ohm == 0
+            and mod.INPUT == "emitter" and base_held(mod))
+
+
+def floor_proven(request, rc, op, model) -> np.ndarray:
+    """True where the stages of collector resistors ``rc`` and nominal operating
+    point ``op`` provably stay forward-active over the cycle and the THD floor is
+    above ``thd_max_pct`` (where :func:`applies`)."""
+    v = request.input_vpk
+    rc = np.asarray(rc, dtype=float)
+    rl = rc if request.load_ohm is None else rc * request.load_ohm / (rc + request.load_ohm)
+    ic, vce, vt = np.asarray(op.ic), np.asarray(op.vce), np.asarray(op.vt)
+    vcb = vce - np.asarray(op.vbe)
+    # the exact point's compression, less 1 % for the base–collector terms
+    c_lo = 0.99 * early_compression(ic, rl, vcb, model.vaf)
+    safe = cannot_clip(v, vt, ic, rl, vce, model.vce_sat, distortion.IC_FLOOR, c_lo)
+    vce_min = least_vce(v, vt, ic, rl, vce, c_lo)
+    out = np.zeros(safe.shape, dtype=bool)
+    s = np.flatnonzero(safe)
+    if s.size:
+        floor = emitter_driven_thd_floor(v, vt[s], ic[s], rl[s], vcb[s], model.vaf,
+                                         request.source_ohm, vce_min[s])
+        out[s] = floor > request.thd_max_pct
+    return out
+
+
+def floor_proven_range(request, rc, re_total, ic_lo, ic_hi, model, beta) -> np.ndarray:
+    """:func:`floor_proven` before the DC point is solved, from the node's I_C
+    bracket [ic_lo, ic_hi] (B1): V_CE0 ≥ V − I_C·R_C − I_E·R_E with
+    I_E ≤ I_C·(1 + 2/β) (the base current, with room for the base–collector
+    diode's), V_CB0 ≥ that V_CE0 less 1 V (V_BE < 1 V, as B1 takes it), and
+    V_CB0 ≤ V for the least compression."""
+    v = request.input_vpk
+    vt = thermal_voltage(25.0)          # the nominal operating point's
+    rc, ic_hi = np.asarray(rc, dtype=float), np.asarray(ic_hi, dtype=float)
+    rl = rc if request.load_ohm is None else rc * request.load_ohm / (rc + request.load_ohm)
+    vce_lo = request.supply_v - ic_hi * rc - ic_hi * (1.0 + 2.0 / beta) * np.asarray(re_total)
+    c_lo = early_compression(ic_lo, rl, request.supply_v, model.vaf)
+    safe = cannot_clip(v, vt, ic_hi, rl, vce_lo, model.vce_sat, distortion.IC_FLOOR, c_lo)
+    out = np.zeros(safe.shape, dtype=bool)
+    s = np.flatnonzero(safe)
+    if s.size:
+        vce_min = least_vce(v, vt, ic_hi[s], rl[s], vce_lo[s], c_lo[s])
+        floor = emitter_driven_thd_floor(v, vt, ic_hi[s], rl[s], vce_lo[s] - 1.0, model.vaf,
+                                         request.source_ohm, vce_min)
+        out[s] = floor > request.thd_max_pct
+    return out
+
+
+def thd_keep(request, sk, batch, model, op, stats: dict) -> np.ndarray:
+    """True for the skeletons of ``sk`` (its ``batch`` and operating point ``op``)
+    whose THD may meet ``thd_max_pct``: those the floor proves above it are dropped
+    (``stats["pruned"]["thd_floor"]``), and of the rest those whose engine THD is
+    above it (``stats["pruned"]["thd_engine"]``)."""
+    lim = request.thd_max_pct
+    keep = ~floor_proven(request, sk.RC, op, model)
+    pr = stats["pruned"]
+    pr["thd_floor"] = pr.get("thd_floor", 0) + int((~keep).sum())
+    rest = np.flatnonzero(keep)
+    if rest.size:
+        thd = distortion.thd_pct(request, batch.take(rest), model, op.take(rest))
+        over = ~(thd <= lim)
+        keep[rest[over]] = False
+        pr["thd_engine"] = pr.get("thd_engine", 0) + int(over.sum())
+    return keep
