@@ -82,8 +82,36 @@ def _si(x: float, unit: str) -> str:
         return f"{_g(x)} {unit}"
 
 
+class RuleVerdicts:
+    """What a batch's rules say of candidate ``i``: the texts of the rules it fails
+    by kind, and their keys.  For an evaluation with ``batch`` and ``rules``."""
+
+    batch: object
+    rules: list
+
+    @property
+    def n(self) -> int:
+        return self.batch.n
+
+    def _texts(self, i: int, kinds) -> list[str]:
+        return [r.text(i) for r in self.rules if r.kind in kinds and bool(r.fail[i])]
+
+    def violations(self, i: int) -> list[str]:
+        """Plain-word reasons (with numbers) why candidate ``i`` is invalid or misses a target."""
+        return self._texts(i, ("validity", "target"))
+
+    def validity_violations(self, i: int) -> list[str]:
+        return self._texts(i, ("validity",))
+
+    def warnings(self, i: int) -> list[str]:
+        return self._texts(i, ("warning",))
+
+    def failed_keys(self, i: int) -> list[str]:
+        return [r.key for r in self.rules if r.kind in ("validity", "target") and bool(r.fail[i])]
+
+
 @dataclass
-class Evaluation:
+class Evaluation(RuleVerdicts):
     """Figures and verdicts for ``n`` candidates; every array has shape (n,).
 
     Attributes
@@ -119,26 +147,6 @@ class Evaluation:
     small: dict[str, np.ndarray]
     extra: dict[str, np.ndarray]
     rules: list[_Rule]
-
-    @property
-    def n(self) -> int:
-        return self.batch.n
-
-    def _texts(self, i: int, kinds) -> list[str]:
-        return [r.text(i) for r in self.rules if r.kind in kinds and bool(r.fail[i])]
-
-    def violations(self, i: int) -> list[str]:
-        """Plain-word reasons (with numbers) why candidate ``i`` is invalid or misses a target."""
-        return self._texts(i, ("validity", "target"))
-
-    def validity_violations(self, i: int) -> list[str]:
-        return self._texts(i, ("validity",))
-
-    def warnings(self, i: int) -> list[str]:
-        return self._texts(i, ("warning",))
-
-    def failed_keys(self, i: int) -> list[str]:
-        return [r.key for r in self.rules if r.kind in ("validity", "target") and bool(r.fail[i])]
 
     def target_fail(self) -> dict[str, np.ndarray]:
         """Target key -> (n,) bool of candidates missing it."""
