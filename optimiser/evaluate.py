@@ -110,6 +110,19 @@ class RuleVerdicts:
         return [r.key for r in self.rules if r.kind in ("validity", "target") and bool(r.fail[i])]
 
 
+def verdicts(rules: list[_Rule], n: int) -> tuple[np.ndarray, np.ndarray]:
+    """(valid, meets), arrays (n,): no validity rule fails; valid and no target
+    rule fails."""
+    valid = np.ones(n, bool)
+    meets = np.ones(n, bool)
+    for r in rules:
+        if r.kind == "validity":
+            valid &= ~r.fail
+        elif r.kind == "target":
+            meets &= ~r.fail
+    return valid, meets & valid
+
+
 @dataclass
 class Evaluation(RuleVerdicts):
     """Figures and verdicts for ``n`` candidates; every array has shape (n,).
@@ -440,14 +453,7 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
                                      f"transistor out of the forward-active region (it stays "
                                      f"linear up to {_g(swing_emf[i])} V peak)"))
 
-    valid = np.ones(n, bool)
-    meets = np.ones(n, bool)
-    for r in rules:
-        if r.kind == "validity":
-            valid &= ~r.fail
-        elif r.kind == "target":
-            meets &= ~r.fail
-    meets &= valid
+    valid, meets = verdicts(rules, n)
     extra = {"peak_db": peak_db, "swing_emf_vpk": swing_emf}
     return Evaluation(request=request, batch=batch, transistor=transistor, model=model, op=op,
                       metrics=metrics, valid=valid, meets=meets, corners=corners, plus=plus,

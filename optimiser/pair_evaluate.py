@@ -29,7 +29,7 @@ from inventory.parts import DEFAULT_CAPACITOR_VOLTAGE_V, DEFAULT_RESISTOR_POWER_
 from . import ac, distortion
 from .dc import CUTOFF_A, OperatingPoint, operating_point, solve_nodes
 from .device import DeviceModel, device_from_transistor, junction_currents, scaled, thermal_voltage
-from .evaluate import DERATING, FLAT_PASSBAND_DB, RuleVerdicts, _g, _Rule, _si
+from .evaluate import DERATING, FLAT_PASSBAND_DB, RuleVerdicts, _g, _Rule, _si, verdicts
 from .request import Request
 from .stage import PartRatings, StageBatch
 from .stages.pair import (
@@ -379,14 +379,7 @@ def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: Part
                            lambda i: f"an input of {_g(request.input_vpk)} V peak drives a "
                                      "transistor out of the forward-active region (both stay "
                                      f"linear up to {_g(swing_emf[i])} V peak)"))
-    valid = np.ones(n, bool)
-    meets = np.ones(n, bool)
-    for rule in rules:
-        if rule.kind == "validity":
-            valid &= ~rule.fail
-        elif rule.kind == "target":
-            meets &= ~rule.fail
-    meets &= valid
+    valid, meets = verdicts(rules, n)
     return PairEvaluation(
         request=request, batch=batch, transistors=transistors, models=models, ops=ops,
         volts=volts, metrics=metrics, stages=stages, corners=corners, capacitors=caps,
