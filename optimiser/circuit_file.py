@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from inventory import values as V
 from inventory.errors import ErrorList, InputError
 from inventory.parts import (
     DEFAULT_CAPACITOR_TOLERANCE,
@@ -51,7 +52,9 @@ from .request import CIRCUIT_KEYS, Request, _line_of, parse_request, read_toml
 from .stage import RESISTOR_ROLES, PartRatings, StageBatch
 from .stages import NAMES as TOPOLOGY_NAMES
 from .stages import module as stage_module
+from .stages import pair_form
 from .stages.base import role_problems
+from .stages.pair import PairBatch
 
 __all__ = ["Circuit", "PairCircuit", "parse_circuit", "load_circuit", "TRANSISTOR_KEYS"]
 
@@ -92,7 +95,6 @@ class PairCircuit:
     stock_parts: dict[str, object] = field(default_factory=dict)
 
     def batch(self):
-        from .stages.pair import PairBatch
         return PairBatch.from_values(self.form, **self.values)
 
 
@@ -129,7 +131,6 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
     store : callable, optional
         Returns the stock store; called only when a stock label or id is used.
     """
-    from inventory import values as V
 
     def err(key, msg, line_key=None):
         return InputError(msg, file=file, line=_line_of(text, line_key or key.split(".")[-1]),
@@ -161,15 +162,7 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
                                    f"({', '.join(mod.REQUIRED)} for {topo})", "[parts]"))
         parts = {}
 
-    _store = None
-
-    def get_store():
-        nonlocal _store
-        if _store is None:
-            if store is None:
-                raise InputError("stock references need the store", file=file)
-            _store = store()
-        return _store
+    get_store = _store_getter(store, file)
 
     values: dict[str, float] = {}
     labels: dict[str, str] = {}
@@ -208,33 +201,9 @@ def parse_circuit(mapping: dict, *, file: str | None = None, text: str | None = 
             raise err("transistor", "missing transistor: give transistor = \"LABEL\" or a "
                                     "[transistor] table with hfe_min and hfe_max", "[transistor]")
 
-    tols: dict[str, float] = {}
-    raw_t = mapping.get("tolerances", {})
-    if not isinstance(raw_t, dict):
-        errors.append(err("tolerances", "expected a [tolerances] table of role = tolerance"))
-        raw_t = {}
-    for role, t in raw_t.items():
-        with collect():
-            if role not in values:
-                if role in bad_roles:
-                    continue
-                raise err(f"tolerances.{role}",
-                          f"tolerance for '{role}', which is not among the parts", role)
-            try:
-                tols[role] = V.parse_tolerance(t)
-            except InputError as e:
-                raise err(f"tolerances.{role}", e.message, role) from None
-    if errors:
-        raise _all(errors)
-    for role in values:
-        if role not in tols:
-            tols[role] = tol_stock.get(role, DEFAULT_RESISTOR_TOLERANCE if _kind(role) ==
-                                       "resistor" else DEFAULT_CAPACITOR_TOLERANCE)
-    ratings = PartRatings(
-        power_w={k: np.asarray(v) for k, v in power_w.items()},
-        voltage_v={k: np.asarray(v) for k, v in voltage_v.items()},
-        polarised={k: np.asarray(v) for k, v in polarised.items()},
-    )
+    tols = _tolerances(mapping.get("tolerances", {}), values, bad_roles, tol_stock, _kind,
+                       err, problems)
+    ratings = _ratings(power_w, voltage_v, polarised)
     return Circuit(req, values, transistor, tols, labels, ids, ratings, stock_parts)
 
 
@@ -245,11 +214,62 @@ def _all(errors: list[InputError]) -> InputError:
     return gathered.combined()
 
 
+def _store_getter(store: Callable[[], object] | None, file: str | None) -> Callable[[], object]:
+    """The store, opened on first use (only a stock label or id needs it)."""
+    opened: list[object] = []
+
+    def get_store():
+        if not opened:
+            if store is None:
+                raise InputError("stock references need the store", file=file)
+            opened.append(store())
+        return opened[0]
+    return get_store
+
+
+def _tolerances(raw_t, values: dict[str, float], bad: set[str], tol_stock: dict[str, float],
+                kind_of: Callable[[str], str], err, problems: ErrorList) -> dict[str, float]:
+    """The ``[tolerances]`` table read against the parts (every bad entry collected;
+    raises the collected errors), then each part without one given: its stock
+    item's tolerance, else the default of its kind."""
+
+    tols: dict[str, float] = {}
+    if not isinstance(raw_t, dict):
+        problems.errors.append(err("tolerances",
+                                   "expected a [tolerances] table of role = tolerance"))
+        raw_t = {}
+    for role, t in raw_t.items():
+        with problems.collect():
+            if role not in values:
+                if role in bad:
+                    continue
+                raise err(f"tolerances.{role}",
+                          f"tolerance for '{role}', which is not among the parts", role)
+            try:
+                tols[role] = V.parse_tolerance(t)
+            except InputError as e:
+                raise err(f"tolerances.{role}", e.message, role) from None
+    if problems.errors:
+        raise _all(problems.errors)
+    for role in values:
+        if role not in tols:
+            tols[role] = tol_stock.get(role, DEFAULT_RESISTOR_TOLERANCE if kind_of(role) ==
+                                       "resistor" else DEFAULT_CAPACITOR_TOLERANCE)
+    return tols
+
+
+def _ratings(power_w: dict, voltage_v: dict, polarised: dict) -> PartRatings:
+    return PartRatings(
+        power_w={k: np.asarray(v) for k, v in power_w.items()},
+        voltage_v={k: np.asarray(v) for k, v in voltage_v.items()},
+        polarised={k: np.asarray(v) for k, v in polarised.items()},
+    )
+
+
 def _part(role, raw, topo, err, get_store, values, labels, ids, stock_parts, power_w,
           voltage_v, polarised, tol_stock, form=None) -> None:
     """Read one ``[parts]`` entry into the tables (raises InputError for a bad one);
     ``form``: the two-transistor form whose roles these are (``topo`` unused then)."""
-    from inventory import values as V
 
     key = f"parts.{role}"
     names = stage_module(topo).ROLE_NAMES if form is None else form.role_names
@@ -295,7 +315,6 @@ def _part(role, raw, topo, err, get_store, values, labels, ids, stock_parts, pow
 
 
 def _inline_transistor(tr: dict, err) -> Transistor:
-    from inventory import values as V
 
     errors = [err(f"transistor.{key}", f"unknown transistor key '{key}' "
                                        f"(known: {', '.join(TRANSISTOR_KEYS)})", key)
@@ -354,10 +373,6 @@ def _inline_transistor(tr: dict, err) -> Transistor:
 
 def _parse_pair(mapping, req, problems, *, file, text, store) -> PairCircuit:
     """The two-transistor part of :func:`parse_circuit` (the request already read)."""
-    from inventory import values as V
-
-    from .stages import pair_form
-
     errors, collect = problems.errors, problems.collect
 
     def line(key):
@@ -390,15 +405,7 @@ def _parse_pair(mapping, req, problems, *, file, text, store) -> PairCircuit:
                           "[parts]"))
         parts = {}
     parts = _flatten(parts)
-    _store = None
-
-    def get_store():
-        nonlocal _store
-        if _store is None:
-            if store is None:
-                raise InputError("stock references need the store", file=file)
-            _store = store()
-        return _store
+    get_store = _store_getter(store, file)
 
     values, labels, ids, stock_parts = {}, {}, {}, {}
     power_w, voltage_v, polarised, tol_stock = {}, {}, {}, {}
@@ -447,33 +454,10 @@ def _parse_pair(mapping, req, problems, *, file, text, store) -> PairCircuit:
         read[id(tr)] = t
         transistors.append(t)
 
-    tols: dict[str, float] = {}
     raw_t = mapping.get("tolerances", {})
-    if not isinstance(raw_t, dict):
-        errors.append(err("tolerances", "expected a [tolerances] table of role = tolerance"))
-        raw_t = {}
-    for role, tv in _flatten(raw_t).items():
-        with collect():
-            if role not in values:
-                if role in bad:
-                    continue
-                raise err(f"tolerances.{role}",
-                          f"tolerance for '{role}', which is not among the parts", role)
-            try:
-                tols[role] = V.parse_tolerance(tv)
-            except InputError as e:
-                raise err(f"tolerances.{role}", e.message, role) from None
-    if errors:
-        raise _all(errors)
-    for role in values:
-        if role not in tols:
-            tols[role] = tol_stock.get(role, DEFAULT_RESISTOR_TOLERANCE if form.kind(role) ==
-                                       "resistor" else DEFAULT_CAPACITOR_TOLERANCE)
-    ratings = PartRatings(
-        power_w={k: np.asarray(v) for k, v in power_w.items()},
-        voltage_v={k: np.asarray(v) for k, v in voltage_v.items()},
-        polarised={k: np.asarray(v) for k, v in polarised.items()},
-    )
+    tols = _tolerances(_flatten(raw_t) if isinstance(raw_t, dict) else raw_t, values, bad,
+                       tol_stock, form.kind, err, problems)
+    ratings = _ratings(power_w, voltage_v, polarised)
     return PairCircuit(req, form, values, tuple(transistors), tols, labels, ids, ratings,
                        stock_parts)
 

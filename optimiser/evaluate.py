@@ -82,8 +82,49 @@ def _si(x: float, unit: str) -> str:
         return f"{_g(x)} {unit}"
 
 
+class RuleVerdicts:
+    """What a batch's rules say of candidate ``i``: the texts of the rules it fails
+    by kind, and their keys.  For an evaluation with ``batch`` and ``rules``."""
+
+    batch: object
+    rules: list
+
+    @property
+    def n(self) -> int:
+        return self.batch.n
+
+    def _texts(self, i: int, kinds) -> list[str]:
+        return [r.text(i) for r in self.rules if r.kind in kinds and bool(r.fail[i])]
+
+    def violations(self, i: int) -> list[str]:
+        """Plain-word reasons (with numbers) why candidate ``i`` is invalid or misses a target."""
+        return self._texts(i, ("validity", "target"))
+
+    def validity_violations(self, i: int) -> list[str]:
+        return self._texts(i, ("validity",))
+
+    def warnings(self, i: int) -> list[str]:
+        return self._texts(i, ("warning",))
+
+    def failed_keys(self, i: int) -> list[str]:
+        return [r.key for r in self.rules if r.kind in ("validity", "target") and bool(r.fail[i])]
+
+
+def verdicts(rules: list[_Rule], n: int) -> tuple[np.ndarray, np.ndarray]:
+    """(valid, meets), arrays (n,): no validity rule fails; valid and no target
+    rule fails."""
+    valid = np.ones(n, bool)
+    meets = np.ones(n, bool)
+    for r in rules:
+        if r.kind == "validity":
+            valid &= ~r.fail
+        elif r.kind == "target":
+            meets &= ~r.fail
+    return valid, meets & valid
+
+
 @dataclass
-class Evaluation:
+class Evaluation(RuleVerdicts):
     """Figures and verdicts for ``n`` candidates; every array has shape (n,).
 
     Attributes
@@ -119,26 +160,6 @@ class Evaluation:
     small: dict[str, np.ndarray]
     extra: dict[str, np.ndarray]
     rules: list[_Rule]
-
-    @property
-    def n(self) -> int:
-        return self.batch.n
-
-    def _texts(self, i: int, kinds) -> list[str]:
-        return [r.text(i) for r in self.rules if r.kind in kinds and bool(r.fail[i])]
-
-    def violations(self, i: int) -> list[str]:
-        """Plain-word reasons (with numbers) why candidate ``i`` is invalid or misses a target."""
-        return self._texts(i, ("validity", "target"))
-
-    def validity_violations(self, i: int) -> list[str]:
-        return self._texts(i, ("validity",))
-
-    def warnings(self, i: int) -> list[str]:
-        return self._texts(i, ("warning",))
-
-    def failed_keys(self, i: int) -> list[str]:
-        return [r.key for r in self.rules if r.kind in ("validity", "target") and bool(r.fail[i])]
 
     def target_fail(self) -> dict[str, np.ndarray]:
         """Target key -> (n,) bool of candidates missing it."""
@@ -432,14 +453,7 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
                                      f"transistor out of the forward-active region (it stays "
                                      f"linear up to {_g(swing_emf[i])} V peak)"))
 
-    valid = np.ones(n, bool)
-    meets = np.ones(n, bool)
-    for r in rules:
-        if r.kind == "validity":
-            valid &= ~r.fail
-        elif r.kind == "target":
-            meets &= ~r.fail
-    meets &= valid
+    valid, meets = verdicts(rules, n)
     extra = {"peak_db": peak_db, "swing_emf_vpk": swing_emf}
     return Evaluation(request=request, batch=batch, transistor=transistor, model=model, op=op,
                       metrics=metrics, valid=valid, meets=meets, corners=corners, plus=plus,

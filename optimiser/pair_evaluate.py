@@ -29,7 +29,7 @@ from inventory.parts import DEFAULT_CAPACITOR_VOLTAGE_V, DEFAULT_RESISTOR_POWER_
 from . import ac, distortion
 from .dc import CUTOFF_A, OperatingPoint, operating_point, solve_nodes
 from .device import DeviceModel, device_from_transistor, junction_currents, scaled, thermal_voltage
-from .evaluate import DERATING, FLAT_PASSBAND_DB, _g, _Rule, _si
+from .evaluate import DERATING, FLAT_PASSBAND_DB, RuleVerdicts, _g, _Rule, _si, verdicts
 from .request import Request
 from .stage import PartRatings, StageBatch
 from .stages.pair import (
@@ -139,7 +139,7 @@ def pair_transfer(request: Request, batch: PairBatch, models, ops, volts, emf):
 
 
 @dataclass
-class PairEvaluation:
+class PairEvaluation(RuleVerdicts):
     """Figures and verdicts of ``n`` two-transistor circuits; arrays (n,).
 
     ``metrics``: the whole circuit's gain, gain_db, f_low_hz, f_high_hz, zin_ohm,
@@ -163,21 +163,6 @@ class PairEvaluation:
     rules: list[_Rule] = field(default_factory=list)
     extra: dict = field(default_factory=dict)
 
-    @property
-    def n(self) -> int:
-        return self.batch.n
-
-    def _texts(self, i, kinds):
-        return [r.text(i) for r in self.rules if r.kind in kinds and bool(r.fail[i])]
-
-    def violations(self, i: int) -> list[str]:
-        return self._texts(i, ("validity", "target"))
-
-    def warnings(self, i: int) -> list[str]:
-        return self._texts(i, ("warning",))
-
-    def failed_keys(self, i: int) -> list[str]:
-        return [r.key for r in self.rules if r.kind in ("validity", "target") and bool(r.fail[i])]
 
 
 def _corner_arrays(request: Request, models):
@@ -394,14 +379,7 @@ def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: Part
                            lambda i: f"an input of {_g(request.input_vpk)} V peak drives a "
                                      "transistor out of the forward-active region (both stay "
                                      f"linear up to {_g(swing_emf[i])} V peak)"))
-    valid = np.ones(n, bool)
-    meets = np.ones(n, bool)
-    for rule in rules:
-        if rule.kind == "validity":
-            valid &= ~rule.fail
-        elif rule.kind == "target":
-            meets &= ~rule.fail
-    meets &= valid
+    valid, meets = verdicts(rules, n)
     return PairEvaluation(
         request=request, batch=batch, transistors=transistors, models=models, ops=ops,
         volts=volts, metrics=metrics, stages=stages, corners=corners, capacitors=caps,

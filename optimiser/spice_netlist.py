@@ -109,6 +109,88 @@ class _Nodes:
         return "0" if n == "ground" else n
 
 
+class _Deck:
+    """A deck being written: node joins, the element lines with their comments, and
+    the nodes they use; the supply, signal source and load every deck has; the
+    closing options and analyses."""
+
+    def __init__(self, wiring, is_resistor, values: dict[str, float], request: Request):
+        self.nodes = _Nodes()
+        for role, a, b in wiring:
+            if is_resistor(role) and values.get(role, 0.0) == 0.0:
+                self.nodes.join(a, b)
+        if not request.source_ohm:
+            self.nodes.join("emf", "source")
+        self.parts: list[str] = []
+        self.used: set[str] = set()
+
+    def node(self, n: str) -> str:
+        """SPICE name of node ``n`` (0 for ground; no dot, as SPICE names carry none)."""
+        return self.nodes.spice(n).replace(".", "_")
+
+    def element(self, name: str, a: str, b: str, value: str, note: str) -> None:
+        na, nb = self.node(a), self.node(b)
+        self.parts.append(f"* {_comment(note)}")
+        self.parts.append(f"{name} {na} {nb} {value}")
+        self.used.update((na, nb))
+
+    def sources(self, request: Request) -> None:
+        """The supply, the signal source and its resistance."""
+        self.element("VSUPPLY", "supply", "ground", f"DC {spice_number(request.supply_v)}",
+                     f"supply: {format_si(request.supply_v, 'V')}")
+        src = "DC 0 AC 1"
+        if request.input_vpk:
+            src += f" SIN(0 {spice_number(request.input_vpk)} {spice_number(request.mid_hz)})"
+        self.element("VSIGNAL", "emf", "ground", src,
+                     "signal source: AC 1 V for the response"
+                     + (f"; a {format_si(request.input_vpk, 'V')} peak sine at "
+                        f"{format_si(request.mid_hz, 'Hz')} for a transient"
+                        if request.input_vpk else ""))
+        if request.source_ohm:
+            self.element("RSOURCE", "emf", "source", spice_number(request.source_ohm),
+                         f"source resistance: {format_value(request.source_ohm, 'resistor')}")
+
+    def load(self, request: Request) -> None:
+        if request.load_ohm:
+            self.element("RLOAD", "load", "ground", spice_number(request.load_ohm),
+                         f"load: {format_value(request.load_ohm, 'resistor')}")
+        else:
+            self.element("RLOAD", "load", "ground", spice_number(NO_LOAD_OHM),
+                         f"no load: {spice_number(NO_LOAD_OHM)} ohm only gives the open "
+                         "output a DC path")
+
+    def transistor(self, name: str, model: str, b: str, e: str, c: str, note: str) -> None:
+        self.parts.append(f"* {name}: {_comment(note)} (nominal hFE, 25 degC)")
+        cc, bb, ee = (self.node(n) for n in (c, b, e))
+        self.parts.append(f"{name} {cc} {bb} {ee} {model}")
+        self.used.update((cc, bb, ee))
+
+    def text(self, head: list[str], node_meaning, models: list[str]) -> str:
+        """The whole deck: ``head`` (title lines), the nodes used with what they are
+        (``node_meaning(name)`` or None), the elements, the models, the analyses."""
+        lines = list(head)
+        lines.append("* nodes (0 is ground):")
+        for n in sorted(self.used, key=_node_order):
+            meaning = None if n == "0" else node_meaning(n)
+            if meaning:
+                lines.append(f"*   {n}: {meaning}")
+        lines.append("*")
+        lines += self.parts
+        lines += models
+        lines.append(f".options TEMP=25 TNOM=25 RELTOL={RELTOL:g}")
+        lines.append(".op")
+        lines.append(f".ac dec {GRID_PER_DECADE} {spice_number(F_MIN_HZ)} "
+                     f"{spice_number(F_MAX_HZ)}")
+        lines.append(".end")
+        return "\n".join(lines) + "\n"
+
+
+def _node_order(n: str) -> tuple:
+    """Nodes listed in the order of NODE_MEANING, then by name."""
+    order = list(NODE_MEANING)
+    return (order.index(n), "") if n in order else (len(order), n)
+
+
 def spice_netlist(design: Design, request: Request, transistor) -> str:
     """The SPICE deck of ``design`` as text (lines end with ``\\n``, last line ``.end``).
 
@@ -124,46 +206,17 @@ def spice_netlist(design: Design, request: Request, transistor) -> str:
     """
     wiring = stages.module(design.topology).WIRING
     values = {role: float(pick.value) for role, pick in design.parts.items()}
-    nodes = _Nodes()
-    for role, a, b in wiring:
-        if role.startswith("R") and values.get(role, 0.0) == 0.0:
-            nodes.join(a, b)
-    if not request.source_ohm:
-        nodes.join("emf", "source")
-
+    deck = _Deck(wiring, lambda role: role.startswith("R"), values, request)
     title = (f"drawerfit {design.topology} stage"
              + (f", rank {design.rank}" if design.rank else "")
              + f", transistor {design.transistor}, supply {format_si(request.supply_v, 'V')}")
-    lines = [_comment(title), "*"]
-
-    parts: list[str] = []
-    used: set[str] = set()
-
-    def element(name: str, a: str, b: str, value: str, note: str) -> None:
-        na, nb = nodes.spice(a), nodes.spice(b)
-        parts.append(f"* {_comment(note)}")
-        parts.append(f"{name} {na} {nb} {value}")
-        used.update((na, nb))
-
-    # Supply and signal source.
-    element("VSUPPLY", "supply", "ground", f"DC {spice_number(request.supply_v)}",
-            f"supply: {format_si(request.supply_v, 'V')}")
-    src = "DC 0 AC 1"
-    if request.input_vpk:
-        src += f" SIN(0 {spice_number(request.input_vpk)} {spice_number(request.mid_hz)})"
-    element("VSIGNAL", "emf", "ground", src,
-            "signal source: AC 1 V for the response"
-            + (f"; a {format_si(request.input_vpk, 'V')} peak sine at "
-               f"{format_si(request.mid_hz, 'Hz')} for a transient" if request.input_vpk else ""))
-    if request.source_ohm:
-        element("RSOURCE", "emf", "source", spice_number(request.source_ohm),
-                f"source resistance: {format_value(request.source_ohm, 'resistor')}")
+    deck.sources(request)
 
     # The stage's parts under their role names.
     for role, a, b in wiring:
         pick = design.parts.get(role)
         v = values.get(role, 0.0)
-        if pick is None or v == 0.0 or nodes.find(a) == nodes.find(b):
+        if pick is None or v == 0.0 or deck.nodes.find(a) == deck.nodes.find(b):
             continue
         kind = "resistor" if role.startswith("R") else "capacitor"
         note = f"{role}: {format_value(v, kind)}"
@@ -178,34 +231,11 @@ def spice_netlist(design: Design, request: Request, transistor) -> str:
             if pick.plus == b:                           # + side first
                 a, b = b, a
             note += f", polarised: + on {a}"
-        element(role, a, b, spice_number(v), note)
-
-    # The load.
-    if request.load_ohm:
-        element("RLOAD", "load", "ground", spice_number(request.load_ohm),
-                f"load: {format_value(request.load_ohm, 'resistor')}")
-    else:
-        element("RLOAD", "load", "ground", spice_number(NO_LOAD_OHM),
-                f"no load: {spice_number(NO_LOAD_OHM)} ohm only gives the open output a DC path")
-
-    # The transistor.
-    c, b, e = (nodes.spice(n) for n in ("collector", "base", "emitter"))
-    parts.append(f"* Q: {_comment(design.transistor)} (nominal hFE, 25 degC)")
-    parts.append(f"Q {c} {b} {e} Q")
-    used.update((c, b, e))
-
-    lines.append("* nodes (0 is ground):")
-    for n, meaning in NODE_MEANING.items():
-        if n in used:
-            lines.append(f"*   {n}: {meaning}")
-    lines.append("*")
-    lines += parts
-    lines.append(spice_model_line(device_from_transistor(transistor), "Q"))
-    lines.append(f".options TEMP=25 TNOM=25 RELTOL={RELTOL:g}")
-    lines.append(".op")
-    lines.append(f".ac dec {GRID_PER_DECADE} {spice_number(F_MIN_HZ)} {spice_number(F_MAX_HZ)}")
-    lines.append(".end")
-    return "\n".join(lines) + "\n"
+        deck.element(role, a, b, spice_number(v), note)
+    deck.load(request)
+    deck.transistor("Q", "Q", "base", "emitter", "collector", design.transistor)
+    return deck.text([_comment(title), "*"], NODE_MEANING.get,
+                     [spice_model_line(device_from_transistor(transistor), "Q")])
 
 
 def pair_spice_netlist(circuit, transistors) -> str:
@@ -220,41 +250,14 @@ def pair_spice_netlist(circuit, transistors) -> str:
     form = circuit.form
     request = circuit.request
     values = dict(circuit.values)
-    nodes = _Nodes()
-    for role, a, b in form.wiring:
-        if form.kind(role) == "resistor" and values.get(role, 0.0) == 0.0:
-            nodes.join(a, b)
-    if not request.source_ohm:
-        nodes.join("emf", "source")
-
-    def spice_node(n: str) -> str:
-        return nodes.spice(n).replace(".", "_")
-
+    deck = _Deck(form.wiring, lambda role: form.kind(role) == "resistor", values, request)
     labels = " and ".join(dict.fromkeys(t.label for t in transistors))
     title = (f"drawerfit {form.name} circuit ({form.long_name}), transistors {labels}, "
              f"supply {format_si(request.supply_v, 'V')}")
-    lines = [_comment(title.replace("→", "->")), "*"]
-    parts: list[str] = []
-    used: set[str] = set()
-
-    def element(name, a, b, value, note):
-        na, nb = spice_node(a), spice_node(b)
-        parts.append(f"* {_comment(note)}")
-        parts.append(f"{name} {na} {nb} {value}")
-        used.update((na, nb))
-
-    element("VSUPPLY", "supply", "ground", f"DC {spice_number(request.supply_v)}",
-            f"supply: {format_si(request.supply_v, 'V')}")
-    src = "DC 0 AC 1"
-    if request.input_vpk:
-        src += f" SIN(0 {spice_number(request.input_vpk)} {spice_number(request.mid_hz)})"
-    element("VSIGNAL", "emf", "ground", src, "signal source: AC 1 V for the response")
-    if request.source_ohm:
-        element("RSOURCE", "emf", "source", spice_number(request.source_ohm),
-                f"source resistance: {format_value(request.source_ohm, 'resistor')}")
+    deck.sources(request)
     for role, a, b in form.wiring:
         v = values.get(role, 0.0)
-        if v == 0.0 or nodes.find(a) == nodes.find(b):
+        if v == 0.0 or deck.nodes.find(a) == deck.nodes.find(b):
             continue
         kind = form.kind(role)
         note = f"{role}: {format_value(v, kind)}"
@@ -262,32 +265,14 @@ def pair_spice_netlist(circuit, transistors) -> str:
         name = role.replace(".", "_")
         if "." in role or not name.startswith(letter):
             name = letter + name                 # SPICE reads the kind from the first letter
-        element(name, a, b, spice_number(v), note)
-    load = request.load_ohm or NO_LOAD_OHM
-    element("RLOAD", "load", "ground", spice_number(load),
-            f"load: {format_value(request.load_ohm, 'resistor')}" if request.load_ohm
-            else f"no load: {spice_number(NO_LOAD_OHM)} ohm only gives the open output a "
-                 "DC path")
+        deck.element(name, a, b, spice_number(v), note)
+    deck.load(request)
     models = []
     for stage, (b, e, c), t in zip(form.stages, form.devices, transistors, strict=True):
-        model = f"Q{stage}"
-        parts.append(f"* {stage}: {_comment(t.label)} (nominal hFE, 25 degC)")
-        parts.append(f"Q{stage} {spice_node(c)} {spice_node(b)} {spice_node(e)} {model}")
-        used.update(spice_node(x) for x in (b, e, c))
-        models.append(spice_model_line(device_from_transistor(t), model))
-    lines.append("* nodes (0 is ground):")
-    for n in sorted(used):
-        if n == "0":
-            continue
-        meaning = NODE_MEANING.get(n) or form.node_words.get(n.replace("_", ".", 1)) \
-            or form.node_words.get(n)
-        if meaning:
-            lines.append(f"*   {n}: {meaning}")
-    lines.append("*")
-    lines += parts
-    lines += models
-    lines.append(f".options TEMP=25 TNOM=25 RELTOL={RELTOL:g}")
-    lines.append(".op")
-    lines.append(f".ac dec {GRID_PER_DECADE} {spice_number(F_MIN_HZ)} {spice_number(F_MAX_HZ)}")
-    lines.append(".end")
-    return "\n".join(lines) + "\n"
+        deck.transistor(f"Q{stage}", f"Q{stage}", b, e, c, t.label)
+        models.append(spice_model_line(device_from_transistor(t), f"Q{stage}"))
+
+    def meaning(n: str) -> str | None:
+        return (NODE_MEANING.get(n) or form.node_words.get(n.replace("_", ".", 1))
+                or form.node_words.get(n))
+    return deck.text([_comment(title.replace("→", "->")), "*"], meaning, models)

@@ -215,12 +215,28 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
                    f'<p class="small">Supply on, no signal, meter from the node to ground. '
                    f'{escape(covers)}</p>')
 
-    route_table = _route_table(route)
-    caution_list = _caution_list(cautions)
+    return _page(
+        title, sub, cautions,
+        schematic=(data_uri(schematic_svg, "image/svg+xml"),
+                   "schematic of the stage with role names, values and bins",
+                   "Blue: DC volts to ground to expect at base (B), emitter (E), collector (C)."),
+        route=route, probe_table=probe_table, req=req, figures=figures,
+        plots=[("Frequency response", data_uri(response_png, "image/png"),
+                "Bode magnitude and phase with band edges and targets"),
+               (f"Bias drift{' and yield' if 'yield_pct' in design.metrics else ''}",
+                data_uri(drift_png, "image/png"),
+                "collector current and gain at the drift corners")],
+        thing="the stage")
 
-    sch = data_uri(schematic_svg, "image/svg+xml")
-    resp = data_uri(response_png, "image/png")
-    drift = data_uri(drift_png, "image/png")
+
+def _page(title: str, sub: list[str], cautions: list[Caution], *, schematic: tuple[str, str, str],
+          route: list[dict], probe_table: str, req: str, figures: str,
+          plots: list[tuple[str, str, str]], thing: str) -> str:
+    """The sheet's page: title, cautions, schematic (data URI, alt text, legend), the
+    bench's two tables, the request and figures, the plots (heading, data URI, alt)."""
+    sch, alt, legend = schematic
+    plot_html = "\n".join(f'<section><h2>{heading}</h2>\n<img class="plot" src="{uri}" '
+                          f'alt="{plot_alt}"></section>' for heading, uri, plot_alt in plots)
     return f"""<!DOCTYPE html>
 <html lang="en">
 <head>
@@ -231,25 +247,22 @@ def render_html(design: Design, request: Request, *, schematic_svg: bytes,
 <body>
 <h1>{escape(title)}</h1>
 <p class="sub">{" · ".join(sub)}</p>
-<section><h2>Cautions</h2>{caution_list}</section>
+<section><h2>Cautions</h2>{_caution_list(cautions)}</section>
 <section><h2>Schematic</h2>
-<img class="schematic" src="{sch}" alt="schematic of the stage with role names, values and bins">
-<p class="small">Blue: DC volts to ground to expect at base (B), emitter (E), collector (C).</p>
+<img class="schematic" src="{sch}" alt="{alt}">
+<p class="small">{legend}</p>
 </section>
 <div class="cols bench">
-<section><h2>Parts, in picking order</h2>{route_table}</section>
+<section><h2>Parts, in picking order</h2>{_route_table(route)}</section>
 <section><h2>DC voltages to check</h2>{probe_table}</section>
 </div>
 <div class="cols page2">
 <section><h2>The request</h2>{req}</section>
 <section><h2>Figures</h2>{figures}</section>
 </div>
-<section><h2>Frequency response</h2>
-<img class="plot" src="{resp}" alt="Bode magnitude and phase with band edges and targets"></section>
-<section><h2>Bias drift{" and yield" if "yield_pct" in design.metrics else ""}</h2>
-<img class="plot" src="{drift}" alt="collector current and gain at the drift corners"></section>
+{plot_html}
 <footer>All figures are computed from models and nominal data (ideal parts, data-sheet
-transistor figures, the stated tolerances); verify them on the bench before relying on the stage.</footer>
+transistor figures, the stated tolerances); verify them on the bench before relying on {thing}.</footer>
 </body>
 </html>
 """
@@ -358,42 +371,18 @@ def render_pair_html(report: dict, request: Request, *, node_words: dict[str, st
                    f'<p class="small">Supply on, no signal, meter from the node to ground. '
                    f'{escape(covers)}</p>')
 
-    sch = data_uri(schematic_svg, "image/svg+xml")
-    resp = data_uri(response_png, "image/png")
-    wave = data_uri(waveform_png, "image/png")
-    drift = data_uri(drift_png, "image/png")
-    return f"""<!DOCTYPE html>
-<html lang="en">
-<head>
-<meta charset="utf-8">
-<title>{escape(title)}</title>
-<style>{CSS}{severity_css("li")}</style>
-</head>
-<body>
-<h1>{escape(title)}</h1>
-<p class="sub">{" · ".join(sub)}</p>
-<section><h2>Cautions</h2>{_caution_list(cautions)}</section>
-<section><h2>Schematic</h2>
-<img class="schematic" src="{sch}" alt="schematic of both stages with role names, values and bins">
-<p class="small">Blue: DC volts to ground to expect at each transistor's base (B), emitter (E),
-collector (C) and the junction of RE and RE_BYP (J).</p>
-</section>
-<div class="cols bench">
-<section><h2>Parts, in picking order</h2>{_route_table(route)}</section>
-<section><h2>DC voltages to check</h2>{probe_table}</section>
-</div>
-<div class="cols page2">
-<section><h2>The request</h2>{req}</section>
-<section><h2>Figures</h2>{figures}</section>
-</div>
-<section><h2>Frequency response</h2>
-<img class="plot" src="{resp}" alt="Bode magnitude and phase with band edges and targets"></section>
-<section><h2>Output at the stated input</h2>
-<img class="plot" src="{wave}" alt="one period of the load voltage at the input level"></section>
-<section><h2>Bias drift{" and yield" if "yield_pct" in m else ""}</h2>
-<img class="plot" src="{drift}" alt="each transistor's collector current at the drift corners"></section>
-<footer>All figures are computed from models and nominal data (ideal parts, data-sheet
-transistor figures, the stated tolerances); verify them on the bench before relying on the circuit.</footer>
-</body>
-</html>
-"""
+    return _page(
+        title, sub, cautions,
+        schematic=(data_uri(schematic_svg, "image/svg+xml"),
+                   "schematic of both stages with role names, values and bins",
+                   "Blue: DC volts to ground to expect at each transistor's base (B), emitter "
+                   "(E),\ncollector (C) and the junction of RE and RE_BYP (J)."),
+        route=route, probe_table=probe_table, req=req, figures=figures,
+        plots=[("Frequency response", data_uri(response_png, "image/png"),
+                "Bode magnitude and phase with band edges and targets"),
+               ("Output at the stated input", data_uri(waveform_png, "image/png"),
+                "one period of the load voltage at the input level"),
+               (f"Bias drift{' and yield' if 'yield_pct' in m else ''}",
+                data_uri(drift_png, "image/png"),
+                "each transistor's collector current at the drift corners")],
+        thing="the circuit")
