@@ -34,7 +34,13 @@ class CollectorLevel:
     """Collector candidates of :class:`~optimiser.search.job._Job`."""
 
     def expand_blocks(self, P, a, b, upper: float):
-        """Bias nodes (pair × each total of its block), sorted by their bound."""
+        """Bias nodes (pair × each total of its block), sorted by their bound.
+
+        Runs wider than TOTALS_BLOCK (those :meth:`expand_pairs` left unsplit) are
+        first split down to it with the same bounds (:meth:`refine_runs`)."""
+        eager, lazy = self.run_widths()
+        if lazy and P.size:
+            P, a, b, _ = self.refine_runs(P, a, eager[-1], lazy, upper)
         cnt = b - a + 1
         rep, offs = _expand(cnt)
         P, E = P[rep], a[rep] + offs
