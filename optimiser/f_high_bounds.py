@@ -44,7 +44,8 @@ def collector_conductance_max(rc, load_ohm, ic, vaf):
     if load_ohm:
         g = g + 1.0 / float(load_ohm)
     if math.isfinite(vaf):
-        g = g + np.asarray(ic, dtype=float) / (float(vaf) - 1.0)
+        # (an Early voltage of 1 V or less leaves g_o unbounded: no ceiling then)
+        g = g + (np.asarray(ic, dtype=float) / (float(vaf) - 1.0) if vaf > 1.0 else np.inf)
     return g
 
 
@@ -66,5 +67,5 @@ def f_high_ceiling(gain_mid, g_out, c_mu: float, mid_hz: float) -> np.ndarray:
     k = h * h / 2.0 - 1.0
     with np.errstate(invalid="ignore", divide="ignore"):
         x = (a + np.sqrt(a * a - k * (h * h / 2.0 * g * g - a * a))) / np.where(k > 0, k, 1.0)
-    x = np.where(k > 0, x, np.inf)
+    x = np.where((k > 0) & np.isfinite(g), x, np.inf)
     return x / (2.0 * math.pi * float(c_mu)) * F_HIGH_MARGIN

@@ -76,6 +76,9 @@ def test_f_high_ceiling_is_monotone_in_the_gain_and_the_conductance():
     f = f_high_ceiling(h, g, COB, 1e4)
     assert np.all(np.diff(f, axis=0) <= 0) and np.all(np.diff(f, axis=1) >= 0)
     assert np.all(np.isinf(f_high_ceiling(np.array([1.0, 1.41]), 1e-3, COB, 1e3)))
+    # an Early voltage of 1 V or less bounds no output conductance: no ceiling
+    assert np.isinf(f_high_ceiling(10.0, collector_conductance_max(1e3, None, 1e-3, 0.5),
+                                   COB, 1e3))
     # a plain collector pole, G/(2π C_μ), where the feed-forward is nothing to the gain
     far = f_high_ceiling(1e6, 1e-3, COB, 1.0) / F_HIGH_MARGIN
     assert far == pytest.approx(1e-3 / (2 * math.pi * COB), rel=1e-5)
