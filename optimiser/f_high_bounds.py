@@ -33,7 +33,7 @@ __all__ = ["F_HIGH_VCE_MIN", "F_HIGH_MARGIN", "f_high_ceiling", "collector_condu
 #: stage at V_CE = 0.28 V (base–collector junction forward) reached 1.0064 of it.
 F_HIGH_VCE_MIN = 0.4
 #: The ceiling is widened by this (measured against the engine on random ce and cb
-#: stages with V_CE ≥ F_HIGH_VCE_MIN: at most 0.994 of it without the margin).
+#: stages with V_CE ≥ F_HIGH_VCE_MIN: at most 0.9947 of it without the margin).
 F_HIGH_MARGIN = 1.01
 
 
