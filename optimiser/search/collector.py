@@ -10,6 +10,7 @@ import numpy as np
 from optimiser.ac import small_signal
 from optimiser.dc import solve_bias
 from optimiser.device import thermal_voltage
+from optimiser.f_high_bounds import F_HIGH_VCE_MIN, collector_conductance_max, f_high_ceiling
 from optimiser.options import RESISTOR_DERATING
 from optimiser.prune import midband_estimate
 from optimiser.score import degeneration, hd2_pct, score_gain_target, score_terms
@@ -33,8 +34,22 @@ from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
 class CollectorLevel:
     """Collector candidates of :class:`~optimiser.search.job._Job`."""
 
+    def _f_high_on(self) -> bool:
+        """Whether B23 applies: an f_high target, a gain window, the output at the
+        collector (ce, cb) and a transistor with ft and cob (else no f_high)."""
+        r, m = self.request, self.model
+        return (r.f_high_min_hz is not None and self.win is not None
+                and self.law in (DEGENERATED, EMITTER_DRIVEN) and m.has_ft and m.has_cob
+                and m.cjc > 0)
+
     def expand_blocks(self, P, a, b, upper: float):
-        """Bias nodes (pair × each total of its block), sorted by their bound."""
+        """Bias nodes (pair × each total of its block), sorted by their bound.
+
+        Runs wider than TOTALS_BLOCK (those :meth:`expand_pairs` left unsplit) are
+        first split down to it with the same bounds (:meth:`refine_runs`)."""
+        eager, lazy = self.run_widths()
+        if lazy and P.size:
+            P, a, b, _ = self.refine_runs(P, a, eager[-1], lazy, upper)
         cnt = b - a + 1
         rep, offs = _expand(cnt)
         P, E = P[rep], a[rep] + offs
@@ -206,6 +221,16 @@ class CollectorLevel:
             prc = np.where(RCc > 0, (V - op.vc) ** 2 / np.where(RCc > 0, RCc, 1.0), 0.0)
         good &= prc <= RESISTOR_DERATING * RCbest * (1 + 1e-9)
         self.count("dc", (~good).sum())
+        if self._f_high_on():
+            # B23: C_μ against the collector's conductance caps f_high, taken at the
+            # least gain the window allows and the exact operating point
+            g_lo = self.win[0] * 10 ** (-GAIN_SLACK_DB / 20.0)
+            ceiling = f_high_ceiling(
+                g_lo, collector_conductance_max(RCc, request.load_ohm, op.ic, model.vaf),
+                model.cjc, request.mid_hz)
+            miss = good & (op.vce >= F_HIGH_VCE_MIN) & (ceiling < request.f_high_min_hz)
+            self.count("f_high", miss.sum())
+            good &= ~miss
         supply = (V - op.vb) / r1c + op.ic
         good &= drift_term(dlb) + current_term(supply) < upper        # B5 with the exact current
         if thd_floor_applies(request):     # B22: the directly driven junction's THD floor

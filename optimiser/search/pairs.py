@@ -20,7 +20,7 @@ from optimiser.search.bounds import (
     distortion_term,
     drift_term,
 )
-from optimiser.search.levels import SPAN_BLOCKS, TOTAL_BIN
+from optimiser.search.levels import EAGER_RUN, SPAN_BLOCKS, TOTAL_BIN
 from optimiser.search.skeletons import _emitter_options
 from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN, FOLLOWER
 
@@ -256,22 +256,29 @@ class PairLevel:
             keep &= d_lb[s] <= self.request.ic_drift_max_pct
         return s[keep], lb_s[keep]
 
-    def expand_pairs(self, p: np.ndarray, upper: float, dc=None):
-        """Blocks of emitter totals for the pairs ``p``, sorted by their bound.
-
-        Runs of emitter options are bounded coarse to fine — runs of
-        TOTALS_BLOCK·SPAN_BLOCKS^k options, the widest first (one run holding
-        every option of the form), each surviving run split in SPAN_BLOCKS — down
-        to runs of TOTALS_BLOCK (the same bounds on every level).  ``dc``: the
-        DC bounds of ``p`` over a span of totals holding every option of the
-        form (:meth:`span_dc_of`), taken for the first level.
-        """
+    def run_widths(self) -> tuple[list[int], list[int]]:
+        """The widths of the runs of emitter options, widest first: (those bounded
+        when a pair block is expanded, those bounded when a block of runs is taken
+        from the heap).  Every width is TOTALS_BLOCK·SPAN_BLOCKS^k; the eager ones
+        are those of at least EAGER_RUN options (always the widest), the lazy ones
+        the rest, down to TOTALS_BLOCK."""
         n = self.etot.size
         widths = [self.tb]
         while widths[0] < n:
             widths.insert(0, widths[0] * SPAN_BLOCKS)
-        P, a, span = p, np.zeros(p.size, dtype=int), n
-        for width in widths:
+        k = max(1, sum(w >= EAGER_RUN for w in widths))
+        return widths[:k], widths[k:]
+
+    def refine_runs(self, P, a, span: int, widths, upper: float, dc=None):
+        """Aligned runs of emitter options ``a .. a + span − 1`` of the pairs ``P``
+        split coarse to fine through ``widths`` (each run in runs of the next width,
+        the same bounds at every width), keeping those under ``upper``.  ``dc``:
+        the DC bounds of ``P`` over a span of totals holding each run, for the first
+        width.  Returns (P, a, b, lb) of the runs of the last width (b inclusive)."""
+        n = self.etot.size
+        b = np.minimum(a + span, n) - 1
+        lb = np.zeros(P.size)
+        for i, width in enumerate(widths):
             k = -(-span // width)                 # pieces of each surviving span
             a = np.repeat(a, k) + np.tile(np.arange(k) * width, P.size)
             P = np.repeat(P, k)
@@ -280,10 +287,26 @@ class PairLevel:
             b = np.minimum(a + width, n) - 1
             ok, _, _, _, lb = self._bounds(P, *self.run_span("tot", a, width), upper,
                                            (*self.run_span("re", a, width), a, width),
-                                           dc if width == widths[0] else None)
+                                           dc if i == 0 else None)
             self.count("bias_blocks", (b - a + 1)[~ok].sum())
             P, a, b, lb = P[ok], a[ok], b[ok], lb[ok]
             span = width
+        return P, a, b, lb
+
+    def expand_pairs(self, p: np.ndarray, upper: float, dc=None):
+        """Blocks of emitter totals for the pairs ``p``, sorted by their bound.
+
+        Runs of emitter options are bounded coarse to fine — runs of
+        TOTALS_BLOCK·SPAN_BLOCKS^k options, the widest first (one run holding
+        every option of the form), each surviving run split in SPAN_BLOCKS — down
+        to runs of EAGER_RUN; the finer ones when the block is taken
+        (:meth:`expand_blocks`).  ``dc``: the DC bounds of ``p`` over a span of
+        totals holding every option of the form (:meth:`span_dc_of`), taken for
+        the first level.
+        """
+        eager, _ = self.run_widths()
+        P, a, b, lb = self.refine_runs(p, np.zeros(p.size, dtype=int), self.etot.size, eager,
+                                       upper, dc)
         o = np.argsort(lb, kind="stable")
         return P[o], a[o], b[o], lb[o]
 

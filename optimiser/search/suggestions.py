@@ -51,7 +51,8 @@ from optimiser.stage import StageBatch
 from optimiser.stages import module as stage_module
 
 __all__ = ["explain", "miss_distance", "relaxed", "stock_shortfall", "miss_order", "TARGETS",
-           "MISS_BUDGET_S", "BUY_BUDGET_S", "RELAX_BUDGET_S", "EXPLAIN_BUDGET_S", "GAIN_STEPS_DB", "f_low_floor_note"]
+           "MISS_BUDGET_S", "BUY_BUDGET_S", "RELAX_BUDGET_S", "EXPLAIN_BUDGET_S", "GAIN_STEPS_DB", "f_low_floor_note",
+           "relaxation_order"]
 
 #: Time budgets (s) of the suggestion searches; a budget only shortens the list of
 #: suggestions (and a search stopped by it proves no "none within").
@@ -296,6 +297,25 @@ def _relax_limit(request: Request, key: str, snapshot: StockSnapshot, stats: dic
     return found, change
 
 
+def relaxation_order(request: Request, stats: dict, f_low_floor: bool = False) -> list[str]:
+    """The targets of ``request`` to relax one at a time, those the proof showed
+    binding first (they share one clock: the first get their search).
+
+    f_low is binding where the drawer's floor lies above the target (``f_low_floor``)
+    or where the proof's f_low bounds (B20, B21) dropped anything (``stats["pruned"]``
+    keys ``f_low_*``), the least current where its bound did (``ic_min``); the others
+    keep their order: the gain, then :data:`TARGETS`."""
+    keys = (["gain_db"] if request.gain is not None else []) + \
+        [k for k, _, _ in TARGETS if getattr(request, k) is not None]
+    pruned = stats.get("pruned", {})
+    binding = set()
+    if f_low_floor or any(v > 0 for k, v in pruned.items() if k.startswith("f_low")):
+        binding.add("f_low_max_hz")
+    if pruned.get("ic_min", 0) > 0:
+        binding.add("ic_min_a")
+    return sorted(keys, key=lambda k: k not in binding)
+
+
 def unlock_text(request: Request, c: dict) -> str:
     """One line of advice for an unlock change."""
     if c["target"] == "gain_db":
@@ -350,15 +370,13 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
     # past a physical limit nothing unlocks the request but relaxing the limited
     # targets: the other relaxations would search in vain
     only = {x["target"] for x in limits} or None
-    if request.gain is not None and (only is None or "gain_db" in only):
-        found, change = _relax_gain(request, snapshot, stats, list(limits), clock)
-        candidates += found
-        if change:
-            changes.append(change)
-    for key, _, _ in TARGETS:
-        if getattr(request, key) is None or (only is not None and key not in only):
+    for key in relaxation_order(request, stats, note is not None):
+        if only is not None and key not in only:
             continue
-        found, change = _relax_limit(request, key, snapshot, stats, clock)
+        if key == "gain_db":
+            found, change = _relax_gain(request, snapshot, stats, list(limits), clock)
+        else:
+            found, change = _relax_limit(request, key, snapshot, stats, clock)
         candidates += found
         if change:
             changes.append(change)

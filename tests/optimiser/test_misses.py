@@ -2,10 +2,17 @@
 
 from __future__ import annotations
 
+import optimiser.search.suggestions as S
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
 from optimiser.design import Design, Piece, RolePick
 from optimiser.request import Request
-from optimiser.search.suggestions import miss_distance, miss_order, stock_shortfall
+from optimiser.search import search
+from optimiser.search.suggestions import (
+    miss_distance,
+    miss_order,
+    relaxation_order,
+    stock_shortfall,
+)
 
 T = Transistor("GP-N1", 100, 300, qty=2, id=9, location="Q1")
 SNAP = StockSnapshot((Resistor(10e3, 3, id=1, location="A1"), Resistor(1e3, 4, id=2,
@@ -42,3 +49,46 @@ def test_order_is_violations_then_distance():
                extra={"miss_distance": 0.2})
     c = Design("ce", "GP-N1", {}, {}, False, violations=["f_low"], extra={"miss_distance": 0.1})
     assert sorted([b, a, c], key=miss_order) == [c, a, b]
+
+
+def test_the_binding_target_is_relaxed_first():
+    # the relaxations share one clock, so their order decides which are examined:
+    # f_low goes first when the proof's f_low bounds dropped anything or the
+    # drawer's floor lies above the target, else the gain, then the limits in order
+    req = Request(topology="ce", supply_v=12.0, gain=10.0, gain_tol_db=1.0, f_low_max_hz=2.0,
+                  thd_max_pct=5.0, ic_min_a=1e-4)
+    plain = ["gain_db", "f_low_max_hz", "thd_max_pct", "ic_min_a"]
+    assert relaxation_order(req, {"pruned": {}}) == plain
+    assert relaxation_order(req, {"pruned": {"f_low_largest_caps": 0}}) == plain
+    assert relaxation_order(req, {"pruned": {"f_low_output": 3}})[0] == "f_low_max_hz"
+    assert relaxation_order(req, {"pruned": {}}, f_low_floor=True)[0] == "f_low_max_hz"
+    both = relaxation_order(req, {"pruned": {"f_low_input": 1, "ic_min": 5}})
+    assert both[:2] == ["f_low_max_hz", "ic_min_a"] and sorted(both) == sorted(plain)
+
+
+def test_an_infeasible_f_low_is_explained_even_when_one_relaxation_fits(monkeypatch):
+    # a drawer whose largest capacitor is 100 nF cannot give 2 Hz; with time for one
+    # relaxation search only, the answer still names how far f_low must move, and the
+    # engine confirms a stock design at that limit (_meets inside _relax_limit)
+    snap = StockSnapshot(tuple(Resistor(v, 10, id=i, location=f"R{i}") for i, v in
+                               enumerate((1e3, 2.2e3, 4.7e3, 10e3, 22e3, 47e3, 100e3), 1)),
+                         (Capacitor(10e-9, 10, id=20, location="C1"),
+                          Capacitor(100e-9, 10, id=21, location="C2")),
+                         (Transistor("GP-N1", 100, 300, qty=4, id=9, location="Q1"),))
+    req = Request(topology="ce", supply_v=12.0, load_ohm=10e3, source_ohm=600.0, gain=5.0,
+                  gain_tol_db=3.0, f_low_max_hz=2.0)
+    runs = []
+
+    def one_search(self, own, name):
+        if runs:
+            self.skipped.append(name)
+            return None
+        runs.append(name)
+        return own
+
+    monkeypatch.setattr(S._Clock, "budget", one_search)
+    res = search(req, snap, top=3, misses=3)
+    assert not res.feasible and res.stats["complete"]
+    assert runs == ["without f_low_max_hz"]
+    change = [c for c in res.unlock_changes if c["target"] == "f_low_max_hz"]
+    assert change and change[0]["to"] > 2.0

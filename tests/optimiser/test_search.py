@@ -6,15 +6,19 @@ import itertools
 import numpy as np
 import pytest
 
+import optimiser.search.pairs as PL
 from inventory.errors import InputError
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
 from optimiser.ac import small_signal
 from optimiser.dc import operating_point, solve_bias, thevenin
 from optimiser.device import device_from_transistor
 from optimiser.evaluate import evaluate
+from optimiser.options import StockOptions
 from optimiser.prune import bias_current, early_bounds, early_factor_max, midband_estimate
 from optimiser.request import Request
 from optimiser.search import check_request, search
+from optimiser.search.job import _Job
+from optimiser.search.skeletons import FORMS
 from optimiser.stage import StageBatch
 
 T = Transistor("GP-N1", 100, 300, qty=10, ft=250e6, cob=4e-12, vceo=40, ic_max=0.1, pd=0.5,
@@ -695,6 +699,26 @@ def test_seeding_from_a_thinned_drawer_changes_nothing(monkeypatch, req):
     seeded = search(req, snap, top=6, misses=0)
     assert seeded.stats.get("seed_designs", 0) > 0
     assert plain.designs and _ranking(seeded) == _ranking(plain)
+
+
+@SAME_RANKING_REQUESTS
+def test_splitting_runs_of_emitter_options_late_changes_nothing(monkeypatch, req):
+    # runs of emitter options narrower than EAGER_RUN are split only when their block
+    # is taken from the heap; every run width eager, the default, and every width but
+    # the widest late must rank the same, design for design (the exhaustive
+    # comparison of test_search_complete.py covers the small drawers)
+    snap = drawer()
+    monkeypatch.setenv("DRAWERFIT_WORKERS", "1")
+    job = _Job(req, StockOptions(snap, req.builds, req.allow_combos), T,
+               FORMS[req.topology][0], {"pruned": {}})
+    assert job.run_widths()[1], "this drawer has runs to split late"
+    rankings = []
+    for eager in (0, PL.EAGER_RUN, 10**9):
+        monkeypatch.setattr(PL, "EAGER_RUN", eager)
+        res = search(req, snap, top=6, misses=0)
+        assert res.stats["complete"]
+        rankings.append(_ranking(res))
+    assert rankings[0] and rankings[1] == rankings[0] and rankings[2] == rankings[0]
 
 
 @pytest.mark.parametrize("rs, rl, vaf, mid, vin", [

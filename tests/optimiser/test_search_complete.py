@@ -130,6 +130,9 @@ def cases(draw):
         # tight (1–3 Hz) and, with these capacitors, mostly unreachable (0.05 Hz)
         # edges too, where the f_low bounds of optimiser/f_low_bounds.py act
         f_low_max_hz=draw(st.sampled_from([None, 100.0, 1000.0, 1.0, 2.0, 3.0, 0.05])),
+        # upper edges near the collector poles of these drawers, where the f_high
+        # ceiling (optimiser/f_high_bounds.py) acts
+        f_high_min_hz=draw(st.sampled_from([None, None, None, 3e5, 3e6])),
         ic_drift_max_pct=draw(st.sampled_from([None, 25.0])),
         zin_min_ohm=draw(st.sampled_from([None, None, 2e3, 10e3])),
         temp_c=(0.0, 50.0), builds=builds, mid_hz=draw(st.sampled_from([1e3, 1e3, 1e5])),
