@@ -65,7 +65,10 @@ class Column:
 class Pools:
     """The pools of a drawer: pieces held, and the price of a bought piece."""
 
-    def __init__(self, rows: Mapping[int, Row], catalogue: Catalogue | None, total_copies: int):
+    def __init__(self, rows: Mapping[int, Row], catalogue: Catalogue | None, total_copies: int,
+                 cost_unit: float = 1.0):
+        """``cost_unit``: prices are held in this unit (the planner passes one copy's
+        score weight, so that reduced costs are far above the LP solver's tolerances)."""
         self.held: dict[tuple, int] = defaultdict(int)
         self.unit: dict[tuple, float] = {}
         self.of_row: dict[int, tuple] = {}
@@ -80,7 +83,7 @@ class Pools:
             if row.virtual:
                 p = catalogue.items[rid]
                 most = p.pack * math.ceil(total_copies * MAX_PIECES_PER_COPY / p.pack)
-                unit = p.unit_price + line / most
+                unit = (p.unit_price + line / most) / cost_unit
                 self.unit[key] = min(self.unit.get(key, math.inf), unit)
             else:
                 self.held[key] += max(int(row.qty), 0)
