@@ -36,7 +36,7 @@ from optimiser.planning.model import ABS_GAP_SHARE
 from optimiser.planning.objective import cost_quantum, score_map, score_map_inverse, score_weight
 from optimiser.planning.rows import Row, Unusable, design_demand, stock_rows
 from optimiser.purchase import Catalogue
-from optimiser.search import search_designs
+from optimiser.search.priced import priced_search
 from optimiser.search.pricing import Pricing
 
 __all__ = ["PRICING_TIME_S", "MAX_ROUNDS", "Bound", "Generated", "generate_columns",
@@ -165,7 +165,6 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
     """
     t0 = time.perf_counter()
     catalogue = catalogue or Catalogue()
-    search_fn = search_fn or search_designs
     items = [replace(it, candidates=tuple(it.candidates)) for it in items]
     rows = stock_rows(augmented, catalogue)
     total = sum(max(it.count, 0) for it in items) or 1
@@ -214,6 +213,10 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         added = 0
         round_exact = exact
         least: list[float] = []
+        searched: dict[str, tuple[list[Design], bool]] = {}
+        top_mu: dict[str, float] = {}
+        for b, req in enumerate(requests):
+            top_mu[repr(req)] = max(top_mu.get(repr(req), -math.inf), float(sol.mu[b]))
         for b, (it, req) in enumerate(zip(items, requests, strict=True)):
             left = budget_s - (time.perf_counter() - t0)
             if left <= 0:
@@ -224,19 +227,23 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             if progress is not None:
                 progress(f"pricing designs for {it.name} (round {rnd + 1})")
             mu = float(sol.mu[b])
+            key = repr(req)
             pricing = Pricing(0.0 if phase1 else 1.0, score_map, score_map_inverse,
                               lambda d, sol=sol: _search_price(sol, rows, catalogue, pools, d),
-                              mu - RC_TOL)
-            stats: dict = {"pruned": {}}
-            try:
-                found, _ = search_fn(replace(req, builds=1), augmented, COLUMNS_PER_SEARCH, stats,
-                                     budget_s=left, given=[], workers=1, pricing=pricing)
-            except InputError as exc:
+                              top_mu[key] - RC_TOL)
+            if key not in searched:     # builds of one request share one search per round
+                try:
+                    searched[key] = priced_search(
+                        replace(req, builds=1), augmented, pricing,
+                        lambda rid, sol=sol: sol.price.get(pools.of_row.get(rid), 0.0),
+                        COLUMNS_PER_SEARCH, left, search_fn=search_fn)
+                except InputError as exc:
+                    searched[key] = ([], False)
+                    bound.open.append(f"{it.name}: not priced ({exc})")
+            found, done = searched[key]
+            if not done:
                 round_exact = False
-                bound.open.append(f"{it.name}: not priced ({exc})")
-                continue
-            if stats.get("stopped_at_budget"):
-                round_exact = False
+            found = [d for d in found if pricing.value(d) < mu - RC_TOL]
             found = [d for d in found if d.meets_spec]
             # the least reduced cost of this build (a lower bound: capacitors at 0)
             least.append(min([pricing.value(d) - mu for d in found] + [-RC_TOL]))

@@ -7,8 +7,9 @@ of the pieces one copy takes.  Prices are never negative, so ``price ≥ 0`` and
 every bound of the search (a lower bound ``L`` of the score below a node) still
 bounds the value from below: ``weight · score_map(L)``.  A node can then hold a
 design of value below ``V`` only if its score bound lies below
-``score_map_inverse(V / weight)`` — that is the score to beat the tree uses
-(:func:`score_to_beat`).  Only designs of value below ``cutoff`` are wanted
+``score_map_inverse((V − floor) / weight)`` — that is the score to beat the tree
+uses (:func:`score_to_beat`), ``floor`` being a lower bound of the price (0, or
+what :mod:`optimiser.search.priced` knows).  Only designs of value below ``cutoff`` are wanted
 (columns of negative reduced cost).  The search knows nothing of the planner:
 the map, its inverse and the pieces' prices are handed in.
 """
@@ -38,6 +39,10 @@ class Pricing:
         Σ price × pieces of one copy of a design (≥ 0).
     cutoff : float
         Designs of value at or above it are not wanted.
+    floor : float
+        The least price of any design still wanted (the priced search by
+        levels, :mod:`optimiser.search.priced`, knows that every design it has
+        not yet covered uses a piece at least this dear); 0 when nothing is known.
     """
 
     weight: float
@@ -45,6 +50,7 @@ class Pricing:
     score_map_inverse: Callable[[float], float]
     price: Callable[[Design], float]
     cutoff: float
+    floor: float = 0.0
     _values: dict = field(default_factory=dict, compare=False, repr=False)
 
     def value(self, design: Design) -> float:
@@ -66,8 +72,14 @@ def score_to_beat(pricing: Pricing, found: Sequence[Design], top: int) -> float:
     value below both the cutoff and the ``top``-th least value found so far."""
     target = pricing.cutoff
     if len(found) >= top:
-        values = sorted(pricing.value(d) for d in found)
-        target = min(target, values[top - 1])
+        key = (id(found), len(found))
+        hit = pricing._values.get(key)
+        if hit is None:         # (found only grows: its top-th value is kept per length)
+            hit = pricing._values[key] = sorted(pricing.value(d) for d in found)[top - 1]
+        target = min(target, hit)
+    room = target - pricing.floor       # what is left for the score term
+    if room <= 0:
+        return -math.inf
     if pricing.weight <= 0:
-        return math.inf if target > 0 else -math.inf
-    return pricing.score_map_inverse(target / pricing.weight) if target > 0 else -math.inf
+        return math.inf
+    return pricing.score_map_inverse(room / pricing.weight)
