@@ -8,8 +8,11 @@ beat minus that floor, which prunes by score again even where the prices alone
 exceed the score's whole range.  Once ``top`` designs are known of value at most
 the least price above ``U_k``, no design outside the level can rank among them
 and the search stops.
-Capacitors are not priced here (the search chooses them by its own rule) and stay
-in every level.
+Capacitors are cut by level like the other rows, so that the search, which
+chooses them by its own rule, draws on the cheaper ones first; the value it ranks
+by may leave them out (a lower bound, see :mod:`optimiser.planning.colgen`): the
+least value found, or the least price beyond the last level searched, still
+bounds every design's value from below.
 """
 
 from __future__ import annotations
@@ -55,11 +58,12 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
     """The ``top`` designs of least priced value below the cutoff; and whether
     the searches behind them ran to their end (the ranking is then exact).
 
-    ``row_price(id)`` is the price of one piece of a resistor or transistor row.
+    ``row_price(id)`` is the price of one piece of a row (≥ 0).
     """
     search_fn = search_fn or search_designs
     t0 = time.perf_counter()
-    price = {r.id: row_price(r.id) for r in (*snapshot.resistors, *snapshot.transistors)
+    price = {r.id: row_price(r.id)
+             for r in (*snapshot.resistors, *snapshot.capacitors, *snapshot.transistors)
              if r.id is not None}
     found: list[Design] = []
     complete = True
@@ -76,6 +80,7 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
             return r.id is None or price.get(r.id, 0.0) <= upper
 
         snap = replace(snapshot, resistors=tuple(r for r in snapshot.resistors if keep(r)),
+                       capacitors=tuple(c for c in snapshot.capacitors if keep(c)),
                        transistors=tuple(t for t in snapshot.transistors if keep(t)))
         stats: dict = {"pruned": {}}
         level = replace(pricing, floor=floor, _values={})
