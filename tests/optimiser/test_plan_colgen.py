@@ -23,10 +23,12 @@ import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from drawerfit.render.plan import bound_line
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
 from optimiser.buildlist import BuildList, BuildSpec
 from optimiser.evaluate import evaluate
 from optimiser.planning import make_plan
+from optimiser.planning.colgen import Bound
 from optimiser.planning.model import ABS_GAP_SHARE
 from optimiser.planning.objective import cost_quantum, score_map, score_map_inverse, score_weight
 from optimiser.request import Request
@@ -87,6 +89,7 @@ def test_stock_plan_among_lower_ranked_designs_is_found_and_proven():
     assert b.pricing_complete and b.columns_generated > 0
     assert b.proven_cheapest and b.proven_optimal, b.to_json()
     assert b.lp <= b.cost + 1e-12
+    assert bound_line(b).startswith("Optimal over every design")
     # stock respected, counted by hand from the allocations
     held = {r.id: r.qty for r in (*snap.resistors, *snap.capacitors, *snap.transistors)}
     assert all(n <= held[rid] for rid, n in pieces_taken(plan).items())
@@ -113,6 +116,15 @@ def test_not_enough_transistors_is_proven_by_counting():
     reason = plan.infeasible[0].reason
     assert "GP-N1" in reason and "at least 4" in reason and "holds 3" in reason, reason
     assert plan.to_json()["infeasible"][0]["proven"] is True
+
+
+def test_unproven_plan_never_reads_optimal():
+    b = Bound(lp=0.10, cost=0.25, gap=0.15, proven_cheapest=False, pricing_complete=False,
+              open=["the pricing time (5 s) ran out"])
+    text = bound_line(b)
+    assert "Optimal" not in text and "No cheaper order" not in text
+    assert "within 0.15 of the best possible" in text.lower()
+    assert "the pricing time (5 s) ran out" in text
 
 
 # ---------------------------------------------------------------------------
