@@ -87,10 +87,14 @@ def _build_lines(plan, blist) -> list[dict]:
               metavar="SECONDS",
               help="Time limit of each candidate search (0: search to the end). The plan is "
                    "optimal over the candidates found.")
+@click.option("--pricing-time", type=click.FloatRange(min=0), default=60.0, show_default=True,
+              metavar="SECONDS",
+              help="Time for adding designs the plan's prices ask for, which proves how close "
+                   "the plan is to the best possible (0: the candidates alone).")
 @pass_app
 def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | None,
             commit: bool, candidates: int, time_limit: float | None,
-            search_time: float = 20.0) -> None:
+            search_time: float = 20.0, pricing_time: float = 60.0) -> None:
     """Plan several builds from one drawer at the least purchase cost.
 
     BUILDLIST.toml lists [[build]] entries (a request file or table, a count,
@@ -106,7 +110,7 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
     progress = None if as_json else (lambda text: err.print(f"[dim]{text} …[/dim]"))
     plan = make_plan(blist, snapshot, solver=solver, candidates=candidates,
                      time_limit=time_limit, progress=progress,
-                     search_time_s=search_time or None)
+                     search_time_s=search_time or None, pricing_time_s=pricing_time or None)
     build_id = None
     if commit:
         if not plan.feasible:

@@ -16,7 +16,7 @@ from inventory.parts import POLARISED_DIELECTRICS
 from inventory.values import format_si, format_value
 from optimiser.planning import Allocation, Plan
 
-__all__ = ["print_plan", "part_lines", "plus_text"]
+__all__ = ["print_plan", "bound_line", "part_lines", "plus_text"]
 
 
 def _piece_text(p, kind: str, single: bool) -> str:
@@ -78,6 +78,26 @@ def _money(x: float) -> str:
     return f"{x:.2f}"
 
 
+def bound_line(bound) -> str:
+    """What column generation proved of a plan, in one or two sentences."""
+    b = bound
+    if b.proven_optimal:
+        return ("Optimal over every design the drawer allows (the LP bound meets the plan; "
+                f"{b.columns_generated} designs added in {b.pricing_rounds} pricing rounds).")
+    parts = []
+    if b.proven_cheapest:
+        parts.append("No cheaper order exists (proven by the LP bound).")
+    if b.gap is not None:
+        parts.append(f"Within {b.gap:.3g} of the best possible objective "
+                     f"(LP bound {b.lp:.6g}, plan {b.cost:.6g}).")
+    else:
+        parts.append("No bound proven over designs not offered.")
+    if not b.pricing_complete:
+        parts.append("Pricing stopped before proving that no other design helps: "
+                     + "; ".join(b.open or ["unknown reason"]) + ".")
+    return " ".join(parts)
+
+
 def print_plan(console: Console, plan: Plan, *, build_id: int | None = None,
                polarity: dict[str, str] | None = None) -> None:
     """Print the plan: allocations per request (each role's value, the + side of
@@ -86,7 +106,11 @@ def print_plan(console: Console, plan: Plan, *, build_id: int | None = None,
     polarity = polarity or {}
     solver = plan.solver
     status_style = "green" if solver.status == "Optimal" else "bold yellow"
-    if not plan.feasible:
+    proven = plan.bound is not None and plan.bound.proven_infeasible
+    if not plan.feasible and proven:
+        console.print(Text("No plan meets every build: proven over every design the "
+                           "drawer allows.", style="bold red"))
+    elif not plan.feasible:
         console.print(Text("No plan from the designs offered meets every build.",
                            style="bold red"))
         console.print("The programme chose among each request's best designs for one copy "
@@ -146,6 +170,8 @@ def print_plan(console: Console, plan: Plan, *, build_id: int | None = None,
     if solver.status == "Feasible":
         console.print("[yellow]The solver stopped before proving this plan the cheapest "
                       "(time limit); a cheaper one may exist.[/yellow]")
+    if plan.bound is not None and plan.feasible:
+        console.print(bound_line(plan.bound))
     if build_id is not None:
         console.print(f"Recorded as build {build_id} (see it with `drawerfit builds show "
                       f"{build_id}`; undo it with `drawerfit builds undo {build_id}`).")

@@ -15,7 +15,7 @@ from inventory.errors import InputError
 from inventory.parts import StockSnapshot
 from optimiser.design import Design
 
-__all__ = ["DEFAULT_CANDIDATES", "PlanItem", "CandidateSearches", "gather_candidates"]
+__all__ = ["DEFAULT_CANDIDATES", "PlanItem", "CandidateSearches", "design_key", "gather_candidates"]
 
 #: Designs each search offers per request and per source.  More gives the
 #: programme more to choose from (a plan can only be as good as its candidates)
@@ -71,7 +71,8 @@ class CandidateSearches:
                 "searches_stopped_at_time_limit": self.stopped_at_time_limit}
 
 
-def _design_key(d: Design) -> tuple:
+def design_key(d: Design) -> tuple:
+    """What tells two designs apart: topology, transistor, values and the rows of their pieces."""
     return (d.topology, d.transistor,
             tuple(sorted((role, round(p.value, DESIGN_KEY_DIGITS), p.joined or "",
                           tuple((q.id, q.count, round(q.value, DESIGN_KEY_DIGITS)) for q in p.pieces))
@@ -142,7 +143,7 @@ def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot
     seen: set[tuple] = set()
     unique: list[Design] = []
     for d in sorted(found, key=lambda d: (d.score if d.score is not None else math.inf)):
-        k = _design_key(d)
+        k = design_key(d)
         if k not in seen:
             seen.add(k)
             unique.append(d)

@@ -48,8 +48,8 @@ keeps any plan feasible and no dearer, so no optimum is lost.
 Objective
 ---------
 ``Σ_v pack_price_v·packs[v] + line_cost·ordered[v] + w · Σ_{b,j} ŝ[b,j]·n[b,j]``
-where ``ŝ`` is the design score normalised over the candidates of its build to
-[0, 1) (0 the best; lower scores are better) and ``w = δ / (2·N)``: ``δ`` is the
+where ``ŝ`` is the design's score mapped onto [0, 1) by the fixed monotone
+``s / (1 + s)`` (:func:`~optimiser.planning.objective.score_map`; lower is better) and ``w = δ / (2·N)``: ``δ`` is the
 smallest step by which two purchase costs can differ (the greatest common
 divisor of the pack prices and the line cost, taken as exact decimals) and ``N``
 the total copies.  The score term is then below ``δ/2``, so no saving in score
@@ -72,7 +72,7 @@ import pulp
 
 from inventory.errors import InputError
 from optimiser.planning.candidates import PlanItem
-from optimiser.planning.objective import cost_quantum, normalised_scores, score_weight
+from optimiser.planning.objective import cost_quantum, score_map, score_weight
 from optimiser.planning.results import SolverReport
 from optimiser.planning.rows import Row, Unusable, can_stand_in, design_demand, named_rows
 from optimiser.purchase import Catalogue
@@ -162,7 +162,6 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
     # then stand-ins keep that row's own rating)
     rating_need: dict[int, float | None] = {}
     for b, it in enumerate(items):
-        norm = normalised_scores(it.candidates)
         for j, d in enumerate(it.candidates):
             try:
                 demand[(b, j)] = design_demand(d, rows, catalogue)
@@ -170,7 +169,7 @@ def build_model(items: Sequence[PlanItem], rows: dict[int, Row],
             except Unusable as exc:
                 skipped[(b, j)] = str(exc)
                 continue
-            scores[(b, j)] = norm[j]
+            scores[(b, j)] = score_map(d.score)
             for rid, p in named:
                 old = rating_need.get(rid, 0.0)
                 rating_need[rid] = None if old is None or p.need is None else max(old, p.need)

@@ -1,18 +1,19 @@
-"""The objective's scale: scores normalised per build, the smallest step of a
-purchase cost, and the weight that keeps the score term below half that step."""
+"""The objective's scale: a design's score mapped onto [0, 1) by one fixed
+monotone map (so a column's cost is a function of its own search score, whatever
+other columns there are), the smallest step of a purchase cost, and the weight
+that keeps the score term below half that step."""
 
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
 from fractions import Fraction
 
-from optimiser.design import Design
 from optimiser.purchase import Catalogue
 
-__all__ = ["WORST_SCORE", "SCORE_SHARE", "cost_quantum", "normalised_scores", "score_weight"]
+__all__ = ["WORST_SCORE", "SCORE_SHARE", "cost_quantum", "score_map",
+           "score_map_inverse", "score_weight"]
 
-#: Normalised score of a build's worst candidate (its best is 0).  Below 1, so
+#: The largest mapped score (a design without a finite score maps to it).  Below 1, so
 #: that one copy's score term stays below the score weight.
 WORST_SCORE = 0.999
 #: The whole score term is kept below ``cost step / SCORE_SHARE``.  From 1 up,
@@ -45,23 +46,25 @@ def cost_quantum(catalogue: Catalogue | None) -> float:
     return float(Fraction(g, den))
 
 
-def normalised_scores(designs: Sequence[Design]) -> list[float]:
-    """Scores mapped onto [0, 1): 0 the best (lowest) of the build; None counts as worst."""
-    raw = [d.score for d in designs]
-    finite = [float(s) for s in raw if s is not None and math.isfinite(float(s))]
-    if not finite:
-        return [0.0] * len(raw)
-    lo, hi = min(finite), max(finite)
-    span = hi - lo
-    out = []
-    for s in raw:
-        if s is None or not math.isfinite(float(s)):
-            out.append(WORST_SCORE)
-        elif span <= 0:
-            out.append(0.0)
-        else:
-            out.append(WORST_SCORE * (float(s) - lo) / span)
-    return out
+def score_map(score: float | None) -> float:
+    """A design's score (≥ 0, lower is better) mapped onto [0, WORST_SCORE]:
+    ``s / (1 + s)``, monotone increasing, so that every column's cost is a
+    function of its own score alone (column generation can then price a design
+    the search has not yet offered).  None or a non-finite score counts as worst."""
+    if score is None or not math.isfinite(float(score)):
+        return WORST_SCORE
+    s = max(float(score), 0.0)
+    return min(s / (1.0 + s), WORST_SCORE)
+
+
+def score_map_inverse(mapped: float) -> float:
+    """The least score whose :func:`score_map` reaches ``mapped`` (inf from
+    WORST_SCORE up, 0 at or below 0): a design scoring below it maps below ``mapped``."""
+    if mapped >= WORST_SCORE:
+        return math.inf
+    if mapped <= 0.0:
+        return 0.0
+    return mapped / (1.0 - mapped)
 
 
 def score_weight(quantum: float, total_copies: int) -> float:

@@ -13,6 +13,7 @@ from optimiser.planning.candidates import (
     PlanItem,
     gather_candidates,
 )
+from optimiser.planning.colgen import PRICING_TIME_S, finish_bound, generate_columns
 from optimiser.planning.diagnosis import diagnose
 from optimiser.planning.model import SOLVER_TIME_LIMIT_S, build_model, read_solution, solve_model
 from optimiser.planning.results import Plan, Shortfall, SolverReport
@@ -64,7 +65,9 @@ def plan_builds(items: Sequence[PlanItem], snapshot: StockSnapshot,
 def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candidates: int = DEFAULT_CANDIDATES,
               time_limit: float | None = SOLVER_TIME_LIMIT_S, search_fn: Callable | None = None,
               progress: Callable[[str], None] | None = None,
-              search_time_s: float | None = SEARCH_TIME_LIMIT_S) -> Plan:
+              search_time_s: float | None = SEARCH_TIME_LIMIT_S,
+              pricing_time_s: float | None = PRICING_TIME_S, pricing_fn: Callable | None = None
+              ) -> Plan:
     """Plan a build list against ``snapshot``: candidates, programme, solution.
 
     Parameters
@@ -85,6 +88,12 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
         (``stats["search"]`` counts the searches that stopped early).
     progress : callable, optional
         Called with a short text before each request's search.
+    pricing_time_s : float, optional
+        Seconds for column generation (:mod:`optimiser.planning.colgen`); 0 or
+        None: the candidates alone, as before, and no ``bound``.  Skipped when
+        ``search_fn`` stands in for the search and ``pricing_fn`` is not given.
+    pricing_fn : callable, optional
+        Stands in for :func:`optimiser.search.search_designs` in pricing (tests).
     """
     augmented, catalogue = augment(snapshot, buildlist.purchase)
     items = []
@@ -97,9 +106,26 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
         search_stats.append({"request": b.name, **st.to_json(), "candidates": len(designs)})
         items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,
                               strict_tolerance=b.request.wants_yield))
+    gen = None
+    if pricing_time_s and all(it.candidates for it in items) and (
+            search_fn is None or pricing_fn is not None):
+        gen = generate_columns(items, [b.request for b in buildlist.builds], augmented, catalogue,
+                               budget_s=pricing_time_s, search_fn=pricing_fn, progress=progress)
+        items = gen.items
+        if gen.bound.proven_infeasible:
+            report = SolverReport("LP relaxation", "Infeasible", gen.bound.seconds)
+            why = [Shortfall(it.name, gen.reasons[it.name], proven=True)
+                   for it in items if it.name in gen.reasons]
+            plan = Plan(False, report, infeasible=why,
+                        candidates=sum(len(it.candidates) for it in items), bound=gen.bound)
+            plan.stats["search"] = search_stats
+            plan.stats["search_seconds"] = sum(s["seconds"] for s in search_stats)
+            return plan
     if progress is not None:
         progress("solving the plan")
     plan = plan_builds(items, augmented, catalogue, solver=solver, time_limit=time_limit)
+    if gen is not None:
+        plan.bound = finish_bound(gen, plan)
     plan.stats["search"] = search_stats
     plan.stats["search_seconds"] = sum(s["seconds"] for s in search_stats)
     return plan

@@ -88,9 +88,14 @@ class Shortfall:
     request: str
     reason: str
     shortage: list[dict] = field(default_factory=list)
+    #: True only when the reason is proven over every design the drawer allows
+    #: (a complete search found none, or column generation's counting argument);
+    #: False when it speaks of the designs offered.
+    proven: bool = False
 
     def to_json(self) -> dict:
-        return {"request": self.request, "reason": self.reason, "shortage": self.shortage}
+        return {"request": self.request, "reason": self.reason, "shortage": self.shortage,
+                "proven": self.proven}
 
 
 @dataclass
@@ -103,6 +108,8 @@ class Plan:
     infeasible: list[Shortfall] = field(default_factory=list)
     candidates: int = 0
     stats: dict = field(default_factory=dict)
+    #: What column generation proved (:class:`optimiser.planning.colgen.Bound`), or None
+    bound: object | None = None
 
     def to_json(self) -> dict:
         d = {"feasible": self.feasible,
@@ -113,6 +120,8 @@ class Plan:
              "candidates": self.candidates}
         if not self.feasible:
             d["infeasible"] = [s.to_json() for s in self.infeasible]
+        if self.bound is not None:
+            d["bound"] = self.bound.to_json()
         return d
 
 

@@ -35,6 +35,7 @@ from optimiser.search.confirm import (
 )
 from optimiser.search.job import _Job
 from optimiser.search.limits import gain_window
+from optimiser.search.pricing import Pricing, score_to_beat
 from optimiser.search.seeding import _seed_designs
 from optimiser.search.skeletons import FORMS, Skeletons, _take_all
 from optimiser.search.stock import _ratings_best
@@ -70,7 +71,7 @@ def _transistors(request: Request, snapshot: StockSnapshot) -> list[Transistor]:
 
 def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
                    progress=None, budget_s: float | None = None, given=None, workers=None,
-                   finish: bool = True):
+                   finish: bool = True, pricing: Pricing | None = None):
     """Steps 2–5 as a best-first branch and bound; (designs, pool of evaluated misses).
 
     The branch and bound runs first with an aspiration level: every node whose
@@ -79,6 +80,10 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     no dropped node could hold a better one and the ranking is proven; if not,
     the search runs again with the next, higher level (the last is unbounded).
     This only makes the search faster: the designs returned are the same.
+
+    With ``pricing`` (:mod:`optimiser.search.pricing`) the designs are ranked by
+    their priced value, only those below its cutoff are returned, and there is no
+    aspiration level.
     """
     t_start = time.perf_counter()
     seeds = list(given) if given is not None else _seed_designs(request, snapshot, top, stats,
@@ -91,7 +96,7 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     jobs = [j for j in jobs if j.live]
     found, pool = [], []
     # with top designs already in hand the score to beat is known: no aspiration
-    levels = (math.inf,) if len(seeds) >= top else ASPIRATION + (math.inf,)
+    levels = (math.inf,) if len(seeds) >= top or pricing else ASPIRATION + (math.inf,)
     if workers is None:
         n_values = np.unique([r.value for r in snapshot.resistors]).size
         workers = worker_count(n_values)
@@ -101,7 +106,7 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
         def run(part, shared, st, cap=cap, left=left):
             return _branch_and_bound(request, opts, jobs, top, st,
                                      progress if part[0] == 0 else None, left, cap, seeds,
-                                     part, shared)
+                                     part, shared, pricing)
 
         if workers > 1:
             found, pool = split_branch_and_bound(run, workers, stats)
@@ -111,7 +116,7 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
         if stats.get("stopped_at_budget") or (len(found) >= top and found[top - 1].score <= cap):
             break
         stats["aspiration_rounds"] = stats.get("aspiration_rounds", 0) + 1
-    found = found[:top]
+    found = (pricing.rank(found) if pricing else found)[:top]
     if finish:              # (seed searches leave it to the search they seed)
         _large_signal(request, snapshot, found)
     for r, d in enumerate(found, 1):
@@ -235,7 +240,7 @@ class Entry(NamedTuple):
 
 
 def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, seeds=(),
-                      part=(0, 1), shared=None):
+                      part=(0, 1), shared=None, pricing=None):
     """One run of the branch and bound, dropping nodes whose bound reaches ``cap``.
 
     ``seeds`` are designs of this drawer already known (they count towards the
@@ -288,6 +293,8 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             stats["open_bound"] = min(smallest(), cap)
             break
         kth = min(found[top - 1].score if len(found) >= top else math.inf, cap)
+        if pricing is not None:     # the score to beat follows from the priced values
+            kth = min(score_to_beat(pricing, found, top), cap)
         if shared is not None:
             shared.kth[k_part] = kth
             kth = min(kth, min(shared.kth))

@@ -82,6 +82,11 @@ def buildlist(env, text):
     return str(p)
 
 
+#: The search is replaced by two fixed designs here, so these tests check the
+#: programme over a fixed candidate list: column generation (which prices designs
+#: with the real search) is switched off.
+FIXED = ("--pricing-time", "0")
+
 TWO = """
 [[build]]
 request = "preamp.toml"
@@ -94,7 +99,7 @@ count = 10
 
 
 def test_json_shape_and_stock_respected(env):
-    r = env.run("plan", buildlist(env, TWO), "--json")
+    r = env.run("plan", *FIXED, buildlist(env, TWO), "--json")
     assert r.exit_code == 0, r.output
     d = json.loads(r.stdout)
     assert d["feasible"] is True
@@ -142,7 +147,7 @@ resistor_price = 0.02
 capacitor_price = 0.10
 line_cost = 0.50
 """
-    r = env.run("plan", buildlist(env, text), "--json", "--order", str(env.tmp / "order.csv"))
+    r = env.run("plan", *FIXED, buildlist(env, text), "--json", "--order", str(env.tmp / "order.csv"))
     assert r.exit_code == 0, r.output
     d = json.loads(r.stdout)
     assert d["feasible"] and d["cost"] == pytest.approx(2.20)
@@ -175,7 +180,7 @@ line_cost = 0.50
 
 def test_commit_then_undo_restores_every_quantity(env):
     before = env.stock()
-    r = env.run("plan", buildlist(env, TWO), "--json", "--commit")
+    r = env.run("plan", *FIXED, buildlist(env, TWO), "--json", "--commit")
     assert r.exit_code == 0, r.output
     d = json.loads(r.stdout)
     bid = d["build_id"]
@@ -209,7 +214,7 @@ def test_commit_refused_when_stock_changed_since_planning(env, monkeypatch):
     monkeypatch.setattr(Store, "snapshot", stale)
     # 30 copies of design A: more GP-N1 (and 4k7, 10u) than the store really holds
     text = '[[build]]\nrequest = "preamp.toml"\ncount = 30\n'
-    r = env.run("plan", buildlist(env, text), "--json", "--commit")
+    r = env.run("plan", *FIXED, buildlist(env, text), "--json", "--commit")
     assert r.exit_code == 2
     err_lines = r.stderr.strip().splitlines()
     assert len(err_lines) == 1 and "stock changed since planning" in err_lines[0]
@@ -221,7 +226,7 @@ def test_commit_refused_when_stock_changed_since_planning(env, monkeypatch):
 
 def test_infeasible_plan_is_an_answer(env):
     text = '[[build]]\nrequest = "preamp.toml"\ncount = 60\n'
-    r = env.run("plan", buildlist(env, text), "--json")
+    r = env.run("plan", *FIXED, buildlist(env, text), "--json")
     assert r.exit_code == 0, r.output
     d = json.loads(r.stdout)
     assert d["feasible"] is False
@@ -233,14 +238,14 @@ def test_infeasible_plan_is_an_answer(env):
     # reason says whose need it is, never a bare "not enough"
     assert entry["reason"].startswith("the designs offered for it need more")
     # the human view names the request too, and what the verdict rests on
-    r = env.run("plan", buildlist(env, text))
+    r = env.run("plan", *FIXED, buildlist(env, text))
     flat = " ".join(r.stdout.split())
     assert r.exit_code == 0 and "preamp.toml" in r.stdout
     assert "not enough" not in flat and "a design it was not offered may still fit" in flat
 
 
 def test_bad_build_list_exit_2_one_line(env):
-    r = env.run("plan", buildlist(env, '[[build]]\nrequest = "preamp.toml"\ncopies = 2\n'))
+    r = env.run("plan", *FIXED, buildlist(env, '[[build]]\nrequest = "preamp.toml"\ncopies = 2\n'))
     assert r.exit_code == 2
     lines = r.stderr.strip().splitlines()
     assert len(lines) == 1
@@ -248,7 +253,7 @@ def test_bad_build_list_exit_2_one_line(env):
 
 
 def test_rich_view_lists_bins_and_total(env):
-    r = env.run("plan", buildlist(env, TWO))
+    r = env.run("plan", *FIXED, buildlist(env, TWO))
     assert r.exit_code == 0, r.output
     assert "E2" in r.stdout or "F1" in r.stdout
     assert "Total cost" in r.stdout and "Optimal" in r.stdout
@@ -260,7 +265,7 @@ def test_commit_with_purchases_records_orders_and_order_file_holds_the_rest(env)
     text = TWENTY_PREAMPS_E24
     before = env.stock()
     order = env.tmp / "order.csv"
-    r = env.run("plan", buildlist(env, text), "--json", "--commit", "--order", str(order))
+    r = env.run("plan", *FIXED, buildlist(env, text), "--json", "--commit", "--order", str(order))
     assert r.exit_code == 0, r.output
     d = json.loads(r.stdout)
     # as in the test above: 4k7 18 in stock + 2 bought, 10u 14 + 6 bought, 10k and GP-N1

@@ -1,0 +1,314 @@
+"""Column generation: designs added to the plan by need, and what that proves.
+
+The relaxation of :mod:`~optimiser.planning.master` is solved over the columns so
+far; each pool gets its dual price; for each build the exact search
+(:mod:`optimiser.search.pricing`) looks for the design of least reduced cost
+``w·score_map(score) + Σ price × pieces − μ_b``, and every design found below 0 is
+added.  When a round of complete searches finds none, the relaxation is solved
+over every design the search can build, so its value bounds every plan.  At any
+round whose searches all completed, the Lagrangian bound
+``value + Σ_b count_b · min(0, least reduced cost of b)`` is such a bound too.
+
+Phase 1 (copies left unserved at cost 1, everything else free) runs first when
+the columns so far cannot serve every copy even fractionally; if its bound stays
+above 0, no plan exists at all, and the dual prices say why (a counting argument:
+every copy of a build needs pieces of the priced pools worth at least μ_b, and the
+drawer holds less).
+
+Capacitors: the search chooses each network's capacitors by its own rule, not by
+price, so it prices capacitor pieces at 0 — a lower bound.  A design it finds that
+is not negative once its capacitors are priced leaves that build open.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass, field, replace
+
+from inventory.errors import InputError
+from inventory.parts import StockSnapshot
+from optimiser.design import Design
+from optimiser.planning.candidates import PlanItem, design_key
+from optimiser.planning.master import Column, MasterSolution, Pools, solve_master
+from optimiser.planning.model import ABS_GAP_SHARE
+from optimiser.planning.objective import cost_quantum, score_map, score_map_inverse, score_weight
+from optimiser.planning.rows import Row, Unusable, design_demand, stock_rows
+from optimiser.purchase import Catalogue
+from optimiser.search.priced import priced_search
+from optimiser.search.pricing import Pricing
+
+__all__ = ["PRICING_TIME_S", "MAX_ROUNDS", "Bound", "Generated", "generate_columns",
+           "finish_bound"]
+
+#: Seconds for all pricing searches together unless the caller gives its own
+#: (0: no pricing, the candidates alone).  Longer proves more on large drawers.
+PRICING_TIME_S = 60.0
+#: Pricing rounds at most (each: one relaxation, one search per build).
+MAX_ROUNDS = 25
+#: Designs each pricing search returns at most (the least reduced costs): more
+#: columns per round means fewer rounds, each relaxation a little larger.
+COLUMNS_PER_SEARCH = 5
+#: A reduced cost below -RC_TOL (in units of one copy's score weight) is negative;
+#: the bound gives up count_b · RC_TOL per build for it.  Far above the LP
+#: solver's tolerances, far below any score difference that matters.
+RC_TOL = 1e-6
+#: Phase 1's value above which the columns cannot serve every copy.
+PHASE1_TOL = 1e-7
+
+
+@dataclass
+class Bound:
+    """What column generation proved (JSON ``bound``, docs/json.md)."""
+
+    lp: float | None = None              # lower bound of every plan's objective (proven)
+    cost: float | None = None            # the plan's objective (purchase cost + score term)
+    gap: float | None = None
+    proven_optimal: bool = False
+    proven_cheapest: bool = False
+    proven_infeasible: bool = False
+    pricing_complete: bool = False
+    open: list[str] = field(default_factory=list)
+    columns_generated: int = 0
+    pricing_rounds: int = 0
+    seconds: float = 0.0
+    budget_s: float = 0.0
+
+    def to_json(self) -> dict:
+        def r(x):
+            return None if x is None or not math.isfinite(x) else round(x, 9)
+        return {"lp": r(self.lp), "cost": r(self.cost), "gap": r(self.gap),
+                "proven_optimal": self.proven_optimal, "proven_cheapest": self.proven_cheapest,
+                "proven_infeasible": self.proven_infeasible,
+                "pricing_complete": self.pricing_complete, "open": list(self.open),
+                "columns_generated": self.columns_generated,
+                "pricing_rounds": self.pricing_rounds, "seconds": round(self.seconds, 3),
+                "budget_s": self.budget_s}
+
+
+@dataclass
+class Generated:
+    """The builds with every column offered, the bound so far and, when no plan
+    exists, the proof's reasons per build."""
+
+    items: list[PlanItem]
+    bound: Bound
+    weight: float
+    quantum: float
+    reasons: dict[str, str] = field(default_factory=dict)
+
+
+def _column(b: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
+            pools: Pools) -> Column | None:
+    try:
+        need = design_demand(d, rows, catalogue)
+    except Unusable:
+        return None
+    return Column(b, pools.pieces(need), score_map(d.score))
+
+
+def _search_price(sol: MasterSolution, rows, catalogue, pools, d: Design) -> float:
+    """Σ price × pieces of one copy, capacitors at 0 (a lower bound, see the module notes)."""
+    try:
+        need = design_demand(d, rows, catalogue)
+    except Unusable:
+        return math.inf
+    total = 0.0
+    for rid, k in need.items():
+        p = pools.of_row[rid]
+        if p[0] != "capacitor":
+            total += sol.price.get(p, 0.0) * k
+    return total
+
+
+def _why_infeasible(sol: MasterSolution, items: Sequence[PlanItem], pools: Pools) -> dict[str, str]:
+    """The counting argument of phase 1's dual prices, one line per build it concerns."""
+    priced = {p: s for p, s in sol.price.items() if s > PHASE1_TOL}
+    need = sum(it.count * max(float(m), 0.0) for it, m in zip(items, sol.mu, strict=True))
+    held = sum(s * pools.held.get(p, 0) for p, s in priced.items())
+    names = ", ".join(pools.label.get(p, str(p)) for p in sorted(priced, key=repr))
+    levels = {round(s, 9) for s in priced.values()}
+    out = {}
+    for it, m in zip(items, sol.mu, strict=True):
+        if m <= PHASE1_TOL:
+            continue
+        if len(levels) == 1:
+            s = next(iter(levels))
+            out[it.name] = (f"proven: not enough {names}: every design that meets the builds "
+                            f"sharing it needs some, together at least {need / s:.3g} pieces; "
+                            f"the drawer holds {held / s:.0f}")
+        else:
+            out[it.name] = (f"proven: the builds need more of {names} than the drawer holds "
+                            f"(weighted by the relaxation's prices: need {need:.3g}, "
+                            f"hold {held:.3g})")
+    return out
+
+
+def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: StockSnapshot,
+                     catalogue: Catalogue | None, *, budget_s: float = PRICING_TIME_S,
+                     rounds: int = MAX_ROUNDS, search_fn=None,
+                     progress=None) -> Generated:
+    """Add columns to ``items`` by pricing until none has a negative reduced cost,
+    the rounds run out or ``budget_s`` is spent.
+
+    Parameters
+    ----------
+    items : sequence of PlanItem
+        The builds with the candidates offered so far.
+    requests : sequence of Request
+        The request of each build (searched for one copy).
+    augmented : StockSnapshot
+        The drawer plus the purchasable values (:func:`optimiser.purchase.augment`).
+    search_fn : callable, optional
+        Stands in for :func:`optimiser.search.search_designs` (tests).
+    """
+    t0 = time.perf_counter()
+    catalogue = catalogue or Catalogue()
+    items = [replace(it, candidates=tuple(it.candidates)) for it in items]
+    rows = stock_rows(augmented, catalogue)
+    total = sum(max(it.count, 0) for it in items) or 1
+    quantum = cost_quantum(catalogue)
+    weight = score_weight(quantum, total)
+    pools = Pools(rows, catalogue, total, cost_unit=weight)
+    counts = [it.count for it in items]
+    bound = Bound(budget_s=budget_s)
+    designs = [list(it.candidates) for it in items]
+    seen = [{design_key(d) for d in ds} for ds in designs]
+    columns: list[Column] = []
+    col_design: list[tuple[int, Design]] = []
+    for b, ds in enumerate(designs):
+        for d in ds:
+            c = _column(b, d, rows, catalogue, pools)
+            if c is not None:
+                columns.append(c)
+                col_design.append((b, d))
+    best_lagrange = -math.inf
+    phase1 = False
+    reasons: dict[str, str] = {}
+    exact = True
+    for it, req in zip(items, requests, strict=True):
+        if getattr(req, "wants_yield", False):
+            exact = False
+            bound.open.append(f"{it.name}: a yield target is checked after the search, "
+                              "so its pricing proves nothing")
+    complete_round = False
+    for rnd in range(rounds):
+        sol = solve_master(columns, counts, pools, phase1=phase1)
+        if sol.status != "Optimal":
+            if phase1:
+                bound.open.append(f"the relaxation's solver stopped ({sol.status})")
+                break
+            phase1 = True
+            sol = solve_master(columns, counts, pools, phase1=True)
+        if phase1 and sol.value <= PHASE1_TOL:
+            phase1 = False
+            best_lagrange = -math.inf
+            sol = solve_master(columns, counts, pools)
+        left = budget_s - (time.perf_counter() - t0)
+        if left <= 0:
+            bound.open.append(f"the pricing time ({budget_s:g} s) ran out")
+            break
+        bound.pricing_rounds = rnd + 1
+        added = 0
+        round_exact = exact
+        least: list[float] = []
+        searched: dict[str, tuple[list[Design], bool]] = {}
+        top_mu: dict[str, float] = {}
+        for b, req in enumerate(requests):
+            top_mu[repr(req)] = max(top_mu.get(repr(req), -math.inf), float(sol.mu[b]))
+        for b, (it, req) in enumerate(zip(items, requests, strict=True)):
+            left = budget_s - (time.perf_counter() - t0)
+            if left <= 0:
+                round_exact = False
+                if f"the pricing time ({budget_s:g} s) ran out" not in bound.open:
+                    bound.open.append(f"the pricing time ({budget_s:g} s) ran out")
+                break
+            if progress is not None:
+                progress(f"pricing designs for {it.name} (round {rnd + 1})")
+            mu = float(sol.mu[b])
+            key = repr(req)
+            pricing = Pricing(0.0 if phase1 else 1.0, score_map, score_map_inverse,
+                              lambda d, sol=sol: _search_price(sol, rows, catalogue, pools, d),
+                              top_mu[key] - RC_TOL)
+            if key not in searched:     # builds of one request share one search per round
+                try:
+                    searched[key] = priced_search(
+                        replace(req, builds=1), augmented, pricing,
+                        lambda rid, sol=sol: sol.price.get(pools.of_row.get(rid), 0.0),
+                        COLUMNS_PER_SEARCH, left, search_fn=search_fn)
+                except InputError as exc:
+                    searched[key] = ([], False)
+                    bound.open.append(f"{it.name}: not priced ({exc})")
+            found, done = searched[key]
+            if not done:
+                round_exact = False
+            found = [d for d in found if pricing.value(d) < mu - RC_TOL]
+            found = [d for d in found if d.meets_spec]
+            # the least reduced cost of this build (a lower bound: capacitors at 0)
+            least.append(min([pricing.value(d) - mu for d in found] + [-RC_TOL]))
+            new_here = 0
+            for d in found:
+                k = design_key(d)
+                if k in seen[b]:
+                    continue
+                c = _column(b, d, rows, catalogue, pools)
+                if c is None or sol.reduced_cost(c, phase1) >= -RC_TOL:
+                    continue
+                seen[b].add(k)
+                designs[b].append(d)
+                columns.append(c)
+                col_design.append((b, d))
+                new_here += 1
+            if found and not new_here:
+                round_exact = False     # only capacitors' prices keep them from counting
+                msg = f"{it.name}: designs whose capacitors' prices the search does not weigh"
+                if msg not in bound.open:
+                    bound.open.append(msg)
+            added += new_here
+        bound.columns_generated += added
+        if round_exact and len(least) == len(items):
+            lag = sol.value + sum(n * m for n, m in zip(counts, least, strict=True))
+            best_lagrange = max(best_lagrange, lag)
+            if phase1 and best_lagrange > PHASE1_TOL:
+                bound.proven_infeasible = True
+                bound.pricing_complete = added == 0
+                reasons = _why_infeasible(sol, items, pools)
+                break
+            if added == 0:
+                complete_round = True
+                break
+        elif added == 0:
+            break
+    else:
+        bound.open.append(f"the rounds ran out ({rounds})")
+    bound.pricing_complete = bound.pricing_complete or complete_round
+    if not phase1 and math.isfinite(best_lagrange):
+        bound.lp = best_lagrange * weight
+    bound.seconds = time.perf_counter() - t0
+    out = [replace(it, candidates=tuple(designs[b])) for b, it in enumerate(items)]
+    return Generated(out, bound, weight, quantum, reasons)
+
+
+def finish_bound(gen: Generated, plan) -> Bound:
+    """Fill the bound's ``cost``, ``gap`` and verdicts from the plan of the programme
+    over every generated column."""
+    bound = gen.bound
+    if not plan.feasible or not plan.solver.has_solution:
+        return bound
+    obj = plan.cost + gen.weight * sum(a.copies * score_map(a.design.score)
+                                       for bp in plan.builds for a in bp.allocations)
+    bound.cost = obj
+    if bound.lp is None:
+        return bound
+    bound.gap = max(obj - bound.lp, 0.0)
+    optimal = plan.solver.status == "Optimal"
+    # every plan's cost is a multiple of the cost step and its score term below half
+    # a step: a bound above (cost − half a step) leaves no room for a cheaper order
+    bound.proven_cheapest = optimal and bound.lp > plan.cost - gen.quantum / 2
+    # closed: within the programme's own absolute gap and what the bound gives up
+    # for reduced costs above -RC_TOL
+    total = sum(it.count for it in gen.items)
+    bound.proven_optimal = (optimal and bound.pricing_complete
+                            and bound.gap <= gen.weight * (ABS_GAP_SHARE + total * RC_TOL))
+    return bound

@@ -1,0 +1,240 @@
+"""Column generation for plans: designs added by the relaxation's prices, and what
+the bound proves.
+
+References (outside the planner):
+
+* the priced search against a plain enumeration of every stage a tiny drawer
+  allows (the same enumeration as tests/optimiser/test_search_complete.py, each
+  stage priced by hand);
+* the programme over a far larger fixed list of designs (the bound must hold
+  for its plan too);
+* counting: a single-transistor stage takes one transistor per copy, so copies
+  beyond the transistors held cannot be built by any design.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from collections import defaultdict
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from drawerfit.render.plan import bound_line
+from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
+from optimiser.buildlist import BuildList, BuildSpec
+from optimiser.evaluate import evaluate
+from optimiser.planning import make_plan
+from optimiser.planning.colgen import Bound
+from optimiser.planning.model import ABS_GAP_SHARE
+from optimiser.planning.objective import cost_quantum, score_map, score_map_inverse, score_weight
+from optimiser.purchase import PurchaseOptions, augment
+from optimiser.request import Request
+from optimiser.score import score_gain_target, score_terms
+from optimiser.search import FORMS, cap_roles, search_designs, skeleton_figures
+from optimiser.search.pricing import Pricing
+from optimiser.stage import StageBatch
+from tests.optimiser.test_search_complete import _needs_collector_resistor, cases, resistor_roles
+
+T = Transistor("GP-N1", 100, 300, qty=10, ft=250e6, cob=4e-12, vceo=40, ic_max=0.1, pd=0.5,
+               id=900, location="Q1")
+R_VALUES = [47e3, 68e3, 10e3, 4.7e3, 3.3e3, 1e3, 470.0, 220.0]
+C_VALUES = [1e-6, 2.2e-6, 4.7e-6, 10e-6, 22e-6, 47e-6, 100e-6]
+CE = Request(topology="ce", supply_v=12.0, load_ohm=10e3, source_ohm=600.0, gain=10.0,
+             gain_tol_db=3.0, temp_c=(0.0, 50.0), builds=1)
+
+
+def drawer(rqty: dict[float, int], tqty: int = 10) -> StockSnapshot:
+    res = [Resistor(v, rqty.get(v, 20), id=i + 1, location=f"R{i}")
+           for i, v in enumerate(R_VALUES)]
+    caps = [Capacitor(v, 20, id=100 + i, location=f"C{i}") for i, v in enumerate(C_VALUES)]
+    t = Transistor(T.label, T.hfe_min, T.hfe_max, qty=tqty, ft=T.ft, cob=T.cob, vceo=T.vceo,
+                   ic_max=T.ic_max, pd=T.pd, id=T.id, location="Q1")
+    return StockSnapshot(tuple(res), tuple(caps), (t,))
+
+
+def plan_catalogue(snap, po):
+    return augment(snap, po)[1]
+
+
+def objective(plan, weight: float) -> float:
+    return plan.cost + weight * sum(a.copies * score_map(a.design.score)
+                                    for b in plan.builds for a in b.allocations)
+
+
+def pieces_taken(plan) -> dict[int, int]:
+    taken: dict[int, int] = defaultdict(int)
+    for b in plan.builds:
+        for a in b.allocations:
+            for rid, n in a.pieces.items():
+                taken[rid] += n
+    return taken
+
+
+# ---------------------------------------------------------------------------
+# Plans
+# ---------------------------------------------------------------------------
+
+def test_stock_plan_among_lower_ranked_designs_is_found_and_proven():
+    # Two builds of two identical copies; every design among each build's best two
+    # takes a 220R, and the drawer holds two: the fixed list can only say "not
+    # enough 220R" (unproven), while designs further down the ranking need none.
+    snap = drawer({220.0: 2})
+    blist = BuildList((BuildSpec("a", CE, 2, True), BuildSpec("b", CE, 2, True)))
+    fixed = make_plan(blist, snap, candidates=2, pricing_time_s=0)
+    assert not fixed.feasible and fixed.bound is None
+    assert all(not s.proven for s in fixed.infeasible)
+
+    plan = make_plan(blist, snap, candidates=2, pricing_time_s=60)
+    assert plan.feasible and plan.cost == 0
+    b = plan.bound
+    assert b.pricing_complete and b.columns_generated > 0
+    assert b.proven_cheapest and b.proven_optimal, b.to_json()
+    assert b.lp <= b.cost + 1e-12
+    assert bound_line(b).startswith("Optimal over every design")
+    # stock respected, counted by hand from the allocations
+    held = {r.id: r.qty for r in (*snap.resistors, *snap.capacitors, *snap.transistors)}
+    assert all(n <= held[rid] for rid, n in pieces_taken(plan).items())
+    # reference: the programme over a far larger fixed list (each request's best 100
+    # designs for one copy): its objective is no lower than the bound, and ours is
+    # no higher than its own (to the solver's gap), as the bound claims of every plan
+    weight = score_weight(cost_quantum(None), 4)
+    assert math.isclose(objective(plan, weight), b.cost, rel_tol=1e-12)
+    full = make_plan(blist, snap, candidates=100, pricing_time_s=0)
+    assert full.feasible and full.cost == 0
+    assert objective(full, weight) >= b.lp - 1e-12
+    assert b.cost <= objective(full, weight) + weight * ABS_GAP_SHARE
+
+
+def test_purchases_needed_claims_only_what_the_bound_proves():
+    # One piece of each resistor value and two identical copies of a stage of four
+    # or five resistors: something must be bought (E3 resistors at 0.02 a piece).
+    snap = drawer({v: 1 for v in R_VALUES})
+    po = PurchaseOptions(series="E3", cap_series="E3", resistor_price=0.02,
+                         capacitor_price=0.10, line_cost=0.0, pack=1)
+    blist = BuildList((BuildSpec("a", CE, 2, True),), po)
+    plan = make_plan(blist, snap, candidates=3, pricing_time_s=20)
+    assert plan.feasible and plan.purchases and plan.cost > 0
+    b = plan.bound
+    # reference: the programme over each request's best 100 designs; the bound holds
+    # for its plan as for every plan
+    full = make_plan(blist, snap, candidates=100, pricing_time_s=0)
+    weight = score_weight(cost_quantum(plan_catalogue(snap, po)), 2)
+    assert b.lp is None or b.lp <= objective(full, weight) + 1e-9
+    if b.proven_cheapest:
+        assert plan.cost <= full.cost + 1e-9
+    if not b.pricing_complete:
+        assert not b.proven_optimal and b.open
+        pytest.xfail("pricing with purchases does not converge within 20 s: " + "; ".join(b.open))
+    assert b.proven_cheapest and plan.cost <= full.cost + 1e-9
+
+
+def test_not_enough_transistors_is_proven_by_counting():
+    # Counting: one transistor per copy of a single-transistor stage; four copies,
+    # three transistors.  No design helps, and the verdict says it is proven.
+    snap = drawer({}, tqty=3)
+    blist = BuildList((BuildSpec("a", CE, 2, True), BuildSpec("b", CE, 2, False)))
+    plan = make_plan(blist, snap, candidates=3, pricing_time_s=60)
+    assert not plan.feasible
+    assert plan.bound.proven_infeasible
+    assert plan.infeasible and all(s.proven for s in plan.infeasible)
+    reason = plan.infeasible[0].reason
+    assert "GP-N1" in reason and "at least 4" in reason and "holds 3" in reason, reason
+    assert plan.to_json()["infeasible"][0]["proven"] is True
+
+
+def test_unproven_plan_never_reads_optimal():
+    b = Bound(lp=0.10, cost=0.25, gap=0.15, proven_cheapest=False, pricing_complete=False,
+              open=["the pricing time (5 s) ran out"])
+    text = bound_line(b)
+    assert "Optimal" not in text and "No cheaper order" not in text
+    assert "within 0.15 of the best possible" in text.lower()
+    assert "the pricing time (5 s) ran out" in text
+
+
+# ---------------------------------------------------------------------------
+# The priced search against enumeration
+# ---------------------------------------------------------------------------
+
+def priced_exhaustive(req: Request, snap: StockSnapshot, price: dict[float, float],
+                      t_price: float, weight: float):
+    """Least ``weight·score_map(score) + Σ price`` over every buildable stage (None: none)."""
+    rqty = {r.value: r.qty for r in snap.resistors}
+    cqty = {c.value: c.qty for c in snap.capacitors}
+    t = snap.transistors[0]
+    best = None
+    for form in FORMS[req.topology]:
+        rroles = resistor_roles(req.topology, form)
+        croles = cap_roles(req.topology, form)
+        rows = []
+        for rv in itertools.product(sorted(rqty), repeat=len(rroles)):
+            vals = dict(zip(rroles, rv, strict=True))
+            choices = [dict(vals)]
+            if req.topology == "cc":
+                choices.append({**vals, "RC": 0.0})
+            for v in choices:
+                for cv in itertools.product(sorted(cqty), repeat=len(croles)):
+                    rows.append({**v, **dict(zip(croles, cv, strict=True))})
+        keep = []
+        for v in rows:
+            rc, cc = defaultdict(int), defaultdict(int)
+            for role, x in v.items():
+                if x > 0:
+                    (cc if role.startswith("C_") else rc)[x] += 1
+            if all(n * req.builds <= rqty[x] for x, n in rc.items()) and \
+                    all(n * req.builds <= cqty[x] for x, n in cc.items()):
+                emptied = sum(1 for x, n in rc.items() if n * req.builds == rqty[x])
+                cost = t_price + sum(price[x] * n for x, n in rc.items())
+                keep.append((v, emptied, cost))
+        if req.topology == "cc":
+            keep = [k for k in keep if k[0]["RC"] == 0 or _needs_collector_resistor(req, k[0], t)]
+        if not keep:
+            continue
+        batch = StageBatch.from_values(req.topology, **{
+            r: np.array([k[0].get(r, 0.0) for k in keep]) for r in keep[0][0]})
+        ev = evaluate(req, batch, t, None, large_signal=req.thd_max_pct is not None)
+        ok = np.flatnonzero(ev.meets)
+        if ok.size == 0:
+            continue
+        fig = skeleton_figures(req, batch.take(ok), t)
+        emptied = np.array([keep[i][1] for i in ok]) + (t.qty == req.builds)
+        target_db, tol_db = score_gain_target(req)
+        s = score_terms(gain_inf_db=fig["gain_inf_db"], target_db=target_db, tol_db=tol_db,
+                        drift_pct=fig["drift_pct"], hd2_pct=fig["hd2_pct"],
+                        supply_a=fig["supply_a"], emptied=emptied, vce_v=fig["vce_v"],
+                        supply_v=req.supply_v)
+        total = sum(s.values())
+        for j, i in enumerate(ok):
+            v = weight * score_map(float(total[j])) + keep[i][2]
+            best = v if best is None else min(best, v)
+    return best
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=list(HealthCheck))
+@given(cases(), st.lists(st.sampled_from([0.0, 0.0, 0.05, 0.2, 0.6]), min_size=4, max_size=4),
+       st.sampled_from([0.0, 0.3]), st.sampled_from([1.0, 0.2]))
+def test_priced_search_agrees_with_enumeration(case, prices, t_price, weight):
+    req, snap = case
+    req = replace(req, builds=1)
+    price = dict(zip(sorted(r.value for r in snap.resistors), prices, strict=False))
+    by_id = {r.id: price[r.value] for r in snap.resistors}
+    by_id[snap.transistors[0].id] = t_price
+
+    def design_price(d):
+        return sum(by_id.get(p.id, 0.0) * p.count for pk in d.parts.values() for p in pk.pieces
+                   if p.kind != "capacitor") + t_price
+
+    pricing = Pricing(weight, score_map, score_map_inverse, design_price, math.inf)
+    stats = {"pruned": {}}
+    found, _ = search_designs(req, snap, 3, stats, given=[], workers=1, pricing=pricing)
+    best = priced_exhaustive(req, snap, price, t_price, weight)
+    assert (best is not None) == bool(found), (req, snap, best, found)
+    if best is None:
+        return
+    assert math.isclose(pricing.value(found[0]), best, rel_tol=1e-9, abs_tol=1e-12)
+    values = [pricing.value(d) for d in found]
+    assert values == sorted(values)
