@@ -1,0 +1,73 @@
+"""The single-stage requests a chain search puts to :func:`optimiser.search.search`:
+the second stage (the follower) with its own divider bias, and the first stage
+against the loads the followers' input impedances present (docs/search.md, "Chains").
+
+Pure functions of the chain request; no I/O.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import numpy as np
+
+from optimiser.request import Request
+
+__all__ = ["stage_request", "follower_request", "first_stage_request", "load_points",
+           "follower_gain_span"]
+
+#: Load points differing by less than this ratio are searched once.
+LOAD_MERGE_RATIO = 1.1
+
+
+def stage_request(chain: Request, kind: str, **changes) -> Request:
+    """A single-stage request of topology ``kind`` derived from ``chain``: the
+    chain-only keys cleared, every other key kept unless ``changes`` sets it."""
+    base = dict(topology=kind, coupling=None, zout_max_ohm=None, min_yield_pct=None,
+                yield_samples=None)
+    base.update(changes)
+    return replace(chain, **base)
+
+
+def follower_request(chain: Request, kind: str, source_ohm: float) -> Request:
+    """The second stage: the chain's load, ``source_ohm`` for the first stage's output
+    impedance, driven with the input level times the chain's gain target (so that
+    its own THD ceiling is judged at the level it will carry), no gain target of its
+    own (the score's follower target applies), no Z_in target."""
+    drive = chain.input_vpk * (chain.gain if chain.gain is not None else 1.0)
+    return stage_request(chain, kind, source_ohm=float(source_ohm), gain=None,
+                         zin_min_ohm=None, input_vpk=min(drive, chain.supply_v))
+
+
+def follower_gain_span(gains_db) -> tuple[float, float]:
+    """(median, spread) in dB of the followers' gains."""
+    g = np.asarray(gains_db, dtype=float)
+    g = g[np.isfinite(g)]
+    if g.size == 0:
+        return 0.0, 0.0
+    return float(np.median(g)), float(g.max() - g.min())
+
+
+def first_stage_request(chain: Request, kind: str, load_ohm: float, follower_db: float,
+                        spread_db: float) -> Request:
+    """The first stage into ``load_ohm`` (a follower's input impedance): the chain's
+    gain target less the followers' median gain, its tolerance widened by their
+    spread; no THD ceiling of its own (the chain's THD is judged whole)."""
+    gain = None if chain.gain is None else chain.gain / 10.0 ** (follower_db / 20.0)
+    return stage_request(chain, kind, load_ohm=float(load_ohm), gain=gain,
+                         gain_tol_db=chain.gain_tol_db + spread_db, thd_max_pct=None)
+
+
+def load_points(zin_ohm) -> list[float]:
+    """The least, geometric middle and largest of the followers' input impedances,
+    points closer than :data:`LOAD_MERGE_RATIO` merged."""
+    z = np.asarray([x for x in zin_ohm if x is not None and math.isfinite(x) and x > 0])
+    if z.size == 0:
+        return []
+    pts = sorted({float(z.min()), float(math.sqrt(z.min() * z.max())), float(z.max())})
+    out = [pts[0]]
+    for p in pts[1:]:
+        if p / out[-1] >= LOAD_MERGE_RATIO:
+            out.append(p)
+    return out

@@ -1,0 +1,121 @@
+"""Two-stage chains from one drawer: :func:`search_chains` (docs/search.md, "Chains").
+
+1. The second stage (a follower), each with its own divider bias, from the
+   single-stage search (:func:`optimiser.search.search`) into the chain's load.
+2. The first stage from the single-stage search into the loads the followers'
+   input impedances present (their least, middle and largest: the followers' Z_in
+   range is the first stage's load range), to the chain's gain less the
+   followers' gain.  The second stage is searched again from the first stages'
+   output impedance.
+3. Every first stage with every follower: both stages' pieces counted together
+   against stock, the whole chain evaluated by the two-transistor engine
+   (:func:`optimiser.pair_evaluate.evaluate_pair`) against the chain's targets,
+   ranked by :mod:`.chain_score`; chains missing only f_low are tried again with the
+   largest capacitors in stock.
+
+The ranking is among the chains composed this way; it is not proven to hold the best
+chain the drawer allows (``search["complete"]`` is False, and ``search`` says what was
+searched).
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+
+from inventory.errors import InputError
+from inventory.parts import StockSnapshot
+from optimiser.request import Request
+from optimiser.search.answer import search
+from optimiser.search.chain_answer import ChainResult
+from optimiser.search.chain_confirm import chain_parts, confirm_chains, largest_capacitors
+from optimiser.search.chain_followers import (
+    first_stage_request,
+    follower_gain_span,
+    follower_request,
+    load_points,
+)
+
+__all__ = ["SEARCHED_CHAINS", "SEARCHED_COUPLINGS", "check_chain_request", "search_chains",
+           "STAGE_TOP"]
+
+#: The chains ``design`` searches (first stage, second stage), capacitor-coupled.
+SEARCHED_CHAINS = (("ce", "cc"), ("cb", "cc"))
+SEARCHED_COUPLINGS = ("capacitor",)
+#: How many designs of each single-stage search are composed into chains.
+STAGE_TOP = 10
+
+
+def _names() -> str:
+    return ", ".join(f'["{a}", "{b}"]' for a, b in SEARCHED_CHAINS)
+
+
+def check_chain_request(request: Request) -> None:
+    """Refuse (InputError on ``topology`` or ``coupling``) a two-transistor request the
+    search does not design."""
+    if tuple(request.topology) not in SEARCHED_CHAINS or isinstance(request.topology, str):
+        raise InputError(f"design searches the chains {_names()} (capacitor-coupled); "
+                         f"{request.topology!r} can be checked with given values by "
+                         "`drawerfit analyse`", field="topology")
+    if request.coupling not in SEARCHED_COUPLINGS:
+        raise InputError(f"design searches capacitor-coupled chains only; a "
+                         f"{request.coupling}-coupled chain with given values can be "
+                         "checked by `drawerfit analyse`", field="coupling")
+
+
+def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
+                  time_limit_s: float | None = None) -> ChainResult:
+    """The best chains composed from the single-stage searches (module docstring)."""
+    check_chain_request(request)
+    t0 = time.perf_counter()
+    kind1, kind2 = request.topology
+    stats: dict = {"complete": False, "method": "composed from single-stage searches",
+                   "stage_top": STAGE_TOP}
+    subs = []
+
+    def budget():
+        if time_limit_s is None:
+            return None
+        return max(0.5, (time_limit_s - (time.perf_counter() - t0)) / 4.0)
+
+    def run(req):
+        r = search(req, snapshot, top=STAGE_TOP, misses=0, time_limit_s=budget())
+        subs.append(bool(r.stats.get("complete", True)))
+        return r.designs
+
+    followers = {}
+    for d in run(follower_request(request, kind2, request.source_ohm)):
+        followers[tuple(sorted(d.values().items())) + (d.transistor,)] = d
+    f_list = list(followers.values())
+    g2, spread = follower_gain_span([d.metrics["gain_db"] for d in f_list])
+    loads = load_points([d.metrics["zin_ohm"] for d in f_list])
+    firsts = {}
+    for load in loads:
+        for d in run(first_stage_request(request, kind1, load, g2, spread)):
+            firsts.setdefault(tuple(sorted(d.values().items())) + (d.transistor,), d)
+    d1_list = list(firsts.values())
+    zouts = [d.metrics["zout_ohm"] for d in d1_list if d.metrics.get("zout_ohm")]
+    src = float(np.median(zouts)) if zouts else None
+    if src is not None:
+        for d in run(follower_request(request, kind2, src)):
+            followers.setdefault(tuple(sorted(d.values().items())) + (d.transistor,), d)
+    f_list = list(followers.values())
+    stats.update(followers=len(f_list), first_stage_loads_ohm=loads,
+                 first_stages=len(d1_list), follower_sources_ohm=[request.source_ohm] +
+                 ([src] if src is not None else []))
+    cands = [(chain_parts(a, b), (a.transistor, b.transistor)) for a in d1_list for b in f_list]
+    meeting, missing = confirm_chains(request, snapshot, cands, stats)
+    retry = [d for d in missing if d.violations and all(v.startswith("f_low_hz")
+                                                         for v in d.violations)]
+    if retry:
+        big = [(largest_capacitors(d.parts, snapshot), d.transistors) for d in retry]
+        m2, _ = confirm_chains(request, snapshot, big, stats)
+        meeting = sorted(meeting + m2, key=lambda d: d.score)
+        stats["largest_capacitor_retries"] = len(retry)
+    designs = meeting[:top]
+    for k, d in enumerate(designs, 1):
+        d.rank = k
+    stats["stage_searches_complete"] = all(subs)
+    stats["seconds"] = time.perf_counter() - t0
+    return ChainResult(request, designs, [] if designs else missing[:top], stats)
