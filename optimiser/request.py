@@ -388,15 +388,20 @@ def read_toml(path) -> tuple[dict, str]:
                          line=int(m[1]) if m else None) from None
 
 
-def load_request(path) -> Request:
-    """Read and check a request file (TOML)."""
+def load_request(path, *, chains: bool = False) -> Request:
+    """Read and check a request file (TOML).  With ``chains`` (``design``) the topology
+    may also be two stages or a cascode, read as for ``analyse``; which of them the
+    search designs is the search's to say."""
     from inventory.errors import InputError
 
     mapping, text = read_toml(path)
+    topo = mapping.get("topology")
+    pairs = chains and (isinstance(topo, list) or (isinstance(topo, str)
+                                                   and topo.strip().lower() == PAIR_TOPOLOGY))
     if isinstance(mapping.get("transistor"), dict):
         raise InputError("a [transistor] table describes one given transistor (for `analyse`); "
                          "a request picks from stock: write transistor = \"LABEL\" or leave "
                          "it out for any", file=str(path), line=_header_line(text, "transistor"),
                          field="transistor")
     return parse_request(mapping, file=str(path), text=text,
-                         extra_keys=CIRCUIT_KEYS + ("transistor",))
+                         extra_keys=CIRCUIT_KEYS + ("transistor",), pairs=pairs)

@@ -54,9 +54,11 @@ def _names() -> str:
 def check_chain_request(request: Request) -> None:
     """Refuse (InputError on ``topology`` or ``coupling``) a two-transistor request the
     search does not design."""
-    if tuple(request.topology) not in SEARCHED_CHAINS or isinstance(request.topology, str):
+    topo = request.topology
+    if isinstance(topo, str) or tuple(topo) not in SEARCHED_CHAINS:
+        named = f'"{topo}"' if isinstance(topo, str) else "[" + ", ".join(f'"{t}"' for t in topo) + "]"
         raise InputError(f"design searches the chains {_names()} (capacitor-coupled); "
-                         f"{request.topology!r} can be checked with given values by "
+                         f"{named} can be checked with given values by "
                          "`drawerfit analyse`", field="topology")
     if request.coupling not in SEARCHED_COUPLINGS:
         raise InputError(f"design searches capacitor-coupled chains only; a "
