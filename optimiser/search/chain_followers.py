@@ -14,11 +14,11 @@ import numpy as np
 
 from optimiser.request import Request
 
-__all__ = ["stage_request", "follower_request", "first_stage_request", "load_points",
+__all__ = ["stage_request", "follower_request", "first_stage_request", "load_bins",
            "follower_gain_span"]
 
-#: Load points differing by less than this ratio are searched once.
-LOAD_MERGE_RATIO = 1.1
+#: Followers whose input impedances lie within this ratio share one first-stage search.
+LOAD_BIN_RATIO = 2.0
 
 
 def stage_request(chain: Request, kind: str, **changes) -> Request:
@@ -59,15 +59,22 @@ def first_stage_request(chain: Request, kind: str, load_ohm: float, follower_db:
                          gain_tol_db=chain.gain_tol_db + spread_db, thd_max_pct=None)
 
 
-def load_points(zin_ohm) -> list[float]:
-    """The least, geometric middle and largest of the followers' input impedances,
-    points closer than :data:`LOAD_MERGE_RATIO` merged."""
-    z = np.asarray([x for x in zin_ohm if x is not None and math.isfinite(x) and x > 0])
-    if z.size == 0:
-        return []
-    pts = sorted({float(z.min()), float(math.sqrt(z.min() * z.max())), float(z.max())})
-    out = [pts[0]]
-    for p in pts[1:]:
-        if p / out[-1] >= LOAD_MERGE_RATIO:
-            out.append(p)
+def load_bins(zin_ohm) -> list[tuple[float, list[int]]]:
+    """The followers grouped by input impedance: runs of Z_in within a ratio of
+    :data:`LOAD_BIN_RATIO` of the run's least, each as (geometric middle, indices)."""
+    z = [(float(x), i) for i, x in enumerate(zin_ohm)
+         if x is not None and math.isfinite(x) and x > 0]
+    z.sort()
+    bins: list[tuple[float, list[int]]] = []
+    lo = None
+    for x, i in z:
+        if lo is None or x > lo * LOAD_BIN_RATIO:
+            lo = x
+            bins.append((x, [i]))
+        else:
+            bins[-1][1].append(i)
+    out = []
+    for first, idx in bins:
+        last = max(float(zin_ohm[i]) for i in idx)
+        out.append((math.sqrt(first * last), idx))
     return out

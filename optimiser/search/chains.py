@@ -34,17 +34,19 @@ from optimiser.search.chain_followers import (
     first_stage_request,
     follower_gain_span,
     follower_request,
-    load_points,
+    load_bins,
 )
 
 __all__ = ["SEARCHED_CHAINS", "SEARCHED_COUPLINGS", "check_chain_request", "search_chains",
-           "STAGE_TOP"]
+           "STAGE_TOP", "FOLLOWER_TOP"]
 
 #: The chains ``design`` searches (first stage, second stage), capacitor-coupled.
 SEARCHED_CHAINS = (("ce", "cc"), ("cb", "cc"))
 SEARCHED_COUPLINGS = ("capacitor",)
-#: How many designs of each single-stage search are composed into chains.
+#: How many designs of each first-stage search are composed into chains.
 STAGE_TOP = 10
+#: How many followers each second-stage search gives.
+FOLLOWER_TOP = 30
 
 
 def _names() -> str:
@@ -81,32 +83,49 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
             return None
         return max(0.5, (time_limit_s - (time.perf_counter() - t0)) / 4.0)
 
-    def run(req):
-        r = search(req, snapshot, top=STAGE_TOP, misses=0, time_limit_s=budget())
+    def run(req, top):
+        r = search(req, snapshot, top=top, misses=0, time_limit_s=budget())
         subs.append(bool(r.stats.get("complete", True)))
         return r.designs
 
-    followers = {}
-    for d in run(follower_request(request, kind2, request.source_ohm)):
-        followers[tuple(sorted(d.values().items())) + (d.transistor,)] = d
+    def key(d):
+        return tuple(sorted(d.values().items())) + (d.transistor,)
+
+    followers = {key(d): d for d in run(follower_request(request, kind2, request.source_ohm),
+                                        FOLLOWER_TOP)}
+    # the followers again from the first stages' output impedance (the source they see),
+    # estimated from the middle of the followers' input impedances
     f_list = list(followers.values())
-    g2, spread = follower_gain_span([d.metrics["gain_db"] for d in f_list])
-    loads = load_points([d.metrics["zin_ohm"] for d in f_list])
-    firsts = {}
-    for load in loads:
-        for d in run(first_stage_request(request, kind1, load, g2, spread)):
-            firsts.setdefault(tuple(sorted(d.values().items())) + (d.transistor,), d)
-    d1_list = list(firsts.values())
-    zouts = [d.metrics["zout_ohm"] for d in d1_list if d.metrics.get("zout_ohm")]
-    src = float(np.median(zouts)) if zouts else None
-    if src is not None:
-        for d in run(follower_request(request, kind2, src)):
-            followers.setdefault(tuple(sorted(d.values().items())) + (d.transistor,), d)
-    f_list = list(followers.values())
-    stats.update(followers=len(f_list), first_stage_loads_ohm=loads,
-                 first_stages=len(d1_list), follower_sources_ohm=[request.source_ohm] +
-                 ([src] if src is not None else []))
-    cands = [(chain_parts(a, b), (a.transistor, b.transistor)) for a in d1_list for b in f_list]
+    pool = {}
+    sources = [request.source_ohm]
+    loads: list[float] = []
+    firsts: dict = {}
+    for _ in range(2):
+        bins = load_bins([d.metrics["zin_ohm"] for d in f_list])
+        loads.extend(b[0] for b in bins)
+        cands = []
+        for load, idx in bins:
+            g2, spread = follower_gain_span([f_list[i].metrics["gain_db"] for i in idx])
+            d1s = run(first_stage_request(request, kind1, load, g2, spread), STAGE_TOP)
+            for a in d1s:
+                firsts.setdefault(key(a), a)
+                cands.extend((a, f_list[i]) for i in idx)
+        for a, b in cands:
+            pool.setdefault(key(a) + key(b), (a, b))
+        zouts = [d.metrics["zout_ohm"] for d in firsts.values() if d.metrics.get("zout_ohm")]
+        if not zouts or len(sources) > 1:
+            break
+        src = float(np.median(zouts))
+        sources.append(src)
+        more = [d for d in run(follower_request(request, kind2, src), FOLLOWER_TOP)
+                if key(d) not in followers]
+        if not more:
+            break
+        followers.update({key(d): d for d in more})
+        f_list = more
+    stats.update(followers=len(followers), first_stage_loads_ohm=sorted(loads),
+                 first_stages=len(firsts), follower_sources_ohm=sources)
+    cands = [(chain_parts(a, b), (a.transistor, b.transistor)) for a, b in pool.values()]
     meeting, missing = confirm_chains(request, snapshot, cands, stats)
     retry = [d for d in missing if d.violations and all(v.startswith("f_low_hz")
                                                          for v in d.violations)]
