@@ -14,13 +14,14 @@ from inventory.values import format_value
 from optimiser.design import Piece, RolePick
 from optimiser.pair_evaluate import evaluate_pair
 from optimiser.request import Request
+from optimiser.score import STOCK_PENALTY
 from optimiser.search.chain_answer import ChainDesign
 from optimiser.search.chain_score import chain_score_terms
 from optimiser.stage import PartRatings
 from optimiser.stages import pair_form
 from optimiser.stages.pair import PairBatch
 
-__all__ = ["chain_parts", "stock_use", "confirm_chains", "largest_capacitors"]
+__all__ = ["chain_parts", "stock_use", "confirm_chains", "largest_capacitors", "with_swing"]
 
 #: What each stage's coupling capacitor becomes in the chain.
 COUPLED = {0: "C_OUT", 1: "C_IN"}
@@ -124,12 +125,57 @@ def _ratings(picks: list[dict[str, RolePick]], roles) -> PartRatings:
     return r
 
 
-def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats: dict):
-    """Evaluate candidate chains ``[(parts, (label1, label2))]`` with the pair engine.
+#: Chains evaluated with their THD at a time, in order of their score without it.
+CHUNK = 48
 
-    Returns (meeting, missing): :class:`ChainDesign` lists, each sorted by score; a
-    candidate the stock cannot supply for ``request.builds`` copies is dropped
-    (counted in ``stats["stock_refused"]``).
+
+def _batch(form, items, snapshot, labels):
+    picks = [p for p, _ in items]
+    values = {role: np.array([p[role].value if role in p else 0.0 for p in picks])
+              for role in form.role_names}
+    batch = PairBatch.from_values(form, **values)
+    transistors = tuple(snapshot.transistor(x) for x in labels)
+    return batch, transistors, _ratings(picks, form.role_names)
+
+
+def _designs(request, form, ev, items, labels, terms):
+    total = sum(terms.values())
+    out = []
+    for i, (parts, _) in enumerate(items):
+        stages = []
+        for k, st in enumerate(ev.stages):
+            s = {key: float(st[key][i]) for key in ("ic_a", "vce_v", "vb_v", "ve_v", "vc_v",
+                                                    "ic_drift_pct", "pd_q_w")}
+            s["transistor"] = labels[k]
+            stages.append(s)
+        plus = ev.extra["plus"]
+        parts_i = {r: (replace(p, plus=str(plus[r][i])) if r in plus and p.pieces
+                       and (p.pieces[0].dielectric or "").lower() in POLARISED_DIELECTRICS
+                       else p)
+                   for r, p in parts.items()}
+        out.append(ChainDesign(
+            topology=tuple(request.topology), coupling=form.coupling, transistors=labels,
+            parts=parts_i, metrics={k: float(v[i]) for k, v in ev.metrics.items()},
+            stages=stages, meets_spec=bool(ev.meets[i]), score=float(total[i]),
+            score_terms={k: float(v[i]) for k, v in terms.items()},
+            violations=ev.violations(i), warnings=ev.warnings(i)))
+    return out
+
+
+def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats: dict,
+                   top: int):
+    """The best ``top`` of candidate chains ``[(parts, (label1, label2))]`` by the pair
+    engine, exactly ranked within the candidates.
+
+    Each candidate is first evaluated without its THD and swing (DC, small signal,
+    band edges): its score without the distortion term is a lower bound of its score
+    (every term is ≥ 0).  Candidates meeting every target so far are then evaluated
+    whole, CHUNK at a time in order of that bound, until ``top`` chains are known
+    scoring at most the next bound.  A candidate the stock cannot supply for
+    ``request.builds`` copies is dropped (``stats["stock_refused"]``).
+
+    Returns (meeting, missing): :class:`ChainDesign` lists, meeting sorted by score,
+    missing (without THD, from the first evaluation) by how much they miss.
     """
     form = pair_form(tuple(request.topology), request.coupling or "capacitor")
     groups: dict = defaultdict(list)
@@ -141,35 +187,57 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
             continue
         groups[labels].append((parts, emptied))
     stats["stock_refused"] = stats.get("stock_refused", 0) + refused
-    meeting, missing = [], []
+    missing, queue = [], []
     for labels, items in groups.items():
-        transistors = tuple(snapshot.transistor(x) for x in labels)
-        picks = [p for p, _ in items]
-        values = {role: np.array([p[role].value if role in p else 0.0 for p in picks])
-                  for role in form.role_names}
-        batch = PairBatch.from_values(form, **values)
-        ev = evaluate_pair(request, batch, transistors, _ratings(picks, form.role_names))
-        stats["chains_evaluated"] = stats.get("chains_evaluated", 0) + batch.n
+        batch, transistors, ratings = _batch(form, items, snapshot, labels)
+        ev = evaluate_pair(request, batch, transistors, ratings, large_signal=False)
+        stats["chains_screened"] = stats.get("chains_screened", 0) + batch.n
         terms = chain_score_terms(ev, np.array([e for _, e in items], dtype=float))
-        total = sum(terms.values())
-        for i, (parts, _) in enumerate(items):
-            stages = []
-            for k, st in enumerate(ev.stages):
-                s = {key: float(st[key][i]) for key in ("ic_a", "vce_v", "vb_v", "ve_v", "vc_v",
-                                                        "ic_drift_pct", "pd_q_w")}
-                s["transistor"] = labels[k]
-                stages.append(s)
-            plus = ev.extra["plus"]
-            parts_i = {r: (replace(p, plus=str(plus[r][i])) if r in plus and p.pieces
-                           and (p.pieces[0].dielectric or "").lower()
-                           in POLARISED_DIELECTRICS else p)
-                       for r, p in parts.items()}
-            d = ChainDesign(
-                topology=tuple(request.topology), coupling=form.coupling, transistors=labels,
-                parts=parts_i, metrics={k: float(v[i]) for k, v in ev.metrics.items()},
-                stages=stages, meets_spec=bool(ev.meets[i]), score=float(total[i]),
-                score_terms={k: float(v[i]) for k, v in terms.items()},
-                violations=ev.violations(i), warnings=ev.warnings(i))
-            (meeting if d.meets_spec else missing).append(d)
-    key = lambda d: (d.score, sorted(d.values().items()))  # noqa: E731
-    return sorted(meeting, key=key), sorted(missing, key=lambda d: (len(d.violations), d.score))
+        lb = sum(terms.values())
+        designs = _designs(request, form, ev, items, labels, terms)
+        for i, d in enumerate(designs):
+            if d.meets_spec:
+                queue.append((float(lb[i]), labels, items[i]))
+            else:
+                missing.append(d)
+    queue.sort(key=lambda q: q[0])
+    meeting: list[ChainDesign] = []
+    pos = 0
+    while pos < len(queue):
+        if len(meeting) >= top and meeting[top - 1].score <= queue[pos][0]:
+            break
+        chunk, pos = queue[pos:pos + CHUNK], pos + CHUNK
+        by: dict = defaultdict(list)
+        for _, labels, item in chunk:
+            by[labels].append(item)
+        for labels, items in by.items():
+            batch, transistors, ratings = _batch(form, items, snapshot, labels)
+            ev = evaluate_pair(request, batch, transistors, ratings, large_signal="thd")
+            stats["chains_evaluated"] = stats.get("chains_evaluated", 0) + batch.n
+            terms = chain_score_terms(ev, np.array([e for _, e in items], dtype=float))
+            for d in _designs(request, form, ev, items, labels, terms):
+                (meeting if d.meets_spec else missing).append(d)
+        meeting.sort(key=lambda d: (d.score, sorted(d.values().items())))
+    stats["chains_left_by_bound"] = (stats.get("chains_left_by_bound", 0)
+                                     + max(0, len(queue) - pos))
+    return meeting, sorted(missing, key=lambda d: (len(d.violations), d.score))
+
+
+def with_swing(request: Request, snapshot: StockSnapshot, designs: list[ChainDesign]):
+    """The same chains evaluated whole, swing and its clipping warning included (the
+    ranking's evaluation computes the THD only)."""
+    form = pair_form(tuple(request.topology), request.coupling or "capacitor")
+    out = {}
+    by: dict = defaultdict(list)
+    for n, d in enumerate(designs):
+        by[d.transistors].append((n, d))
+    for labels, ds in by.items():
+        items = [(d.parts, round(d.score_terms["stock"] / STOCK_PENALTY)) for _, d in ds]
+        batch, transistors, ratings = _batch(form, items, snapshot, labels)
+        ev = evaluate_pair(request, batch, transistors, ratings)
+        terms = chain_score_terms(ev, np.array([e for _, e in items], dtype=float))
+        for (n, old), d in zip(ds, _designs(request, form, ev, items, labels, terms),
+                               strict=True):
+            d.rank = old.rank
+            out[n] = d
+    return [out[n] for n in range(len(designs))]

@@ -3,15 +3,16 @@
 1. The second stage (a follower), each with its own divider bias, from the
    single-stage search (:func:`optimiser.search.search`) into the chain's load.
 2. The first stage from the single-stage search into the loads the followers'
-   input impedances present (their least, middle and largest: the followers' Z_in
-   range is the first stage's load range), to the chain's gain less the
-   followers' gain.  The second stage is searched again from the first stages'
-   output impedance.
+   input impedances present (one search per band of Z_in within a factor of 2:
+   the followers' Z_in range is the first stage's load range), to the chain's
+   gain less that band's followers' gain.  The second stage is searched again
+   from the first stages' output impedance.
 3. Every first stage with every follower: both stages' pieces counted together
    against stock, the whole chain evaluated by the two-transistor engine
    (:func:`optimiser.pair_evaluate.evaluate_pair`) against the chain's targets,
-   ranked by :mod:`.chain_score`; chains missing only f_low are tried again with the
-   largest capacitors in stock.
+   ranked exactly among these candidates by :mod:`.chain_score`
+   (:func:`.chain_confirm.confirm_chains`); chains missing only f_low are tried again
+   with the largest capacitors in stock.
 
 The ranking is among the chains composed this way; it is not proven to hold the best
 chain the drawer allows (``search["complete"]`` is False, and ``search`` says what was
@@ -29,7 +30,12 @@ from inventory.parts import StockSnapshot
 from optimiser.request import Request
 from optimiser.search.answer import search
 from optimiser.search.chain_answer import ChainResult
-from optimiser.search.chain_confirm import chain_parts, confirm_chains, largest_capacitors
+from optimiser.search.chain_confirm import (
+    chain_parts,
+    confirm_chains,
+    largest_capacitors,
+    with_swing,
+)
 from optimiser.search.chain_followers import (
     first_stage_request,
     follower_gain_span,
@@ -93,25 +99,18 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
 
     followers = {key(d): d for d in run(follower_request(request, kind2, request.source_ohm),
                                         FOLLOWER_TOP)}
-    # the followers again from the first stages' output impedance (the source they see),
-    # estimated from the middle of the followers' input impedances
+    # the followers again from the first stages' output impedance (the source they see)
     f_list = list(followers.values())
-    pool = {}
     sources = [request.source_ohm]
     loads: list[float] = []
     firsts: dict = {}
     for _ in range(2):
         bins = load_bins([d.metrics["zin_ohm"] for d in f_list])
         loads.extend(b[0] for b in bins)
-        cands = []
         for load, idx in bins:
             g2, spread = follower_gain_span([f_list[i].metrics["gain_db"] for i in idx])
-            d1s = run(first_stage_request(request, kind1, load, g2, spread), STAGE_TOP)
-            for a in d1s:
+            for a in run(first_stage_request(request, kind1, load, g2, spread), STAGE_TOP):
                 firsts.setdefault(key(a), a)
-                cands.extend((a, f_list[i]) for i in idx)
-        for a, b in cands:
-            pool.setdefault(key(a) + key(b), (a, b))
         zouts = [d.metrics["zout_ohm"] for d in firsts.values() if d.metrics.get("zout_ohm")]
         if not zouts or len(sources) > 1:
             break
@@ -125,16 +124,18 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
         f_list = more
     stats.update(followers=len(followers), first_stage_loads_ohm=sorted(loads),
                  first_stages=len(firsts), follower_sources_ohm=sources)
-    cands = [(chain_parts(a, b), (a.transistor, b.transistor)) for a, b in pool.values()]
-    meeting, missing = confirm_chains(request, snapshot, cands, stats)
+    # every first stage with every follower
+    cands = [(chain_parts(a, b), (a.transistor, b.transistor))
+             for a in firsts.values() for b in followers.values()]
+    meeting, missing = confirm_chains(request, snapshot, cands, stats, top)
     retry = [d for d in missing if d.violations and all(v.startswith("f_low_hz")
                                                          for v in d.violations)]
     if retry:
         big = [(largest_capacitors(d.parts, snapshot), d.transistors) for d in retry]
-        m2, _ = confirm_chains(request, snapshot, big, stats)
+        m2, _ = confirm_chains(request, snapshot, big, stats, top)
         meeting = sorted(meeting + m2, key=lambda d: d.score)
         stats["largest_capacitor_retries"] = len(retry)
-    designs = meeting[:top]
+    designs = with_swing(request, snapshot, meeting[:top])
     for k, d in enumerate(designs, 1):
         d.rank = k
     stats["stage_searches_complete"] = all(subs)
