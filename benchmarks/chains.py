@@ -6,7 +6,7 @@ baseline measured in the same run (the engine evaluating 2000 fixed ce stages,
 ``benchmarks/design.py``), the CPU seconds of the process, how many chains meet,
 the best score and what the search covered.  The drawers: the demo drawer (62
 resistor, 31 capacitor rows, three transistors) and the invented 57-row mixed drawer
-of ``benchmarks/design.py``.  The goal of issue 19 is a proven answer in ≤ 10 s on a
+of ``benchmarks/design.py``.  The goal is a proven answer in ≤ 10 s on a
 40–60-row drawer; the chain search proves no ranking (docs/search.md, "Chains"), so
 what is printed is the time to its answer and not to a proof.  Nothing here asserts.
 """
