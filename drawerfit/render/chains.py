@@ -50,19 +50,27 @@ def searched_line(result: ChainResult) -> str:
     """What the search covered, in words (never a claim of completeness it lacks)."""
     s = result.search
     loads = ", ".join(_si(x, "Ω") for x in s.get("first_stage_loads_ohm", []))
+    claim = "Not proven best" if result.designs else "Not proven that none exists"
     return (f"Searched: {s.get('first_stages', 0)} first stages into {loads or 'no load'} "
-            f"× {s.get('followers', 0)} followers ({s.get('chains_evaluated', 0)} chains "
-            f"evaluated, {_num(s.get('seconds'), '{:.1f}')} s). Not proven best: a chain "
-            "whose stages are not among each single-stage search's "
-            f"{s.get('stage_top')} best is not examined.")
+            f"× {s.get('followers', 0)} followers ({s.get('chains_screened', 0)} chains "
+            f"screened, {s.get('chains_evaluated', 0)} with THD, "
+            f"{_num(s.get('seconds'), '{:.1f}')} s). {claim}: a chain whose stages are not "
+            f"among each single-stage search's {s.get('stage_top')} best is not examined.")
 
 
 def show_chain_result(console: Console, result: ChainResult) -> None:
     """The ranked chains, or the nearest misses, then what was searched."""
     a, b = result.request.topology
     rows = result.designs or result.nearest_misses
+    if result.search.get("proven_infeasible"):
+        console.print(f"No {a}→{b} chain can meet the request (proven):")
+        for line in result.search.get("why", []):
+            console.print(f"  {escape(line)}")
+        return
     if not result.designs:
         console.print(f"No {a}→{b} chain found meets the request.")
+        for line in result.search.get("why", []):
+            console.print(f"  {escape(line)}")
     table = Table(show_lines=True, pad_edge=False, expand=False)
     for name in ("#", f"S1 ({a})", f"S2 ({b})", "chain", "THD, I_C", "score"):
         table.add_column(name, overflow="fold")

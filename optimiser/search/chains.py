@@ -41,7 +41,9 @@ from optimiser.search.chain_followers import (
     follower_gain_span,
     follower_request,
     load_bins,
+    stage_request,
 )
+from optimiser.search.limits import physical_limits
 
 __all__ = ["SEARCHED_CHAINS", "SEARCHED_COUPLINGS", "check_chain_request", "search_chains",
            "STAGE_TOP", "FOLLOWER_TOP"]
@@ -94,6 +96,17 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
         subs.append(bool(r.stats.get("complete", True)))
         return r.designs
 
+    # the first stage's own limits bound the chain's: the follower's gain is below 1 and
+    # the chain's input is the first stage's (limits.physical_limits, with an open load,
+    # the first stage's most favourable)
+    limits = physical_limits(stage_request(request, kind1, load_ohm=None), snapshot)
+    if limits:
+        stats.update(complete=True, proven_infeasible=True, limits=limits,
+                     why=[f"{x['reason']} (a follower's gain is below 1, so no {kind1}→"
+                          f"{kind2} chain can)" for x in limits],
+                     seconds=time.perf_counter() - t0)
+        return ChainResult(request, [], [], stats)
+
     def key(d):
         return tuple(sorted(d.values().items())) + (d.transistor,)
 
@@ -122,6 +135,15 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
             break
         followers.update({key(d): d for d in more})
         f_list = more
+    why = []
+    if not followers:
+        why.append(f"no {kind2} stage from the drawer meets the chain's targets into its load")
+    elif not firsts:
+        at = ", ".join(f"{x:.4g} Ω" for x in sorted(loads))
+        why.append(f"no {kind1} stage from the drawer meets the chain's gain less its "
+                   f"follower's into the loads searched ({at})")
+    if why:
+        stats["why"] = why
     stats.update(followers=len(followers), first_stage_loads_ohm=sorted(loads),
                  first_stages=len(firsts), follower_sources_ohm=sources)
     # every first stage with every follower

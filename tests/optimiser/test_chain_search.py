@@ -10,10 +10,12 @@ comparisons can fail; ``DRAWERFIT_CHAIN_EXAMPLES=N`` runs N more random drawers.
 
 from __future__ import annotations
 
+import math
 import os
 
 import numpy as np
 import pytest
+from scipy import constants
 
 from inventory.errors import InputError
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
@@ -113,3 +115,18 @@ def test_other_two_transistor_kinds_are_refused(mapping, field):
         check_chain_request(req)
     assert e.value.field == field and "analyse" in e.value.message
     assert '["ce", "cc"]' in e.value.message or "capacitor" in e.value.message
+
+
+def test_a_gain_no_first_stage_reaches_is_proven_infeasible():
+    # a ce stage's gain is below V_supply/V_T (g_m·R_C = I_C·R_C/V_T, I_C·R_C < V_supply;
+    # scipy.constants: V_T = k·T/q = 25.7 mV at 25 °C, so 12 V gives 467 V/V, 53.4 dB)
+    # and a follower's is below 1: 60 dB from 12 V cannot be met, on any drawer
+    snap = _drawer((680.0, 3300.0, 33000.0), (5, 5, 5))
+    res = search_chains(_request(("ce", "cc"), gain_db=60.0), snap)
+    assert res.designs == [] and res.search["proven_infeasible"] is True
+    assert res.search["complete"] is True
+    vt = constants.k * (25.0 + constants.zero_Celsius) / constants.e     # scipy.constants
+    assert f"{20 * math.log10(12.0 / vt):.1f} dB" in res.search["why"][0]
+    # 50 dB is below the limit: not refused by it (the search then says what it tried)
+    res = search_chains(_request(("ce", "cc"), gain_db=50.0), snap)
+    assert not res.search.get("proven_infeasible")
