@@ -14,9 +14,12 @@ import numpy as np
 
 from optimiser.request import Request
 
-__all__ = ["stage_request", "follower_request", "first_stage_request", "load_bins",
-           "follower_gain_span"]
+__all__ = ["stage_request", "follower_request", "first_stage_requests", "load_bins",
+           "GAIN_MARGIN_DB", "LOAD_BIN_RATIO"]
 
+#: How far (dB) the first stage's gain window reaches beyond what the followers' gains
+#: alone ask.
+GAIN_MARGIN_DB = 1.0
 #: Followers whose input impedances lie within this ratio share one first-stage search.
 LOAD_BIN_RATIO = 2.0
 
@@ -40,23 +43,35 @@ def follower_request(chain: Request, kind: str, source_ohm: float) -> Request:
                          zin_min_ohm=None, input_vpk=min(drive, chain.supply_v))
 
 
-def follower_gain_span(gains_db) -> tuple[float, float]:
-    """(median, spread) in dB of the followers' gains."""
-    g = np.asarray(gains_db, dtype=float)
+def first_stage_requests(chain: Request, kind: str, load_ohm: float,
+                         follower_db) -> list[Request]:
+    """The first stage into ``load_ohm`` (the middle of a band of the followers' input
+    impedances), with no THD ceiling of its own (the chain's THD is judged whole), for
+    followers of gains ``follower_db`` (dB, from the source they were searched from).
+
+    Without a chain gain target, one request without one.  With it, two gain windows:
+    the chain's target less the followers' median gain, its tolerance widened by their
+    spread (the first stages a typical follower wants, ranked by their distance to
+    it); and the wide window from target − tol (a follower's gain is below 0 dB,
+    whatever its source) to target + tol − the least follower gain, each end widened
+    by :data:`GAIN_MARGIN_DB` (a follower loses less from a lower source; the first
+    stage's gain is taken at the middle of the band of loads)."""
+    base = dict(load_ohm=float(load_ohm), thd_max_pct=None)
+    if chain.gain is None:
+        return [stage_request(chain, kind, **base)]
+    g = np.asarray(follower_db, dtype=float)
     g = g[np.isfinite(g)]
     if g.size == 0:
-        return 0.0, 0.0
-    return float(np.median(g)), float(g.max() - g.min())
-
-
-def first_stage_request(chain: Request, kind: str, load_ohm: float, follower_db: float,
-                        spread_db: float) -> Request:
-    """The first stage into ``load_ohm`` (a follower's input impedance): the chain's
-    gain target less the followers' median gain, its tolerance widened by their
-    spread; no THD ceiling of its own (the chain's THD is judged whole)."""
-    gain = None if chain.gain is None else chain.gain / 10.0 ** (follower_db / 20.0)
-    return stage_request(chain, kind, load_ohm=float(load_ohm), gain=gain,
-                         gain_tol_db=chain.gain_tol_db + spread_db, thd_max_pct=None)
+        g = np.zeros(1)
+    t, tol = chain.gain_db, chain.gain_tol_db
+    med, least, most = float(np.median(g)), float(g.min()), float(g.max())
+    typical = stage_request(chain, kind, gain=10.0 ** ((t - med) / 20.0),
+                            gain_tol_db=tol + (most - least), **base)
+    lo = t - tol - GAIN_MARGIN_DB
+    hi = t + tol - min(least, 0.0) + GAIN_MARGIN_DB
+    wide = stage_request(chain, kind, gain=10.0 ** ((lo + hi) / 40.0),
+                         gain_tol_db=(hi - lo) / 2.0, **base)
+    return [typical, wide]
 
 
 def load_bins(zin_ohm) -> list[tuple[float, list[int]]]:

@@ -37,8 +37,7 @@ from optimiser.search.chain_confirm import (
     with_swing,
 )
 from optimiser.search.chain_followers import (
-    first_stage_request,
-    follower_gain_span,
+    first_stage_requests,
     follower_request,
     load_bins,
     stage_request,
@@ -121,9 +120,10 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
         bins = load_bins([d.metrics["zin_ohm"] for d in f_list])
         loads.extend(b[0] for b in bins)
         for load, idx in bins:
-            g2, spread = follower_gain_span([f_list[i].metrics["gain_db"] for i in idx])
-            for a in run(first_stage_request(request, kind1, load, g2, spread), STAGE_TOP):
-                firsts.setdefault(key(a), a)
+            gains = [f_list[i].metrics["gain_db"] for i in idx]
+            for req1 in first_stage_requests(request, kind1, load, gains):
+                for a in run(req1, STAGE_TOP):
+                    firsts.setdefault(key(a), a)
         zouts = [d.metrics["zout_ohm"] for d in firsts.values() if d.metrics.get("zout_ohm")]
         if not zouts or len(sources) > 1:
             break
