@@ -3,10 +3,10 @@
 1. The second stage (a follower), each with its own divider bias, from the
    single-stage search (:func:`optimiser.search.search`) into the chain's load.
 2. The first stage from the single-stage search into the loads the followers'
-   input impedances present (one search per band of Z_in within a factor of 2:
-   the followers' Z_in range is the first stage's load range), to the chain's
-   gain less that band's followers' gain.  The second stage is searched again
-   from the first stages' output impedance.
+   input impedances present (per band of Z_in within a factor of 2: the
+   followers' Z_in range is the first stage's load range), in the two gain
+   windows of :func:`.chain_followers.first_stage_requests`.  The second stage is
+   searched again from the first stages' output impedance.
 3. Every first stage with every follower: both stages' pieces counted together
    against stock, the whole chain evaluated by the two-transistor engine
    (:func:`optimiser.pair_evaluate.evaluate_pair`) against the chain's targets,
