@@ -92,10 +92,11 @@ REQUEST_KEYS = (
 )
 #: The two-transistor form named by a word (chains are named by a list of two stages).
 PAIR_TOPOLOGY = "cascode"
-#: Why ``design`` and ``plan`` refuse what only ``analyse`` reads.
-_SEARCH_SINGLE = ("the search designs single stages ({choice}); a two-transistor circuit "
-                  "(a chain or a cascode) with given values can be checked with "
-                  "`drawerfit analyse`")
+#: Why a request read for single stages (a build list's, for ``plan``) refuses two
+#: transistors.
+_SEARCH_SINGLE = ("a build list plans single stages ({choice}); `drawerfit design` searches "
+                  "the chains [\"ce\", \"cc\"] and [\"cb\", \"cc\"], and a two-transistor "
+                  "circuit with given values can be checked with `drawerfit analyse`")
 CIRCUIT_KEYS = ("parts", "tolerances")
 #: Targets a request file gets when it leaves them out, so that an unstated target
 #: never ranks a stage a bench would refuse (common practice: a stage distorting
@@ -252,9 +253,10 @@ def parse_request(mapping: dict, *, file: str | None = None, text: str | None = 
     with collect():
         if "zout_max_ohm" in m:
             if not pairs:
-                raise err("zout_max_ohm", "zout_max_ohm is judged by `drawerfit analyse`; the "
-                                          "search does not use it: leave it out of a request "
-                                          "to design")
+                raise err("zout_max_ohm", "zout_max_ohm is a target of two-transistor "
+                                          "circuits (a chain request, `drawerfit analyse`); "
+                                          "the single-stage search does not use it: leave it "
+                                          "out of a single-stage request")
             kw["zout_max_ohm"] = num("zout_max_ohm", m["zout_max_ohm"], lo=0, lo_open=True,
                                      hi=MAX_OHM, reader=ohm)
     with collect():
@@ -388,15 +390,20 @@ def read_toml(path) -> tuple[dict, str]:
                          line=int(m[1]) if m else None) from None
 
 
-def load_request(path) -> Request:
-    """Read and check a request file (TOML)."""
+def load_request(path, *, chains: bool = False) -> Request:
+    """Read and check a request file (TOML).  With ``chains`` (``design``) the topology
+    may also be two stages or a cascode, read as for ``analyse``; which of them the
+    search designs is the search's to say."""
     from inventory.errors import InputError
 
     mapping, text = read_toml(path)
+    topo = mapping.get("topology")
+    pairs = chains and (isinstance(topo, list) or (isinstance(topo, str)
+                                                   and topo.strip().lower() == PAIR_TOPOLOGY))
     if isinstance(mapping.get("transistor"), dict):
         raise InputError("a [transistor] table describes one given transistor (for `analyse`); "
                          "a request picks from stock: write transistor = \"LABEL\" or leave "
                          "it out for any", file=str(path), line=_header_line(text, "transistor"),
                          field="transistor")
     return parse_request(mapping, file=str(path), text=text,
-                         extra_keys=CIRCUIT_KEYS + ("transistor",))
+                         extra_keys=CIRCUIT_KEYS + ("transistor",), pairs=pairs)

@@ -9,6 +9,7 @@ from rich.live import Live
 from rich.text import Text
 
 from drawerfit.cli import pass_app
+from drawerfit.commands.chain_design import design_chain
 from drawerfit.console import emit_json, err, out
 from drawerfit.sheet.cli import (
     rank_option,
@@ -116,7 +117,12 @@ def command(app, request_file: str, top: int, as_json: bool, time_limit: float =
     from optimiser.request import load_request, read_toml
     from optimiser.search import check_request
 
-    request = load_request(request_file)
+    request = load_request(request_file, chains=True)
+    if request.is_pair:
+        design_chain(app, request, request_file, top=top, as_json=as_json,
+                     time_limit=time_limit, sheet_dir=sheet_dir, spice_file=spice_file,
+                     locate=_locate)
+        return
     store = app.store()
     snapshot = store.snapshot()
     try:

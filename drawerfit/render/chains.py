@@ -1,0 +1,84 @@
+"""Terminal view of a chain search: the ranked chains (80 columns), or the nearest
+misses, and what the search covered."""
+
+from __future__ import annotations
+
+from rich.console import Console
+from rich.markup import escape
+from rich.table import Table
+
+from drawerfit.render.designs import _num, _si
+from optimiser.search.chain_answer import ChainDesign, ChainResult
+
+__all__ = ["show_chain_result", "stage_cell", "searched_line"]
+
+
+def stage_cell(d: ChainDesign, k: int) -> str:
+    """Stage ``k``'s roles (the coupling capacitor with the first stage), a role a
+    line, its bin location, then the transistor."""
+    prefix = f"S{k + 1}."
+    lines = []
+    for role, p in d.parts.items():
+        mine = role.startswith(prefix) or (k == 0 and not role.startswith("S"))
+        if not mine:
+            continue
+        locs = ", ".join(x.location or "?" for x in p.pieces)
+        plus = f" +{p.plus.split('.')[-1][:4]}" if p.plus else ""
+        lines.append(f"{role.removeprefix(prefix)} {p.label}{plus} [dim]@{escape(locs)}[/dim]")
+    lines.append(f"Q {escape(d.transistors[k])}")
+    return "\n".join(lines)
+
+
+def _figures(d: ChainDesign) -> str:
+    m = d.metrics
+    return "\n".join([f"{_num(m.get('gain_db'), '{:.2f}')} dB",
+                      f"f_low {_si(m.get('f_low_hz'), 'Hz')}",
+                      f"f_high {_si(m.get('f_high_hz'), 'Hz')}",
+                      f"Zin {_si(m.get('zin_ohm'), 'Ω')}",
+                      f"Zout {_si(m.get('zout_ohm'), 'Ω')}"])
+
+
+def _stages(d: ChainDesign) -> str:
+    lines = [f"THD {_num(d.metrics.get('thd_pct'), '{:.2f} %')}"]
+    for k, s in enumerate(d.stages):
+        lines.append(f"S{k + 1} {_si(s.get('ic_a'), 'A')}")
+        lines.append(f"drift {_num(s.get('ic_drift_pct'), '{:.1f} %')}")
+    return "\n".join(lines)
+
+
+def searched_line(result: ChainResult) -> str:
+    """What the search covered, in words (never a claim of completeness it lacks)."""
+    s = result.search
+    loads = ", ".join(_si(x, "Ω") for x in s.get("first_stage_loads_ohm", []))
+    claim = "Not proven best" if result.designs else "Not proven that none exists"
+    return (f"Searched: {s.get('first_stages', 0)} first stages into {loads or 'no load'} "
+            f"× {s.get('followers', 0)} followers ({s.get('chains_screened', 0)} chains "
+            f"screened, {s.get('chains_evaluated', 0)} with THD, "
+            f"{_num(s.get('seconds'), '{:.1f}')} s). {claim}: a chain whose stages are not "
+            f"among each single-stage search's {s.get('stage_top')} best is not examined.")
+
+
+def show_chain_result(console: Console, result: ChainResult) -> None:
+    """The ranked chains, or the nearest misses, then what was searched."""
+    a, b = result.request.topology
+    rows = result.designs or result.nearest_misses
+    if result.search.get("proven_infeasible"):
+        console.print(f"No {a}→{b} chain can meet the request (proven):")
+        for line in result.search.get("why", []):
+            console.print(f"  {escape(line)}")
+        return
+    if not result.designs:
+        console.print(f"No {a}→{b} chain found meets the request.")
+        for line in result.search.get("why", []):
+            console.print(f"  {escape(line)}")
+    table = Table(show_lines=True, pad_edge=False, expand=False)
+    for name in ("#", f"S1 ({a})", f"S2 ({b})", "chain", "THD, I_C", "score"):
+        table.add_column(name, overflow="fold")
+    for i, d in enumerate(rows, 1):
+        table.add_row(str(d.rank or f"m{i}"), stage_cell(d, 0), stage_cell(d, 1), _figures(d),
+                      _stages(d), _num(d.score, "{:.3f}"))
+    if rows:
+        console.print(table)
+    for i, d in enumerate(result.nearest_misses[:3], 1):
+        console.print(f"m{i} misses: " + escape("; ".join(d.violations[:3])))
+    console.print(f"[dim]{escape(searched_line(result))}[/dim]")

@@ -1,0 +1,165 @@
+"""Two-stage chains from one drawer: :func:`search_chains` (docs/search.md, "Chains").
+
+1. The second stage (a follower), each with its own divider bias, from the
+   single-stage search (:func:`optimiser.search.search`) into the chain's load.
+2. The first stage from the single-stage search into the loads the followers'
+   input impedances present (per band of Z_in within a factor of 2: the
+   followers' Z_in range is the first stage's load range), in the two gain
+   windows of :func:`.chain_followers.first_stage_requests`.  The second stage is
+   searched again from the first stages' output impedance.
+3. Every first stage with every follower: both stages' pieces counted together
+   against stock, the whole chain evaluated by the two-transistor engine
+   (:func:`optimiser.pair_evaluate.evaluate_pair`) against the chain's targets,
+   ranked exactly among these candidates by :mod:`.chain_score`
+   (:func:`.chain_confirm.confirm_chains`); chains missing only f_low are tried again
+   with the largest capacitors in stock.
+
+The ranking is among the chains composed this way; it is not proven to hold the best
+chain the drawer allows (``search["complete"]`` is False, and ``search`` says what was
+searched).
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+
+from inventory.errors import InputError
+from inventory.parts import StockSnapshot
+from optimiser.request import Request
+from optimiser.search.answer import search
+from optimiser.search.chain_answer import ChainResult
+from optimiser.search.chain_confirm import (
+    chain_parts,
+    confirm_chains,
+    largest_capacitors,
+    with_swing,
+)
+from optimiser.search.chain_followers import (
+    first_stage_requests,
+    follower_request,
+    load_bins,
+    stage_request,
+)
+from optimiser.search.limits import physical_limits
+
+__all__ = ["SEARCHED_CHAINS", "SEARCHED_COUPLINGS", "check_chain_request", "search_chains",
+           "STAGE_TOP", "FOLLOWER_TOP"]
+
+#: The chains ``design`` searches (first stage, second stage), capacitor-coupled.
+SEARCHED_CHAINS = (("ce", "cc"), ("cb", "cc"))
+SEARCHED_COUPLINGS = ("capacitor",)
+#: How many designs of each first-stage search are composed into chains.
+STAGE_TOP = 10
+#: How many followers each second-stage search gives.
+FOLLOWER_TOP = 30
+
+
+def _names() -> str:
+    return ", ".join(f'["{a}", "{b}"]' for a, b in SEARCHED_CHAINS)
+
+
+def check_chain_request(request: Request) -> None:
+    """Refuse (InputError on ``topology`` or ``coupling``) a two-transistor request the
+    search does not design."""
+    topo = request.topology
+    if isinstance(topo, str) or tuple(topo) not in SEARCHED_CHAINS:
+        named = f'"{topo}"' if isinstance(topo, str) else "[" + ", ".join(f'"{t}"' for t in topo) + "]"
+        raise InputError(f"design searches the chains {_names()} (capacitor-coupled); "
+                         f"{named} can be checked with given values by "
+                         "`drawerfit analyse`", field="topology")
+    if request.coupling not in SEARCHED_COUPLINGS:
+        raise InputError(f"design searches capacitor-coupled chains only; a "
+                         f"{request.coupling}-coupled chain with given values can be "
+                         "checked by `drawerfit analyse`", field="coupling")
+
+
+def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
+                  time_limit_s: float | None = None) -> ChainResult:
+    """The best chains composed from the single-stage searches (module docstring)."""
+    check_chain_request(request)
+    t0 = time.perf_counter()
+    kind1, kind2 = request.topology
+    stats: dict = {"complete": False, "method": "composed from single-stage searches",
+                   "stage_top": STAGE_TOP}
+    subs = []
+
+    def budget():
+        if time_limit_s is None:
+            return None
+        return max(0.5, (time_limit_s - (time.perf_counter() - t0)) / 4.0)
+
+    def run(req, top):
+        r = search(req, snapshot, top=top, misses=0, time_limit_s=budget())
+        subs.append(bool(r.stats.get("complete", True)))
+        return r.designs
+
+    # the first stage's own limits bound the chain's: the follower's gain is below 1 and
+    # the chain's input is the first stage's (limits.physical_limits, with an open load,
+    # the first stage's most favourable)
+    limits = physical_limits(stage_request(request, kind1, load_ohm=None), snapshot)
+    if limits:
+        stats.update(complete=True, proven_infeasible=True, limits=limits,
+                     why=[f"{x['reason']} (a follower's gain is below 1, so no {kind1}→"
+                          f"{kind2} chain can)" for x in limits],
+                     seconds=time.perf_counter() - t0)
+        return ChainResult(request, [], [], stats)
+
+    def key(d):
+        return tuple(sorted(d.values().items())) + (d.transistor,)
+
+    followers = {key(d): d for d in run(follower_request(request, kind2, request.source_ohm),
+                                        FOLLOWER_TOP)}
+    # the followers again from the first stages' output impedance (the source they see)
+    f_list = list(followers.values())
+    sources = [request.source_ohm]
+    loads: list[float] = []
+    firsts: dict = {}
+    for _ in range(2):
+        bins = load_bins([d.metrics["zin_ohm"] for d in f_list])
+        loads.extend(b[0] for b in bins)
+        for load, idx in bins:
+            gains = [f_list[i].metrics["gain_db"] for i in idx]
+            for req1 in first_stage_requests(request, kind1, load, gains):
+                for a in run(req1, STAGE_TOP):
+                    firsts.setdefault(key(a), a)
+        zouts = [d.metrics["zout_ohm"] for d in firsts.values() if d.metrics.get("zout_ohm")]
+        if not zouts or len(sources) > 1:
+            break
+        src = float(np.median(zouts))
+        sources.append(src)
+        more = [d for d in run(follower_request(request, kind2, src), FOLLOWER_TOP)
+                if key(d) not in followers]
+        if not more:
+            break
+        followers.update({key(d): d for d in more})
+        f_list = more
+    why = []
+    if not followers:
+        why.append(f"no {kind2} stage from the drawer meets the chain's targets into its load")
+    elif not firsts:
+        at = ", ".join(f"{x:.4g} Ω" for x in sorted(loads))
+        why.append(f"no {kind1} stage from the drawer meets the chain's gain less its "
+                   f"follower's into the loads searched ({at})")
+    if why:
+        stats["why"] = why
+    stats.update(followers=len(followers), first_stage_loads_ohm=sorted(loads),
+                 first_stages=len(firsts), follower_sources_ohm=sources)
+    # every first stage with every follower
+    cands = [(chain_parts(a, b), (a.transistor, b.transistor))
+             for a in firsts.values() for b in followers.values()]
+    meeting, missing = confirm_chains(request, snapshot, cands, stats, top)
+    retry = [d for d in missing if d.violations and all(v.startswith("f_low_hz")
+                                                         for v in d.violations)]
+    if retry:
+        big = [(largest_capacitors(d.parts, snapshot), d.transistors) for d in retry]
+        m2, _ = confirm_chains(request, snapshot, big, stats, top)
+        meeting = sorted(meeting + m2, key=lambda d: d.score)
+        stats["largest_capacitor_retries"] = len(retry)
+    designs = with_swing(request, snapshot, meeting[:top])
+    for k, d in enumerate(designs, 1):
+        d.rank = k
+    stats["stage_searches_complete"] = all(subs)
+    stats["seconds"] = time.perf_counter() - t0
+    return ChainResult(request, designs, [] if designs else missing[:top], stats)

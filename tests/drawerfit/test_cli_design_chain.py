@@ -1,0 +1,108 @@
+"""`drawerfit design` of a chain request through the CLI runner: JSON shape (docs/json.md),
+the 80-column table, exit codes of the refusals."""
+
+import io
+import json
+
+import pytest
+from click.testing import CliRunner
+from rich.cells import cell_len
+from rich.console import Console
+
+from drawerfit.cli import cli
+from drawerfit.render.chains import show_chain_result
+from inventory.store import open_store
+from optimiser.request import load_request
+from optimiser.search.chains import search_chains
+from tests.drawerfit.circuits import SMALL_DRAWER_CSV
+
+REQUEST = """topology = ["ce", "cc"]
+supply_v = 12.0
+load_ohm = "1k"
+source_ohm = "1k"
+gain_db = 20
+gain_tol_db = 2
+f_low_max_hz = 100
+zout_max_ohm = 500
+"""
+
+
+@pytest.fixture
+def store(tmp_path):
+    db = tmp_path / "s.sqlite"
+    csv = tmp_path / "stock.csv"
+    csv.write_text(SMALL_DRAWER_CSV)
+    r = CliRunner().invoke(cli, ["--db", str(db), "stock", "import", str(csv)])
+    assert r.exit_code == 0, r.output
+    return db
+
+
+def run(store, tmp_path, text, *args):
+    req = tmp_path / "req.toml"
+    req.write_text(text)
+    return CliRunner().invoke(cli, ["--db", str(store), "design", str(req), *args],
+                              terminal_width=80)
+
+
+def test_chain_json_shape(store, tmp_path):
+    r = run(store, tmp_path, REQUEST, "--top", "3", "--json")
+    assert r.exit_code == 0, r.output
+    out = json.loads(r.stdout)
+    assert set(out) >= {"request", "feasible", "designs", "nearest_misses", "search"}
+    assert out["request"]["topology"] == ["ce", "cc"]
+    assert out["feasible"] is True and 1 <= len(out["designs"]) <= 3
+    assert out["search"]["complete"] is False          # not proven (docs/search.md)
+    scores = [d["score"] for d in out["designs"]]
+    assert scores == sorted(scores)
+    for k, d in enumerate(out["designs"], 1):
+        assert d["rank"] == k and d["meets_spec"] is True and d["coupling"] == "capacitor"
+        assert {"S1.R1", "S1.RC", "S2.RE", "C_COUPLE"} <= set(d["parts"])
+        assert len(d["stages"]) == 2 and len(d["transistors"]) == 2
+        m = d["metrics"]
+        assert abs(m["gain_db"] - 20) <= 2 and m["f_low_hz"] <= 100 and m["zout_ohm"] <= 500
+        # the pieces of both stages fit the drawer (10 pieces a value, 5 transistors)
+        used = {}
+        for p in d["parts"].values():
+            for piece in p["pieces"]:
+                used[piece["id"]] = used.get(piece["id"], 0) + piece["count"]
+        assert max(used.values()) <= 10
+
+
+def test_chain_table_fits_80_columns(store, tmp_path):
+    r = run(store, tmp_path, REQUEST, "--top", "2")
+    assert r.exit_code == 0, r.output
+    text = " ".join(r.output.split())
+    assert "S1 (ce)" in text and "C_COUPLE" in text and "Not proven best" in text
+    # on an 80-column console no line is wider (the table folds its cells)
+    req = tmp_path / "req.toml"
+    result = search_chains(load_request(req, chains=True), open_store(str(store)).snapshot(),
+                           top=2)
+    con = Console(width=80, record=True, file=io.StringIO(), color_system=None)
+    show_chain_result(con, result)
+    lines = con.export_text().splitlines()
+    assert max(cell_len(s) for s in lines) <= 80
+    assert sum(1 for s in lines if s.startswith("│1 ") or s.startswith("│2 ")) == 2
+
+
+@pytest.mark.parametrize("text,field", [
+    ('topology = "cascode"\nsupply_v = 12\n', "topology"),
+    ('topology = ["cc", "ce"]\nsupply_v = 12\n', "topology"),
+    ('topology = ["ce", "cc"]\ncoupling = "direct"\nsupply_v = 12\n', "coupling"),
+])
+def test_other_kinds_refused(store, tmp_path, text, field):
+    r = run(store, tmp_path, text)
+    assert r.exit_code == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "req.toml:" in lines[0] and field in lines[0]
+    assert "analyse" in lines[0]
+
+
+def test_sheet_for_chain_names_analyse(store, tmp_path):
+    r = run(store, tmp_path, REQUEST, "--sheet", str(tmp_path / "sheet"))
+    assert r.exit_code == 2 and "analyse" in r.stderr
+    assert not (tmp_path / "sheet").exists()
+
+
+def test_zout_max_still_refused_for_a_single_stage(store, tmp_path):
+    r = run(store, tmp_path, 'topology = "ce"\nsupply_v = 12\nzout_max_ohm = 100\n')
+    assert r.exit_code == 2 and "zout_max_ohm" in r.stderr

@@ -1,0 +1,95 @@
+"""Every capacitor-coupled chain a tiny drawer can build, evaluated by the pair engine and
+scored: the plain enumeration the chain search is compared with."""
+
+from __future__ import annotations
+
+import itertools
+from collections import Counter
+
+import numpy as np
+
+from optimiser.pair_evaluate import evaluate_pair
+from optimiser.search.chain_score import chain_score_terms
+from optimiser.stage import PartRatings
+from optimiser.stages import pair_form
+from optimiser.stages.pair import PairBatch
+
+#: Each stage kind's resistor roles per form (RE_BYP with C_BYP, C_B for cb), written out
+#: here rather than read from the search.
+STAGE_FORMS = {
+    "ce": [("RC", "RE"), ("RC", "RE_BYP"), ("RC", "RE", "RE_BYP")],
+    "cb": [("RC", "RE")],
+    "cc": [("RE",)],
+}
+CAPS = {"ce": ("C_IN",), "cb": ("C_IN", "C_B"), "cc": ("C_OUT",)}
+
+
+def _stage_rows(kind, rvals, cvals, prefix):
+    for form in STAGE_FORMS[kind]:
+        roles = ("R1", "R2") + form
+        caps = CAPS[kind] + (("C_BYP",) if "RE_BYP" in form else ())
+        for rv in itertools.product(rvals, repeat=len(roles)):
+            for cv in itertools.product(cvals, repeat=len(caps)):
+                yield {f"{prefix}.{r}": v for r, v in zip(roles + caps, rv + cv, strict=True)}
+
+
+def enumerate_chains(req, snap, chunk=4000, best_row=None):
+    """(best score, number meeting) over every buildable chain of ``req.topology``
+    from ``snap`` (one transistor type, one row per value); best None if none meets.
+    A dict ``best_row`` receives the best chain's role values."""
+    form = pair_form(tuple(req.topology), "capacitor")
+    k1, k2 = req.topology
+    rq = {r.value: r for r in snap.resistors}
+    cq = {c.value: c for c in snap.capacitors}
+    t = snap.transistors[0]
+    if 2 * req.builds > t.qty:
+        return None, 0
+    rows = []
+    for s1 in _stage_rows(k1, sorted(rq), sorted(cq), "S1"):
+        for s2 in _stage_rows(k2, sorted(rq), sorted(cq), "S2"):
+            for cc in sorted(cq):
+                rows.append({**s1, **s2, "C_COUPLE": cc})
+    best, meeting = None, 0
+    for start in range(0, len(rows), chunk):
+        part = rows[start:start + chunk]
+        ok, emptied = [], []
+        for row in part:
+            use = Counter(("c" if r.split(".")[-1].startswith("C_") else "r", v)
+                          for r, v in row.items())
+            fits = all(n * req.builds <= (rq[v].qty if k == "r" else cq[v].qty)
+                       for (k, v), n in use.items())
+            ok.append(fits)
+            e = sum(1 for (k, v), n in use.items() if k == "r" and n * req.builds >= rq[v].qty)
+            e += 1 if 2 * req.builds >= t.qty else 0
+            emptied.append(e)
+        idx = [i for i, f in enumerate(ok) if f]
+        if not idx:
+            continue
+        values = {r: np.array([part[i].get(r, 0.0) for i in idx]) for r in form.role_names}
+        batch = PairBatch.from_values(form, **values)
+        ratings = _ratings(form, part, idx, rq, cq)
+        ev = evaluate_pair(req, batch, (t, t), ratings)
+        terms = chain_score_terms(ev, np.array([emptied[i] for i in idx], float))
+        total = sum(terms.values())
+        m = ev.meets
+        meeting += int(m.sum())
+        if m.any():
+            j = int(np.argmin(np.where(m, total, np.inf)))
+            if best is None or total[j] < best:
+                best = float(total[j])
+                if best_row is not None:
+                    best_row.clear()
+                    best_row.update(batch.one(j))
+    return best, meeting
+
+
+def _ratings(form, part, idx, rq, cq):
+    r = PartRatings()
+    for role in form.role_names:
+        vals = [part[i].get(role, 0.0) for i in idx]
+        if form.kind(role) == "resistor":
+            r.power_w[role] = np.array([rq[v].power_w if v else 0.25 for v in vals])
+        else:
+            r.voltage_v[role] = np.array([cq[v].voltage_v if v else 50.0 for v in vals])
+            r.polarised[role] = np.array([bool(v) and cq[v].polarised for v in vals])
+    return r
