@@ -46,11 +46,9 @@ def make_design(transistor: str, picks: list[tuple[str, float, int, int]],
 
 
 def normalised(scores: list[float]) -> list[float]:
-    """The normalisation documented in optimiser.planning.objective: 0 best … 0.999 worst of the build."""
-    lo, hi = min(scores), max(scores)
-    if hi - lo <= 0:
-        return [0.0] * len(scores)
-    return [0.999 * (s - lo) / (hi - lo) for s in scores]
+    """The mapping documented in optimiser.planning.objective: each design's own
+    score s (lower is better) counts as s / (1 + s), capped at 0.999 (worst)."""
+    return [min(s / (1.0 + s), 0.999) for s in scores]
 
 
 def compositions(total: int, parts: int):
