@@ -28,7 +28,7 @@ import pytest
 from click.testing import CliRunner
 
 from drawerfit.cli import cli
-from tests.drawerfit.test_cli_plan import PREAMP, TWENTY_PREAMPS_E24, fake_search
+from tests.drawerfit.test_cli_plan import FIXED, PREAMP, TWENTY_PREAMPS_E24, fake_search
 
 COPIES = 20
 #: Bought per value (one pack of ten), kept by the builds, left for the drawer.
@@ -115,7 +115,7 @@ def _parcel(bench, order_file, name, value, qty):
 
 
 def _commit(bench, order_name):
-    r = bench.run("plan", bench.path("list.toml"), "--json", "--commit", "--order",
+    r = bench.run("plan", bench.path("list.toml"), "--json", "--commit", *FIXED, "--order",
                   bench.path(order_name))
     bid = json.loads(r.stdout)["build_id"]
     shown = json.loads(bench.run("builds", "show", str(bid), "--json").stdout)

@@ -18,7 +18,14 @@ from click.testing import CliRunner
 
 from drawerfit.cli import cli
 from tests.drawerfit.circuits import CE_PARTS
-from tests.drawerfit.test_cli_plan import BUFFER, PREAMP, TWENTY_PREAMPS_E24, TWO, fake_search
+from tests.drawerfit.test_cli_plan import (
+    BUFFER,
+    FIXED,
+    PREAMP,
+    TWENTY_PREAMPS_E24,
+    TWO,
+    fake_search,
+)
 
 DRAWER = """\
 kind,value,qty,tolerance,power,voltage,dielectric,location,min_qty,hfe_min,hfe_max,ft,cob
@@ -99,7 +106,7 @@ def _refused(bench, r, *needles):
 def test_commit_is_one_build_and_undo_gives_a_byte_identical_export(bench):
     _demo(bench)
     before = bench.export("before.csv")
-    r = bench.run("plan", bench.write("list.toml", TWO), "--json", "--commit")
+    r = bench.run("plan", bench.write("list.toml", TWO), "--json", "--commit", *FIXED)
     assert r.exit_code == 0, r.output
     d = json.loads(r.stdout)
     bid = d["build_id"]
@@ -173,7 +180,7 @@ def _pending(bench):
 
 def test_undone_build_is_no_longer_awaiting_its_orders(bench):
     _demo(bench)
-    r = bench.run("plan", bench.write("list.toml", TWENTY_PREAMPS_E24), "--json", "--commit")
+    r = bench.run("plan", bench.write("list.toml", TWENTY_PREAMPS_E24), "--json", "--commit", *FIXED)
     assert r.exit_code == 0, r.output
     bid = json.loads(r.stdout)["build_id"]
     assert sorted((o["kind"], o["qty"], o["build"]) for o in _pending(bench)) == [
@@ -187,7 +194,7 @@ def test_undone_build_is_no_longer_awaiting_its_orders(bench):
 
 def test_cancel_an_order_is_logged_and_undoable(bench):
     _demo(bench)
-    r = bench.run("plan", bench.write("list.toml", TWENTY_PREAMPS_E24), "--json", "--commit")
+    r = bench.run("plan", bench.write("list.toml", TWENTY_PREAMPS_E24), "--json", "--commit", *FIXED)
     assert r.exit_code == 0, r.output
     first = _pending(bench)[0]["id"]
     r = bench.run("stock", "orders", "cancel", str(first), "--reason", "supplier out")
@@ -205,7 +212,7 @@ def test_cancel_an_order_is_logged_and_undoable(bench):
 def test_receiving_more_than_ordered_books_it_all_and_closes_the_order(bench):
     _demo(bench)
     order = bench.tmp / "order.csv"
-    r = bench.run("plan", bench.write("list.toml", TWENTY_PREAMPS_E24), "--json", "--commit",
+    r = bench.run("plan", bench.write("list.toml", TWENTY_PREAMPS_E24), "--json", "--commit", *FIXED,
                   "--order", str(order))
     assert r.exit_code == 0, r.output
     with open(order, newline="") as f:
