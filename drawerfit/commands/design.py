@@ -121,7 +121,7 @@ def command(app, request_file: str, top: int, as_json: bool, time_limit: float =
     if request.is_pair:
         design_chain(app, request, request_file, top=top, as_json=as_json,
                      time_limit=time_limit, sheet_dir=sheet_dir, spice_file=spice_file,
-                     locate=_locate)
+                     locate=_locate, rank=sheet_rank)
         return
     store = app.store()
     snapshot = store.snapshot()
