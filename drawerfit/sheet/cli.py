@@ -126,7 +126,7 @@ def sheet_for_circuit(directory, design, evaluation, circuit, yield_result=None,
 
 def sheet_for_pair(directory, ev, i: int, circuit, *, picks=None, yield_result=None,
                    notes=None, quiet: bool = False, cautions_shown: bool = True,
-                   title: str = "Build sheet written:") -> WrittenSheet:
+                   title: str = "Build sheet written:", rank: int | None = None) -> WrittenSheet:
     """The sheet of a two-transistor circuit (circuit ``i`` of the evaluation ``ev``),
     then the cautions (unless ``cautions_shown``; always on stderr with ``quiet``) and
     the files written.  ``picks``: the pieces of each role (default: the circuit's)."""
@@ -135,7 +135,7 @@ def sheet_for_pair(directory, ev, i: int, circuit, *, picks=None, yield_result=N
     from drawerfit.sheet.pair_writer import write_pair_sheet
 
     written = write_pair_sheet(directory, ev, i, circuit, picks=picks,
-                               yield_result=yield_result, notes=notes)
+                               yield_result=yield_result, notes=notes, rank=rank)
     echo_sheet(written, err if quiet else out, show_cautions=quiet or not cautions_shown,
                title=title)
     return written
@@ -196,7 +196,7 @@ def sheet_for_chain(directory, result, rank: int, snapshot, *, quiet: bool = Fal
                                 samples=circuit.request.samples, seed=circuit.request.seed)
     # the ranked chains' view shows no cautions: the sheet's are printed
     return sheet_for_pair(directory, ev, 0, circuit, picks=picks, yield_result=yres,
-                          quiet=quiet, cautions_shown=False,
+                          quiet=quiet, cautions_shown=False, rank=design.rank,
                           title=f"Build sheet for chain #{design.rank} written:")
 
 

@@ -115,6 +115,7 @@ def test_sheet_and_spice_of_the_chosen_chain(store, tmp_path):
     for name in ("sheet.html", "schematic.svg", "stage.cir", "parts.csv", "waveform.png"):
         assert (sheet / name).is_file(), name
     page = (sheet / "sheet.html").read_text(encoding="utf-8")
+    assert "chain rank 2" in page
     rows = _csv_rows(sheet / "parts.csv")
     # every part of the chosen chain with its value and its bin, on the page and in the csv
     for role, pick in chosen["parts"].items():
