@@ -103,14 +103,19 @@ def _csv_rows(path):
         return {row["role"]: row for row in csv.DictReader(f)}
 
 
-def test_sheet_and_spice_of_the_chosen_chain(store, tmp_path):
+@pytest.mark.parametrize("combos", [False, True])
+def test_sheet_and_spice_of_the_chosen_chain(store, tmp_path, combos):
     # --json owns stdout: the chains as JSON there, the sheet's lines on stderr
+    # (allow_combos: roles made of two pieces, each with its own bin)
     sheet, deck = tmp_path / "sheet", tmp_path / "chain.cir"
-    r = run(store, tmp_path, REQUEST, "--top", "3", "--rank", "2", "--json",
+    text = REQUEST + ("allow_combos = true\n" if combos else "")
+    r = run(store, tmp_path, text, "--top", "3", "--rank", "2", "--json",
             "--sheet", str(sheet), "--spice", str(deck))
     assert r.exit_code == 0, r.output
     out = json.loads(r.stdout)
     chosen = next(d for d in out["designs"] if d["rank"] == 2)
+    assert combos == any(p.get("joined") for p in chosen["parts"].values())
+    svg = (sheet / "schematic.svg").read_text(encoding="utf-8")
     assert "chain #2" in r.stderr and str(deck) in r.stderr
     for name in ("sheet.html", "schematic.svg", "stage.cir", "parts.csv", "waveform.png"):
         assert (sheet / name).is_file(), name
@@ -120,12 +125,13 @@ def test_sheet_and_spice_of_the_chosen_chain(store, tmp_path):
     # every part of the chosen chain with its value and its bin, on the page and in the csv
     for role, pick in chosen["parts"].items():
         assert role in rows, role
-        assert rows[role]["value"] == pick["label"], role
-        bins = sorted({p["location"] for p in pick["pieces"]})
-        assert rows[role]["location"] == ";".join(bins) or rows[role]["location"] in bins, role
-        assert role in page and pick["label"] in page, role
-        for b in bins:
-            assert b in page, (role, b)
+        assert rows[role]["value"].startswith(pick["label"]), role
+        # the page's route lists each piece, the schematic each role's value
+        assert role in page and pick["label"] in svg, role
+        for piece in pick["pieces"]:
+            assert piece["location"] in rows[role]["location"], role
+            assert f"<td>{piece['location']}</td><td>{role}</td>" in page, role
+            assert f"bin {piece['location']}" in svg or f"+ {piece['location']}" in svg, role
     # both transistors, each with its bin
     for k, label in enumerate(chosen["transistors"], 1):
         assert rows[f"S{k}.Q"]["value"] == label and rows[f"S{k}.Q"]["location"] == "C1"
