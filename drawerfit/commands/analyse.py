@@ -7,7 +7,14 @@ import click
 
 from drawerfit.cli import pass_app
 from drawerfit.console import emit_json
-from drawerfit.sheet.cli import sheet_for_circuit, sheet_option, spice_for_design, spice_option
+from drawerfit.sheet.cli import (
+    sheet_for_circuit,
+    sheet_for_pair,
+    sheet_option,
+    spice_for_design,
+    spice_for_pair,
+    spice_option,
+)
 
 __all__ = ["command"]
 
@@ -104,8 +111,7 @@ def _stock_picks(c):
 def _analyse_pair(c, as_json: bool, sheet_dir, spice_file) -> None:
     """``analyse`` of a two-transistor circuit: figures, yield, cautions, JSON, the build
     sheet and the SPICE deck."""
-    from drawerfit.console import err, out
-    from inventory.errors import InputError
+    from drawerfit.console import out
     from optimiser.pair_evaluate import evaluate_pair
     from optimiser.pair_report import pair_cautions, pair_report
 
@@ -134,19 +140,6 @@ def _analyse_pair(c, as_json: bool, sheet_dir, spice_file) -> None:
         if line:
             out.print(line)
     if sheet_dir is not None:
-        from drawerfit.sheet.cli import sheet_for_pair
-
         sheet_for_pair(sheet_dir, ev, 0, c, yield_result=yres, notes=notes, quiet=as_json)
     if spice_file is not None:
-        from pathlib import Path
-
-        from optimiser.spice_netlist import pair_spice_netlist
-
-        path = Path(spice_file)
-        try:
-            path.write_text(pair_spice_netlist(c, c.transistors), encoding="utf-8")
-        except OSError as exc:
-            raise InputError(f"cannot write {path}: {exc.strerror or exc}",
-                             field="--spice") from None
-        (err if as_json else out).print(f"SPICE netlist written: {path}", markup=False,
-                                        highlight=False, soft_wrap=True)
+        spice_for_pair(spice_file, c, quiet=as_json)

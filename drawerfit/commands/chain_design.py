@@ -1,5 +1,6 @@
 """`drawerfit design` of a two-stage chain request: the ranked chains (docs/search.md,
-"Chains")."""
+"Chains"), and with --sheet / --spice the build sheet and SPICE deck of the chain
+chosen with --rank."""
 
 from __future__ import annotations
 
@@ -9,8 +10,9 @@ __all__ = ["design_chain"]
 
 
 def design_chain(app, request, request_file: str, *, top: int, as_json: bool,
-                 time_limit: float, sheet_dir, spice_file, locate) -> None:
-    """Search the chains of ``request`` and print them (table or JSON)."""
+                 time_limit: float, sheet_dir, spice_file, locate, rank: int = 1) -> None:
+    """Search the chains of ``request``, print them (table or JSON), then write the
+    sheet and the deck of the chain ranked ``rank`` when asked."""
     from inventory.errors import InputError
     from optimiser.request import read_toml
     from optimiser.search.chains import check_chain_request, search_chains
@@ -20,17 +22,20 @@ def design_chain(app, request, request_file: str, *, top: int, as_json: bool,
     except InputError as exc:
         _, text = read_toml(request_file)
         raise locate(exc, request_file, text) from None
-    if sheet_dir is not None or spice_file is not None:
-        opt = "--sheet" if sheet_dir is not None else "--spice"
-        raise InputError("not written for a chain by `design`: write the chosen "
-                         "chain's values into a circuit file and run `drawerfit analyse "
-                         f"FILE {opt} ...`", file=request_file, field=opt)
     snapshot = app.store().snapshot()
     result = search_chains(request, snapshot, top=top,
                            time_limit_s=time_limit if time_limit else None)
     if as_json:
         emit_json(result.to_json())
-        return
-    from drawerfit.render.chains import show_chain_result
+    else:
+        from drawerfit.render.chains import show_chain_result
 
-    show_chain_result(out, result)
+        show_chain_result(out, result)
+    if sheet_dir is None and spice_file is None:
+        return
+    from drawerfit.sheet.cli import sheet_for_chain, spice_for_chain
+
+    if sheet_dir is not None:
+        sheet_for_chain(sheet_dir, result, rank, snapshot, quiet=as_json)
+    if spice_file is not None:
+        spice_for_chain(spice_file, result, rank, snapshot, quiet=as_json)

@@ -111,7 +111,7 @@ def command(app, request_file: str, top: int, as_json: bool, time_limit: float =
     code 0: that is an answer).  Targets the file leaves out get the defaults
     the output names (thd_max_pct, ic_min_a; "none" for no limit).
     Request keys and defaults: docs/requests.md; the figures: docs/model.md.
-    --sheet and --spice write the design chosen with --rank (default 1).
+    --sheet and --spice write the design (or chain) chosen with --rank (default 1).
     """
     from inventory.errors import InputError
     from optimiser.request import load_request, read_toml
@@ -121,7 +121,7 @@ def command(app, request_file: str, top: int, as_json: bool, time_limit: float =
     if request.is_pair:
         design_chain(app, request, request_file, top=top, as_json=as_json,
                      time_limit=time_limit, sheet_dir=sheet_dir, spice_file=spice_file,
-                     locate=_locate)
+                     locate=_locate, rank=sheet_rank)
         return
     store = app.store()
     snapshot = store.snapshot()

@@ -6,6 +6,7 @@ owns stdout.
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -16,7 +17,8 @@ if TYPE_CHECKING:
 from inventory.errors import InputError
 
 __all__ = ["sheet_option", "sheet_for_design", "sheet_for_build", "sheet_for_pair", "spice_option",
-           "spice_for_design", "spice_for_search", "write_spice"]
+           "spice_for_design", "spice_for_search", "write_spice", "spice_for_pair",
+           "sheet_for_chain", "spice_for_chain"]
 
 sheet_option = click.option(
     "--sheet", "sheet_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
@@ -122,20 +124,91 @@ def sheet_for_circuit(directory, design, evaluation, circuit, yield_result=None,
                             yield_result=yield_result, quiet=quiet, cautions_shown=True)
 
 
-def sheet_for_pair(directory, ev, i: int, circuit, *, yield_result=None, notes=None,
-                   quiet: bool = False, cautions_shown: bool = True) -> WrittenSheet:
+def sheet_for_pair(directory, ev, i: int, circuit, *, picks=None, yield_result=None,
+                   notes=None, quiet: bool = False, cautions_shown: bool = True,
+                   title: str = "Build sheet written:", rank: int | None = None) -> WrittenSheet:
     """The sheet of a two-transistor circuit (circuit ``i`` of the evaluation ``ev``),
     then the cautions (unless ``cautions_shown``; always on stderr with ``quiet``) and
-    the files written."""
+    the files written.  ``picks``: the pieces of each role (default: the circuit's)."""
     from drawerfit.console import err, out
     from drawerfit.sheet import echo_sheet
     from drawerfit.sheet.pair_writer import write_pair_sheet
 
-    written = write_pair_sheet(directory, ev, i, circuit, yield_result=yield_result,
-                               notes=notes)
+    written = write_pair_sheet(directory, ev, i, circuit, picks=picks,
+                               yield_result=yield_result, notes=notes, rank=rank)
     echo_sheet(written, err if quiet else out, show_cautions=quiet or not cautions_shown,
-               title="Build sheet written:")
+               title=title)
     return written
+
+
+def spice_for_pair(path, circuit, *, quiet: bool = False,
+                   title: str = "SPICE netlist") -> Path:
+    """Write a two-transistor circuit's SPICE deck to ``path`` and say so (on stderr
+    when ``--json`` owns stdout); a path that cannot be written: InputError, exit 2."""
+    from drawerfit.console import err, out
+    from optimiser.spice_netlist import pair_spice_netlist
+
+    path = Path(path)
+    try:
+        path.write_text(pair_spice_netlist(circuit, circuit.transistors), encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"cannot write {path}: {exc.strerror or exc}", field="--spice") from None
+    (err if quiet else out).print(f"{title} written: {path}", markup=False, highlight=False,
+                                  soft_wrap=True)
+    return path
+
+
+def _chosen_chain(result, rank: int, snapshot, option: str, what: str):
+    """The chain ranked ``rank`` as a circuit with given values, or None (said on
+    stderr) when no chain meets the request."""
+    from drawerfit.console import err
+    from optimiser.chain_circuit import chain_circuit
+
+    if not result.designs:
+        err.print(f"{option}: no chain meets the request, so no {what} was written.")
+        return None
+    design = _ranked(list(result.designs), rank)
+    return design, chain_circuit(design, result.request, snapshot)
+
+
+def sheet_for_chain(directory, result, rank: int, snapshot, *, quiet: bool = False):
+    """``design CHAIN.toml --sheet DIR``: the sheet of the chain ranked ``rank``, written
+    as ``analyse`` writes a two-transistor circuit's (the bins are the search's pieces).
+
+    Returns the WrittenSheet, or None when no chain meets the request.
+    """
+    from optimiser.pair_evaluate import evaluate_pair
+
+    chosen = _chosen_chain(result, rank, snapshot, "--sheet", "build sheet")
+    if chosen is None:
+        return None
+    design, circuit = chosen
+    ev = evaluate_pair(circuit.request, circuit.batch(), circuit.transistors, circuit.ratings)
+    plus = ev.extra.get("plus", {})
+    picks = {role: replace(pick, plus=str(plus[role][0])) if role in plus else pick
+             for role, pick in design.parts.items()}
+    yres = None
+    if circuit.request.wants_yield:
+        from optimiser.yield_ import monte_carlo_pair
+
+        yres = monte_carlo_pair(circuit.request, circuit.form, circuit.values,
+                                circuit.transistors, circuit.tolerances,
+                                samples=circuit.request.samples, seed=circuit.request.seed)
+    # the ranked chains' view shows no cautions: the sheet's are printed
+    return sheet_for_pair(directory, ev, 0, circuit, picks=picks, yield_result=yres,
+                          quiet=quiet, cautions_shown=False, rank=design.rank,
+                          title=f"Build sheet for chain #{design.rank} written:")
+
+
+def spice_for_chain(path, result, rank: int, snapshot, *, quiet: bool = False):
+    """``design CHAIN.toml --spice FILE``: the deck of the chain ranked ``rank`` (the one
+    ``--sheet`` draws).  Returns the path, or None when no chain meets the request."""
+    chosen = _chosen_chain(result, rank, snapshot, "--spice", "netlist")
+    if chosen is None:
+        return None
+    design, circuit = chosen
+    return spice_for_pair(path, circuit, quiet=quiet,
+                          title=f"SPICE netlist of chain #{design.rank}")
 
 
 rank_option = click.option(

@@ -320,8 +320,9 @@ def _figure_row(key: str, what: str, unit: str, v, data_key: str | None = None) 
 def render_pair_html(report: dict, request: Request, *, node_words: dict[str, str],
                      schematic_svg: bytes, response_png: bytes, waveform_png: bytes,
                      drift_png: bytes, route: list[dict], probes: list[Probe],
-                     cautions: list[Caution]) -> str:
-    """The page of a two-transistor circuit as one string.
+                     cautions: list[Caution], rank: int | None = None) -> str:
+    """The page of a two-transistor circuit as one string (``rank``: the chain's rank
+    in ``design``'s answer, said under the title).
 
     ``report`` is :func:`optimiser.pair_report.pair_report`'s object (figures, stages,
     verdict); each figure is ``data-metric`` (``gain``, ``S1.ic_a``, …) with
@@ -332,6 +333,8 @@ def render_pair_html(report: dict, request: Request, *, node_words: dict[str, st
     who = " and ".join(given) or "the given transistors"
     title = f"Build sheet: {report['form']}, with {who}"
     sub = [", ".join(f"{s} {st['kind']}" for s, st in report["stages"].items())]
+    if rank is not None:
+        sub.append(f"chain rank {rank}")
     status = ('<span class="meets">meets the request</span>' if report["meets_spec"] else
               '<span class="misses">misses the request: ' +
               escape("; ".join(report["violations"])) + "</span>")

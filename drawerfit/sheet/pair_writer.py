@@ -107,7 +107,7 @@ def _corners(ev, i: int) -> list[dict]:
 
 
 def write_pair_sheet(directory, ev, i: int, circuit, *, picks: dict[str, RolePick] | None = None,
-                     yield_result=None, notes=None) -> WrittenSheet:
+                     yield_result=None, notes=None, rank: int | None = None) -> WrittenSheet:
     """Write the build sheet of circuit ``i`` of ``ev`` into ``directory`` (created if needed).
 
     Parameters
@@ -129,6 +129,8 @@ def write_pair_sheet(directory, ev, i: int, circuit, *, picks: dict[str, RolePic
         histogram, and where 90 % of the samples put each DC voltage.
     notes : list of Caution, optional
         The cautions; default :func:`optimiser.pair_report.pair_cautions`.
+    rank : int, optional
+        The chain's rank in ``design``'s answer (said under the title).
     """
     from drawerfit.sheet import html, parts_csv, plots
     from drawerfit.sheet.pair_schematic import write_pair_schematic
@@ -177,7 +179,7 @@ def write_pair_sheet(directory, ev, i: int, circuit, *, picks: dict[str, RolePic
         waveform_png=(out_dir / "waveform.png").read_bytes(),
         drift_png=(out_dir / "drift.png").read_bytes(),
         route=parts_csv.pair_pick_route(form, picks, request, ev.transistors),
-        probes=probes, cautions=items)
+        probes=probes, cautions=items, rank=rank)
     written.insert(0, html.write_html(out_dir / "sheet.html", page))
     written.cautions = items
     return written

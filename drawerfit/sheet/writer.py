@@ -21,6 +21,7 @@ from pathlib import Path
 import numpy as np
 
 from optimiser.cautions import Caution, capacitor_bias, cautions
+from optimiser.chain_circuit import picks_ratings
 from optimiser.design import Design
 from optimiser.request import Request
 from optimiser.stage import CAPACITOR_ROLES, RESISTOR_ROLES, PartRatings, StageBatch
@@ -39,27 +40,12 @@ class WrittenSheet(list):
 
 def ratings_of(design: Design) -> PartRatings:
     """Piece ratings of the design's roles for the engine's derating rules."""
-    from inventory.parts import POLARISED_DIELECTRICS
-
-    power, share, volt, pol = {}, {}, {}, {}
-    for role, pick in design.parts.items():
+    def kind_of(role: str) -> str | None:
         if role in RESISTOR_ROLES:
-            r = [pc.rating for pc in pick.pieces if pc.rating]
-            if r:
-                power[role] = min(r)
-            n = sum(pc.count for pc in pick.pieces)
-            if pick.joined and n > 1:
-                if pick.joined == "series":
-                    share[role] = max(pc.value for pc in pick.pieces) / pick.value
-                else:
-                    share[role] = pick.value / min(pc.value for pc in pick.pieces)
-        elif role in CAPACITOR_ROLES:
-            v = [pc.rating for pc in pick.pieces if pc.rating]
-            if v:
-                volt[role] = min(v)
-            pol[role] = any((pc.dielectric or "").lower() in POLARISED_DIELECTRICS
-                            for pc in pick.pieces)
-    return PartRatings(power, share, volt, pol)
+            return "resistor"
+        return "capacitor" if role in CAPACITOR_ROLES else None
+
+    return picks_ratings(design.parts, kind_of)
 
 
 def _batch(design: Design) -> StageBatch:

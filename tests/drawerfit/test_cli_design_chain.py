@@ -1,6 +1,7 @@
 """`drawerfit design` of a chain request through the CLI runner: JSON shape (docs/json.md),
 the 80-column table, exit codes of the refusals."""
 
+import csv
 import io
 import json
 
@@ -97,10 +98,78 @@ def test_other_kinds_refused(store, tmp_path, text, field):
     assert "analyse" in lines[0]
 
 
-def test_sheet_for_chain_names_analyse(store, tmp_path):
-    r = run(store, tmp_path, REQUEST, "--sheet", str(tmp_path / "sheet"))
-    assert r.exit_code == 2 and "analyse" in r.stderr
+def _csv_rows(path):
+    with open(path, newline="", encoding="utf-8") as f:
+        return {row["role"]: row for row in csv.DictReader(f)}
+
+
+@pytest.mark.parametrize("combos", [False, True])
+def test_sheet_and_spice_of_the_chosen_chain(store, tmp_path, combos):
+    # --json owns stdout: the chains as JSON there, the sheet's lines on stderr
+    # (allow_combos: roles made of two pieces, each with its own bin)
+    sheet, deck = tmp_path / "sheet", tmp_path / "chain.cir"
+    text = REQUEST + ("allow_combos = true\n" if combos else "")
+    r = run(store, tmp_path, text, "--top", "3", "--rank", "2", "--json",
+            "--sheet", str(sheet), "--spice", str(deck))
+    assert r.exit_code == 0, r.output
+    out = json.loads(r.stdout)
+    chosen = next(d for d in out["designs"] if d["rank"] == 2)
+    assert combos == any(p.get("joined") for p in chosen["parts"].values())
+    svg = (sheet / "schematic.svg").read_text(encoding="utf-8")
+    assert "chain #2" in r.stderr and str(deck) in r.stderr
+    for name in ("sheet.html", "schematic.svg", "stage.cir", "parts.csv", "waveform.png"):
+        assert (sheet / name).is_file(), name
+    page = (sheet / "sheet.html").read_text(encoding="utf-8")
+    assert "chain rank 2" in page
+    rows = _csv_rows(sheet / "parts.csv")
+    # every part of the chosen chain with its value and its bin, on the page and in the csv
+    for role, pick in chosen["parts"].items():
+        assert role in rows, role
+        assert rows[role]["value"].startswith(pick["label"]), role
+        # the page's route lists each piece, the schematic each role's value
+        assert role in page and pick["label"] in svg, role
+        for piece in pick["pieces"]:
+            assert piece["location"] in rows[role]["location"], role
+            assert f"<td>{piece['location']}</td><td>{role}</td>" in page, role
+            assert f"bin {piece['location']}" in svg or f"+ {piece['location']}" in svg, role
+    # both transistors, each with its bin
+    for k, label in enumerate(chosen["transistors"], 1):
+        assert rows[f"S{k}.Q"]["value"] == label and rows[f"S{k}.Q"]["location"] == "C1"
+    # DC voltages to probe for both transistors
+    for node in ("S1.base", "S1.collector", "S2.base", "S2.emitter"):
+        assert node in page, node
+    # the deck is the sheet's own, and names both transistors and every part by role
+    text = deck.read_text(encoding="utf-8")
+    assert text == (sheet / "stage.cir").read_text(encoding="utf-8")
+    assert "QS1" in text and "QS2" in text
+    for role in chosen["parts"]:
+        assert role.replace(".", "_") in text, role
+
+
+def test_sheet_of_rank_beyond_the_chains_found_is_refused(store, tmp_path):
+    r = run(store, tmp_path, REQUEST, "--top", "2", "--rank", "3", "--sheet",
+            str(tmp_path / "sheet"))
+    assert r.exit_code == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "--rank" in lines[0] and "only 2" in lines[0]
     assert not (tmp_path / "sheet").exists()
+
+
+def test_no_chain_meets_no_sheet(store, tmp_path):
+    # 60 dB from two stages of this drawer into 1k: no chain (exit 0: that is an answer)
+    text = REQUEST.replace("gain_db = 20", "gain_db = 60")
+    r = run(store, tmp_path, text, "--sheet", str(tmp_path / "sheet"), "--spice",
+            str(tmp_path / "c.cir"))
+    assert r.exit_code == 0, r.output
+    assert "no chain meets the request" in r.stderr
+    assert not (tmp_path / "sheet").exists() and not (tmp_path / "c.cir").exists()
+
+
+def test_spice_into_a_missing_folder_is_refused_before_the_search(store, tmp_path):
+    r = run(store, tmp_path, REQUEST, "--spice", str(tmp_path / "nowhere" / "c.cir"))
+    assert r.exit_code == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "--spice" in lines[0] and "does not exist" in lines[0]
 
 
 def test_zout_max_still_refused_for_a_single_stage(store, tmp_path):
