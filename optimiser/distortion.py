@@ -18,7 +18,8 @@ from .stage import StageBatch
 from .stages import module as stage_module
 
 __all__ = ["N_POINTS", "HARMONICS", "transfer", "waveform", "thd_pct", "swing_vpk",
-           "IC_FLOOR", "waveform_of", "thd_of", "thd_of_wave", "swing_of"]
+           "IC_FLOOR", "waveform_of", "thd_of", "thd_of_wave", "swing_of", "thd_at_input",
+           "thd_active_of", "forward_active"]
 
 N_POINTS = 256
 HARMONICS = range(2, 10)
@@ -107,6 +108,44 @@ def thd_pct(request, batch, model, op) -> np.ndarray:
     return thd_of_wave(v)
 
 
+def forward_active(vce, ic, ic0, vce_sat) -> np.ndarray:
+    """The forward-active test of the swing and of the THD's validity: V_CE ≥ vce_sat
+    and I_C ≥ IC_FLOOR of the quiescent ``ic0`` (broadcast against ``ic``)."""
+    return (vce >= vce_sat) & (ic >= IC_FLOOR * ic0)
+
+
+def thd_active_of(state, amplitude, n: int):
+    """THD (%) of v_load for a sine EMF of ``amplitude`` through ``state(emf (n, k)) ->
+    (v_load, forward_active)``, and whether every sample point of that period is
+    forward-active; each (n,).
+
+    The quasi-static transfer is the forward model's: past the forward-active edge
+    (saturation, cut-off) it no longer describes the circuit, so a THD computed from a
+    period that leaves the region is not the circuit's THD (docs/model.md).
+    """
+    seen = {}
+
+    def fn(emf):
+        v, ok = state(emf)
+        seen["ok"] = ok.all(axis=1)
+        return v
+
+    _, v = waveform_of(fn, amplitude, n)
+    return thd_of_wave(v), seen["ok"]
+
+
+def thd_at_input(request, batch, model, op):
+    """:func:`thd_pct` and whether the stage stays forward-active over the whole period
+    of input_vpk (:func:`thd_active_of`); each (n,)."""
+    ic0 = np.asarray(op.ic)[:, None]
+
+    def state(emf):
+        v, vce, ic = transfer(request, batch, model, op, emf)
+        return v, forward_active(vce, ic, ic0, model.vce_sat)
+
+    return thd_active_of(state, request.input_vpk, batch.n)
+
+
 def swing_vpk(request, batch, model, op):
     """Largest symmetric load swing in the forward-active region, V peak; (n,).
 
@@ -132,7 +171,7 @@ def swing_vpk(request, batch, model, op):
     def state(emf, rows=None):
         b, o = (batch, op) if rows is None else (batch.take(rows), op.take(rows))
         v, vce, ic = transfer(request, b, model, o, emf)
-        return v, (vce >= model.vce_sat) & (ic >= IC_FLOOR * (ic0 if rows is None else ic0[rows]))
+        return v, forward_active(vce, ic, ic0 if rows is None else ic0[rows], model.vce_sat)
 
     return swing_of(state, n, request.supply_v)
 

@@ -35,6 +35,7 @@ __all__ = [
     "evaluate",
     "frequency_response_of",
     "corner_points",
+    "thd_rule",
 ]
 
 #: Part derating (common practice; settings): a resistor piece may dissipate this
@@ -108,6 +109,22 @@ class RuleVerdicts:
 
     def failed_keys(self, i: int) -> list[str]:
         return [r.key for r in self.rules if r.kind in ("validity", "target") and bool(r.fail[i])]
+
+
+def thd_rule(request: Request, thd: np.ndarray, active: np.ndarray) -> _Rule:
+    """The THD target holds where the THD at input_vpk is at most thd_max_pct and the
+    period stays forward-active (:func:`optimiser.distortion.thd_active_of`: past that
+    edge the forward model's THD is not the circuit's)."""
+    lim = request.thd_max_pct
+
+    def text(i: int) -> str:
+        if not bool(active[i]):
+            return (f"thd_pct: an input of {_g(request.input_vpk)} V peak drives a transistor "
+                    f"out of the forward-active region, where the THD of {lim:g} % cannot "
+                    f"be claimed")
+        return f"thd_pct {_g(thd[i])} > {lim:g}"
+
+    return _Rule("target", "thd_pct", ~(thd <= lim) | ~active, text)
 
 
 def verdicts(rules: list[_Rule], n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -286,8 +303,9 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
         drift = 100.0 * np.max(np.abs(cop.ic - op.ic[:, None]), axis=1) / op.ic
 
     thd, swing, swing_emf = nan.copy(), nan.copy(), nan.copy()
+    thd_active = np.ones(n, dtype=bool)
     if large_signal:
-        thd = distortion.thd_pct(request, batch, model, op)
+        thd, thd_active = distortion.thd_at_input(request, batch, model, op)
         if large_signal != "thd":
             swing, swing_emf = distortion.swing_vpk(request, batch, model, op)
 
@@ -435,9 +453,7 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
         rules.append(_Rule("target", "ic_a", ~(ic_nom >= lim),
                            lambda i, lim=lim: f"ic_a {_g(ic_nom[i])} < {lim:g}"))
     if large_signal and request.thd_max_pct is not None:
-        lim = request.thd_max_pct
-        rules.append(_Rule("target", "thd_pct", ~(thd <= lim),
-                           lambda i, lim=lim: f"thd_pct {_g(thd[i])} > {lim:g}"))
+        rules.append(thd_rule(request, thd, thd_active))
 
     # --- warnings ------------------------------------------------------------
     r_th = batch.R1 * batch.R2 / (batch.R1 + batch.R2)

@@ -29,7 +29,7 @@ from inventory.parts import DEFAULT_CAPACITOR_VOLTAGE_V, DEFAULT_RESISTOR_POWER_
 from . import ac, distortion
 from .dc import CUTOFF_A, OperatingPoint, operating_point, solve_nodes
 from .device import DeviceModel, device_from_transistor, junction_currents, scaled, thermal_voltage
-from .evaluate import DERATING, FLAT_PASSBAND_DB, RuleVerdicts, _g, _Rule, _si, verdicts
+from .evaluate import DERATING, FLAT_PASSBAND_DB, RuleVerdicts, _g, _Rule, _si, thd_rule, verdicts
 from .request import Request
 from .stage import PartRatings, StageBatch
 from .stages.pair import (
@@ -217,6 +217,7 @@ def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: Part
                         "pq_w": np.asarray(cop.pq)})
 
     thd, swing, swing_emf = nan.copy(), nan.copy(), nan.copy()
+    thd_active = np.ones(n, dtype=bool)
     if large_signal:
         def transfer(emf, rows=None):
             b, o, v = (batch, ops, volts) if rows is None else (
@@ -229,10 +230,10 @@ def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: Part
             ok = np.ones(v.shape, dtype=bool)
             for vce, ic, op, m in zip(vces, ics, ops, models, strict=True):
                 ic0 = np.asarray(op.ic)[:, None] if rows is None else np.asarray(op.ic)[rows, None]
-                ok &= (vce >= m.vce_sat) & (ic >= distortion.IC_FLOOR * ic0)
+                ok &= distortion.forward_active(vce, ic, ic0, m.vce_sat)
             return v, ok
 
-        thd = distortion.thd_of(lambda e: transfer(e)[0], request.input_vpk, n)
+        thd, thd_active = distortion.thd_active_of(state, request.input_vpk, n)
         if large_signal != "thd":
             swing, swing_emf = distortion.swing_of(state, n, request.supply_v)
 
@@ -370,9 +371,7 @@ def evaluate_pair(request: Request, batch: PairBatch, transistors, ratings: Part
                                lambda i, s=stage, ic=ic, lim6=lim6:
                                f"{s}: ic_a {_g(ic[i])} < {lim6:g}"))
     if large_signal and request.thd_max_pct is not None:
-        lim7 = request.thd_max_pct
-        rules.append(_Rule("target", "thd_pct", ~(thd <= lim7),
-                           lambda i: f"thd_pct {_g(thd[i])} > {lim7:g}"))
+        rules.append(thd_rule(request, thd, thd_active))
     if large_signal:
         clip = np.isfinite(swing_emf) & (swing_emf < request.input_vpk)
         rules.append(_Rule("warning", "clipping", clip,

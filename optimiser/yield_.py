@@ -173,7 +173,7 @@ def _figures(request: Request, batch: StageBatch, transistor: Transistor, beta25
         out["f_low_hz"] = f_low
         out["f_high_hz"] = f_high if want_high else np.full(n, np.nan)
     if thd:
-        out["thd_pct"] = distortion.thd_pct(request, batch, model, op)
+        out["thd_pct"], out["thd_active"] = distortion.thd_at_input(request, batch, model, op)
     return out, fa, lim, model
 
 
@@ -200,7 +200,8 @@ def _target_fails(request: Request, fig: dict, model) -> dict[str, np.ndarray]:
     if getattr(request, "zout_max_ohm", None) is not None and "zout_ohm" in fig:
         fails["zout_ohm"] = ~(fig["zout_ohm"] <= request.zout_max_ohm)
     if request.thd_max_pct is not None and "thd_pct" in fig:
-        fails["thd_pct"] = ~(fig["thd_pct"] <= request.thd_max_pct)
+        # as optimiser.evaluate.thd_rule: a period leaving the forward-active region fails
+        fails["thd_pct"] = ~(fig["thd_pct"] <= request.thd_max_pct) | ~fig.get("thd_active", True)
     if getattr(request, "ic_min_a", None) is not None and "ic_a" in fig:
         fails["ic_a"] = ~(fig["ic_a"] >= request.ic_min_a)
     return fails
@@ -287,6 +288,9 @@ def monte_carlo_pair(request: Request, form, values: dict[str, float], transisto
     if request.f_high_min_hz is None:
         fig.pop("f_high_hz", None)
     fails = _target_fails(request, fig, has_fhigh)
+    for r in ev.rules:              # the THD target as the engine judges it (thd_rule)
+        if r.key == "thd_pct":
+            fails["thd_pct"] = np.asarray(r.fail, dtype=bool)
     fa = np.ones(n, bool)
     lim = np.ones(n, bool)
     for stage, op, m, st in zip(form.stages, ev.ops, ev.models, ev.stages, strict=True):

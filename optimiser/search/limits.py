@@ -7,10 +7,14 @@ import math
 
 from inventory.errors import InputError
 from inventory.parts import StockSnapshot
-from optimiser.device import thermal_voltage
+from optimiser.device import device_from_transistor, thermal_voltage
 from optimiser.request import Request
+from optimiser.search.thd_floor import applies as thd_floor_applies
 from optimiser.stages import module
 from optimiser.stages.base import EMITTER_DRIVEN, FOLLOWER
+from optimiser.thd_bounds import emitter_driven_thd_floor
+
+__all__ = ["gain_window", "check_request", "physical_limits", "direct_drive_thd_floor"]
 
 
 def gain_window(request: Request) -> tuple[float, float] | None:
@@ -49,7 +53,10 @@ def physical_limits(request: Request, snapshot: StockSnapshot | None = None) -> 
       driven at the emitter (cb) below R_L/R_S (i_e ≤ v_s/R_S, v_out ≤ i_e·R_L);
     * zin_min_ohm, by the topology's ``INPUT``: Z_in is below R1‖R2 ≤ R_max/2
       (driven at the base: ce, cc) or below RE ≤ R_max (at the emitter: cb),
-      R_max the largest resistor in stock (twice it with combinations).
+      R_max the largest resistor in stock (twice it with combinations);
+    * thd_max_pct, where the source drives the junction directly (the input at the
+      emitter, the base held, 0 Ω: :func:`optimiser.search.thd_floor.applies`): by
+      :func:`direct_drive_thd_floor`, the least over the transistors in stock.
     """
 
     out: list[dict] = []
@@ -93,4 +100,31 @@ def physical_limits(request: Request, snapshot: StockSnapshot | None = None) -> 
                         "reason": f"a {r.topology} stage built from this drawer has Z_in below "
                                   f"{what} ≤ {bound:g} Ω (the largest resistor in stock "
                                   f"{rmax:g} Ω)"})
+    if thd_floor_applies(r) and snapshot is not None:
+        floors = [float(direct_drive_thd_floor(r, t)) for t in snapshot.transistors if t.qty > 0]
+        least = min(floors, default=0.0)
+        if floors and r.thd_max_pct < least:
+            out.append({"target": "thd_max_pct", "requested": r.thd_max_pct,
+                        "reachable": least, "unit": "%",
+                        "reason": f"a {r.topology} stage driven at its emitter from a 0 Ω "
+                                  f"source has the whole {r.input_vpk * 1e3:g} mV peak across "
+                                  f"its base–emitter junction: THD at least {least:.3g} % with "
+                                  f"every transistor in stock"})
     return out
+
+
+def direct_drive_thd_floor(request: Request, transistor) -> float:
+    """A lower bound (%) of the THD target's figure for every stage of ``transistor``
+    whose junction the source drives directly (:func:`thd_floor_applies`) and that
+    meets the THD target: such a stage stays forward-active over the cycle
+    (:func:`optimiser.evaluate.thd_rule`), so V_CE ≥ vce_sat throughout, and its
+    compression c = I_C0·R'/(V_AF + V_CB0) is at most V_supply/(V_AF + vce_sat − 1 V)
+    (I_C0·R' ≤ I_C0·R_C < V_supply; V_CB0 ≥ vce_sat − V_BE, V_BE < 1 V), so B22's floor
+    over every c up to it holds (0, no claim, where V_AF + vce_sat − 1 V ≤ 0)."""
+    m = device_from_transistor(transistor)
+    vcb_lo = m.vce_sat - 1.0
+    if math.isfinite(m.vaf) and m.vaf + vcb_lo <= 0:
+        return 0.0
+    vt = thermal_voltage(25.0)          # the nominal operating point's, as the THD's
+    return float(emitter_driven_thd_floor(request.input_vpk, vt, request.supply_v, 1.0, vcb_lo,
+                                          m.vaf, request.source_ohm, m.vce_sat))

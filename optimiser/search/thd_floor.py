@@ -1,6 +1,7 @@
 """The THD ceiling at the skeletons of a stage whose junction the source drives
-directly (docs/search.md, B22): the floor of :mod:`optimiser.thd_bounds` where the
-stage provably stays forward-active, the engine's own THD elsewhere.
+directly (docs/search.md, B22): the floor of :mod:`optimiser.thd_bounds` for a stage
+that stays forward-active over the cycle (one that leaves the region fails the THD
+target outright), the engine's own THD for the rest.
 
 The engine's THD (the quasi-static transfer of :mod:`optimiser.distortion`) depends
 on the resistors, the transistor and the nominal operating point only: every
@@ -16,7 +17,7 @@ from optimiser import distortion
 from optimiser.device import thermal_voltage
 from optimiser.stages import module
 from optimiser.stages.base import base_held
-from optimiser.thd_bounds import cannot_clip, early_compression, emitter_driven_thd_floor, least_vce
+from optimiser.thd_bounds import early_compression, emitter_driven_thd_floor, least_vce
 
 __all__ = ["applies", "floor_proven", "floor_proven_range", "thd_keep"]
 
@@ -31,8 +32,10 @@ def applies(request) -> bool:
 
 def floor_proven(request, rc, op, model) -> np.ndarray:
     """True where the stages of collector resistors ``rc`` and nominal operating
-    point ``op`` provably stay forward-active over the cycle and the THD floor is
-    above ``thd_max_pct`` (where :func:`applies`)."""
+    point ``op`` miss ``thd_max_pct`` (where :func:`applies`): a stage that leaves the
+    forward-active region over the cycle fails the THD target
+    (:func:`optimiser.evaluate.thd_rule`); one that stays in it has V_CE ≥ vce_sat and
+    V_CE ≥ :func:`least_vce` over the cycle, so the floor holds for it."""
     v = request.input_vpk
     rc = np.asarray(rc, dtype=float)
     rl = rc if request.load_ohm is None else rc * request.load_ohm / (rc + request.load_ohm)
@@ -40,15 +43,9 @@ def floor_proven(request, rc, op, model) -> np.ndarray:
     vcb = vce - np.asarray(op.vbe)
     # the exact point's compression, less 1 % for the base–collector terms
     c_lo = 0.99 * early_compression(ic, rl, vcb, model.vaf)
-    safe = cannot_clip(v, vt, ic, rl, vce, model.vce_sat, distortion.IC_FLOOR, c_lo)
-    vce_min = least_vce(v, vt, ic, rl, vce, c_lo)
-    out = np.zeros(safe.shape, dtype=bool)
-    s = np.flatnonzero(safe)
-    if s.size:
-        floor = emitter_driven_thd_floor(v, vt[s], ic[s], rl[s], vcb[s], model.vaf,
-                                         request.source_ohm, vce_min[s])
-        out[s] = floor > request.thd_max_pct
-    return out
+    vce_min = np.maximum(least_vce(v, vt, ic, rl, vce, c_lo), model.vce_sat)
+    floor = emitter_driven_thd_floor(v, vt, ic, rl, vcb, model.vaf, request.source_ohm, vce_min)
+    return floor > request.thd_max_pct
 
 
 def floor_proven_range(request, rc, re_total, ic_lo, ic_hi, model, beta) -> np.ndarray:
@@ -63,30 +60,26 @@ def floor_proven_range(request, rc, re_total, ic_lo, ic_hi, model, beta) -> np.n
     rl = rc if request.load_ohm is None else rc * request.load_ohm / (rc + request.load_ohm)
     vce_lo = request.supply_v - ic_hi * rc - ic_hi * (1.0 + 2.0 / beta) * np.asarray(re_total)
     c_lo = early_compression(ic_lo, rl, request.supply_v, model.vaf)
-    safe = cannot_clip(v, vt, ic_hi, rl, vce_lo, model.vce_sat, distortion.IC_FLOOR, c_lo)
-    out = np.zeros(safe.shape, dtype=bool)
-    s = np.flatnonzero(safe)
-    if s.size:
-        vce_min = least_vce(v, vt, ic_hi[s], rl[s], vce_lo[s], c_lo[s])
-        floor = emitter_driven_thd_floor(v, vt, ic_hi[s], rl[s], vce_lo[s] - 1.0, model.vaf,
-                                         request.source_ohm, vce_min)
-        out[s] = floor > request.thd_max_pct
-    return out
+    vce_min = np.maximum(least_vce(v, vt, ic_hi, rl, vce_lo, c_lo), model.vce_sat)
+    floor = emitter_driven_thd_floor(v, vt, ic_hi, rl, vce_lo - 1.0, model.vaf,
+                                     request.source_ohm, vce_min)
+    return floor > request.thd_max_pct
 
 
 def thd_keep(request, sk, batch, model, op, stats: dict) -> np.ndarray:
     """True for the skeletons of ``sk`` (its ``batch`` and operating point ``op``)
     whose THD may meet ``thd_max_pct``: those the floor proves above it are dropped
     (``stats["pruned"]["thd_floor"]``), and of the rest those whose engine THD is
-    above it (``stats["pruned"]["thd_engine"]``)."""
+    above it or whose period leaves the forward-active region, as the THD target
+    of :func:`optimiser.evaluate.thd_rule` judges (``stats["pruned"]["thd_engine"]``)."""
     lim = request.thd_max_pct
     keep = ~floor_proven(request, sk.RC, op, model)
     pr = stats["pruned"]
     pr["thd_floor"] = pr.get("thd_floor", 0) + int((~keep).sum())
     rest = np.flatnonzero(keep)
     if rest.size:
-        thd = distortion.thd_pct(request, batch.take(rest), model, op.take(rest))
-        over = ~(thd <= lim)
+        thd, active = distortion.thd_at_input(request, batch.take(rest), model, op.take(rest))
+        over = ~(thd <= lim) | ~active
         keep[rest[over]] = False
         pr["thd_engine"] = pr.get("thd_engine", 0) + int(over.sum())
     return keep

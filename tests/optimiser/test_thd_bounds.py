@@ -4,6 +4,7 @@ engine's quasi-static THD and against the Bessel series of the exponential law."
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -133,3 +134,59 @@ def test_table_bounds_the_logistic_form_between_its_points():
 def test_margin_is_small():
     """The floor is the logistic THD less THD_MARGIN (half a percent of it)."""
     assert 0 < THD_MARGIN <= 0.01
+
+
+@pytest.mark.parametrize("vaf, supply_v, load_ohm, vpk", CASES)
+def test_floor_holds_for_every_stage_that_stays_forward_active(vaf, supply_v, load_ohm, vpk):
+    """The floor as the search takes it (``floor_proven``: V_CE,min the larger of
+    vce_sat and ``least_vce``, no clipping test) never drops a stage that meets the THD
+    target as the engine judges it (``evaluate.thd_rule``: THD at most the ceiling and
+    the period forward-active); and it stays at or below the engine's THD on every
+    stage whose period is forward-active, near saturation included."""
+    from optimiser.distortion import thd_at_input
+    from optimiser.search.thd_floor import floor_proven
+
+    rng = np.random.default_rng(int(1000 * vpk) + int(supply_v) + 7)
+    req, b, m, op, ok, rl = _random_cb(rng, 1500, vaf, supply_v, load_ohm, vpk)
+    thd, active = thd_at_input(req, b, m, op)
+    vcb = op.vce - op.vbe
+    c_lo = 0.99 * early_compression(op.ic, rl, vcb, m.vaf)
+    vce_min = np.maximum(least_vce(vpk, op.vt, op.ic, rl, op.vce, c_lo), m.vce_sat)
+    floor = emitter_driven_thd_floor(vpk, op.vt, op.ic, rl, vcb, m.vaf, 0.0, vce_min)
+    fa = ok & active
+    assert fa.sum() > 200 and (ok & ~active).sum() >= 5     # both kinds are drawn
+    assert np.all(floor[fa] <= thd[fa])
+    for lim in (1.0, 5.0, 8.0):
+        r = Request("cb", supply_v, load_ohm=load_ohm, input_vpk=vpk, thd_max_pct=lim)
+        meets = ok & active & (thd <= lim)
+        assert not np.any(meets & floor_proven(r, b.RC, op, m))
+
+
+@pytest.mark.parametrize("vaf, supply_v, load_ohm, vpk", CASES)
+def test_direct_drive_limit_is_below_every_stage_that_meets_it(vaf, supply_v, load_ohm, vpk):
+    """The request-level limit (``direct_drive_thd_floor``, before any search) is at
+    most the engine's THD of every valid random cb stage from 0 Ω whose period stays
+    forward-active, so a THD ceiling below it is beyond the stage's reach; and
+    ``physical_limits`` states it exactly then, for a drawer holding that transistor."""
+    from inventory.parts import StockSnapshot
+    from optimiser.distortion import thd_at_input
+    from optimiser.search.limits import direct_drive_thd_floor, physical_limits
+
+    rng = np.random.default_rng(int(1000 * vpk) + int(supply_v) + 11)
+    req, b, m, op, ok, rl = _random_cb(rng, 1500, vaf, supply_v, load_ohm, vpk)
+    thd, active = thd_at_input(req, b, m, op)
+    t = Transistor("X", 100, 300, vaf=vaf, vce_sat=0.2)
+    floor = direct_drive_thd_floor(req, t)
+    fa = ok & active
+    assert floor <= thd[fa].min()
+    if vpk >= 0.01 and (vaf is None or vaf >= 50):
+        # not vacuous where the junction's own distortion dominates (at 2 mV the
+        # base–collector share, at V_AF 15 V the compression, leave no claim)
+        assert floor > 0.5 * thd[fa].min()
+    snap = StockSnapshot(resistors=(), capacitors=(), transistors=(replace(t, qty=5),))
+    for lim, beyond in ((0.9 * floor, floor > 0), (1.1 * floor, False)):
+        r = Request("cb", supply_v, load_ohm=load_ohm, input_vpk=vpk, thd_max_pct=lim)
+        got = [x for x in physical_limits(r, snap) if x["target"] == "thd_max_pct"]
+        assert bool(got) is beyond
+        if got:
+            assert got[0]["reachable"] == pytest.approx(floor)
