@@ -106,7 +106,7 @@ CIRCUIT_KEYS = ("parts", "tolerances")
 #: it, or ``"none"`` to have no limit.
 DEFAULTS = {"thd_max_pct": 5.0, "ic_min_a": 100e-6}
 #: The gain target (dB) a request to design gets when it names none, per topology:
-#: each topology module's ``DEFAULT_GAIN_DB`` (ce: 20 dB; cb and cc: none).
+#: each topology module's ``DEFAULT_GAIN_DB`` (ce and cb: 20 dB; cc: none).
 #: ``gain_db = "none"`` asks for no gain target.
 DEFAULT_GAIN_DB = {m.NAME: m.DEFAULT_GAIN_DB for m in _stages.modules()
                    if m.DEFAULT_GAIN_DB is not None}

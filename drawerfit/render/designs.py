@@ -279,7 +279,9 @@ def limit_lines(result) -> list[str]:
             req, reach = f"{x['requested']:.1f} dB", f"{x['reachable']:.1f} dB"
         else:
             req, reach = _si(x["requested"], unit), _si(x["reachable"], unit)
-        out.append(f"beyond reach: {x['target']} {req} asked, at most {reach} possible "
+        # a ceiling (``*_max_*``) is out of reach from below, a floor or a gain from above
+        side = "at least" if "_max_" in x["target"] else "at most"
+        out.append(f"beyond reach: {x['target']} {req} asked, {side} {reach} possible "
                    f"— {x['reason']}")
     return out
 
