@@ -18,6 +18,13 @@ drawer holds less).
 Capacitors: the search chooses each network's capacitors by its own rule, not by
 price, so it prices capacitor pieces at 0 — a lower bound.  A design it finds that
 is not negative once its capacitors are priced leaves that build open.
+
+Copies carried together (:mod:`~optimiser.planning.copies`): a column of a build
+carries :func:`~optimiser.planning.copies.carried` copies at once (all of an
+identical build), so the search prices designs for that many copies over the
+drawer pooled and cut for them, and a column that does not fit that many times
+(:func:`~optimiser.planning.copies.fits`) is never offered to the relaxation: no
+plan can use it, so leaving it out keeps every bound valid and tightens it.
 """
 
 from __future__ import annotations
@@ -31,6 +38,7 @@ from inventory.errors import InputError
 from inventory.parts import StockSnapshot
 from optimiser.design import Design
 from optimiser.planning.candidates import PlanItem, design_key
+from optimiser.planning.copies import carried, copies_drawer, fits
 from optimiser.planning.master import Column, MasterSolution, Pools, solve_master
 from optimiser.planning.model import ABS_GAP_SHARE
 from optimiser.planning.objective import cost_quantum, score_map, score_map_inverse, score_weight
@@ -40,7 +48,7 @@ from optimiser.search.priced import priced_search
 from optimiser.search.pricing import Pricing
 
 __all__ = ["PRICING_TIME_S", "MAX_ROUNDS", "Bound", "Generated", "generate_columns",
-           "finish_bound"]
+           "finish_bound", "new_column"]
 
 #: Seconds for all pricing searches together unless the caller gives its own
 #: (0: no pricing, the candidates alone).  Longer proves more on large drawers.
@@ -99,6 +107,16 @@ class Generated:
     reasons: dict[str, str] = field(default_factory=dict)
 
 
+def new_column(b: int, k: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
+               pools: Pools) -> Column | None:
+    """The column of design ``d`` for build ``b`` carrying ``k`` copies at once, or
+    None when it names an unknown row or does not fit ``k`` times."""
+    c = _column(b, d, rows, catalogue, pools)
+    if c is None or not fits(c.pieces, k, pools.held, pools.unit):
+        return None
+    return c
+
+
 def _column(b: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
             pools: Pools) -> Column | None:
     try:
@@ -108,7 +126,7 @@ def _column(b: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
     return Column(b, pools.pieces(need), score_map(d.score))
 
 
-def _search_price(sol: MasterSolution, rows, catalogue, pools, d: Design) -> float:
+def _search_price(price: dict, rows, catalogue, pools, d: Design) -> float:
     """Σ price × pieces of one copy, capacitors at 0 (a lower bound, see the module notes)."""
     try:
         need = design_demand(d, rows, catalogue)
@@ -118,7 +136,7 @@ def _search_price(sol: MasterSolution, rows, catalogue, pools, d: Design) -> flo
     for rid, k in need.items():
         p = pools.of_row[rid]
         if p[0] != "capacitor":
-            total += sol.price.get(p, 0.0) * k
+            total += price.get(p, 0.0) * k
     return total
 
 
@@ -172,6 +190,8 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
     weight = score_weight(quantum, total)
     pools = Pools(rows, catalogue, total, cost_unit=weight)
     counts = [it.count for it in items]
+    ks = [carried(it.count, it.identical) for it in items]
+    drawers: dict[int, StockSnapshot] = {}
     bound = Bound(budget_s=budget_s)
     designs = [list(it.candidates) for it in items]
     seen = [{design_key(d) for d in ds} for ds in designs]
@@ -179,7 +199,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
     col_design: list[tuple[int, Design]] = []
     for b, ds in enumerate(designs):
         for d in ds:
-            c = _column(b, d, rows, catalogue, pools)
+            c = new_column(b, ks[b], d, rows, catalogue, pools)
             if c is not None:
                 columns.append(c)
                 col_design.append((b, d))
@@ -216,7 +236,8 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         searched: dict[str, tuple[list[Design], bool]] = {}
         top_mu: dict[str, float] = {}
         for b, req in enumerate(requests):
-            top_mu[repr(req)] = max(top_mu.get(repr(req), -math.inf), float(sol.mu[b]))
+            key = (repr(req), ks[b])
+            top_mu[key] = max(top_mu.get(key, -math.inf), float(sol.mu[b]))
         for b, (it, req) in enumerate(zip(items, requests, strict=True)):
             left = budget_s - (time.perf_counter() - t0)
             if left <= 0:
@@ -227,14 +248,18 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             if progress is not None:
                 progress(f"pricing designs for {it.name} (round {rnd + 1})")
             mu = float(sol.mu[b])
-            key = repr(req)
+            k = ks[b]
+            key = (repr(req), k)
             pricing = Pricing(0.0 if phase1 else 1.0, score_map, score_map_inverse,
-                              lambda d, sol=sol: _search_price(sol, rows, catalogue, pools, d),
+                              lambda d, sol=sol: _search_price(sol.price, rows, catalogue,
+                                                               pools, d),
                               top_mu[key] - RC_TOL)
             if key not in searched:     # builds of one request share one search per round
+                if k not in drawers:
+                    drawers[k] = copies_drawer(augmented, k)
                 try:
                     searched[key] = priced_search(
-                        replace(req, builds=1), augmented, pricing,
+                        replace(req, builds=k), drawers[k], pricing,
                         lambda rid, sol=sol: sol.price.get(pools.of_row.get(rid), 0.0),
                         COLUMNS_PER_SEARCH, left, search_fn=search_fn)
                 except InputError as exc:
@@ -248,21 +273,27 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             # the least reduced cost of this build (a lower bound: capacitors at 0)
             least.append(min([pricing.value(d) - mu for d in found] + [-RC_TOL]))
             new_here = 0
+            overdrawn = 0
             for d in found:
-                k = design_key(d)
-                if k in seen[b]:
+                dk = design_key(d)
+                if dk in seen[b]:
                     continue
                 c = _column(b, d, rows, catalogue, pools)
+                if c is not None and not fits(c.pieces, k, pools.held, pools.unit):
+                    overdrawn += 1
+                    continue
                 if c is None or sol.reduced_cost(c, phase1) >= -RC_TOL:
                     continue
-                seen[b].add(k)
+                seen[b].add(dk)
                 designs[b].append(d)
                 columns.append(c)
                 col_design.append((b, d))
                 new_here += 1
             if found and not new_here:
-                round_exact = False     # only capacitors' prices keep them from counting
-                msg = f"{it.name}: designs whose capacitors' prices the search does not weigh"
+                round_exact = False     # only capacitors' prices or overdrawn pools
+                msg = (f"{it.name}: designs that take more of a value than its rows hold "
+                       f"for {k} copies" if overdrawn else
+                       f"{it.name}: designs whose capacitors' prices the search does not weigh")
                 if msg not in bound.open:
                     bound.open.append(msg)
             added += new_here

@@ -14,6 +14,7 @@ from optimiser.planning.candidates import (
     gather_candidates,
 )
 from optimiser.planning.colgen import PRICING_TIME_S, finish_bound, generate_columns
+from optimiser.planning.copies import carried
 from optimiser.planning.diagnosis import diagnose
 from optimiser.planning.model import SOLVER_TIME_LIMIT_S, build_model, read_solution, solve_model
 from optimiser.planning.results import Plan, Shortfall, SolverReport
@@ -102,7 +103,8 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
         if progress is not None:
             progress(f"searching designs for {b.name}")
         designs, note, st = gather_candidates(b.request, snapshot, augmented, top=candidates,
-                                              search_fn=search_fn, search_time_s=search_time_s)
+                                              search_fn=search_fn, search_time_s=search_time_s,
+                                              copies=carried(b.count, b.identical))
         search_stats.append({"request": b.name, **st.to_json(), "candidates": len(designs)})
         items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,
                               strict_tolerance=b.request.wants_yield))
