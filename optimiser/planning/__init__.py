@@ -7,6 +7,9 @@
 * :mod:`~optimiser.planning.model` — the mixed-integer programme: built, solved, read;
 * :mod:`~optimiser.planning.assemble` — a solution turned into a plan;
 * :mod:`~optimiser.planning.diagnosis` — why a plan cannot be met;
+* :mod:`~optimiser.planning.colgen`, :mod:`~optimiser.planning.master` — column
+  generation and its relaxation; :mod:`~optimiser.planning.closing` — the gap
+  between plan and bound closed by enumeration;
 * :mod:`~optimiser.planning.results` — the plan's records and their JSON;
 * :mod:`~optimiser.planning.planner` — the entry points, :func:`make_plan` and
   :func:`plan_builds`.

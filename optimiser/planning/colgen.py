@@ -47,8 +47,8 @@ from optimiser.purchase import Catalogue
 from optimiser.search.priced import priced_search
 from optimiser.search.pricing import Pricing
 
-__all__ = ["PRICING_TIME_S", "MAX_ROUNDS", "Bound", "Generated", "generate_columns",
-           "finish_bound", "new_column"]
+__all__ = ["PRICING_TIME_S", "MAX_ROUNDS", "RC_TOL", "Bound", "Duals", "Generated",
+           "generate_columns", "finish_bound", "new_column"]
 
 #: Seconds for all pricing searches together unless the caller gives its own
 #: (0: no pricing, the candidates alone).  Longer proves more on large drawers.
@@ -82,6 +82,11 @@ class Bound:
     pricing_rounds: int = 0
     seconds: float = 0.0
     budget_s: float = 0.0
+    #: How the gap was closed: "bound" (the plan meets the LP bound), "enumeration"
+    #: (every design that could beat the plan was offered), or None (open).
+    closed_by: str | None = None
+    enumerated: int = 0                  # designs added by enumeration
+    enumeration_passes: int = 0
 
     def to_json(self) -> dict:
         def r(x):
@@ -92,7 +97,23 @@ class Bound:
                 "pricing_complete": self.pricing_complete, "open": list(self.open),
                 "columns_generated": self.columns_generated,
                 "pricing_rounds": self.pricing_rounds, "seconds": round(self.seconds, 3),
-                "budget_s": self.budget_s}
+                "budget_s": self.budget_s, "closed_by": self.closed_by,
+                "enumerated": self.enumerated,
+                "enumeration_passes": self.enumeration_passes}
+
+
+@dataclass(frozen=True)
+class Duals:
+    """The relaxation's prices at the round that gave the bound, and each build's
+    least reduced cost there (≤ −RC_TOL), in units of one copy's score weight."""
+
+    mu: tuple[float, ...]
+    price: dict[tuple, float]
+    least: tuple[float, ...]
+
+    def piece_price(self, pools: Pools, rows, catalogue, d: Design) -> float:
+        """Σ price × pieces of one copy, capacitors at 0 (see the module notes)."""
+        return _search_price(self.price, rows, catalogue, pools, d)
 
 
 @dataclass
@@ -105,6 +126,13 @@ class Generated:
     weight: float
     quantum: float
     reasons: dict[str, str] = field(default_factory=dict)
+    #: What gap closing (:mod:`~optimiser.planning.closing`) needs: the duals of the
+    #: bound's round (None: no bound), the pools and rows, and whether every
+    #: request's search is exact (no yield target).
+    duals: Duals | None = None
+    pools: Pools | None = None
+    rows: dict[int, Row] = field(default_factory=dict)
+    exact: bool = False
 
 
 def new_column(b: int, k: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
@@ -204,6 +232,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 columns.append(c)
                 col_design.append((b, d))
     best_lagrange = -math.inf
+    best_duals: Duals | None = None
     phase1 = False
     reasons: dict[str, str] = {}
     exact = True
@@ -224,6 +253,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         if phase1 and sol.value <= PHASE1_TOL:
             phase1 = False
             best_lagrange = -math.inf
+            best_duals = None
             sol = solve_master(columns, counts, pools)
         left = budget_s - (time.perf_counter() - t0)
         if left <= 0:
@@ -300,7 +330,10 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         bound.columns_generated += added
         if round_exact and len(least) == len(items):
             lag = sol.value + sum(n * m for n, m in zip(counts, least, strict=True))
-            best_lagrange = max(best_lagrange, lag)
+            if lag > best_lagrange:
+                best_lagrange = lag
+                best_duals = Duals(tuple(float(m) for m in sol.mu), dict(sol.price),
+                                   tuple(least))
             if phase1 and best_lagrange > PHASE1_TOL:
                 bound.proven_infeasible = True
                 bound.pricing_complete = added == 0
@@ -318,7 +351,9 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         bound.lp = best_lagrange * weight
     bound.seconds = time.perf_counter() - t0
     out = [replace(it, candidates=tuple(designs[b])) for b, it in enumerate(items)]
-    return Generated(out, bound, weight, quantum, reasons)
+    return Generated(out, bound, weight, quantum, reasons,
+                     best_duals if not phase1 and math.isfinite(best_lagrange) else None,
+                     pools, rows, exact)
 
 
 def finish_bound(gen: Generated, plan) -> Bound:
@@ -340,6 +375,9 @@ def finish_bound(gen: Generated, plan) -> Bound:
     # closed: within the programme's own absolute gap and what the bound gives up
     # for reduced costs above -RC_TOL
     total = sum(it.count for it in gen.items)
-    bound.proven_optimal = (optimal and bound.pricing_complete
-                            and bound.gap <= gen.weight * (ABS_GAP_SHARE + total * RC_TOL))
+    # (the bound holds whether or not pricing is complete: a Lagrangian bound of a
+    # round whose searches all completed)
+    bound.proven_optimal = optimal and bound.gap <= gen.weight * (ABS_GAP_SHARE + total * RC_TOL)
+    if bound.proven_optimal:
+        bound.closed_by = "bound"
     return bound

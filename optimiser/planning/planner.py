@@ -13,6 +13,7 @@ from optimiser.planning.candidates import (
     PlanItem,
     gather_candidates,
 )
+from optimiser.planning.closing import close_gap
 from optimiser.planning.colgen import PRICING_TIME_S, finish_bound, generate_columns
 from optimiser.planning.copies import carried
 from optimiser.planning.diagnosis import diagnose
@@ -90,8 +91,9 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
     progress : callable, optional
         Called with a short text before each request's search.
     pricing_time_s : float, optional
-        Seconds for column generation (:mod:`optimiser.planning.colgen`); 0 or
-        None: the candidates alone, as before, and no ``bound``.  Skipped when
+        Seconds for column generation (:mod:`optimiser.planning.colgen`) and then
+        for closing the gap by enumeration (:mod:`optimiser.planning.closing`,
+        what is left of them); 0 or None: the candidates alone, and no ``bound``.  Skipped when
         ``search_fn`` stands in for the search and ``pricing_fn`` is not given.
     pricing_fn : callable, optional
         Stands in for :func:`optimiser.search.search_designs` in pricing (tests).
@@ -128,6 +130,12 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
     plan = plan_builds(items, augmented, catalogue, solver=solver, time_limit=time_limit)
     if gen is not None:
         plan.bound = finish_bound(gen, plan)
+        items, plan = close_gap(
+            gen, plan, [b.request for b in buildlist.builds], augmented, catalogue,
+            lambda its: plan_builds(its, augmented, catalogue, solver=solver,
+                                    time_limit=time_limit),
+            budget_s=max(pricing_time_s - gen.bound.seconds, 0.0), search_fn=pricing_fn,
+            progress=progress)
     plan.stats["search"] = search_stats
     plan.stats["search_seconds"] = sum(s["seconds"] for s in search_stats)
     return plan

@@ -1,22 +1,29 @@
-"""Copies carried together: columns that serve ``k`` copies at once.
+"""Copies carried together, and the gap between plan and bound closed by enumeration.
 
 References (outside the planner):
 
 * counting: ``k`` identical copies of a design that takes ``n`` pieces of a value
-  per copy need ``k·n`` pieces of that value, whichever rows give them.
+  per copy need ``k·n`` pieces of that value, whichever rows give them;
+* the programme over a far larger fixed list of designs (each request's best 100
+  for the same copies): a plan proven optimal over every design is no worse than
+  the plan over that list (to the solver's own absolute gap).
 """
 
 from __future__ import annotations
 
+import math
 from collections import defaultdict
 from dataclasses import replace
 
+from drawerfit.render.plan import bound_line
 from inventory.parts import Capacitor, Resistor, StockSnapshot
 from optimiser.buildlist import BuildList, BuildSpec
 from optimiser.planning import PlanItem, gather_candidates, make_plan
 from optimiser.planning.colgen import generate_columns
 from optimiser.planning.copies import carried, copies_drawer, fits
-from tests.optimiser.test_plan_colgen import C_VALUES, CE, R_VALUES, T
+from optimiser.planning.model import ABS_GAP_SHARE
+from optimiser.planning.objective import cost_quantum, score_weight
+from tests.optimiser.test_plan_colgen import C_VALUES, CE, R_VALUES, T, drawer, objective
 
 
 def pool_need(design) -> dict[tuple, int]:
@@ -79,3 +86,37 @@ def test_k_copy_columns_never_take_a_value_short_for_k_copies():
     assert plan.feasible and plan.cost == 0
     for d in (a.design for b in plan.builds for a in b.allocations):
         assert all(n * k <= held[p] for p, n in pool_need(d).items())
+
+
+def test_identical_builds_competing_for_a_scarce_value_closed_by_enumeration(monkeypatch):
+    # Two builds of two identical copies; each build's best designs (for two copies)
+    # take one 220R per copy, and the drawer holds three: only one build can have
+    # them.  The relaxation splits the other build's copies (one on 220R, one
+    # elsewhere), so its bound stays below every plan; enumeration of the designs
+    # that could beat the plan closes the gap.
+    snap = drawer({220.0: 3})
+    blist = BuildList((BuildSpec("a", CE, 2, True), BuildSpec("b", CE, 2, True)))
+    fixed = make_plan(blist, snap, candidates=2, pricing_time_s=0)
+    assert not fixed.feasible and all(not s.proven for s in fixed.infeasible)
+
+    monkeypatch.setattr("optimiser.planning.closing.ENUM_PASSES", 0)
+    unclosed = make_plan(blist, snap, candidates=2, pricing_time_s=60)
+    assert unclosed.feasible and unclosed.cost == 0
+    assert unclosed.bound.gap > 0 and not unclosed.bound.proven_optimal
+    assert unclosed.bound.closed_by is None
+    assert not bound_line(unclosed.bound).startswith("Optimal")
+    monkeypatch.undo()
+
+    plan = make_plan(blist, snap, candidates=2, pricing_time_s=60)
+    assert plan.feasible and plan.cost == 0
+    b = plan.bound
+    assert b.proven_optimal and b.closed_by == "enumeration" and b.enumerated > 0, b.to_json()
+    assert bound_line(b).startswith("Optimal over every design")
+    assert plan.to_json()["bound"]["closed_by"] == "enumeration"
+    # reference: the programme over each request's best 100 designs for two copies
+    weight = score_weight(cost_quantum(None), 4)
+    full = make_plan(blist, snap, candidates=100, pricing_time_s=0)
+    assert full.feasible and full.cost == 0
+    assert objective(full, weight) >= b.lp - 1e-12
+    assert objective(plan, weight) <= objective(full, weight) + weight * ABS_GAP_SHARE
+    assert math.isclose(objective(plan, weight), b.cost, rel_tol=1e-12)
