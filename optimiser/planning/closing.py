@@ -106,7 +106,7 @@ def close_gap(gen: Generated, plan, requests: Sequence, augmented: StockSnapshot
             k = ks[b]
             key = (repr(req), k)
             pricing = Pricing(1.0, score_map, score_map_inverse,
-                              lambda d: duals.piece_price(pools, rows, catalogue, d),
+                              lambda d, k=k: duals.piece_price(pools, rows, catalogue, d, k),
                               cutoff[key])
             if key not in searched:
                 left = budget_s - (time.perf_counter() - t0)
@@ -120,7 +120,7 @@ def close_gap(gen: Generated, plan, requests: Sequence, augmented: StockSnapshot
                     try:
                         searched[key] = priced_search(
                             replace(req, builds=k), drawers[k], pricing,
-                            lambda rid: duals.price.get(pools.of_row.get(rid), 0.0),
+                            lambda rid, k=k: duals.row_price(pools, rid, k),
                             ENUM_TOP, left, search_fn=search_fn)
                     except InputError:
                         searched[key] = ([], False)

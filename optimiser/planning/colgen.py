@@ -111,9 +111,13 @@ class Duals:
     price: dict[tuple, float]
     least: tuple[float, ...]
 
-    def piece_price(self, pools: Pools, rows, catalogue, d: Design) -> float:
+    def piece_price(self, pools: Pools, rows, catalogue, d: Design, k: int = 1) -> float:
         """Σ price × pieces of one copy, capacitors at 0 (see the module notes)."""
-        return _search_price(self.price, rows, catalogue, pools, d)
+        return _search_price(self.price, rows, catalogue, pools, d, k)
+
+    def row_price(self, pools: Pools, rid: int, k: int = 1) -> float:
+        """The price of one piece of a row for a column of ``k`` copies."""
+        return _row_price(self.price, pools, rid, k)
 
 
 @dataclass
@@ -142,7 +146,30 @@ def new_column(b: int, k: int, d: Design, rows: dict[int, Row], catalogue: Catal
     c = _column(b, d, rows, catalogue, pools)
     if c is None or not fits(c.pieces, k, pools.held, pools.unit):
         return None
-    return c
+    return _with_forced(c, k, pools)
+
+
+def _with_forced(c: Column, k: int, pools: Pools) -> Column:
+    """The column with the purchases its ``k`` copies force made part of it.
+
+    ``k`` copies of a column that need ``k·a_P > held_P`` pieces of a purchasable
+    pool make any plan that uses it buy at least ``f_P = k·a_P − held_P`` of them
+    (a plan gives the column none or at least ``k`` copies; several such columns
+    together force at most what they buy, since ``held_P ≥ 0``).  Per copy the
+    column then costs ``unit_P · f_P / k`` more and takes ``a_P − f_P / k`` pieces
+    from the pool's stock row: every plan is still a solution of the relaxation
+    at the same objective, so the bound stays valid, and the relaxation can no
+    longer put some copies on the stock that is there and the rest elsewhere
+    without buying.  Since ``σ_P ≤ unit_P``, the change only raises a reduced
+    cost: the search's value (which leaves it out) stays a lower bound.
+    """
+    forced = {p: k * n - pools.held.get(p, 0) for p, n in c.pieces.items()
+              if p in pools.unit and k * n > pools.held.get(p, 0)}
+    if not forced:
+        return c
+    pieces = {p: n - forced.get(p, 0) / k for p, n in c.pieces.items()}
+    extra = sum(pools.unit[p] * f / k for p, f in forced.items())
+    return Column(c.build, pieces, c.cost + extra)
 
 
 def _column(b: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
@@ -154,18 +181,35 @@ def _column(b: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
     return Column(b, pools.pieces(need), score_map(d.score))
 
 
-def _search_price(price: dict, rows, catalogue, pools, d: Design) -> float:
-    """Σ price × pieces of one copy, capacitors at 0 (a lower bound, see the module notes)."""
+def _forced(price: dict, pools: Pools, p: tuple, n: int, k: int) -> float:
+    """Per copy, what ``k`` copies taking ``n`` pieces each of pool ``p`` must buy,
+    at the unit price less the pool's price (:func:`_with_forced`)."""
+    if p not in pools.unit:
+        return 0.0
+    short = k * n - pools.held.get(p, 0)
+    return max(pools.unit[p] - price.get(p, 0.0), 0.0) * short / k if short > 0 else 0.0
+
+
+def _search_price(price: dict, rows, catalogue, pools, d: Design, k: int = 1) -> float:
+    """Σ price × pieces of one copy and the purchases ``k`` copies force, capacitors
+    at 0 (a lower bound, see the module notes)."""
     try:
         need = design_demand(d, rows, catalogue)
     except Unusable:
         return math.inf
-    total = 0.0
-    for rid, k in need.items():
+    per: dict[tuple, int] = {}
+    for rid, n in need.items():
         p = pools.of_row[rid]
         if p[0] != "capacitor":
-            total += price.get(p, 0.0) * k
-    return total
+            per[p] = per.get(p, 0) + n
+    return sum(price.get(p, 0.0) * n + _forced(price, pools, p, n, k) for p, n in per.items())
+
+
+def _row_price(price: dict, pools: Pools, rid: int, k: int) -> float:
+    """One piece of a row: its pool's price and, as a lower bound of the purchases
+    forced (``n·(k − held)⁺ ≤ (k·n − held)⁺``), one piece's share of them."""
+    p = pools.of_row.get(rid)
+    return 0.0 if p is None else price.get(p, 0.0) + _forced(price, pools, p, 1, k)
 
 
 def _why_infeasible(sol: MasterSolution, items: Sequence[PlanItem], pools: Pools) -> dict[str, str]:
@@ -262,6 +306,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         bound.pricing_rounds = rnd + 1
         added = 0
         round_exact = exact
+        stalled = False
         least: list[float] = []
         searched: dict[str, tuple[list[Design], bool]] = {}
         top_mu: dict[str, float] = {}
@@ -281,8 +326,8 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             k = ks[b]
             key = (repr(req), k)
             pricing = Pricing(0.0 if phase1 else 1.0, score_map, score_map_inverse,
-                              lambda d, sol=sol: _search_price(sol.price, rows, catalogue,
-                                                               pools, d),
+                              lambda d, sol=sol, k=k: _search_price(sol.price, rows, catalogue,
+                                                                    pools, d, k),
                               top_mu[key] - RC_TOL)
             if key not in searched:     # builds of one request share one search per round
                 if k not in drawers:
@@ -290,7 +335,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 try:
                     searched[key] = priced_search(
                         replace(req, builds=k), drawers[k], pricing,
-                        lambda rid, sol=sol: sol.price.get(pools.of_row.get(rid), 0.0),
+                        lambda rid, sol=sol, k=k: _row_price(sol.price, pools, rid, k),
                         COLUMNS_PER_SEARCH, left, search_fn=search_fn)
                 except InputError as exc:
                     searched[key] = ([], False)
@@ -312,6 +357,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 if c is not None and not fits(c.pieces, k, pools.held, pools.unit):
                     overdrawn += 1
                     continue
+                c = None if c is None else _with_forced(c, k, pools)
                 if c is None or sol.reduced_cost(c, phase1) >= -RC_TOL:
                     continue
                 seen[b].add(dk)
@@ -320,10 +366,13 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 col_design.append((b, d))
                 new_here += 1
             if found and not new_here:
-                round_exact = False     # only capacitors' prices or overdrawn pools
+                # only what the search's value leaves out keeps them from counting:
+                # the least value still bounds (a lower bound), but pricing is not done
+                stalled = True
                 msg = (f"{it.name}: designs that take more of a value than its rows hold "
                        f"for {k} copies" if overdrawn else
-                       f"{it.name}: designs whose capacitors' prices the search does not weigh")
+                       f"{it.name}: designs whose capacitors' prices or forced purchases "
+                       "the search does not weigh")
                 if msg not in bound.open:
                     bound.open.append(msg)
             added += new_here
@@ -340,7 +389,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 reasons = _why_infeasible(sol, items, pools)
                 break
             if added == 0:
-                complete_round = True
+                complete_round = not stalled
                 break
         elif added == 0:
             break
