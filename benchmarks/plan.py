@@ -62,7 +62,9 @@ from optimiser.planning import (  # noqa: E402
     stock_rows,
 )
 from optimiser.planning.candidates import SEARCH_TIME_LIMIT_S  # noqa: E402
+from optimiser.planning.closing import close_gap  # noqa: E402
 from optimiser.planning.colgen import finish_bound, generate_columns  # noqa: E402
+from optimiser.planning.copies import carried  # noqa: E402
 from optimiser.purchase import PurchaseOptions, augment  # noqa: E402
 from optimiser.request import parse_request  # noqa: E402
 
@@ -233,7 +235,8 @@ def main(argv=None) -> int:
     for b in blist.builds if not items else ():
         t0 = time.perf_counter()
         designs, note, st = gather_candidates(b.request, snap, augmented, top=args.candidates,
-                                              search_time_s=args.search_time or None)
+                                              search_time_s=args.search_time or None,
+                                              copies=carried(b.count, b.identical))
         dt = time.perf_counter() - t0
         t_search += dt
         stopped = st.stopped_at_time_limit
@@ -279,9 +282,13 @@ def main(argv=None) -> int:
         t0 = time.perf_counter()
         gen = generate_columns(items, [b.request for b in blist.builds], augmented, catalogue,
                                budget_s=args.pricing_time)
-        plan = plan_builds(gen.items, augmented, catalogue, solver="cbc",
-                           time_limit=args.time_limit)
-        b = finish_bound(gen, plan)
+        def solve(its):
+            return plan_builds(its, augmented, catalogue, solver="cbc", time_limit=args.time_limit)
+        plan = solve(gen.items)
+        plan.bound = finish_bound(gen, plan)
+        _, plan = close_gap(gen, plan, [b.request for b in blist.builds], augmented, catalogue,
+                            solve, budget_s=max(args.pricing_time - gen.bound.seconds, 0.0))
+        b = plan.bound
         total = time.perf_counter() - t0
 
         def fmt(x):
@@ -294,7 +301,8 @@ def main(argv=None) -> int:
               f"(× {total / base:.1f} the LP baseline)")
         print(f"  cost {plan.cost:.2f}; objective {fmt(b.cost)}; LP bound {fmt(b.lp)}; "
               f"gap {fmt(b.gap)}; proven cheapest: {b.proven_cheapest}, optimal: "
-              f"{b.proven_optimal}, infeasible: {b.proven_infeasible}")
+              f"{b.proven_optimal} (closed by {b.closed_by or 'nothing'}, {b.enumerated} "
+              f"designs enumerated), infeasible: {b.proven_infeasible}")
         for why in b.open:
             print(f"  open: {why}")
     return 0

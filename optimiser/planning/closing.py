@@ -79,6 +79,9 @@ def close_gap(gen: Generated, plan, requests: Sequence, augmented: StockSnapshot
     duals = gen.duals
     if bound is None or bound.proven_optimal or duals is None or not gen.exact:
         return items, plan
+    if budget_s <= 0:
+        bound.open.append("no time was left for enumeration")
+        return items, plan
     catalogue = catalogue or Catalogue()
     pools, rows = gen.pools, gen.rows
     ks = [carried(it.count, it.identical) for it in items]

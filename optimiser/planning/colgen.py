@@ -301,7 +301,8 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             sol = solve_master(columns, counts, pools)
         left = budget_s - (time.perf_counter() - t0)
         if left <= 0:
-            bound.open.append(f"the pricing time ({budget_s:g} s) ran out")
+            if f"the pricing time ({budget_s:g} s) ran out" not in bound.open:
+                bound.open.append(f"the pricing time ({budget_s:g} s) ran out")
             break
         bound.pricing_rounds = rnd + 1
         added = 0
