@@ -81,6 +81,10 @@ def _money(x: float) -> str:
 def bound_line(bound) -> str:
     """What column generation proved of a plan, in one or two sentences."""
     b = bound
+    if b.proven_optimal and b.closed_by == "enumeration":
+        return ("Optimal over every design the drawer allows (every design that could "
+                f"beat the plan was enumerated and offered: {b.enumerated} added in "
+                f"{b.enumeration_passes} passes; LP bound {b.lp:.6g}, plan {b.cost:.6g}).")
     if b.proven_optimal:
         return ("Optimal over every design the drawer allows (the LP bound meets the plan; "
                 f"{b.columns_generated} designs added in {b.pricing_rounds} pricing rounds).")

@@ -1,11 +1,15 @@
 """Planning several builds against one drawer.
 
 * :mod:`~optimiser.planning.candidates` — the designs offered per request;
+* :mod:`~optimiser.planning.copies` — the copies one design carries, and what fits them;
 * :mod:`~optimiser.planning.rows` — stock rows, stand-ins, pieces per copy;
 * :mod:`~optimiser.planning.objective` — normalised scores and the cost step;
 * :mod:`~optimiser.planning.model` — the mixed-integer programme: built, solved, read;
 * :mod:`~optimiser.planning.assemble` — a solution turned into a plan;
 * :mod:`~optimiser.planning.diagnosis` — why a plan cannot be met;
+* :mod:`~optimiser.planning.colgen`, :mod:`~optimiser.planning.master` — column
+  generation and its relaxation; :mod:`~optimiser.planning.closing` — the gap
+  between plan and bound closed by enumeration;
 * :mod:`~optimiser.planning.results` — the plan's records and their JSON;
 * :mod:`~optimiser.planning.planner` — the entry points, :func:`make_plan` and
   :func:`plan_builds`.

@@ -1,6 +1,7 @@
-"""The designs offered to the programme per request: the search runs for one copy
-and its best designs from the drawer, from the drawer plus what may be bought,
-and per transistor type are merged without duplicates."""
+"""The designs offered to the programme per request: the search runs for the
+copies one design must carry (:mod:`~optimiser.planning.copies`) and its best
+designs from the drawer, from the drawer plus what may be bought, and per
+transistor type are merged without duplicates."""
 
 from __future__ import annotations
 
@@ -81,7 +82,7 @@ def design_key(d: Design) -> tuple:
 
 def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot, *,
                       top: int = DEFAULT_CANDIDATES, search_fn: Callable | None = None,
-                      search_time_s: float | None = SEARCH_TIME_LIMIT_S
+                      search_time_s: float | None = SEARCH_TIME_LIMIT_S, copies: int = 1
                       ) -> tuple[list[Design], str, CandidateSearches]:
     """Candidate designs for one request: enough, and varied enough, to give the programme choices.
 
@@ -95,8 +96,11 @@ def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot
        that many, so that a scarce type never leaves the programme without
        alternatives.
 
-    The search runs for one copy (``builds = 1``): quantities for all copies
-    are the programme's business.
+    The search runs for ``copies`` copies (``builds = copies``): the copies one
+    design carries together (:func:`~optimiser.planning.copies.carried`: all of an
+    identical build, else one), so every value holds enough for them and the
+    capacitors are chosen for that many; quantities across builds are the
+    programme's business.
 
     Returns
     -------
@@ -107,7 +111,7 @@ def gather_candidates(request, snapshot: StockSnapshot, augmented: StockSnapshot
     if search_fn is None:
         search_fn = search_module.search      # looked up per call, so it can be replaced
 
-    one = replace(request, builds=1)
+    one = replace(request, builds=max(int(copies), 1))
     found: list[Design] = []
     misses: list[Design] = []
     runs = 0

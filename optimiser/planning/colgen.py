@@ -18,6 +18,13 @@ drawer holds less).
 Capacitors: the search chooses each network's capacitors by its own rule, not by
 price, so it prices capacitor pieces at 0 — a lower bound.  A design it finds that
 is not negative once its capacitors are priced leaves that build open.
+
+Copies carried together (:mod:`~optimiser.planning.copies`): a column of a build
+carries :func:`~optimiser.planning.copies.carried` copies at once (all of an
+identical build), so the search prices designs for that many copies over the
+drawer pooled and cut for them, and a column that does not fit that many times
+(:func:`~optimiser.planning.copies.fits`) is never offered to the relaxation: no
+plan can use it, so leaving it out keeps every bound valid and tightens it.
 """
 
 from __future__ import annotations
@@ -31,6 +38,7 @@ from inventory.errors import InputError
 from inventory.parts import StockSnapshot
 from optimiser.design import Design
 from optimiser.planning.candidates import PlanItem, design_key
+from optimiser.planning.copies import carried, copies_drawer, fits
 from optimiser.planning.master import Column, MasterSolution, Pools, solve_master
 from optimiser.planning.model import ABS_GAP_SHARE
 from optimiser.planning.objective import cost_quantum, score_map, score_map_inverse, score_weight
@@ -39,8 +47,8 @@ from optimiser.purchase import Catalogue
 from optimiser.search.priced import priced_search
 from optimiser.search.pricing import Pricing
 
-__all__ = ["PRICING_TIME_S", "MAX_ROUNDS", "Bound", "Generated", "generate_columns",
-           "finish_bound"]
+__all__ = ["PRICING_TIME_S", "MAX_ROUNDS", "RC_TOL", "Bound", "Duals", "Generated",
+           "generate_columns", "finish_bound", "new_column"]
 
 #: Seconds for all pricing searches together unless the caller gives its own
 #: (0: no pricing, the candidates alone).  Longer proves more on large drawers.
@@ -74,6 +82,11 @@ class Bound:
     pricing_rounds: int = 0
     seconds: float = 0.0
     budget_s: float = 0.0
+    #: How the gap was closed: "bound" (the plan meets the LP bound), "enumeration"
+    #: (every design that could beat the plan was offered), or None (open).
+    closed_by: str | None = None
+    enumerated: int = 0                  # designs added by enumeration
+    enumeration_passes: int = 0
 
     def to_json(self) -> dict:
         def r(x):
@@ -84,7 +97,27 @@ class Bound:
                 "pricing_complete": self.pricing_complete, "open": list(self.open),
                 "columns_generated": self.columns_generated,
                 "pricing_rounds": self.pricing_rounds, "seconds": round(self.seconds, 3),
-                "budget_s": self.budget_s}
+                "budget_s": self.budget_s, "closed_by": self.closed_by,
+                "enumerated": self.enumerated,
+                "enumeration_passes": self.enumeration_passes}
+
+
+@dataclass(frozen=True)
+class Duals:
+    """The relaxation's prices at the round that gave the bound, and each build's
+    least reduced cost there (≤ −RC_TOL), in units of one copy's score weight."""
+
+    mu: tuple[float, ...]
+    price: dict[tuple, float]
+    least: tuple[float, ...]
+
+    def piece_price(self, pools: Pools, rows, catalogue, d: Design, k: int = 1) -> float:
+        """Σ price × pieces of one copy, capacitors at 0 (see the module notes)."""
+        return _search_price(self.price, rows, catalogue, pools, d, k)
+
+    def row_price(self, pools: Pools, rid: int, k: int = 1) -> float:
+        """The price of one piece of a row for a column of ``k`` copies."""
+        return _row_price(self.price, pools, rid, k)
 
 
 @dataclass
@@ -97,6 +130,46 @@ class Generated:
     weight: float
     quantum: float
     reasons: dict[str, str] = field(default_factory=dict)
+    #: What gap closing (:mod:`~optimiser.planning.closing`) needs: the duals of the
+    #: bound's round (None: no bound), the pools and rows, and whether every
+    #: request's search is exact (no yield target).
+    duals: Duals | None = None
+    pools: Pools | None = None
+    rows: dict[int, Row] = field(default_factory=dict)
+    exact: bool = False
+
+
+def new_column(b: int, k: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
+               pools: Pools) -> Column | None:
+    """The column of design ``d`` for build ``b`` carrying ``k`` copies at once, or
+    None when it names an unknown row or does not fit ``k`` times."""
+    c = _column(b, d, rows, catalogue, pools)
+    if c is None or not fits(c.pieces, k, pools.held, pools.unit):
+        return None
+    return _with_forced(c, k, pools)
+
+
+def _with_forced(c: Column, k: int, pools: Pools) -> Column:
+    """The column with the purchases its ``k`` copies force made part of it.
+
+    ``k`` copies of a column that need ``k·a_P > held_P`` pieces of a purchasable
+    pool make any plan that uses it buy at least ``f_P = k·a_P − held_P`` of them
+    (a plan gives the column none or at least ``k`` copies; several such columns
+    together force at most what they buy, since ``held_P ≥ 0``).  Per copy the
+    column then costs ``unit_P · f_P / k`` more and takes ``a_P − f_P / k`` pieces
+    from the pool's stock row: every plan is still a solution of the relaxation
+    at the same objective, so the bound stays valid, and the relaxation can no
+    longer put some copies on the stock that is there and the rest elsewhere
+    without buying.  Since ``σ_P ≤ unit_P``, the change only raises a reduced
+    cost: the search's value (which leaves it out) stays a lower bound.
+    """
+    forced = {p: k * n - pools.held.get(p, 0) for p, n in c.pieces.items()
+              if p in pools.unit and k * n > pools.held.get(p, 0)}
+    if not forced:
+        return c
+    pieces = {p: n - forced.get(p, 0) / k for p, n in c.pieces.items()}
+    extra = sum(pools.unit[p] * f / k for p, f in forced.items())
+    return Column(c.build, pieces, c.cost + extra)
 
 
 def _column(b: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
@@ -108,18 +181,35 @@ def _column(b: int, d: Design, rows: dict[int, Row], catalogue: Catalogue,
     return Column(b, pools.pieces(need), score_map(d.score))
 
 
-def _search_price(sol: MasterSolution, rows, catalogue, pools, d: Design) -> float:
-    """Σ price × pieces of one copy, capacitors at 0 (a lower bound, see the module notes)."""
+def _forced(price: dict, pools: Pools, p: tuple, n: int, k: int) -> float:
+    """Per copy, what ``k`` copies taking ``n`` pieces each of pool ``p`` must buy,
+    at the unit price less the pool's price (:func:`_with_forced`)."""
+    if p not in pools.unit:
+        return 0.0
+    short = k * n - pools.held.get(p, 0)
+    return max(pools.unit[p] - price.get(p, 0.0), 0.0) * short / k if short > 0 else 0.0
+
+
+def _search_price(price: dict, rows, catalogue, pools, d: Design, k: int = 1) -> float:
+    """Σ price × pieces of one copy and the purchases ``k`` copies force, capacitors
+    at 0 (a lower bound, see the module notes)."""
     try:
         need = design_demand(d, rows, catalogue)
     except Unusable:
         return math.inf
-    total = 0.0
-    for rid, k in need.items():
+    per: dict[tuple, int] = {}
+    for rid, n in need.items():
         p = pools.of_row[rid]
         if p[0] != "capacitor":
-            total += sol.price.get(p, 0.0) * k
-    return total
+            per[p] = per.get(p, 0) + n
+    return sum(price.get(p, 0.0) * n + _forced(price, pools, p, n, k) for p, n in per.items())
+
+
+def _row_price(price: dict, pools: Pools, rid: int, k: int) -> float:
+    """One piece of a row: its pool's price and, as a lower bound of the purchases
+    forced (``n·(k − held)⁺ ≤ (k·n − held)⁺``), one piece's share of them."""
+    p = pools.of_row.get(rid)
+    return 0.0 if p is None else price.get(p, 0.0) + _forced(price, pools, p, 1, k)
 
 
 def _why_infeasible(sol: MasterSolution, items: Sequence[PlanItem], pools: Pools) -> dict[str, str]:
@@ -172,6 +262,8 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
     weight = score_weight(quantum, total)
     pools = Pools(rows, catalogue, total, cost_unit=weight)
     counts = [it.count for it in items]
+    ks = [carried(it.count, it.identical) for it in items]
+    drawers: dict[int, StockSnapshot] = {}
     bound = Bound(budget_s=budget_s)
     designs = [list(it.candidates) for it in items]
     seen = [{design_key(d) for d in ds} for ds in designs]
@@ -179,11 +271,12 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
     col_design: list[tuple[int, Design]] = []
     for b, ds in enumerate(designs):
         for d in ds:
-            c = _column(b, d, rows, catalogue, pools)
+            c = new_column(b, ks[b], d, rows, catalogue, pools)
             if c is not None:
                 columns.append(c)
                 col_design.append((b, d))
     best_lagrange = -math.inf
+    best_duals: Duals | None = None
     phase1 = False
     reasons: dict[str, str] = {}
     exact = True
@@ -204,19 +297,23 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         if phase1 and sol.value <= PHASE1_TOL:
             phase1 = False
             best_lagrange = -math.inf
+            best_duals = None
             sol = solve_master(columns, counts, pools)
         left = budget_s - (time.perf_counter() - t0)
         if left <= 0:
-            bound.open.append(f"the pricing time ({budget_s:g} s) ran out")
+            if f"the pricing time ({budget_s:g} s) ran out" not in bound.open:
+                bound.open.append(f"the pricing time ({budget_s:g} s) ran out")
             break
         bound.pricing_rounds = rnd + 1
         added = 0
         round_exact = exact
+        stalled = False
         least: list[float] = []
         searched: dict[str, tuple[list[Design], bool]] = {}
         top_mu: dict[str, float] = {}
         for b, req in enumerate(requests):
-            top_mu[repr(req)] = max(top_mu.get(repr(req), -math.inf), float(sol.mu[b]))
+            key = (repr(req), ks[b])
+            top_mu[key] = max(top_mu.get(key, -math.inf), float(sol.mu[b]))
         for b, (it, req) in enumerate(zip(items, requests, strict=True)):
             left = budget_s - (time.perf_counter() - t0)
             if left <= 0:
@@ -227,15 +324,19 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             if progress is not None:
                 progress(f"pricing designs for {it.name} (round {rnd + 1})")
             mu = float(sol.mu[b])
-            key = repr(req)
+            k = ks[b]
+            key = (repr(req), k)
             pricing = Pricing(0.0 if phase1 else 1.0, score_map, score_map_inverse,
-                              lambda d, sol=sol: _search_price(sol, rows, catalogue, pools, d),
+                              lambda d, sol=sol, k=k: _search_price(sol.price, rows, catalogue,
+                                                                    pools, d, k),
                               top_mu[key] - RC_TOL)
             if key not in searched:     # builds of one request share one search per round
+                if k not in drawers:
+                    drawers[k] = copies_drawer(augmented, k)
                 try:
                     searched[key] = priced_search(
-                        replace(req, builds=1), augmented, pricing,
-                        lambda rid, sol=sol: sol.price.get(pools.of_row.get(rid), 0.0),
+                        replace(req, builds=k), drawers[k], pricing,
+                        lambda rid, sol=sol, k=k: _row_price(sol.price, pools, rid, k),
                         COLUMNS_PER_SEARCH, left, search_fn=search_fn)
                 except InputError as exc:
                     searched[key] = ([], False)
@@ -248,35 +349,48 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             # the least reduced cost of this build (a lower bound: capacitors at 0)
             least.append(min([pricing.value(d) - mu for d in found] + [-RC_TOL]))
             new_here = 0
+            overdrawn = 0
             for d in found:
-                k = design_key(d)
-                if k in seen[b]:
+                dk = design_key(d)
+                if dk in seen[b]:
                     continue
                 c = _column(b, d, rows, catalogue, pools)
+                if c is not None and not fits(c.pieces, k, pools.held, pools.unit):
+                    overdrawn += 1
+                    continue
+                c = None if c is None else _with_forced(c, k, pools)
                 if c is None or sol.reduced_cost(c, phase1) >= -RC_TOL:
                     continue
-                seen[b].add(k)
+                seen[b].add(dk)
                 designs[b].append(d)
                 columns.append(c)
                 col_design.append((b, d))
                 new_here += 1
             if found and not new_here:
-                round_exact = False     # only capacitors' prices keep them from counting
-                msg = f"{it.name}: designs whose capacitors' prices the search does not weigh"
+                # only what the search's value leaves out keeps them from counting:
+                # the least value still bounds (a lower bound), but pricing is not done
+                stalled = True
+                msg = (f"{it.name}: designs that take more of a value than its rows hold "
+                       f"for {k} copies" if overdrawn else
+                       f"{it.name}: designs whose capacitors' prices or forced purchases "
+                       "the search does not weigh")
                 if msg not in bound.open:
                     bound.open.append(msg)
             added += new_here
         bound.columns_generated += added
         if round_exact and len(least) == len(items):
             lag = sol.value + sum(n * m for n, m in zip(counts, least, strict=True))
-            best_lagrange = max(best_lagrange, lag)
+            if lag > best_lagrange:
+                best_lagrange = lag
+                best_duals = Duals(tuple(float(m) for m in sol.mu), dict(sol.price),
+                                   tuple(least))
             if phase1 and best_lagrange > PHASE1_TOL:
                 bound.proven_infeasible = True
                 bound.pricing_complete = added == 0
                 reasons = _why_infeasible(sol, items, pools)
                 break
             if added == 0:
-                complete_round = True
+                complete_round = not stalled
                 break
         elif added == 0:
             break
@@ -287,7 +401,9 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         bound.lp = best_lagrange * weight
     bound.seconds = time.perf_counter() - t0
     out = [replace(it, candidates=tuple(designs[b])) for b, it in enumerate(items)]
-    return Generated(out, bound, weight, quantum, reasons)
+    return Generated(out, bound, weight, quantum, reasons,
+                     best_duals if not phase1 and math.isfinite(best_lagrange) else None,
+                     pools, rows, exact)
 
 
 def finish_bound(gen: Generated, plan) -> Bound:
@@ -309,6 +425,9 @@ def finish_bound(gen: Generated, plan) -> Bound:
     # closed: within the programme's own absolute gap and what the bound gives up
     # for reduced costs above -RC_TOL
     total = sum(it.count for it in gen.items)
-    bound.proven_optimal = (optimal and bound.pricing_complete
-                            and bound.gap <= gen.weight * (ABS_GAP_SHARE + total * RC_TOL))
+    # (the bound holds whether or not pricing is complete: a Lagrangian bound of a
+    # round whose searches all completed)
+    bound.proven_optimal = optimal and bound.gap <= gen.weight * (ABS_GAP_SHARE + total * RC_TOL)
+    if bound.proven_optimal:
+        bound.closed_by = "bound"
     return bound

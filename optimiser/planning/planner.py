@@ -13,7 +13,9 @@ from optimiser.planning.candidates import (
     PlanItem,
     gather_candidates,
 )
+from optimiser.planning.closing import close_gap
 from optimiser.planning.colgen import PRICING_TIME_S, finish_bound, generate_columns
+from optimiser.planning.copies import carried
 from optimiser.planning.diagnosis import diagnose
 from optimiser.planning.model import SOLVER_TIME_LIMIT_S, build_model, read_solution, solve_model
 from optimiser.planning.results import Plan, Shortfall, SolverReport
@@ -89,8 +91,9 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
     progress : callable, optional
         Called with a short text before each request's search.
     pricing_time_s : float, optional
-        Seconds for column generation (:mod:`optimiser.planning.colgen`); 0 or
-        None: the candidates alone, as before, and no ``bound``.  Skipped when
+        Seconds for column generation (:mod:`optimiser.planning.colgen`) and then
+        for closing the gap by enumeration (:mod:`optimiser.planning.closing`,
+        what is left of them); 0 or None: the candidates alone, and no ``bound``.  Skipped when
         ``search_fn`` stands in for the search and ``pricing_fn`` is not given.
     pricing_fn : callable, optional
         Stands in for :func:`optimiser.search.search_designs` in pricing (tests).
@@ -102,7 +105,8 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
         if progress is not None:
             progress(f"searching designs for {b.name}")
         designs, note, st = gather_candidates(b.request, snapshot, augmented, top=candidates,
-                                              search_fn=search_fn, search_time_s=search_time_s)
+                                              search_fn=search_fn, search_time_s=search_time_s,
+                                              copies=carried(b.count, b.identical))
         search_stats.append({"request": b.name, **st.to_json(), "candidates": len(designs)})
         items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,
                               strict_tolerance=b.request.wants_yield))
@@ -126,6 +130,12 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
     plan = plan_builds(items, augmented, catalogue, solver=solver, time_limit=time_limit)
     if gen is not None:
         plan.bound = finish_bound(gen, plan)
+        items, plan = close_gap(
+            gen, plan, [b.request for b in buildlist.builds], augmented, catalogue,
+            lambda its: plan_builds(its, augmented, catalogue, solver=solver,
+                                    time_limit=time_limit),
+            budget_s=max(pricing_time_s - gen.bound.seconds, 0.0), search_fn=pricing_fn,
+            progress=progress)
     plan.stats["search"] = search_stats
     plan.stats["search_seconds"] = sum(s["seconds"] for s in search_stats)
     return plan

@@ -80,11 +80,12 @@ def pieces_taken(plan) -> dict[int, int]:
 # ---------------------------------------------------------------------------
 
 def test_stock_plan_among_lower_ranked_designs_is_found_and_proven():
-    # Two builds of two identical copies; every design among each build's best two
-    # takes a 220R, and the drawer holds two: the fixed list can only say "not
-    # enough 220R" (unproven), while designs further down the ranking need none.
+    # Two builds of two copies each, free to differ (so each design carries one
+    # copy); every design among each build's best two for one copy takes a 220R,
+    # and the drawer holds two: the fixed list can only say "not enough 220R"
+    # (unproven), while designs further down the ranking need none.
     snap = drawer({220.0: 2})
-    blist = BuildList((BuildSpec("a", CE, 2, True), BuildSpec("b", CE, 2, True)))
+    blist = BuildList((BuildSpec("a", CE, 2, False), BuildSpec("b", CE, 2, False)))
     fixed = make_plan(blist, snap, candidates=2, pricing_time_s=0)
     assert not fixed.feasible and fixed.bound is None
     assert all(not s.proven for s in fixed.infeasible)
