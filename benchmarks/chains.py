@@ -4,7 +4,8 @@ Prints, for each chain request below, the wall-clock seconds of
 :func:`optimiser.search.chains.search_chains` (top 5), the same as a multiple of a
 baseline measured in the same run (the engine evaluating 2000 fixed ce stages,
 ``benchmarks/design.py``), the CPU seconds of the process, how many chains meet,
-the best score and what the search covered.  The drawers: the demo drawer (62
+the best score and what the search covered (capacitor- and direct-coupled;
+``--coupling`` runs one kind).  The drawers: the demo drawer (62
 resistor, 31 capacitor rows, three transistors) and the invented 57-row mixed drawer
 of ``benchmarks/design.py``.  The goal is a proven answer in ≤ 10 s on a
 40–60-row drawer; the chain search proves no ranking (docs/search.md, "Chains"), so
@@ -49,6 +50,12 @@ REQUESTS = [
     ("cb→cc 20 dB from 50 Ω into 1k", "demo",
      {"topology": ["cb", "cc"], "load_ohm": "1k", "source_ohm": 50, "gain_db": 20,
       "f_low_max_hz": 100}),
+    ("ce→cc direct, the new user's", "demo",
+     {"topology": ["ce", "cc"], "coupling": "direct", **USER}),
+    ("the same", "mixed", {"topology": ["ce", "cc"], "coupling": "direct", **USER}),
+    ("ce→cc direct 26 dB into 600 Ω, Zout ≤ 50 Ω, THD ≤ 1 %", "mixed",
+     {"topology": ["ce", "cc"], "coupling": "direct", "load_ohm": 600, "source_ohm": 600,
+      "gain_db": 26, "zout_max_ohm": 50, "thd_max_pct": 1.0, "f_low_max_hz": 50}),
 ]
 
 
@@ -65,12 +72,16 @@ def demo_drawer():
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--runs", type=int, default=1, help="runs per request (median)")
+    ap.add_argument("--coupling", choices=("capacitor", "direct"),
+                    help="only the requests of this coupling")
     args = ap.parse_args()
     base = baseline()
     say(f"baseline (engine, 2000 ce stages): {base:.2f} s")
     drawers = {"demo": demo_drawer(), "mixed": mixed_drawer()}
     walls = []
     for label, drawer, mapping in REQUESTS:
+        if args.coupling and mapping.get("coupling", "capacitor") != args.coupling:
+            continue
         req = parse_request({"supply_v": 12.0, **mapping}, pairs=True)
         times, cpus = [], []
         for _ in range(args.runs):

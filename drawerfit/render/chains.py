@@ -51,6 +51,17 @@ def searched_line(result: ChainResult) -> str:
     s = result.search
     loads = ", ".join(_si(x, "Ω") for x in s.get("first_stage_loads_ohm", []))
     claim = "Not proven best" if result.designs else "Not proven that none exists"
+    if result.request.coupling == "direct":
+        caps = ", ".join(_si(x, "F") for x in s.get("output_capacitors", [])) or "none"
+        return (f"Searched: {s.get('first_stages', 0)} ce first stages into "
+                f"{loads or 'no load'} × {s.get('followers', 0)} followers on their "
+                f"collectors (S2.RE: {s.get('follower_re_values', 0)} resistor values in "
+                f"stock; S2.C_OUT: {caps}) ({s.get('chains_screened', 0)} chains screened, "
+                f"{s.get('chains_evaluated', 0)} with THD, "
+                f"{_num(s.get('seconds'), '{:.1f}')} s). {claim}: a chain whose first stage "
+                f"is not among the ce search's {s.get('stage_top')} best, whose S2.RE is "
+                "made of several pieces or whose follower has a collector resistor is not "
+                "examined.")
     return (f"Searched: {s.get('first_stages', 0)} first stages into {loads or 'no load'} "
             f"× {s.get('followers', 0)} followers ({s.get('chains_screened', 0)} chains "
             f"screened, {s.get('chains_evaluated', 0)} with THD, "
@@ -61,14 +72,15 @@ def searched_line(result: ChainResult) -> str:
 def show_chain_result(console: Console, result: ChainResult) -> None:
     """The ranked chains, or the nearest misses, then what was searched."""
     a, b = result.request.topology
+    name = f"{a}→{b}" + (" direct-coupled" if result.request.coupling == "direct" else "")
     rows = result.designs or result.nearest_misses
     if result.search.get("proven_infeasible"):
-        console.print(f"No {a}→{b} chain can meet the request (proven):")
+        console.print(f"No {name} chain can meet the request (proven):")
         for line in result.search.get("why", []):
             console.print(f"  {escape(line)}")
         return
     if not result.designs:
-        console.print(f"No {a}→{b} chain found meets the request.")
+        console.print(f"No {name} chain found meets the request.")
         for line in result.search.get("why", []):
             console.print(f"  {escape(line)}")
     table = Table(show_lines=True, pad_edge=False, expand=False)

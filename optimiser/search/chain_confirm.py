@@ -167,15 +167,18 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
     """The best ``top`` of candidate chains ``[(parts, (label1, label2))]`` by the pair
     engine, exactly ranked within the candidates.
 
-    Each candidate is first evaluated without its THD and swing (DC, small signal,
-    band edges): its score without the distortion term is a lower bound of its score
-    (every term is ≥ 0).  Candidates meeting every target so far are then evaluated
+    Each candidate is first evaluated at DC and midband; those meeting every target
+    there are evaluated with their band edges (a band edge only adds targets), still
+    without THD and swing: the score without the distortion term is a lower bound of
+    the score (every term is ≥ 0).  Candidates meeting every target so far are then evaluated
     whole, CHUNK at a time in order of that bound, until ``top`` chains are known
     scoring at most the next bound.  A candidate the stock cannot supply for
     ``request.builds`` copies is dropped (``stats["stock_refused"]``).
 
     Returns (meeting, missing): :class:`ChainDesign` lists, meeting sorted by score,
-    missing (without THD, from the first evaluation) by how much they miss.
+    missing (without THD) by how much they miss.  When none meets, every missing
+    chain is evaluated with its band edges; otherwise the ones missing at DC or midband
+    are left out of ``missing`` (no chain that misses only f_low is among them).
     """
     form = pair_form(tuple(request.topology), request.coupling or "capacitor")
     groups: dict = defaultdict(list)
@@ -187,11 +190,20 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
             continue
         groups[labels].append((parts, emptied))
     stats["stock_refused"] = stats.get("stock_refused", 0) + refused
-    missing, queue = [], []
+    missing, queue, unedged = [], [], []
     for labels, items in groups.items():
+        # DC and midband first: a chain missing a target there misses it whatever its
+        # band edges (they only add targets), so only the others get them now
+        batch, transistors, ratings = _batch(form, items, snapshot, labels)
+        pre = evaluate_pair(request, batch, transistors, ratings, band_edges=False,
+                            large_signal=False)
+        stats["chains_screened"] = stats.get("chains_screened", 0) + batch.n
+        unedged += [(labels, items[i]) for i in np.flatnonzero(~pre.meets)]
+        items = [items[i] for i in np.flatnonzero(pre.meets)]
+        if not items:
+            continue
         batch, transistors, ratings = _batch(form, items, snapshot, labels)
         ev = evaluate_pair(request, batch, transistors, ratings, large_signal=False)
-        stats["chains_screened"] = stats.get("chains_screened", 0) + batch.n
         terms = chain_score_terms(ev, np.array([e for _, e in items], dtype=float))
         lb = sum(terms.values())
         designs = _designs(request, form, ev, items, labels, terms)
@@ -220,7 +232,24 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
         meeting.sort(key=lambda d: (d.score, sorted(d.values().items())))
     stats["chains_left_by_bound"] = (stats.get("chains_left_by_bound", 0)
                                      + max(0, len(queue) - pos))
+    if not meeting:
+        # the nearest misses are shown: the ones missing at DC or midband evaluated
+        # whole too, so that every miss lists all its violations
+        missing += _missed_whole(request, form, snapshot, unedged)
     return meeting, sorted(missing, key=lambda d: (len(d.violations), d.score))
+
+
+def _missed_whole(request, form, snapshot, unedged):
+    by: dict = defaultdict(list)
+    for labels, item in unedged:
+        by[labels].append(item)
+    out = []
+    for labels, items in by.items():
+        batch, transistors, ratings = _batch(form, items, snapshot, labels)
+        ev = evaluate_pair(request, batch, transistors, ratings, large_signal=False)
+        terms = chain_score_terms(ev, np.array([e for _, e in items], dtype=float))
+        out += _designs(request, form, ev, items, labels, terms)
+    return out
 
 
 def with_swing(request: Request, snapshot: StockSnapshot, designs: list[ChainDesign]):

@@ -36,6 +36,7 @@ from optimiser.search.chain_confirm import (
     largest_capacitors,
     with_swing,
 )
+from optimiser.search.chain_direct import search_direct
 from optimiser.search.chain_followers import (
     first_stage_requests,
     follower_request,
@@ -49,7 +50,8 @@ __all__ = ["SEARCHED_CHAINS", "SEARCHED_COUPLINGS", "check_chain_request", "sear
 
 #: The chains ``design`` searches (first stage, second stage), capacitor-coupled.
 SEARCHED_CHAINS = (("ce", "cc"), ("cb", "cc"))
-SEARCHED_COUPLINGS = ("capacitor",)
+#: The couplings searched; "direct" only for ce→cc (the one direct form).
+SEARCHED_COUPLINGS = ("capacitor", "direct")
 #: How many designs of each first-stage search are composed into chains.
 STAGE_TOP = 10
 #: How many followers each second-stage search gives.
@@ -70,7 +72,8 @@ def check_chain_request(request: Request) -> None:
                          f"{named} can be checked with given values by "
                          "`drawerfit analyse`", field="topology")
     if request.coupling not in SEARCHED_COUPLINGS:
-        raise InputError(f"design searches capacitor-coupled chains only; a "
+        raise InputError("design searches the couplings "
+                         + ", ".join(f'"{c}"' for c in SEARCHED_COUPLINGS) + f"; a "
                          f"{request.coupling}-coupled chain with given values can be "
                          "checked by `drawerfit analyse`", field="coupling")
 
@@ -105,6 +108,12 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
                           f"{kind2} chain can)" for x in limits],
                      seconds=time.perf_counter() - t0)
         return ChainResult(request, [], [], stats)
+
+    if request.coupling == "direct":
+        stats["method"] = ("first stages from single-stage ce searches × followers from "
+                           "each resistor row in stock")
+        cands = search_direct(request, snapshot, run, stats, STAGE_TOP)
+        return _confirmed(request, snapshot, cands, stats, top, subs, t0)
 
     def key(d):
         return tuple(sorted(d.values().items())) + (d.transistor,)
@@ -149,6 +158,12 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
     # every first stage with every follower
     cands = [(chain_parts(a, b), (a.transistor, b.transistor))
              for a in firsts.values() for b in followers.values()]
+    return _confirmed(request, snapshot, cands, stats, top, subs, t0)
+
+
+def _confirmed(request, snapshot, cands, stats, top, subs, t0) -> ChainResult:
+    """The candidates evaluated and ranked (chain_confirm), those missing only f_low
+    tried again with the largest capacitors in stock."""
     meeting, missing = confirm_chains(request, snapshot, cands, stats, top)
     retry = [d for d in missing if d.violations and all(v.startswith("f_low_hz")
                                                          for v in d.violations)]

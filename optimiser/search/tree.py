@@ -55,7 +55,10 @@ ASPIRATION = (0.5, 1.0, 2.0, 4.0)
 
 
 
-def _transistors(request: Request, snapshot: StockSnapshot) -> list[Transistor]:
+def usable_transistors(request: Request, snapshot: StockSnapshot) -> list[Transistor]:
+    """The stocked transistors the request may use: the one it names (InputError when
+    it is not in stock) or every one, each with at least ``builds`` in stock and a
+    V_CEO of at least the supply."""
     if request.transistor and request.transistor != "any":
         t = snapshot.transistor(request.transistor)
         if t is None:
@@ -89,7 +92,7 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     seeds = list(given) if given is not None else _seed_designs(request, snapshot, top, stats,
                                                                 search_designs, budget_s)
     opts = StockOptions(snapshot, request.builds, request.allow_combos)
-    ts = _transistors(request, snapshot)
+    ts = usable_transistors(request, snapshot)
     cache: dict = {}            # what the jobs share (pairs, emitter options, stock)
     jobs = [_Job(request, opts, t, f, stats, cache) for t in ts for f in FORMS[request.topology]
             if opts.resistor.values.size]

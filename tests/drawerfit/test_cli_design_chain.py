@@ -88,7 +88,6 @@ def test_chain_table_fits_80_columns(store, tmp_path):
 @pytest.mark.parametrize("text,field", [
     ('topology = "cascode"\nsupply_v = 12\n', "topology"),
     ('topology = ["cc", "ce"]\nsupply_v = 12\n', "topology"),
-    ('topology = ["ce", "cc"]\ncoupling = "direct"\nsupply_v = 12\n', "coupling"),
 ])
 def test_other_kinds_refused(store, tmp_path, text, field):
     r = run(store, tmp_path, text)
@@ -175,3 +174,49 @@ def test_spice_into_a_missing_folder_is_refused_before_the_search(store, tmp_pat
 def test_zout_max_still_refused_for_a_single_stage(store, tmp_path):
     r = run(store, tmp_path, 'topology = "ce"\nsupply_v = 12\nzout_max_ohm = 100\n')
     assert r.exit_code == 2 and "zout_max_ohm" in r.stderr
+
+
+DIRECT = REQUEST + 'coupling = "direct"\n'
+
+
+def test_direct_chain_json_table_sheet_and_deck(store, tmp_path):
+    # the follower's base on the first collector: the direct form's roles
+    # (docs/requests.md), pieces of both stages within the drawer's 10 a value
+    sheet, deck = tmp_path / "sheet", tmp_path / "chain.cir"
+    r = run(store, tmp_path, DIRECT, "--top", "2", "--json", "--sheet", str(sheet),
+            "--spice", str(deck))
+    assert r.exit_code == 0, r.output
+    out = json.loads(r.stdout)
+    assert out["request"]["coupling"] == "direct" and out["feasible"] is True
+    assert out["search"]["complete"] is False and out["search"]["followers"] > 0
+    for k, d in enumerate(out["designs"], 1):
+        assert d["rank"] == k and d["coupling"] == "direct" and d["meets_spec"] is True
+        assert {"S1.R1", "S1.R2", "S1.RC", "S1.C_IN", "S2.RE", "S2.C_OUT"} <= set(d["parts"])
+        assert not {"C_COUPLE", "S2.R1", "S2.R2", "S1.C_OUT"} & set(d["parts"])
+        assert d["stages"][1]["vb_v"] == d["stages"][0]["vc_v"]
+        used = {}
+        for p in d["parts"].values():
+            for piece in p["pieces"]:
+                used[piece["id"]] = used.get(piece["id"], 0) + piece["count"]
+        assert max(used.values()) <= 10
+    page = (sheet / "sheet.html").read_text(encoding="utf-8")
+    text = deck.read_text(encoding="utf-8")
+    assert text == (sheet / "stage.cir").read_text(encoding="utf-8")
+    for role in out["designs"][0]["parts"]:
+        assert role in page and role.replace(".", "_") in text, role
+    # the follower's base is the first collector: one node in the deck
+    assert "QS2 supply S1_collector S2_emitter" in text
+    r = run(store, tmp_path, DIRECT, "--top", "2")
+    assert r.exit_code == 0, r.output
+    words = " ".join(r.output.split())
+    assert "ce first stages" in words and "followers on their collectors" in words
+    assert "Not proven best" in words
+
+
+def test_no_direct_chain_meets_says_what_was_searched(store, tmp_path):
+    r = run(store, tmp_path, DIRECT.replace("zout_max_ohm = 500", "zout_max_ohm = 1"))
+    assert r.exit_code == 0, r.output
+    words = " ".join(r.output.split())
+    assert "No ce→cc direct-coupled chain found meets the request." in words
+    assert "Searched:" in words and "S2.RE:" in words
+    assert "Not proven that none exists" in words

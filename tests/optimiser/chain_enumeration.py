@@ -1,4 +1,5 @@
-"""Every capacitor-coupled chain a tiny drawer can build, evaluated by the pair engine and
+"""Every chain a tiny drawer can build (capacitor-coupled, or direct-coupled ce→cc: the
+ce stage's roles, the follower's S2.RE and S2.C_OUT), evaluated by the pair engine and
 scored: the plain enumeration the chain search is compared with."""
 
 from __future__ import annotations
@@ -37,7 +38,8 @@ def enumerate_chains(req, snap, chunk=4000, best_row=None):
     """(best score, number meeting) over every buildable chain of ``req.topology``
     from ``snap`` (one transistor type, one row per value); best None if none meets.
     A dict ``best_row`` receives the best chain's role values."""
-    form = pair_form(tuple(req.topology), "capacitor")
+    coupling = req.coupling or "capacitor"
+    form = pair_form(tuple(req.topology), coupling)
     k1, k2 = req.topology
     rq = {r.value: r for r in snap.resistors}
     cq = {c.value: c for c in snap.capacitors}
@@ -46,6 +48,11 @@ def enumerate_chains(req, snap, chunk=4000, best_row=None):
         return None, 0
     rows = []
     for s1 in _stage_rows(k1, sorted(rq), sorted(cq), "S1"):
+        if coupling == "direct":
+            # the follower: its emitter resistor and output capacitor only
+            rows.extend({**s1, "S2.RE": re, "S2.C_OUT": c} for re in sorted(rq)
+                        for c in sorted(cq))
+            continue
         for s2 in _stage_rows(k2, sorted(rq), sorted(cq), "S2"):
             for cc in sorted(cq):
                 rows.append({**s1, **s2, "C_COUPLE": cc})

@@ -1,7 +1,9 @@
 """The chains `design` finds, against ngspice (Debian's package, batch mode).
 
 The request is the new user's: 40 dB into a 1k load from a 10k source, f_low ≤ 20 Hz,
-12 V, on the demo drawer.  The ranked ce→cc chains are simulated in ngspice on decks
+12 V, on the demo drawer, capacitor-coupled and direct-coupled (``coupling =
+"direct"``: the follower's base on the first collector).  The ranked ce→cc chains
+that use one transistor type in both stages (the deck's one model) are simulated in ngspice on decks
 written out by hand (tests/reference/pair_spice.py, not from the engine's description
 of the forms), with the tolerances of the single-stage checks
 (tests/reference/test_ngspice_engine.py): I_C and V_CE of each transistor 0.5 %, midband
@@ -13,6 +15,7 @@ from __future__ import annotations
 
 import math
 import tempfile
+from collections import Counter
 from importlib import resources
 from pathlib import Path
 
@@ -32,36 +35,43 @@ pytestmark = [pytest.mark.reference]
 
 USER_CHECK = {"topology": ["ce", "cc"], "supply_v": 12, "load_ohm": "1k", "source_ohm": "10k",
               "gain_db": 40, "f_low_max_hz": 20}
+#: the hand-written deck's form of each coupling (tests/reference/pair_spice.py)
+DECK_FORM = {"capacitor": "ce-cc", "direct": "direct"}
 
 
-@pytest.fixture(scope="module")
-def found(tmp_path_factory):
+@pytest.fixture(scope="module", params=["capacitor", "direct"])
+def found(tmp_path_factory, request):
     require_ngspice()
-    wd = tmp_path_factory.mktemp("chains")
+    coupling = request.param
+    form = DECK_FORM[coupling]
+    wd = tmp_path_factory.mktemp(f"chains_{coupling}")
     store = open_store(str(Path(tempfile.mkdtemp()) / "demo.sqlite"))
     with resources.as_file(resources.files("drawerfit") / "data" / "demo_stock.csv") as p:
         store.import_csv(p)
     snap = store.snapshot()
-    req = parse_request(USER_CHECK, pairs=True)
-    result = search_chains(req, snap, top=5)
+    req = parse_request(dict(USER_CHECK, coupling=coupling), pairs=True)
+    result = search_chains(req, snap, top=10)
     assert len(result.designs) >= 3, result.search
-    # one transistor type in both stages: the deck's one model (the demo's #1..#5 are)
-    designs = [d for d in result.designs if d.transistors[0] == d.transistors[1]]
-    labels = {d.transistors[0] for d in designs}
-    assert len(designs) >= 3 and len(labels) == 1
-    model = device_from_transistor(snap.transistor(labels.pop()))
+    assert all(d.coupling == coupling for d in result.designs)
+    # one transistor type in both stages: the deck's one model (the type most of the
+    # ranked chains use in both)
+    same = [d for d in result.designs if d.transistors[0] == d.transistors[1]]
+    label = Counter(d.transistors[0] for d in same).most_common(1)[0][0]
+    designs = [d for d in same if d.transistors[0] == label][:5]
+    assert len(designs) >= 3
+    model = device_from_transistor(snap.transistor(label))
     circuits = [d.values() for d in designs]
     kw = dict(supply_v=req.supply_v, source_ohm=req.source_ohm, load_ohm=req.load_ohm)
-    deck = op_ac_deck("ce-cc", circuits, model, mid_hz=req.mid_hz, sweep_dir=".", **kw)
-    sp = parse_op_ac(run_ngspice(deck, wd, "opac"), len(circuits), "ce-cc", circuits, model,
+    deck = op_ac_deck(form, circuits, model, mid_hz=req.mid_hz, sweep_dir=".", **kw)
+    sp = parse_op_ac(run_ngspice(deck, wd, "opac"), len(circuits), form, circuits, model,
                      **kw)
     for k, r in enumerate(sp):
         r["freqs"], r["h"] = read_sweep(wd / f"sweep_{k}.txt")
-    zo = _prints(run_ngspice(zout_deck("ce-cc", circuits, model, mid_hz=req.mid_hz, **kw),
+    zo = _prints(run_ngspice(zout_deck(form, circuits, model, mid_hz=req.mid_hz, **kw),
                              wd, "zout"))
     for k, r in enumerate(sp):
         r["zout"] = zo[f"zo_{k}"]
-        r["thd_curve"] = _sweeps("ce-cc", [circuits[k]], model, [r], [req.input_vpk], 2001,
+        r["thd_curve"] = _sweeps(form, [circuits[k]], model, [r], [req.input_vpk], 2001,
                                  wd, f"thd{k}", kw, [k])[0]
     return req, designs, sp
 
