@@ -89,8 +89,9 @@ def _build_lines(plan, blist) -> list[dict]:
                    "optimal over the candidates found.")
 @click.option("--pricing-time", type=click.FloatRange(min=0), default=60.0, show_default=True,
               metavar="SECONDS",
-              help="Time for adding designs the plan's prices ask for, which proves how close "
-                   "the plan is to the best possible (0: the candidates alone).")
+              help="Time for adding designs the plan's prices ask for and then for listing "
+                   "every design that could still beat the plan, which proves how close the "
+                   "plan is to the best possible (0: the candidates alone).")
 @pass_app
 def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | None,
             commit: bool, candidates: int, time_limit: float | None,

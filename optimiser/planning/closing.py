@@ -147,8 +147,14 @@ def close_gap(gen: Generated, plan, requests: Sequence, augmented: StockSnapshot
             if progress is not None:
                 progress("solving the plan again")
             new = solve(items)
-            if new.feasible and new.solver.has_solution:
-                plan = new
+            if not (new.feasible and new.solver.has_solution):
+                # the designs listed were not weighed: nothing is proven by this pass
+                bound.open.append("the programme over the designs enumerated stopped without "
+                                  f"a plan (status {new.solver.status})")
+                bound.enumerated = enumerated
+                bound.enumeration_passes = npass + 1
+                break
+            plan = new
         gen = replace(gen, items=items)
         plan.bound = finish_bound(gen, plan)
         bound = plan.bound
