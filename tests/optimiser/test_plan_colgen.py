@@ -14,12 +14,10 @@ References (outside the planner):
 
 from __future__ import annotations
 
-import itertools
 import math
 from collections import defaultdict
 from dataclasses import replace
 
-import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -27,18 +25,15 @@ from hypothesis import strategies as st
 from drawerfit.render.plan import bound_line
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
 from optimiser.buildlist import BuildList, BuildSpec
-from optimiser.evaluate import evaluate
 from optimiser.planning import make_plan
 from optimiser.planning.colgen import Bound
 from optimiser.planning.model import ABS_GAP_SHARE
 from optimiser.planning.objective import cost_quantum, score_map, score_map_inverse, score_weight
 from optimiser.purchase import PurchaseOptions, augment
 from optimiser.request import Request
-from optimiser.score import score_gain_target, score_terms
-from optimiser.search import FORMS, cap_roles, search_designs, skeleton_figures
+from optimiser.search import search_designs
 from optimiser.search.pricing import Pricing
-from optimiser.stage import StageBatch
-from tests.optimiser.test_search_complete import _needs_collector_resistor, cases, resistor_roles
+from tests.optimiser.test_search_complete import buildable_meeting, cases, piece_counts
 
 T = Transistor("GP-N1", 100, 300, qty=10, ft=250e6, cob=4e-12, vceo=40, ic_max=0.1, pd=0.5,
                id=900, location="Q1")
@@ -164,54 +159,11 @@ def test_unproven_plan_never_reads_optimal():
 def priced_exhaustive(req: Request, snap: StockSnapshot, price: dict[float, float],
                       t_price: float, weight: float):
     """Least ``weight·score_map(score) + Σ price`` over every buildable stage (None: none)."""
-    rqty = {r.value: r.qty for r in snap.resistors}
-    cqty = {c.value: c.qty for c in snap.capacitors}
-    t = snap.transistors[0]
     best = None
-    for form in FORMS[req.topology]:
-        rroles = resistor_roles(req.topology, form)
-        croles = cap_roles(req.topology, form)
-        rows = []
-        for rv in itertools.product(sorted(rqty), repeat=len(rroles)):
-            vals = dict(zip(rroles, rv, strict=True))
-            choices = [dict(vals)]
-            if req.topology == "cc":
-                choices.append({**vals, "RC": 0.0})
-            for v in choices:
-                for cv in itertools.product(sorted(cqty), repeat=len(croles)):
-                    rows.append({**v, **dict(zip(croles, cv, strict=True))})
-        keep = []
-        for v in rows:
-            rc, cc = defaultdict(int), defaultdict(int)
-            for role, x in v.items():
-                if x > 0:
-                    (cc if role.startswith("C_") else rc)[x] += 1
-            if all(n * req.builds <= rqty[x] for x, n in rc.items()) and \
-                    all(n * req.builds <= cqty[x] for x, n in cc.items()):
-                emptied = sum(1 for x, n in rc.items() if n * req.builds == rqty[x])
-                cost = t_price + sum(price[x] * n for x, n in rc.items())
-                keep.append((v, emptied, cost))
-        if req.topology == "cc":
-            keep = [k for k in keep if k[0]["RC"] == 0 or _needs_collector_resistor(req, k[0], t)]
-        if not keep:
-            continue
-        batch = StageBatch.from_values(req.topology, **{
-            r: np.array([k[0].get(r, 0.0) for k in keep]) for r in keep[0][0]})
-        ev = evaluate(req, batch, t, None, large_signal=req.thd_max_pct is not None)
-        ok = np.flatnonzero(ev.meets)
-        if ok.size == 0:
-            continue
-        fig = skeleton_figures(req, batch.take(ok), t)
-        emptied = np.array([keep[i][1] for i in ok]) + (t.qty == req.builds)
-        target_db, tol_db = score_gain_target(req)
-        s = score_terms(gain_inf_db=fig["gain_inf_db"], target_db=target_db, tol_db=tol_db,
-                        drift_pct=fig["drift_pct"], hd2_pct=fig["hd2_pct"],
-                        supply_a=fig["supply_a"], emptied=emptied, vce_v=fig["vce_v"],
-                        supply_v=req.supply_v)
-        total = sum(s.values())
-        for j, i in enumerate(ok):
-            v = weight * score_map(float(total[j])) + keep[i][2]
-            best = v if best is None else min(best, v)
+    for v, sc in buildable_meeting(req, snap):
+        rc, _ = piece_counts(v)
+        cost = weight * score_map(sc) + t_price + sum(price[x] * n for x, n in rc.items())
+        best = cost if best is None else min(best, cost)
     return best
 
 

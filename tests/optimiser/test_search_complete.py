@@ -44,14 +44,13 @@ def _needs_collector_resistor(req: Request, values: dict, t: Transistor) -> bool
     return "pd" in ev.failed_keys(0)
 
 
-def exhaustive(req: Request, snap: StockSnapshot):
-    """Best score over every buildable stage (None when nothing meets the request)."""
+def buildable_meeting(req: Request, snap: StockSnapshot):
+    """Every buildable stage (pieces × builds ≤ qty, a value in two roles counted
+    twice) that meets the request, as (values, score): the enumeration the search is
+    checked against."""
     rqty = {r.value: r.qty for r in snap.resistors}
     cqty = {c.value: c.qty for c in snap.capacitors}
-    best = None
     t = snap.transistors[0]
-    if t.qty < req.builds:
-        return None
     for form in FORMS[req.topology]:
         rroles = resistor_roles(req.topology, form)
         croles = cap_roles(req.topology, form)
@@ -64,16 +63,9 @@ def exhaustive(req: Request, snap: StockSnapshot):
             for v in choices:
                 for cv in itertools.product(sorted(cqty), repeat=len(croles)):
                     rows.append({**v, **dict(zip(croles, cv, strict=False))})
-        # stock: pieces × builds ≤ qty, a value in two roles counted twice
         keep = []
         for v in rows:
-            rc = {}
-            cc = {}
-            for role, x in v.items():
-                if x <= 0:
-                    continue
-                d = cc if role.startswith("C_") else rc
-                d[x] = d.get(x, 0) + 1
+            rc, cc = piece_counts(v)
             if all(n * req.builds <= rqty[x] for x, n in rc.items()) and \
                     all(n * req.builds <= cqty[x] for x, n in cc.items()):
                 emptied = sum(1 for x, n in rc.items() if n * req.builds == rqty[x])
@@ -95,9 +87,26 @@ def exhaustive(req: Request, snap: StockSnapshot):
                         drift_pct=fig["drift_pct"], hd2_pct=fig["hd2_pct"], supply_a=fig["supply_a"], emptied=emptied,
                         vce_v=fig["vce_v"], supply_v=req.supply_v)
         total = sum(s.values())
-        m = float(np.min(total))
-        best = m if best is None else min(best, m)
-    return best
+        for j, i in enumerate(ok):
+            yield keep[i][0], float(total[j])
+
+
+def piece_counts(values: dict) -> tuple[dict, dict]:
+    """Pieces per resistor value and per capacitor value of one stage's ``values``."""
+    rc: dict = {}
+    cc: dict = {}
+    for role, x in values.items():
+        if x > 0:
+            d = cc if role.startswith("C_") else rc
+            d[x] = d.get(x, 0) + 1
+    return rc, cc
+
+
+def exhaustive(req: Request, snap: StockSnapshot):
+    """Best score over every buildable stage (None when nothing meets the request)."""
+    if snap.transistors[0].qty < req.builds:
+        return None
+    return min((sc for _, sc in buildable_meeting(req, snap)), default=None)
 
 
 @st.composite
