@@ -7,8 +7,8 @@
    from :func:`output_capacitors`.  No ``S2.RC`` (the collector on the supply), no
    divider: the base is the first stage's collector.
 2. **First stages**: the single-stage ce search into the loads the followers present
-   (β·(r_e + ``S2.RE``‖R_load) at the nominal β, grouped in bands by
-   :func:`.chain_followers.load_bins`), in the gain windows of
+   (β·(r_e + ``S2.RE``‖R_load) at the nominal β, grouped in bands within
+   :data:`BAND_RATIO` by :func:`.chain_followers.load_bins`), in the gain windows of
    :func:`.chain_followers.first_stage_requests`, the best ``STAGE_TOP`` of each; the
    first stage's ``C_OUT`` is dropped (its collector drives the follower's base).
 3. Every first stage with every follower of the bands it was found for, the band
@@ -39,10 +39,14 @@ from optimiser.search.chain_followers import first_stage_requests, load_bins
 from optimiser.search.tree import usable_transistors
 
 __all__ = ["Follower", "followers", "output_capacitors", "direct_parts", "search_direct",
-           "CAP_CHOICES"]
+           "CAP_CHOICES", "BAND_RATIO"]
 
 #: How many output capacitor values each follower is tried with (output_capacitors).
 CAP_CHOICES = 2
+#: Followers whose estimated input impedances lie within this ratio share one band
+#: (one pair of first-stage searches); wider than the capacitor-coupled chains' bands,
+#: the follower's input impedance being far above the collector resistor it loads.
+BAND_RATIO = 3.0
 
 
 @dataclass(frozen=True)
@@ -141,7 +145,7 @@ def search_direct(request: Request, snapshot: StockSnapshot, run, stats: dict,
     fol = followers(request, snapshot)
     firsts: dict = {}
     bands: dict = {}
-    bins = load_bins([f.zin_ohm for f in fol])
+    bins = load_bins([f.zin_ohm for f in fol], BAND_RATIO)
     for b, (load, idx) in enumerate(bins):
         for req1 in first_stage_requests(request, "ce", load, [fol[i].gain_db for i in idx]):
             for a in run(req1, stage_top):
