@@ -13,8 +13,8 @@
    first stage's ``C_OUT`` is dropped (its collector drives the follower's base).
 3. Every first stage with every follower of the bands it was found for, the band
    below them and every band above (the follower loads the collector resistor
-   lightly; a higher load changes a ce stage's gain less): pieces of both stages counted together
-   against stock, the joint DC network solved by the engine's Newton
+   lightly; a higher load changes a ce stage's gain less): pieces of both stages
+   counted together against stock, the joint DC network solved by the engine's Newton
    (:func:`optimiser.pair_evaluate.evaluate_pair`), ranked by :mod:`.chain_score`
    exactly among these candidates (:func:`.chain_confirm.confirm_chains`).
 
@@ -137,8 +137,8 @@ def direct_parts(first, follower: Follower) -> dict[str, RolePick]:
 
 def search_direct(request: Request, snapshot: StockSnapshot, run, stats: dict,
                   stage_top: int) -> list:
-    """Steps 1 and 2 of the module docstring: the candidate chains
-    ``[(parts, (label1, label2))]`` for :func:`.chain_confirm.confirm_chains`.
+    """The candidate chains of steps 1 to 3 of the module docstring,
+    ``[(parts, (label1, label2))]``, for :func:`.chain_confirm.confirm_chains`.
 
     ``run(request, top)``: the single-stage search's designs.  ``stats`` gains what was
     searched (``followers``, ``first_stage_loads_ohm``, ``first_stages``, ``why``)."""
@@ -154,8 +154,9 @@ def search_direct(request: Request, snapshot: StockSnapshot, run, stats: dict,
                 bands.setdefault(k, set()).add(b)
     why = []
     if not fol:
-        why.append("no transistor with a resistor in stock as S2.RE can carry ic_min_a "
-                   "from the supply")
+        why.append("no follower from the drawer: none of a usable transistor, a resistor "
+                   "row as S2.RE that can carry ic_min_a from the supply and a capacitor "
+                   "whose output pole alone is at or below f_low_max_hz")
     elif not firsts:
         at = ", ".join(f"{b[0]:.4g} Ω" for b in bins)
         why.append("no ce stage from the drawer meets the chain's gain less its "
