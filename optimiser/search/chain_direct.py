@@ -7,14 +7,14 @@
    from :func:`output_capacitors`.  No ``S2.RC`` (the collector on the supply), no
    divider: the base is the first stage's collector.
 2. **First stages**: the single-stage ce search into the loads the followers present
-   (β·(r_e + ``S2.RE``‖R_load) at the nominal β, grouped in bands by
-   :func:`.chain_followers.load_bins`), in the gain windows of
+   (β·(r_e + ``S2.RE``‖R_load) at the nominal β, grouped in bands within
+   :data:`BAND_RATIO` by :func:`.chain_followers.load_bins`), in the gain windows of
    :func:`.chain_followers.first_stage_requests`, the best ``STAGE_TOP`` of each; the
    first stage's ``C_OUT`` is dropped (its collector drives the follower's base).
 3. Every first stage with every follower of the bands it was found for, the band
    below them and every band above (the follower loads the collector resistor
-   lightly; a higher load changes a ce stage's gain less): pieces of both stages counted together
-   against stock, the joint DC network solved by the engine's Newton
+   lightly; a higher load changes a ce stage's gain less): pieces of both stages
+   counted together against stock, the joint DC network solved by the engine's Newton
    (:func:`optimiser.pair_evaluate.evaluate_pair`), ranked by :mod:`.chain_score`
    exactly among these candidates (:func:`.chain_confirm.confirm_chains`).
 
@@ -39,10 +39,14 @@ from optimiser.search.chain_followers import first_stage_requests, load_bins
 from optimiser.search.tree import usable_transistors
 
 __all__ = ["Follower", "followers", "output_capacitors", "direct_parts", "search_direct",
-           "CAP_CHOICES"]
+           "CAP_CHOICES", "BAND_RATIO"]
 
 #: How many output capacitor values each follower is tried with (output_capacitors).
 CAP_CHOICES = 2
+#: Followers whose estimated input impedances lie within this ratio share one band
+#: (one pair of first-stage searches); wider than the capacitor-coupled chains' bands,
+#: the follower's input impedance being far above the collector resistor it loads.
+BAND_RATIO = 3.0
 
 
 @dataclass(frozen=True)
@@ -133,15 +137,15 @@ def direct_parts(first, follower: Follower) -> dict[str, RolePick]:
 
 def search_direct(request: Request, snapshot: StockSnapshot, run, stats: dict,
                   stage_top: int) -> list:
-    """Steps 1 and 2 of the module docstring: the candidate chains
-    ``[(parts, (label1, label2))]`` for :func:`.chain_confirm.confirm_chains`.
+    """The candidate chains of steps 1 to 3 of the module docstring,
+    ``[(parts, (label1, label2))]``, for :func:`.chain_confirm.confirm_chains`.
 
     ``run(request, top)``: the single-stage search's designs.  ``stats`` gains what was
     searched (``followers``, ``first_stage_loads_ohm``, ``first_stages``, ``why``)."""
     fol = followers(request, snapshot)
     firsts: dict = {}
     bands: dict = {}
-    bins = load_bins([f.zin_ohm for f in fol])
+    bins = load_bins([f.zin_ohm for f in fol], BAND_RATIO)
     for b, (load, idx) in enumerate(bins):
         for req1 in first_stage_requests(request, "ce", load, [fol[i].gain_db for i in idx]):
             for a in run(req1, stage_top):
@@ -150,8 +154,9 @@ def search_direct(request: Request, snapshot: StockSnapshot, run, stats: dict,
                 bands.setdefault(k, set()).add(b)
     why = []
     if not fol:
-        why.append("no transistor with a resistor in stock as S2.RE can carry ic_min_a "
-                   "from the supply")
+        why.append("no follower from the drawer: none of a usable transistor, a resistor "
+                   "row as S2.RE that can carry ic_min_a from the supply and a capacitor "
+                   "whose output pole alone is at or below f_low_max_hz")
     elif not firsts:
         at = ", ".join(f"{b[0]:.4g} Ω" for b in bins)
         why.append("no ce stage from the drawer meets the chain's gain less its "

@@ -74,16 +74,17 @@ def first_stage_requests(chain: Request, kind: str, load_ohm: float,
     return [typical, wide]
 
 
-def load_bins(zin_ohm) -> list[tuple[float, list[int]]]:
-    """The followers grouped by input impedance: runs of Z_in within a ratio of
-    :data:`LOAD_BIN_RATIO` of the run's least, each as (geometric middle, indices)."""
+def load_bins(zin_ohm, ratio: float = LOAD_BIN_RATIO) -> list[tuple[float, list[int]]]:
+    """The followers grouped by input impedance: runs of Z_in within ``ratio`` (by
+    default :data:`LOAD_BIN_RATIO`) of the run's least, each as (geometric middle,
+    indices)."""
     z = [(float(x), i) for i, x in enumerate(zin_ohm)
          if x is not None and math.isfinite(x) and x > 0]
     z.sort()
     bins: list[tuple[float, list[int]]] = []
     lo = None
     for x, i in z:
-        if lo is None or x > lo * LOAD_BIN_RATIO:
+        if lo is None or x > lo * ratio:
             lo = x
             bins.append((x, [i]))
         else:

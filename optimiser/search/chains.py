@@ -94,8 +94,12 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
         return max(0.5, (time_limit_s - (time.perf_counter() - t0)) / 4.0)
 
     def run(req, top):
+        t = time.perf_counter()
         r = search(req, snapshot, top=top, misses=0, time_limit_s=budget())
         subs.append(bool(r.stats.get("complete", True)))
+        stats["stage_search_seconds"] = (stats.get("stage_search_seconds", 0.0)
+                                         + time.perf_counter() - t)
+        stats["stage_searches"] = len(subs)
         return r.designs
 
     # the first stage's own limits bound the chain's: the follower's gain is below 1 and
