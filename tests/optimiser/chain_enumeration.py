@@ -33,10 +33,11 @@ def _stage_rows(kind, rvals, cvals, prefix):
                 yield {f"{prefix}.{r}": v for r, v in zip(roles + caps, rv + cv, strict=True)}
 
 
-def enumerate_chains(req, snap, chunk=4000, best_row=None):
+def enumerate_chains(req, snap, chunk=4000, best_row=None, keep=None):
     """(best score, number meeting) over every buildable chain of ``req.topology``
     from ``snap`` (one transistor type, one row per value); best None if none meets.
-    A dict ``best_row`` receives the best chain's role values."""
+    A dict ``best_row`` receives the best chain's role values; ``keep(row)``, when
+    given, says which chains (role values) to count."""
     form = pair_form(tuple(req.topology), "capacitor")
     k1, k2 = req.topology
     rq = {r.value: r for r in snap.resistors}
@@ -48,7 +49,9 @@ def enumerate_chains(req, snap, chunk=4000, best_row=None):
     for s1 in _stage_rows(k1, sorted(rq), sorted(cq), "S1"):
         for s2 in _stage_rows(k2, sorted(rq), sorted(cq), "S2"):
             for cc in sorted(cq):
-                rows.append({**s1, **s2, "C_COUPLE": cc})
+                row = {**s1, **s2, "C_COUPLE": cc}
+                if keep is None or keep(row):
+                    rows.append(row)
     best, meeting = None, 0
     for start in range(0, len(rows), chunk):
         part = rows[start:start + chunk]

@@ -19,6 +19,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+import drawerfit.cli  # noqa: F401  (the commands load in their order)
+from drawerfit.commands.design import DEFAULT_TIME_LIMIT_S
 from inventory.store import open_store
 from optimiser.device import device_from_transistor
 from optimiser.request import parse_request
@@ -43,7 +45,7 @@ def found(tmp_path_factory):
         store.import_csv(p)
     snap = store.snapshot()
     req = parse_request(USER_CHECK, pairs=True)
-    result = search_chains(req, snap, top=5)
+    result = search_chains(req, snap, top=5, time_limit_s=DEFAULT_TIME_LIMIT_S)  # as design
     assert len(result.designs) >= 3, result.search
     # one transistor type in both stages: the deck's one model (the demo's #1..#5 are)
     designs = [d for d in result.designs if d.transistors[0] == d.transistors[1]]
