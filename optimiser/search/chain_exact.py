@@ -81,6 +81,7 @@ def prove_chains(request: Request, snapshot: StockSnapshot, meeting: list, missi
     composed: set = set()
     rounds: list[dict] = []
     bound, k, stopped = -math.inf, FIRST_K, "time"
+    rate = 0.0                          # seconds per chain composed, last round
     while True:
         if left() is not None and left() <= 0:
             break
@@ -103,7 +104,14 @@ def prove_chains(request: Request, snapshot: StockSnapshot, meeting: list, missi
                     pruned += 1
                     continue
                 cands.append((chain_parts(a, b), (a.transistor, b.transistor)))
+        # a round whose composition would outrun the budget (at the last round's pace)
+        # is not started: its lists would prove nothing until composed
+        if left() is not None and rate * len(cands) > left():
+            break
+        c0 = time.perf_counter()
         m, miss = confirm_with_retry(request, snapshot, cands, stats, top)
+        if cands:
+            rate = (time.perf_counter() - c0) / len(cands)
         meeting = _merge(meeting, m, _score_key)
         missing = _merge(missing, miss, _miss_key)
         bound = outside_bound(*lists)

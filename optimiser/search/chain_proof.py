@@ -120,7 +120,10 @@ def stage_list(designs, k: int, complete: bool, open_bound: float, req: Request)
         least = min((current(d) for d in designs), default=math.inf)
     else:
         kth = designs[-1].score if len(designs) >= k else math.inf
-        ob = open_bound if open_bound is not None and not complete else math.inf
+        if complete:
+            ob = math.inf
+        else:                           # stopped early: nothing known without its bound
+            ob = -math.inf if open_bound is None else float(open_bound)
         nxt = min(kth, ob) - slack(req)
         least = 0.0
     return StageList(list(designs), k, complete, exhausted, nxt, least)
