@@ -78,7 +78,7 @@ def proof_line(result: ChainResult) -> str:
            "bound": "the bound stopped short", "exhausted": "every stage was paired"}
     stop = why.get(p.get("stopped"), "no proof was run")
     bound = p.get("bound")
-    rest = (f"; a chain with a stage outside them could score down to {bound:.3f}"
+    rest = (f"; a chain with a stage outside them could score as low as {bound:.3f}"
             if bound is not None else "")
     return (f"{claim}: the relaxed stage searches were widened to their best {k} stages "
             f"each ({stop}){rest}.")

@@ -135,9 +135,10 @@ def pair_floor(a, b) -> float:
 
 
 def outside_bound(first: StageList, second: StageList) -> float:
-    """The least score of a chain with a stage outside either list."""
-    return min(first.next_floor + second.least_current,
-               second.next_floor + first.least_current)
+    """The least score of a chain with a stage outside either list (≥ 0: every term of a
+    chain's score is)."""
+    return max(0.0, min(first.next_floor + second.least_current,
+                        second.next_floor + first.least_current))
 
 
 def proven_ranks(scores, bound: float) -> int:
