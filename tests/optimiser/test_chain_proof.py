@@ -64,6 +64,7 @@ def test_proven_best_is_the_enumerations_best(topo, seed):
     if best is None:
         assert res.designs == [] and meeting == 0
         assert res.search["complete"] is True
+        assert "Proven that no chain meets" in _shown(res)
     else:
         assert res.designs, (best, meeting)
         assert res.designs[0].score == pytest.approx(best, rel=1e-9, abs=1e-9)
