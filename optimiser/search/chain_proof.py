@@ -100,8 +100,8 @@ class StageList:
 
     ``exhausted``: the search was complete and returned fewer than ``k`` (every stage
     meeting the relaxed request is listed).  ``next_floor``: the least floor of a stage
-    not listed (inf when exhausted).  ``least_current``: the least current term of any
-    stage meeting the relaxed request (the listed ones' when exhausted, else 0)."""
+    not listed (inf when exhausted).  ``least_current``: the least current term of the
+    listed stages (inf when none is listed)."""
 
     designs: list
     k: int
@@ -115,9 +115,9 @@ def stage_list(designs, k: int, complete: bool, open_bound: float, req: Request)
     """What the single-stage search's ``top=k`` answer (``designs``, ranked; ``complete``
     and ``open_bound`` from its stats) proves about the stages it did not list."""
     exhausted = complete and len(designs) < k
+    least = min((current(d) for d in designs), default=math.inf)
     if exhausted:
         nxt = math.inf
-        least = min((current(d) for d in designs), default=math.inf)
     else:
         kth = designs[-1].score if len(designs) >= k else math.inf
         if complete:
@@ -125,7 +125,6 @@ def stage_list(designs, k: int, complete: bool, open_bound: float, req: Request)
         else:                           # stopped early: nothing known without its bound
             ob = -math.inf if open_bound is None else float(open_bound)
         nxt = min(kth, ob) - slack(req)
-        least = 0.0
     return StageList(list(designs), k, complete, exhausted, nxt, least)
 
 
@@ -136,9 +135,15 @@ def pair_floor(a, b) -> float:
 
 def outside_bound(first: StageList, second: StageList) -> float:
     """The least score of a chain with a stage outside either list (≥ 0: every term of a
-    chain's score is)."""
-    return max(0.0, min(first.next_floor + second.least_current,
-                        second.next_floor + first.least_current))
+    chain's score is), by :func:`pair_floor`: its first stage outside and its follower
+    listed, f ≥ the first list's next floor and I ≥ the follower list's least current;
+    the other way round; or both outside, the larger of the two next floors."""
+    cases = [max(first.next_floor, second.next_floor)]
+    if second.designs:
+        cases.append(first.next_floor + second.least_current)
+    if first.designs:
+        cases.append(second.next_floor + first.least_current)
+    return max(0.0, min(cases))
 
 
 def proven_ranks(scores, bound: float) -> int:
