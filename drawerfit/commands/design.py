@@ -96,7 +96,8 @@ def run_design(request, snapshot, *, top: int, progress: bool,
 @click.option("--time-limit", "time_limit", type=click.FloatRange(0), default=DEFAULT_TIME_LIMIT_S,
               show_default=True, metavar="SECONDS",
               help="Stop the search after this long and say how much of the ranking is "
-                   "proven; 0 searches to the end.")
+                   "proven; 0 searches to the end (a chain's proof has a budget of its "
+                   "own within the limit, docs/search.md).")
 @sheet_option
 @spice_option
 @rank_option

@@ -10,7 +10,7 @@ from rich.table import Table
 from drawerfit.render.designs import _num, _si
 from optimiser.search.chain_answer import ChainDesign, ChainResult
 
-__all__ = ["show_chain_result", "stage_cell", "searched_line"]
+__all__ = ["show_chain_result", "stage_cell", "searched_line", "proof_line"]
 
 
 def stage_cell(d: ChainDesign, k: int) -> str:
@@ -50,8 +50,8 @@ def searched_line(result: ChainResult) -> str:
     """What the search covered, in words (never a claim of completeness it lacks)."""
     s = result.search
     loads = ", ".join(_si(x, "Ω") for x in s.get("first_stage_loads_ohm", []))
-    claim = "Not proven best" if result.designs else "Not proven that none exists"
     if result.request.coupling == "direct":
+        claim = "Not proven best" if result.designs else "Not proven that none exists"
         caps = ", ".join(_si(x, "F") for x in s.get("output_capacitors", [])) or "none"
         return (f"Searched: {s.get('first_stages', 0)} ce first stages into "
                 f"{loads or 'no load'} × {s.get('followers', 0)} followers on their "
@@ -62,11 +62,38 @@ def searched_line(result: ChainResult) -> str:
                 f"is not among the ce search's {s.get('stage_top')} best, whose S2.RE is "
                 "made of several pieces or whose follower has a collector resistor is not "
                 "examined.")
-    return (f"Searched: {s.get('first_stages', 0)} first stages into {loads or 'no load'} "
-            f"× {s.get('followers', 0)} followers ({s.get('chains_screened', 0)} chains "
-            f"screened, {s.get('chains_evaluated', 0)} with THD, "
-            f"{_num(s.get('seconds'), '{:.1f}')} s). {claim}: a chain whose stages are not "
-            f"among each single-stage search's {s.get('stage_top')} best is not examined.")
+    line = (f"Searched: {s.get('first_stages', 0)} first stages into {loads or 'no load'} "
+            f"× {s.get('followers', 0)} followers, then the proof ({s.get('chains_screened', 0)} "
+            f"chains screened, {s.get('chains_evaluated', 0)} with THD, "
+            f"{_num(s.get('seconds'), '{:.1f}')} s). ")
+    return line + proof_line(result)
+
+
+def proof_line(result: ChainResult) -> str:
+    """What the proof showed (docs/search.md, "What is proven"), in one sentence."""
+    s = result.search
+    p = s.get("proof") or {}
+    k = p.get("widened_to", 0)
+    ranks = p.get("proven_ranks", 0)
+    if s.get("proven") and result.designs:
+        which = "#1" if ranks <= 1 else f"#1–#{ranks}"
+        how = ("every stage the relaxed stage searches allow was paired"
+               if p.get("every_stage_listed") else
+               f"no chain with a stage outside the best {k} of each relaxed stage search "
+               f"scores below {_num(p.get('bound'), '{:.3f}')}")
+        return f"Proven best ({which}, under the assumptions of docs/search.md): {how}."
+    if s.get("proven"):
+        return ("Proven that no chain meets the request (under the assumptions of "
+                "docs/search.md): every stage the relaxed stage searches allow was paired.")
+    claim = "Not proven best" if result.designs else "Not proven that none exists"
+    why = {"time": f"the proof's {_num(p.get('time_budget_s'), '{:g}')} s ran out",
+           "bound": "the bound stopped short", "exhausted": "every stage was paired"}
+    stop = why.get(p.get("stopped"), "no proof was run")
+    bound = p.get("bound")
+    rest = (f"; a chain with a stage outside them could score as low as {bound:.3f}"
+            if bound is not None else "")
+    return (f"{claim}: the relaxed stage searches were widened to their best {k} stages "
+            f"each ({stop}){rest}.")
 
 
 def show_chain_result(console: Console, result: ChainResult) -> None:

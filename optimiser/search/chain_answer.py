@@ -69,6 +69,7 @@ class ChainResult:
         return {
             "request": self.request.to_json(),
             "feasible": self.feasible,
+            "proven": bool(self.search.get("proven", False)),
             "designs": [d.to_json() for d in self.designs],
             "nearest_misses": [d.to_json() for d in self.nearest_misses],
             "search": {k: _clean(v) if isinstance(v, float) else v

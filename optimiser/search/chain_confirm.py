@@ -21,7 +21,8 @@ from optimiser.stage import PartRatings
 from optimiser.stages import pair_form
 from optimiser.stages.pair import PairBatch
 
-__all__ = ["chain_parts", "stock_use", "confirm_chains", "largest_capacitors", "with_swing"]
+__all__ = ["chain_parts", "stock_use", "confirm_chains", "confirm_with_retry",
+           "largest_capacitors", "with_swing", "chain_key"]
 
 #: What each stage's coupling capacitor becomes in the chain.
 COUPLED = {0: "C_OUT", 1: "C_IN"}
@@ -250,6 +251,27 @@ def _missed_whole(request, form, snapshot, unedged):
         terms = chain_score_terms(ev, np.array([e for _, e in items], dtype=float))
         out += _designs(request, form, ev, items, labels, terms)
     return out
+
+
+def confirm_with_retry(request: Request, snapshot: StockSnapshot, candidates, stats: dict,
+                       top: int):
+    """:func:`confirm_chains`, then the chains missing only f_low once more with the
+    largest capacitors in stock (``stats["largest_capacitor_retries"]``)."""
+    meeting, missing = confirm_chains(request, snapshot, candidates, stats, top)
+    retry = [d for d in missing if d.violations and all(v.startswith("f_low_hz")
+                                                         for v in d.violations)]
+    if retry:
+        big = [(largest_capacitors(d.parts, snapshot), d.transistors) for d in retry]
+        m2, _ = confirm_chains(request, snapshot, big, stats, top)
+        meeting = sorted(meeting + m2, key=lambda d: d.score)
+        stats["largest_capacitor_retries"] = (stats.get("largest_capacitor_retries", 0)
+                                              + len(retry))
+    return meeting, missing
+
+
+def chain_key(d: ChainDesign) -> tuple:
+    """What tells two chains apart: every role's value and both transistors."""
+    return tuple(sorted(d.values().items())) + tuple(d.transistors)
 
 
 def with_swing(request: Request, snapshot: StockSnapshot, designs: list[ChainDesign]):

@@ -13,10 +13,13 @@
    ranked exactly among these candidates by :mod:`.chain_score`
    (:func:`.chain_confirm.confirm_chains`); chains missing only f_low are tried again
    with the largest capacitors in stock.
-
-The ranking is among the chains composed this way; it is not proven to hold the best
-chain the drawer allows (``search["complete"]`` is False, and ``search`` says what was
-searched).
+4. The proof (:func:`.chain_exact.prove_chains`), capacitor-coupled chains only: the
+   stage lists of relaxed single-stage requests widened until no chain with a stage
+   outside them can take a rank, every stage is listed, or the proof's budget
+   (:data:`.chain_exact.PROOF_TIME_S` under a time limit, none without) runs out.
+   ``search["proven"]``: rank 1 is proven (under the assumptions of docs/search.md);
+   ``search["complete"]``: every rank is.  Direct-coupled chains
+   (:mod:`.chain_direct`) are ranked among the chains composed, not proven.
 """
 
 from __future__ import annotations
@@ -30,13 +33,9 @@ from inventory.parts import StockSnapshot
 from optimiser.request import Request
 from optimiser.search.answer import search
 from optimiser.search.chain_answer import ChainResult
-from optimiser.search.chain_confirm import (
-    chain_parts,
-    confirm_chains,
-    largest_capacitors,
-    with_swing,
-)
+from optimiser.search.chain_confirm import chain_parts, confirm_with_retry, with_swing
 from optimiser.search.chain_direct import search_direct
+from optimiser.search.chain_exact import PROOF_TIME_S, prove_chains
 from optimiser.search.chain_followers import (
     first_stage_requests,
     follower_request,
@@ -80,7 +79,8 @@ def check_chain_request(request: Request) -> None:
 
 def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
                   time_limit_s: float | None = None) -> ChainResult:
-    """The best chains composed from the single-stage searches (module docstring)."""
+    """The best chains composed from the single-stage searches, then the proof (module
+    docstring); ``time_limit_s`` None: no limit, the proof runs to its end."""
     check_chain_request(request)
     t0 = time.perf_counter()
     kind1, kind2 = request.topology
@@ -107,7 +107,7 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
     # the first stage's most favourable)
     limits = physical_limits(stage_request(request, kind1, load_ohm=None), snapshot)
     if limits:
-        stats.update(complete=True, proven_infeasible=True, limits=limits,
+        stats.update(complete=True, proven=True, proven_infeasible=True, limits=limits,
                      why=[f"{x['reason']} (a follower's gain is below 1, so no {kind1}→"
                           f"{kind2} chain can)" for x in limits],
                      seconds=time.perf_counter() - t0)
@@ -117,7 +117,10 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
         stats["method"] = ("first stages from single-stage ce searches × followers from "
                            "each resistor row in stock")
         cands = search_direct(request, snapshot, run, stats, STAGE_TOP)
-        return _confirmed(request, snapshot, cands, stats, top, subs, t0)
+        meeting, missing = confirm_with_retry(request, snapshot, cands, stats, top)
+        stats["stage_searches_complete"] = all(subs)
+        stats["proven"] = False
+        return _ranked(request, snapshot, meeting, missing, stats, top, t0)
 
     def key(d):
         return tuple(sorted(d.values().items())) + (d.transistor,)
@@ -162,23 +165,29 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
     # every first stage with every follower
     cands = [(chain_parts(a, b), (a.transistor, b.transistor))
              for a in firsts.values() for b in followers.values()]
-    return _confirmed(request, snapshot, cands, stats, top, subs, t0)
+    meeting, missing = confirm_with_retry(request, snapshot, cands, stats, top)
+    stats["stage_searches_complete"] = all(subs)
+    # the proof: wider stage lists until no chain outside them can take a rank
+    allowed = None
+    if time_limit_s is not None:
+        allowed = min(PROOF_TIME_S, max(0.0, time_limit_s - (time.perf_counter() - t0)))
+    meeting, missing, proof = prove_chains(request, snapshot, meeting, missing, top, stats,
+                                           allowed)
+    stats["proof"] = proof
+    everything = proof["every_stage_listed"]          # no chain lies outside the lists
+    stats["proven_ranks"] = proof["proven_ranks"]
+    stats["complete"] = bool(everything or (len(meeting) >= top
+                                             and proof["proven_ranks"] >= top))
+    stats["proven"] = bool(proof["proven_ranks"] >= 1 if meeting else everything)
+    if meeting:
+        stats.pop("why", None)
+    return _ranked(request, snapshot, meeting, missing, stats, top, t0)
 
 
-def _confirmed(request, snapshot, cands, stats, top, subs, t0) -> ChainResult:
-    """The candidates evaluated and ranked (chain_confirm), those missing only f_low
-    tried again with the largest capacitors in stock."""
-    meeting, missing = confirm_chains(request, snapshot, cands, stats, top)
-    retry = [d for d in missing if d.violations and all(v.startswith("f_low_hz")
-                                                         for v in d.violations)]
-    if retry:
-        big = [(largest_capacitors(d.parts, snapshot), d.transistors) for d in retry]
-        m2, _ = confirm_chains(request, snapshot, big, stats, top)
-        meeting = sorted(meeting + m2, key=lambda d: d.score)
-        stats["largest_capacitor_retries"] = len(retry)
+def _ranked(request, snapshot, meeting, missing, stats, top, t0) -> ChainResult:
+    """The answer: the best ``top`` chains with their swing, ranked, or the misses."""
     designs = with_swing(request, snapshot, meeting[:top])
     for k, d in enumerate(designs, 1):
         d.rank = k
-    stats["stage_searches_complete"] = all(subs)
     stats["seconds"] = time.perf_counter() - t0
     return ChainResult(request, designs, [] if designs else missing[:top], stats)

@@ -34,10 +34,11 @@ def _stage_rows(kind, rvals, cvals, prefix):
                 yield {f"{prefix}.{r}": v for r, v in zip(roles + caps, rv + cv, strict=True)}
 
 
-def enumerate_chains(req, snap, chunk=4000, best_row=None):
+def enumerate_chains(req, snap, chunk=4000, best_row=None, keep=None):
     """(best score, number meeting) over every buildable chain of ``req.topology``
     from ``snap`` (one transistor type, one row per value); best None if none meets.
-    A dict ``best_row`` receives the best chain's role values."""
+    A dict ``best_row`` receives the best chain's role values; ``keep(row)``, when
+    given, says which chains (role values) to count."""
     coupling = req.coupling or "capacitor"
     form = pair_form(tuple(req.topology), coupling)
     k1, k2 = req.topology
@@ -50,12 +51,17 @@ def enumerate_chains(req, snap, chunk=4000, best_row=None):
     for s1 in _stage_rows(k1, sorted(rq), sorted(cq), "S1"):
         if coupling == "direct":
             # the follower: its emitter resistor and output capacitor only
-            rows.extend({**s1, "S2.RE": re, "S2.C_OUT": c} for re in sorted(rq)
-                        for c in sorted(cq))
+            for re in sorted(rq):
+                for c in sorted(cq):
+                    row = {**s1, "S2.RE": re, "S2.C_OUT": c}
+                    if keep is None or keep(row):
+                        rows.append(row)
             continue
         for s2 in _stage_rows(k2, sorted(rq), sorted(cq), "S2"):
             for cc in sorted(cq):
-                rows.append({**s1, **s2, "C_COUPLE": cc})
+                row = {**s1, **s2, "C_COUPLE": cc}
+                if keep is None or keep(row):
+                    rows.append(row)
     best, meeting = None, 0
     for start in range(0, len(rows), chunk):
         part = rows[start:start + chunk]

@@ -4,8 +4,10 @@ stages, and the requests it refuses.
 
 The enumeration is the reference: every assignment of stock values to every role of
 both stages, evaluated by the two-transistor engine (itself checked against ngspice in
-tests/reference/test_ngspice_pairs.py).  The search is not proven complete, so these
-comparisons can fail; ``DRAWERFIT_CHAIN_EXAMPLES=N`` runs N more random drawers.
+tests/reference/test_ngspice_pairs.py).  Without a time limit the search's proof runs
+to its end, so its best is proven under the assumptions of docs/search.md ("What is
+proven"); these comparisons are where those could fail.
+``DRAWERFIT_CHAIN_EXAMPLES=N`` runs N more random drawers.
 """
 
 from __future__ import annotations

@@ -22,6 +22,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+import drawerfit.cli  # noqa: F401  (the commands load in their order)
+from drawerfit.commands.design import DEFAULT_TIME_LIMIT_S
 from inventory.store import open_store
 from optimiser.device import device_from_transistor
 from optimiser.request import parse_request
@@ -50,7 +52,7 @@ def found(tmp_path_factory, request):
         store.import_csv(p)
     snap = store.snapshot()
     req = parse_request(dict(USER_CHECK, coupling=coupling), pairs=True)
-    result = search_chains(req, snap, top=10)
+    result = search_chains(req, snap, top=10, time_limit_s=DEFAULT_TIME_LIMIT_S)  # as design
     assert len(result.designs) >= 3, result.search
     assert all(d.coupling == coupling for d in result.designs)
     # one transistor type in both stages: the deck's one model (the type most of the
