@@ -20,6 +20,7 @@ from optimiser.options import CAPACITOR_DERATING, StockOptions
 from optimiser.request import Request
 from optimiser.score import score_gain_target, score_terms
 from optimiser.search.limits import gain_window
+from optimiser.search.miss_pool import MissPool, miss_rank
 from optimiser.search.skeletons import Skeletons, cap_roles, resistor_roles
 from optimiser.search.stock import _alloc_caps, _ratings_best, _stresses
 from optimiser.stage import PartRatings, StageBatch
@@ -191,9 +192,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                 first[a] = ev.take(np.array([j]))
                 fk = set(ev.failed_keys(j))
                 if fk - UP_KEYS - {"zin_ohm"}:
-                    pool.append(("full", sk, li[[a]], first[a]))
                     _pool_design(request, opts, sk, li[a], rows[a], allocs[a], vec[a], st_all[a],
-                                 first[a], croles, t_empty, stats, pool)
+                                 first[a], croles, t_empty, pool)
                     continue            # fails on something capacitors cannot change
             if bool(ev.meets[j]):
                 calloc = _alloc_caps(opts, croles, vec[a], st_all[a])
@@ -201,9 +201,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                     accepted[a] = (vec[a].copy(), ev.take(np.array([j])), calloc)
                     continue
             if rnd == 3 and not bool(ev.meets[j]):
-                pool.append(("full", sk, li[[a]], ev.take(np.array([j]))))
                 _pool_design(request, opts, sk, li[a], rows[a], allocs[a], vec[a], st_all[a],
-                             ev.take(np.array([j])), croles, t_empty, stats, pool)
+                             ev.take(np.array([j])), croles, t_empty, pool)
                 if not _cap_helpable(ev, j, request):
                     continue
             still.append(a)
@@ -355,26 +354,60 @@ def _top_screen(request, opts, part: Skeletons, croles, need, top_vec, stats):
     return np.array([a for a in range(k_n) if a not in drop], dtype=int)
 
 
-#: How many of the designs the confirmation evaluated and rejected are kept, as
-#: stock designs, for the nearest misses of an infeasible answer (the first ones
-#: met: the branch and bound confirms the best-bounded skeletons first).
-POOL_DESIGNS = 40
-
-
-def _pool_design(request, opts, sk, i, row, alloc, vec, st, ev_one, croles, t_empty, stats,
-                 pool) -> None:
-    """Keep a rejected skeleton with the capacitors it was evaluated with as a stock
-    design (``("design", Design)`` in ``pool``), up to :data:`POOL_DESIGNS`: the
-    nearest misses start from what the search itself saw.  Its verdict is the
-    caller's to give again (:func:`optimiser.search.suggestions.explain` judges it)."""
-    if stats.get("pool_designs", 0) >= POOL_DESIGNS:
+def _pool_design(request, opts, sk, i, row, alloc, vec, st, ev_one, croles, t_empty,
+                 pool: MissPool) -> None:
+    """Offer a rejected skeleton with the capacitors it was evaluated with to ``pool``
+    as a stock design: the nearest misses start from what the search itself saw.  Its
+    verdict is the caller's to give again (:func:`optimiser.search.suggestions.explain`
+    judges it)."""
+    rank = miss_rank(request, ev_one, 0)
+    if not pool.admits(rank):
         return
     calloc = _alloc_caps(opts, croles, vec, st)
     if calloc is None:
         return
-    stats["pool_designs"] = stats.get("pool_designs", 0) + 1
-    pool.append(("design", _make_design(request, sk, int(i), row, alloc, calloc, ev_one, None,
-                                        croles, t_empty)))
+    pool.add(rank, _make_design(request, sk, int(i), row, alloc, calloc, ev_one, None, croles,
+                                t_empty))
+
+
+def pool_quick_rejects(request, opts: StockOptions, sk: Skeletons, li, rows, ev, pool: MissPool
+                       ) -> None:
+    """Offer the skeletons ``sk[li]`` that failed their quick evaluation ``ev`` (rows of
+    the search's figures ``rows``) to ``pool`` as stock designs: the resistors from the
+    rows that bear their dissipation, every capacitor the largest in stock that bears
+    its voltage.  Those the stock cannot supply so are left out."""
+    V = float(request.supply_v)
+    croles = cap_roles(sk.topology, sk.form)
+    t = sk.transistor
+    t_empty = int(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
+    cv = opts.capacitor.values
+    for j, i in enumerate(li):
+        rank = miss_rank(request, ev, j)
+        if not pool.admits(rank) or not all(np.isfinite(ev.metrics[k][j])
+                                            for k in ("vb_v", "ve_v", "vc_v")):
+            continue
+        st = _stresses(sk, int(i), ev.metrics, j, V)
+        alloc = opts.allocate({r: ("resistor", float(getattr(sk, r)[i]), st[r])
+                               for r in resistor_roles(sk.topology, sk.form, float(sk.RC[i]))})
+        if alloc is None:
+            continue
+        vec = []
+        for c in croles:
+            ok = np.flatnonzero(opts.capacitor.best_rating * CAPACITOR_DERATING
+                                >= st[c] * (1 - 1e-9))
+            if ok.size == 0:
+                break
+            vec.append(int(ok[-1]))
+        if len(vec) != len(croles) or cv.size == 0:
+            continue
+        calloc = _alloc_caps(opts, croles, np.array(vec), st)
+        if calloc is None:
+            continue
+        row = dict(rows[j])
+        row.update({k: float(v[j]) for k, v in ev.metrics.items() if k not in row})
+        one = ev.take(np.array([j]))
+        pool.add(rank, _make_design(request, sk, int(i), row, alloc, calloc, one, None, croles,
+                                    t_empty))
 
 
 def _eval_vectors(request, opts, part: Skeletons, croles, vecs, large_signal=False):
