@@ -90,7 +90,7 @@ def search(request: Request, snapshot: StockSnapshot, *, top: int = 10, misses: 
         result = SearchResult(request, False, [], [], [], stats, limits=limits)
         if misses > 0:
             result.nearest_misses, result.unlock, result.unlock_changes = explain(
-                request, snapshot, [], misses, stats, limits=limits)
+                request, snapshot, None, misses, stats, limits=limits)
         stats["seconds"] = time.perf_counter() - t0
         return result
     want = top * 3 if request.min_yield_pct is not None else top

@@ -17,7 +17,7 @@ from optimiser.request import Request
 from optimiser.score import STOCK_PENALTY
 from optimiser.search.chain_answer import ChainDesign
 from optimiser.search.chain_score import chain_score_terms
-from optimiser.stage import PartRatings
+from optimiser.search.stock import piece_ratings
 from optimiser.stages import pair_form
 from optimiser.stages.pair import PairBatch
 
@@ -98,34 +98,6 @@ def _label(value: float) -> str:
     return format_value(value, "capacitor")
 
 
-def _share(pick: RolePick) -> float:
-    if len(pick.pieces) < 2 or pick.joined is None:
-        return 1.0
-    # series: R_i/(R_a+R_b); parallel: R_other/(R_a+R_b); the larger share either way
-    a, b = (p.value for p in pick.pieces[:2])
-    return max(a, b) / (a + b)
-
-
-def _ratings(picks: list[dict[str, RolePick]], roles) -> PartRatings:
-    r = PartRatings()
-    for role in roles:
-        col = [p.get(role) for p in picks]
-        if all(c is None or not c.pieces for c in col):
-            continue
-        kind = next(c.pieces[0].kind for c in col if c is not None and c.pieces)
-        rating = np.array([min((x.rating or np.inf) for x in c.pieces) if c and c.pieces
-                           else np.inf for c in col])
-        if kind == "resistor":
-            r.power_w[role] = np.where(np.isfinite(rating), rating, 0.25)
-            r.power_share[role] = np.array([_share(c) if c else 1.0 for c in col])
-        else:
-            r.voltage_v[role] = np.where(np.isfinite(rating), rating, 50.0)
-            r.polarised[role] = np.array([bool(c and c.pieces and (c.pieces[0].dielectric or "")
-                                               .lower() in POLARISED_DIELECTRICS)
-                                          for c in col])
-    return r
-
-
 #: Chains evaluated with their THD at a time, in order of their score without it.
 CHUNK = 48
 
@@ -136,7 +108,7 @@ def _batch(form, items, snapshot, labels):
               for role in form.role_names}
     batch = PairBatch.from_values(form, **values)
     transistors = tuple(snapshot.transistor(x) for x in labels)
-    return batch, transistors, _ratings(picks, form.role_names)
+    return batch, transistors, piece_ratings(picks, form.role_names)
 
 
 def _designs(request, form, ev, items, labels, terms):

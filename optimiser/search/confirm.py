@@ -20,9 +20,12 @@ from optimiser.options import CAPACITOR_DERATING, StockOptions
 from optimiser.request import Request
 from optimiser.score import score_gain_target, score_terms
 from optimiser.search.limits import gain_window
+from optimiser.search.miss_pool import MissPool, miss_rank
 from optimiser.search.skeletons import Skeletons, cap_roles, resistor_roles
 from optimiser.search.stock import _alloc_caps, _ratings_best, _stresses
 from optimiser.stage import PartRatings, StageBatch
+from optimiser.stages import module as stage_module
+from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
 
 #: Skeletons confirmed by one call of the engine: more vectorise better, fewer
 #: confirm less beyond the score a design of the same batch would have set to beat.
@@ -172,6 +175,7 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
     accepted: dict[int, tuple] = {}
     first: dict[int, object] = {}
     pending = _top_screen(request, opts, part, croles, need, top_vec, stats)
+    pending = _f_high_screen(request, opts, part, croles, allowed, pending, stats)
     for rnd in range(4):
         if pending.size == 0:
             break
@@ -191,9 +195,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                 first[a] = ev.take(np.array([j]))
                 fk = set(ev.failed_keys(j))
                 if fk - UP_KEYS - {"zin_ohm"}:
-                    pool.append(("full", sk, li[[a]], first[a]))
                     _pool_design(request, opts, sk, li[a], rows[a], allocs[a], vec[a], st_all[a],
-                                 first[a], croles, t_empty, stats, pool)
+                                 first[a], croles, t_empty, pool)
                     continue            # fails on something capacitors cannot change
             if bool(ev.meets[j]):
                 calloc = _alloc_caps(opts, croles, vec[a], st_all[a])
@@ -201,9 +204,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
                     accepted[a] = (vec[a].copy(), ev.take(np.array([j])), calloc)
                     continue
             if rnd == 3 and not bool(ev.meets[j]):
-                pool.append(("full", sk, li[[a]], ev.take(np.array([j]))))
                 _pool_design(request, opts, sk, li[a], rows[a], allocs[a], vec[a], st_all[a],
-                             ev.take(np.array([j])), croles, t_empty, stats, pool)
+                             ev.take(np.array([j])), croles, t_empty, pool)
                 if not _cap_helpable(ev, j, request):
                     continue
             still.append(a)
@@ -289,6 +291,80 @@ def f_low_missed(request: Request, batch: StageBatch, transistor) -> np.ndarray:
     return missed
 
 
+#: The capacitors in series with the signal; the others (C_BYP, C_B) are shelves: a
+#: smaller one lowers the midband gain and so can widen the band.
+COUPLING_ROLES = ("C_IN", "C_OUT")
+#: Widening of the response with the largest coupling capacitors before
+#: :func:`f_high_missed` compares it with the gain window's −3.01 dB line (A4; against
+#: the engine on 11 374 valid random ce and cb designs the least ratio of that response
+#: to the design's own line, at grid points up to its f_high, was 1.00003).
+F_HIGH_SCREEN_MARGIN = 1.001
+#: Grid points (the highest at or below f_high_min_hz) :func:`f_high_missed` solves the
+#: network at: any of them below the line proves the miss; more cost a solve each and
+#: seldom add one (the response falls above the band).
+F_HIGH_SCREEN_POINTS = 2
+#: Gain laws A4 was tested for (output at the collector: ce and cb).
+F_HIGH_SCREEN_LAWS = (DEGENERATED, EMITTER_DRIVEN)
+
+
+def f_high_missed(request: Request, batch: StageBatch, transistor) -> np.ndarray:
+    """True where no valid design of these resistors, transistor and shelf
+    capacitors (C_BYP, C_B as in ``batch``), with coupling capacitors
+    (:data:`COUPLING_ROLES`) no larger than ``batch``'s, has a gain in the window and
+    f_high ≥ ``f_high_min_hz``; (n,) bool.  All False without an f_high target, a
+    gain target, or ft and cob, and for gain laws other than F_HIGH_SCREEN_LAWS.
+
+    The engine takes as f_high a root below the smallest grid point above mid_hz
+    where |H| is under |H(mid)|·10^(−EDGE_DB/20), so a design with f_high ≥
+    f_high_min_hz is at or above that line at every grid point p in
+    (mid_hz, f_high_min_hz]; in the window |H(mid)| ≥ G_lo, its least gain.  By A4
+    (docs/search.md) a valid design's |H(p)| there is at most that of the stage with
+    the larger coupling capacitors of ``batch``: where that response, widened by
+    F_HIGH_SCREEN_MARGIN, lies under G_lo·10^(−EDGE_DB/20) at such a p, no such
+    design exists.  The network is solved at the highest F_HIGH_SCREEN_POINTS of
+    those grid points only.
+    """
+    missed = np.zeros(batch.n, dtype=bool)
+    win = gain_window(request)
+    model = device_from_transistor(transistor)
+    if request.f_high_min_hz is None or win is None or not (model.has_ft and model.has_cob) \
+            or stage_module(batch.topology).SEARCH.gain_law not in F_HIGH_SCREEN_LAWS:
+        return missed
+    grid = ac.edge_grid(request.mid_hz)
+    pts = grid[(grid > request.mid_hz) & (grid <= request.f_high_min_hz)][-F_HIGH_SCREEN_POINTS:]
+    if pts.size == 0 or batch.n == 0:
+        return missed
+    op = operating_point(batch.topology, request.supply_v, batch, model)
+    h = np.abs(ac.frequency_response(request, batch, model, op, pts))
+    line = win[0] * 10.0 ** (-ac.EDGE_DB / 20.0)
+    return (h * F_HIGH_SCREEN_MARGIN < line).any(axis=0)
+
+
+def _f_high_screen(request, opts, part: Skeletons, croles, allowed, pending, stats):
+    """Of the skeletons ``pending``, those :func:`f_high_missed` leaves with some
+    allowed value of their shelf capacitor (each tried) and the coupling capacitors
+    at their largest allowed values (the rounds of capacitor choice and the
+    enumeration only ever take those or smaller ones)."""
+    if request.f_high_min_hz is None or len(pending) == 0 or gain_window(request) is None:
+        return pending
+    cv = opts.capacitor.values
+    rows, vecs = [], []
+    for a in pending:
+        per_role = [np.flatnonzero(allowed[a][k])[-1:] if r in COUPLING_ROLES
+                    else np.flatnonzero(allowed[a][k]) for k, r in enumerate(croles)]
+        for v in itertools.product(*per_role):
+            rows.append(a)
+            vecs.append(v)
+    vecs = np.array(vecs, dtype=int)
+    rows = np.array(rows, dtype=int)
+    caps = {r: cv[vecs[:, k]] for k, r in enumerate(croles)}
+    missed = f_high_missed(request, part.take(rows).batch(caps), part.transistor)
+    drop = {a for a in pending if missed[rows == a].all()}
+    stats["pruned"]["f_high_largest_caps"] = (stats["pruned"].get("f_high_largest_caps", 0)
+                                             + len(drop))
+    return np.array([a for a in pending if a not in drop], dtype=int)
+
+
 #: Skeletons the confirmation's screen (:func:`_top_screen`) must have dropped before
 #: every later skeleton of the search is screened the same way ahead of its quick
 #: evaluation (:func:`f_low_prescreen`): where f_low_max is not what stops them, the
@@ -355,26 +431,60 @@ def _top_screen(request, opts, part: Skeletons, croles, need, top_vec, stats):
     return np.array([a for a in range(k_n) if a not in drop], dtype=int)
 
 
-#: How many of the designs the confirmation evaluated and rejected are kept, as
-#: stock designs, for the nearest misses of an infeasible answer (the first ones
-#: met: the branch and bound confirms the best-bounded skeletons first).
-POOL_DESIGNS = 40
-
-
-def _pool_design(request, opts, sk, i, row, alloc, vec, st, ev_one, croles, t_empty, stats,
-                 pool) -> None:
-    """Keep a rejected skeleton with the capacitors it was evaluated with as a stock
-    design (``("design", Design)`` in ``pool``), up to :data:`POOL_DESIGNS`: the
-    nearest misses start from what the search itself saw.  Its verdict is the
-    caller's to give again (:func:`optimiser.search.suggestions.explain` judges it)."""
-    if stats.get("pool_designs", 0) >= POOL_DESIGNS:
+def _pool_design(request, opts, sk, i, row, alloc, vec, st, ev_one, croles, t_empty,
+                 pool: MissPool) -> None:
+    """Offer a rejected skeleton with the capacitors it was evaluated with to ``pool``
+    as a stock design: the nearest misses start from what the search itself saw.  Its
+    verdict is the caller's to give again (:func:`optimiser.search.suggestions.explain`
+    judges it)."""
+    rank = miss_rank(request, ev_one, 0)
+    if not pool.admits(rank):
         return
     calloc = _alloc_caps(opts, croles, vec, st)
     if calloc is None:
         return
-    stats["pool_designs"] = stats.get("pool_designs", 0) + 1
-    pool.append(("design", _make_design(request, sk, int(i), row, alloc, calloc, ev_one, None,
-                                        croles, t_empty)))
+    pool.add(rank, _make_design(request, sk, int(i), row, alloc, calloc, ev_one, None, croles,
+                                t_empty))
+
+
+def pool_quick_rejects(request, opts: StockOptions, sk: Skeletons, li, rows, ev, pool: MissPool
+                       ) -> None:
+    """Offer the skeletons ``sk[li]`` that failed their quick evaluation ``ev`` (rows of
+    the search's figures ``rows``) to ``pool`` as stock designs: the resistors from the
+    rows that bear their dissipation, every capacitor the largest in stock that bears
+    its voltage.  Those the stock cannot supply so are left out."""
+    V = float(request.supply_v)
+    croles = cap_roles(sk.topology, sk.form)
+    t = sk.transistor
+    t_empty = int(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
+    cv = opts.capacitor.values
+    for j, i in enumerate(li):
+        rank = miss_rank(request, ev, j)
+        if not pool.admits(rank) or not all(np.isfinite(ev.metrics[k][j])
+                                            for k in ("vb_v", "ve_v", "vc_v")):
+            continue
+        st = _stresses(sk, int(i), ev.metrics, j, V)
+        alloc = opts.allocate({r: ("resistor", float(getattr(sk, r)[i]), st[r])
+                               for r in resistor_roles(sk.topology, sk.form, float(sk.RC[i]))})
+        if alloc is None:
+            continue
+        vec = []
+        for c in croles:
+            ok = np.flatnonzero(opts.capacitor.best_rating * CAPACITOR_DERATING
+                                >= st[c] * (1 - 1e-9))
+            if ok.size == 0:
+                break
+            vec.append(int(ok[-1]))
+        if len(vec) != len(croles) or cv.size == 0:
+            continue
+        calloc = _alloc_caps(opts, croles, np.array(vec), st)
+        if calloc is None:
+            continue
+        row = dict(rows[j])
+        row.update({k: float(v[j]) for k, v in ev.metrics.items() if k not in row})
+        one = ev.take(np.array([j]))
+        pool.add(rank, _make_design(request, sk, int(i), row, alloc, calloc, one, None, croles,
+                                    t_empty))
 
 
 def _eval_vectors(request, opts, part: Skeletons, croles, vecs, large_signal=False):

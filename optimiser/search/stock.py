@@ -7,6 +7,12 @@ from types import SimpleNamespace
 
 import numpy as np
 
+from inventory.parts import (
+    DEFAULT_CAPACITOR_VOLTAGE_V,
+    DEFAULT_RESISTOR_POWER_W,
+    POLARISED_DIELECTRICS,
+)
+from optimiser.design import RolePick
 from optimiser.options import StockOptions
 from optimiser.search.skeletons import Skeletons, cap_roles
 from optimiser.stage import PartRatings
@@ -66,3 +72,37 @@ def stock_units(opts: StockOptions, rv: np.ndarray):
     virtual = np.array([any((opts.rows[i].id is not None and opts.rows[i].id < 0)
                             for i in opts.rows_of("resistor", v)) for v in rv])
     return units, maxq, virtual
+
+
+def _share(pick: RolePick) -> float:
+    """The largest share of a role's dissipation one of its pieces takes."""
+    if len(pick.pieces) < 2 or pick.joined is None:
+        return 1.0
+    # series: R_i/(R_a+R_b); parallel: R_other/(R_a+R_b); the larger share either way
+    a, b = (p.value for p in pick.pieces[:2])
+    return max(a, b) / (a + b)
+
+
+def piece_ratings(picks: list[dict[str, RolePick]], roles) -> PartRatings:
+    """Ratings of the very pieces of each design (``picks``: role -> RolePick per
+    design) for the engine's derating rules, over ``roles``: a resistor role its
+    least piece rating and the largest share one piece takes, a capacitor role its
+    voltage rating and whether it is polarised."""
+    r = PartRatings()
+    for role in roles:
+        col = [p.get(role) for p in picks]
+        if all(c is None or not c.pieces for c in col):
+            continue
+        kind = next(c.pieces[0].kind for c in col if c is not None and c.pieces)
+        rating = np.array([min((x.rating or np.inf) for x in c.pieces) if c and c.pieces
+                           else np.inf for c in col])
+        if kind == "resistor":
+            r.power_w[role] = np.where(np.isfinite(rating), rating, DEFAULT_RESISTOR_POWER_W)
+            r.power_share[role] = np.array([_share(c) if c else 1.0 for c in col])
+        else:
+            r.voltage_v[role] = np.where(np.isfinite(rating), rating,
+                                          DEFAULT_CAPACITOR_VOLTAGE_V)
+            r.polarised[role] = np.array([bool(c and c.pieces and (c.pieces[0].dielectric or "")
+                                               .lower() in POLARISED_DIELECTRICS)
+                                          for c in col])
+    return r

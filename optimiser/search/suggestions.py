@@ -12,13 +12,15 @@
   nearest the original target is named; a nearer one is not ruled out, except
   where a completed search proved that none exists within a window (the gain
   steps say so).
-* **Nearest misses.**  The stock designs the proof's confirmation evaluated and
-  rejected (:func:`optimiser.search.confirm._pool_design`, in ``pool``), and the
-  designs of those searches and of one search with
-  every target loosened (gain window + 6 dB, no other target; validity rules
-  stay), judged against the *original* request.  Only real designs whose pieces
-  the stock supplies for ``builds`` copies are kept; they are ordered by the
-  number of targets they miss, then by their distance (:func:`miss_distance`).
+* **Nearest misses.**  The stock designs the proof evaluated and rejected (its
+  :class:`~optimiser.search.miss_pool.MissPool`), and the designs found and
+  rejected by those searches and by one search with every target loosened (gain
+  window + 6 dB, no other target; validity rules stay), which runs until it holds
+  one, judged against the *original* request with their pieces' ratings; where
+  none of them holds one, a search with no target at all (:func:`_any_designs`).
+  Only real designs whose pieces the stock supplies for ``builds`` copies are
+  kept; they are ordered by the number of targets they miss, then by their
+  distance (:func:`miss_distance`).
 * **What the capacitors in stock allow.**  With an f_low target, the floor every
   stage of the drawer obeys (:func:`optimiser.f_low_bounds.drawer_f_low_floor`: the
   largest capacitor in stock against the largest loop resistance a stage can
@@ -46,6 +48,15 @@ from optimiser.design import Design
 from optimiser.evaluate import evaluate
 from optimiser.f_low_bounds import capacitance_needed, drawer_f_low_floor
 from optimiser.request import Request
+from optimiser.search.miss_pool import (
+    TARGETS,
+    UNITS,
+    miss_distance,
+    miss_order,
+    shortfalls,
+    values_key,
+)
+from optimiser.search.stock import piece_ratings
 from optimiser.search.tree import search_designs
 from optimiser.stage import StageBatch
 from optimiser.stages import module as stage_module
@@ -73,55 +84,11 @@ GAIN_STEPS_DB = (3.0, 6.0, 12.0, 24.0, 48.0, 96.0)
 #: How many designs each relaxation search returns to choose the nearest from.
 RELAX_TOP = 20
 
-#: Targets of a request: key, metric, sense ("max": metric ≤ limit, "min": ≥).
-TARGETS = (("f_low_max_hz", "f_low_hz", "max"), ("f_high_min_hz", "f_high_hz", "min"),
-           ("zin_min_ohm", "zin_ohm", "min"), ("ic_drift_max_pct", "ic_drift_pct", "max"),
-           ("thd_max_pct", "thd_pct", "max"), ("ic_min_a", "ic_a", "min"))
-UNITS = {"f_low_max_hz": "Hz", "f_high_min_hz": "Hz", "zin_min_ohm": "Ω",
-         "ic_drift_max_pct": "%", "thd_max_pct": "%", "ic_min_a": "A"}
-
-
 def relaxed(request: Request) -> Request:
     """The request with its targets loosened (validity rules are not relaxable)."""
     return replace(request, gain_tol_db=request.gain_tol_db + 6.0, f_low_max_hz=None,
                    f_high_min_hz=None, zin_min_ohm=None, ic_drift_max_pct=None,
                    thd_max_pct=None, ic_min_a=None, min_yield_pct=None)
-
-
-def _shortfalls(request: Request, m: dict) -> dict[str, float]:
-    """Target key -> relative shortfall (> 0 means missed)."""
-    out = {}
-    if request.gain is not None and m.get("gain_db") is not None:
-        d = abs(m["gain_db"] - request.gain_db) - request.gain_tol_db
-        if d > 1e-12:
-            out["gain_db"] = d / max(request.gain_tol_db, 1e-3)
-    for key, metric, sense in TARGETS:
-        lim = getattr(request, key)
-        v = m.get(metric)
-        if lim is None:
-            continue
-        if v is None or not math.isfinite(v):
-            continue
-        if sense == "max" and v > lim:
-            out[key] = v / lim - 1.0
-        elif sense == "min" and v < lim:
-            out[key] = lim / max(v, 1e-300) - 1.0
-    return out
-
-
-def miss_distance(request: Request, metrics: dict, valid: bool = True) -> float:
-    """Distance of a design's figures to the request (0 when it meets every target).
-
-    The sum over the targets missed of the normalised shortfall: the gain's dB
-    outside the window divided by gain_tol_db; an upper limit's value/limit − 1;
-    a lower limit's limit/value − 1.  An invalid design adds 10.
-    """
-    return sum(_shortfalls(request, metrics).values()) + (0.0 if valid else 10.0)
-
-
-def miss_order(d: Design) -> tuple:
-    """Sort key of the nearest misses: fewest violations, then the smallest distance."""
-    return (len(d.violations), d.extra.get("miss_distance", math.inf))
 
 
 def stock_shortfall(design: Design, snapshot: StockSnapshot, builds: int) -> list[str]:
@@ -151,13 +118,14 @@ def stock_shortfall(design: Design, snapshot: StockSnapshot, builds: int) -> lis
 
 
 def _judge(request: Request, designs: list[Design], snapshot: StockSnapshot) -> list[Design]:
-    """Re-evaluate real stock designs against ``request``; misses get violations and a
-    distance.  Designs the stock cannot supply are dropped.  One engine call per
-    transistor and topology (a role a design lacks is 0, as the engine reads it)."""
+    """Re-evaluate real stock designs against ``request``, each with the ratings of its
+    own pieces; misses get violations and a distance.  Designs the stock cannot supply
+    are dropped.  One engine call per transistor and topology (a role a design lacks
+    is 0, as the engine reads it)."""
     kept = []
     seen = set()
     for d in designs:
-        key = (d.transistor, d.form, tuple(sorted((r, p.value) for r, p in d.parts.items())))
+        key = values_key(d)
         if key in seen or stock_shortfall(d, snapshot, request.builds):
             continue
         seen.add(key)
@@ -171,7 +139,7 @@ def _judge(request: Request, designs: list[Design], snapshot: StockSnapshot) -> 
         roles = sorted({r for d in ds for r in d.values()})
         vals = {r: [d.values().get(r, 0.0) for d in ds] for r in roles}
         ev = evaluate(request, StageBatch.from_values(topo, **vals),
-                      snapshot.transistor(label), None)
+                      snapshot.transistor(label), piece_ratings([d.parts for d in ds], roles))
         for j, d in enumerate(ds):
             m = ev.metrics_of(j)
             for k in ("gain_inf_db", "hd2_pct", "supply_a"):
@@ -183,7 +151,7 @@ def _judge(request: Request, designs: list[Design], snapshot: StockSnapshot) -> 
             dist = miss_distance(request, m, bool(ev.valid[j]))
             out.append((idx[j], replace(d, metrics=m, meets_spec=False, violations=viol,
                                         rank=None, extra={**d.extra, "miss_distance": dist,
-                                                          "shortfalls": _shortfalls(request, m)})))
+                                                          "shortfalls": shortfalls(request, m)})))
     out.sort(key=lambda x: x[0])            # the order of ``designs`` among equals
     res = [d for _, d in out]
     res.sort(key=miss_order)
@@ -221,6 +189,10 @@ class _Clock:
         self.deadline = time.perf_counter() + seconds
         self.skipped: list[str] = []
 
+    def left(self) -> float:
+        """Seconds left (0 once the clock has run out)."""
+        return max(self.deadline - time.perf_counter(), 0.0)
+
     def budget(self, own: float, name: str) -> float | None:
         """The budget of the next search (its own, or what is left), or None (skipped)."""
         left = self.deadline - time.perf_counter()
@@ -230,20 +202,24 @@ class _Clock:
         return min(own, left)
 
 
-def _run(request: Request, snapshot: StockSnapshot, stats: dict, name: str, clock: _Clock):
+def _run(request: Request, snapshot: StockSnapshot, stats: dict, name: str, clock: _Clock,
+         rejected: list[Design]):
     """(designs, complete) of the exact search of ``request`` within RELAX_BUDGET_S and
-    the answer's shared clock."""
+    the answer's shared clock; the stock designs it rejected are added to ``rejected``."""
     budget = clock.budget(RELAX_BUDGET_S, name)
     if budget is None:
         return [], False
     s: dict = {"pruned": {}}
-    found, _ = search_designs(request, snapshot, RELAX_TOP, s, budget_s=budget)
+    found, pool = search_designs(request, snapshot, RELAX_TOP, s, budget_s=budget)
+    rejected += pool.designs()
     stats.setdefault("relax_searches", {})[name] = len(found)
     return found, not s.get("stopped_at_budget", False)
 
 
-def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits, clock: _Clock):
-    """(designs found, change) for the gain target, or (designs, None)."""
+def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits, clock: _Clock,
+                rejected: list[Design]):
+    """(designs found, change) for the gain target, or (designs, None); the stock
+    designs its searches rejected are added to ``rejected``."""
     base = replace(request, min_yield_pct=None)
     tol = request.gain_tol_db
     # a physical limit already proves the window empty up to its bound
@@ -254,7 +230,7 @@ def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits, 
         steps = [empty_within - tol + 3.0] + steps
     for d in steps:
         found, complete = _run(replace(base, gain_tol_db=tol + d), snapshot, stats,
-                               f"gain_tol_db {tol + d:g}", clock)
+                               f"gain_tol_db {tol + d:g}", clock, rejected)
         if not found:
             if complete:
                 empty_within = max(empty_within, tol + d)
@@ -278,11 +254,12 @@ def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits, 
 
 
 def _relax_limit(request: Request, key: str, snapshot: StockSnapshot, stats: dict,
-                 clock: _Clock):
-    """(designs found, change) for one limit target relaxed (removed), or (designs, None)."""
+                 clock: _Clock, rejected: list[Design]):
+    """(designs found, change) for one limit target relaxed (removed), or (designs, None);
+    the stock designs its search rejected are added to ``rejected``."""
     metric, sense = {k: (mm, s) for k, mm, s in TARGETS}[key]
     found, _ = _run(replace(request, **{key: None}, min_yield_pct=None), snapshot, stats,
-                    f"without {key}", clock)
+                    f"without {key}", clock, rejected)
     vals = [(float(d.metrics[metric]), d) for d in found
             if d.metrics.get(metric) is not None and math.isfinite(d.metrics[metric])]
     if not vals:
@@ -359,28 +336,35 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
     clock = _Clock(EXPLAIN_BUDGET_S)
     # what the proof itself evaluated and rejected: stock designs, judged below with
     # the rest (the searches after it may add nearer ones)
-    candidates += [p[1] for p in pool or () if p[0] == "design"]
-    # the nearest misses first (what the answer shows), with a share of the clock
+    candidates += pool.designs() if pool is not None else []
+    # the nearest misses first (what the answer shows), with a share of the clock but
+    # never without one: the designs it finds and those it rejects
     if not any(x["target"] == "gain_db" for x in limits):
         s2: dict = {"pruned": {}}
-        found, _ = search_designs(relaxed(request), snapshot, max(4 * misses, 20), s2,
-                                  budget_s=min(MISS_BUDGET_S, MISS_SHARE * EXPLAIN_BUDGET_S))
+        found, rejected = search_designs(
+            relaxed(request), snapshot, max(4 * misses, 20), s2,
+            budget_s=min(MISS_BUDGET_S, MISS_SHARE * EXPLAIN_BUDGET_S), until_one=True)
         stats["misses_search"] = {k: v for k, v in s2.items() if k != "pruned"}
-        candidates += found
+        candidates += found + rejected.designs()
     # past a physical limit nothing unlocks the request but relaxing the limited
     # targets: the other relaxations would search in vain
     only = {x["target"] for x in limits} or None
     for key in relaxation_order(request, stats, note is not None):
         if only is not None and key not in only:
             continue
+        rejected_by: list[Design] = []
         if key == "gain_db":
-            found, change = _relax_gain(request, snapshot, stats, list(limits), clock)
+            found, change = _relax_gain(request, snapshot, stats, list(limits), clock,
+                                        rejected_by)
         else:
-            found, change = _relax_limit(request, key, snapshot, stats, clock)
-        candidates += found
+            found, change = _relax_limit(request, key, snapshot, stats, clock, rejected_by)
+        candidates += found + rejected_by
         if change:
             changes.append(change)
     judged = _judge(request, candidates, snapshot)
+    if not judged:
+        judged = _judge(request, _any_designs(request, snapshot, misses, stats, clock.left()),
+                        snapshot)
     nearest = judged[:misses]
     for r, d in enumerate(nearest, 1):
         d.rank = r
@@ -401,6 +385,20 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
         unlock.append(f"not examined within the {EXPLAIN_BUDGET_S:g} s given to suggestions: "
                       + ", ".join(clock.skipped))
     return nearest, unlock, changes
+
+
+def _any_designs(request: Request, snapshot: StockSnapshot, misses: int, stats: dict,
+                 budget_s: float) -> list[Design]:
+    """Stock designs of the topology with no target at all (no gain either; every
+    validity rule kept): the designs found and those rejected, by a search that runs
+    past ``budget_s`` until it holds one.  The last source of nearest misses, for when
+    the searches nearer the request gave none; it finds none only where it searched
+    the drawer to the end."""
+    s: dict = {"pruned": {}}
+    found, rejected = search_designs(replace(relaxed(request), gain=None), snapshot,
+                                     max(misses, 1), s, budget_s=budget_s, until_one=True)
+    stats["any_design_search"] = {k: v for k, v in s.items() if k != "pruned"}
+    return found + rejected.designs()
 
 
 def f_low_floor_note(request: Request, snapshot: StockSnapshot) -> tuple[str, dict] | None:

@@ -30,11 +30,13 @@ from optimiser.search.confirm import (
     _evaluate,
     _large_signal,
     f_low_prescreen,
+    pool_quick_rejects,
     prescreen_active,
     prescreen_backlog,
 )
 from optimiser.search.job import _Job
 from optimiser.search.limits import gain_window
+from optimiser.search.miss_pool import MissPool
 from optimiser.search.pricing import Pricing, score_to_beat
 from optimiser.search.seeding import _seed_designs
 from optimiser.search.skeletons import FORMS, Skeletons, _take_all
@@ -74,8 +76,15 @@ def usable_transistors(request: Request, snapshot: StockSnapshot) -> list[Transi
 
 def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
                    progress=None, budget_s: float | None = None, given=None, workers=None,
-                   finish: bool = True, pricing: Pricing | None = None):
-    """Steps 2–5 as a best-first branch and bound; (designs, pool of evaluated misses).
+                   finish: bool = True, pricing: Pricing | None = None,
+                   until_one: bool = False):
+    """Steps 2–5 as a best-first branch and bound; (designs, :class:`MissPool` of the
+    stock designs it evaluated and rejected, over all its rounds and processes).
+
+    With ``until_one`` the budget stops the search only once it holds a design or a
+    rejected stock design (the nearest-miss searches: an answer that nothing meets
+    the request names a miss whenever the drawer has one); the search then runs in
+    one process, so that no other process's share is left unsearched.
 
     The branch and bound runs first with an aspiration level: every node whose
     bound reaches ``ASPIRATION[0]`` is dropped as if ``top`` designs that good
@@ -97,25 +106,26 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     jobs = [_Job(request, opts, t, f, stats, cache) for t in ts for f in FORMS[request.topology]
             if opts.resistor.values.size]
     jobs = [j for j in jobs if j.live]
-    found, pool = [], []
+    found, pool = [], MissPool()
     # with top designs already in hand the score to beat is known: no aspiration
     levels = (math.inf,) if len(seeds) >= top or pricing else ASPIRATION + (math.inf,)
     if workers is None:
         n_values = np.unique([r.value for r in snapshot.resistors]).size
         workers = worker_count(n_values)
+    if until_one:
+        workers = 1
     for cap in levels:
         left = None if budget_s is None else max(budget_s - (time.perf_counter() - t_start), 0.0)
 
         def run(part, shared, st, cap=cap, left=left):
             return _branch_and_bound(request, opts, jobs, top, st,
                                      progress if part[0] == 0 else None, left, cap, seeds,
-                                     part, shared, pricing)
+                                     part, shared, pricing, pool, until_one)
 
         if workers > 1:
-            found, pool = split_branch_and_bound(run, workers, stats)
-            found = _distinct(found)
+            found = _distinct(split_branch_and_bound(run, workers, stats, pool))
         else:
-            found, pool = run((0, 1), None, stats)
+            found = run((0, 1), None, stats)
         if stats.get("stopped_at_budget") or (len(found) >= top and found[top - 1].score <= cap):
             break
         stats["aspiration_rounds"] = stats.get("aspiration_rounds", 0) + 1
@@ -243,12 +253,15 @@ class Entry(NamedTuple):
 
 
 def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, seeds=(),
-                      part=(0, 1), shared=None, pricing=None):
+                      part=(0, 1), shared=None, pricing=None, pool: MissPool | None = None,
+                      until_one: bool = False):
     """One run of the branch and bound, dropping nodes whose bound reaches ``cap``.
 
     ``seeds`` are designs of this drawer already known (they count towards the
     ``top`` to beat and are not reported twice).  Returns every design found
-    (sorted by score) and the pool of evaluated misses.
+    (sorted by score); the stock designs it evaluates and rejects go to ``pool``
+    (with ``until_one`` the budget stops it only once ``pool`` or the designs
+    found hold one).
 
     ``part`` = (k, n): this is process k of a search split over n
     (:mod:`optimiser.search.workers`); ``shared`` (a :class:`optimiser.search.workers.Shared`)
@@ -280,7 +293,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             push(Entry(lb, next(seq), "pairs", PairBlock(tuple(js), p, next(block))))
     found: list[Design] = sorted(seeds, key=_rank_key)
     known = {_design_key(d) for d in found}
-    pool: list = []
+    pool = MissPool() if pool is None else pool
     win = gain_window(request)
     stats.setdefault("drift_checked", 0)
     stats.setdefault("quick_evaluations", 0)
@@ -289,7 +302,8 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
     thd_direct = thd_floor_applies(request)
     t_start = time.perf_counter()
     while any(heaps.values()):
-        if budget_s is not None and time.perf_counter() - t_start > budget_s:
+        if budget_s is not None and time.perf_counter() - t_start > budget_s \
+                and not (until_one and not found and not len(pool)):
             # stopped by the time limit: every design left unexamined scores at
             # least the smallest bound still in the heaps
             stats["stopped_at_budget"] = True
@@ -407,8 +421,9 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                                     if k not in row})
                         good.append((e[0], None, None, e[2], row))
                 bad = np.flatnonzero(~ok)
-                if bad.size and len(pool) < 400:
-                    pool.append(("quick", sk, li[bad], ev.take(bad)))
+                if bad.size:
+                    pool_quick_rejects(request, opts, sk, li[bad], [entries[k][3] for k in bad],
+                                       ev.take(bad), pool)
                 for d in _confirm_group(request, opts, sk, good, stats, pool):
                     if _design_key(d) not in known:
                         known.add(_design_key(d))
@@ -425,4 +440,4 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
         shared.low[k_part] = min(smallest(), cap)
     stats["heap_steps"] = stats.get("heap_steps", 0) + steps
     found.sort(key=_rank_key)
-    return found, pool
+    return found

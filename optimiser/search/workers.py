@@ -119,29 +119,28 @@ def merge_stats(into: dict, other: dict) -> None:
             into.setdefault(k, v)
 
 
-def split_branch_and_bound(run, n: int, stats: dict):
-    """Run ``run(part, shared, stats)`` on ``n`` processes; (designs, pool).
+def split_branch_and_bound(run, n: int, stats: dict, pool):
+    """Run ``run(part, shared, stats)`` on ``n`` processes; the designs found.
 
     ``run`` is the branch and bound of one process, ``part`` = (k, n), ``shared``
     a :class:`Shared` (or None: the whole search in one process); process 0
     runs here (it drives the progress display), the others in forked children
-    that send back their designs and counters.  If a child dies, the blocks it
-    took are not known here, so the whole search is run again in this process:
-    a lost process costs time, never a design.  The pool of evaluated misses
-    is that of process 0 only (misses are only reported when nothing meets the
-    request, and then every process is short).
+    that send back their designs, counters and the rejected stock designs of
+    their copy of ``pool`` (a :class:`optimiser.search.miss_pool.MissPool`,
+    merged into it here).  If a child dies, the blocks it took are not known
+    here, so the whole search is run again in this process: a lost process costs
+    time, never a design.
     """
     ctx = multiprocessing.get_context("fork")
     shared = Shared(ctx, n)
     children = []
     for k in range(1, n):
         recv, send = ctx.Pipe(duplex=False)
-        p = ctx.Process(target=_child, args=(run, (k, n), shared, send), daemon=True)
+        p = ctx.Process(target=_child, args=(run, (k, n), shared, send, pool), daemon=True)
         p.start()
         send.close()
         children.append((k, p, recv))
-    found, pool = run((0, n), shared, stats)
-    found = list(found)
+    found = list(run((0, n), shared, stats))
     for k, p, recv in children:
         try:
             got = recv.recv()
@@ -149,23 +148,24 @@ def split_branch_and_bound(run, n: int, stats: dict):
             got = None
         p.join()
         if isinstance(got, tuple) and got[0] == "ok":
-            _, designs, sub = got
+            _, designs, sub, rejected = got
+            pool.merge(rejected)
         elif isinstance(got, tuple) and got[0] == "error":
             raise RuntimeError(f"search share {k} of {n} failed:\n{got[1]}")
         else:                       # the child died: search everything here
             sub = {"pruned": {}}
-            designs, _ = run((0, 1), None, sub)
+            designs = run((0, 1), None, sub)
         found.extend(designs)
         merge_stats(stats, sub)
     stats["workers"] = n
-    return found, pool
+    return found
 
 
-def _child(run, part, shared, conn) -> None:
+def _child(run, part, shared, conn, pool) -> None:
     try:
         sub: dict = {"pruned": {}}
-        designs, _ = run(part, shared, sub)
-        conn.send(("ok", designs, sub))
+        designs = run(part, shared, sub)
+        conn.send(("ok", designs, sub, pool.items()))
     except BaseException:               # noqa: BLE001 (reported to the parent)
         conn.send(("error", traceback.format_exc()))
     finally:

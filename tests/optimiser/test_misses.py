@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import pytest
+
 import optimiser.search.suggestions as S
 from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
 from optimiser.design import Design, Piece, RolePick
@@ -92,3 +94,119 @@ def test_an_infeasible_f_low_is_explained_even_when_one_relaxation_fits(monkeypa
     assert runs == ["without f_low_max_hz"]
     change = [c for c in res.unlock_changes if c["target"] == "f_low_max_hz"]
     assert change and change[0]["to"] > 2.0
+
+
+# --- every infeasible answer names misses, and the engine agrees with each --------------
+#
+# Outside check: the buildability is counted here from the drawer's own rows (pieces ×
+# builds against each row's quantity), not by the code under test; the verdicts are
+# the engine's (optimiser/evaluate.py) on each miss as built, with its pieces' ratings.
+
+def _seeded_drawer(seed: int, cap_max: float) -> StockSnapshot:
+    """E12 resistors 100 Ω–820 kΩ with a random fifth left out, 1–20 pieces, 0.125–0.5 W;
+    ceramics and electrolytics up to ``cap_max``; two transistor types (invented)."""
+    import numpy as np
+
+    from inventory.values import series_values
+
+    rng = np.random.default_rng(seed)
+    vals = [float(v) for v in series_values("E12", 100.0, 820e3) if rng.random() > 0.2]
+    res = tuple(Resistor(v, int(rng.integers(1, 21)), power_w=float(rng.choice([0.125, 0.25, 0.5])),
+                         id=100 + k, location=f"A{k}") for k, v in enumerate(vals))
+    cvals = [(v, "ceramic" if v < 1e-6 else "electrolytic")
+             for v in (100e-12, 1e-9, 10e-9, 100e-9, 1e-6, 10e-6, 100e-6) if v <= cap_max * 1.001]
+    caps = tuple(Capacitor(v, int(rng.integers(2, 10)), voltage_v=25.0, dielectric=d,
+                           id=300 + k, location=f"B{k}") for k, (v, d) in enumerate(cvals))
+    ts = (Transistor("GP-N1", 100, 300, qty=4, ft=250e6, cob=4e-12, vceo=40, ic_max=0.1,
+                     pd=0.5, vaf=80, id=901, location="T1"),
+          Transistor("GP-N2", 200, 450, qty=2, ft=150e6, cob=6e-12, vceo=30, ic_max=0.1,
+                     pd=0.4, vaf=50, id=902, location="T2"))
+    return StockSnapshot(res, caps, ts)
+
+
+def _ratings_of(d: Design):
+    import numpy as np
+
+    from optimiser.stage import PartRatings
+
+    r = PartRatings()
+    for role, p in d.parts.items():
+        piece = p.pieces[0]
+        if piece.kind == "resistor":
+            r.power_w[role] = np.array([min(x.rating for x in p.pieces)])
+            r.power_share[role] = np.array([1.0])
+        else:
+            r.voltage_v[role] = np.array([piece.rating])
+            r.polarised[role] = np.array([piece.dielectric == "electrolytic"])
+    return r
+
+
+def _check_misses(res, req: Request, snap: StockSnapshot):
+    from optimiser.evaluate import evaluate
+    from optimiser.stage import StageBatch
+
+    assert not res.feasible and res.stats["complete"]
+    assert res.nearest_misses, "an infeasible answer names no nearest miss"
+    qty = {x.id: x.qty for x in (*snap.resistors, *snap.capacitors)}
+    for d in res.nearest_misses:
+        need: dict[int, int] = {}
+        for role, p in d.parts.items():
+            assert p.pieces, role
+            for piece in p.pieces:
+                assert piece.id in qty, (role, piece)
+                need[piece.id] = need.get(piece.id, 0) + piece.count * req.builds
+        assert all(n <= qty[i] for i, n in need.items())
+        assert snap.transistor(d.transistor).qty >= req.builds
+        ev = evaluate(req, StageBatch.from_values(d.topology, **{r: [v] for r, v in
+                                                                 d.values().items()}),
+                      snap.transistor(d.transistor), _ratings_of(d))
+        assert not bool(ev.meets[0])
+        assert sorted(ev.violations(0)) == sorted(d.violations)
+    keys = [miss_order(d) for d in res.nearest_misses]
+    assert keys == sorted(keys)
+
+
+_INFEASIBLE = {
+    # f_low the capacitors cannot reach (1 µF at most, from 50 Ω into 1 kΩ)
+    "ce f_low 2 Hz, caps ≤ 1 µF": (1, 1e-6, dict(topology="ce", supply_v=12.0, load_ohm=1e3,
+                                                 source_ohm=50.0, gain=10.0, gain_tol_db=1.0,
+                                                 f_low_max_hz=2.0, thd_max_pct=5.0,
+                                                 ic_min_a=1e-4)),
+    "cb f_low 10 mHz, caps ≤ 1 µF": (2, 1e-6, dict(topology="cb", supply_v=12.0, load_ohm=1e3,
+                                                   source_ohm=50.0, f_low_max_hz=0.01,
+                                                   thd_max_pct=5.0, ic_min_a=1e-4)),
+    # a follower's gain no divider and load give within ±0.01 dB
+    "cc gain 0.999 ± 0.01 dB": (3, 100e-6, dict(topology="cc", supply_v=12.0, load_ohm=100.0,
+                                                source_ohm=10e3, gain=0.999,
+                                                gain_tol_db=0.01)),
+    # drift and THD beyond the drawer
+    "ce drift 0.05 %": (4, 100e-6, dict(topology="ce", supply_v=12.0, load_ohm=10e3,
+                                        source_ohm=600.0, gain=10.0, gain_tol_db=1.0,
+                                        ic_drift_max_pct=0.05, temp_c=(0.0, 70.0))),
+    # a junction driven directly (base held, 0 Ω source) distorts far above 1 % at 10 mV
+    "cb THD 1 % from 0 Ω": (5, 100e-6, dict(topology="cb", supply_v=12.0, load_ohm=10e3,
+                                            source_ohm=0.0, gain=10.0, gain_tol_db=3.0,
+                                            thd_max_pct=1.0)),
+    # beyond the physical limit (a follower's gain is below 1): no search of the request
+    "cc gain 3": (6, 100e-6, dict(topology="cc", supply_v=12.0, load_ohm=1e3, gain=3.0)),
+}
+
+
+@pytest.mark.parametrize("name", list(_INFEASIBLE))
+def test_an_infeasible_request_names_buildable_misses_the_engine_confirms(name):
+    seed, cap_max, kw = _INFEASIBLE[name]
+    snap = _seeded_drawer(seed, cap_max)
+    req = Request(**kw)
+    res = search(req, snap, top=3, misses=4)
+    _check_misses(res, req, snap)
+
+
+def test_misses_come_even_when_the_suggestions_clock_has_run_out(monkeypatch):
+    # with no time left for suggestions, the nearest-miss search still runs until it
+    # holds a design (found or rejected): the answer never stands without a miss
+    monkeypatch.setattr(S, "EXPLAIN_BUDGET_S", 0.0)
+    seed, cap_max, kw = _INFEASIBLE["ce f_low 2 Hz, caps ≤ 1 µF"]
+    snap = _seeded_drawer(seed, cap_max)
+    req = Request(**kw)
+    res = search(req, snap, top=3, misses=4)
+    _check_misses(res, req, snap)

@@ -9,12 +9,15 @@ import sys
 import pytest
 
 from inventory.errors import InputError
+from optimiser.design import Design, RolePick
+from optimiser.search.miss_pool import MissPool
 from optimiser.search.workers import merge_stats, split_branch_and_bound, worker_count
 
 
-def _fake_run(fail_in_child=None):
+def _fake_run(pool, fail_in_child=None):
     """A stand-in for one share of the branch and bound: its 'designs' are the share
-    numbers, its counters one step each; ``fail_in_child`` makes share 1 raise or
+    numbers, its counters one step each, and it rejects one stock design of its own
+    (RC = its share number) into ``pool``; ``fail_in_child`` makes share 1 raise or
     die when it runs in a forked child."""
     parent = os.getpid()
 
@@ -28,16 +31,20 @@ def _fake_run(fail_in_child=None):
             shared.kth[k] = float(k)
         stats["heap_steps"] = stats.get("heap_steps", 0) + 1
         stats.setdefault("pruned", {})["bias"] = stats.get("pruned", {}).get("bias", 0) + 10
-        return [f"share {k} of {n}"], ["pool"]
+        pool.add((1, float(k)), Design("ce", "GP-N1", {"RC": RolePick("RC", float(k), "x")},
+                                       {}, False))
+        return [f"share {k} of {n}"]
 
     return run
 
 
 def test_every_process_runs_once_and_the_counters_add_up():
     stats = {"pruned": {}}
-    found, pool = split_branch_and_bound(_fake_run(), 3, stats)
+    pool = MissPool()
+    found = split_branch_and_bound(_fake_run(pool), 3, stats, pool)
     assert sorted(found) == ["share 0 of 3", "share 1 of 3", "share 2 of 3"]
-    assert pool == ["pool"]                       # share 0's
+    # every share's rejected design, nearest first
+    assert [d.parts["RC"].value for d in pool.designs()] == [0.0, 1.0, 2.0]
     assert stats["heap_steps"] == 3 and stats["pruned"]["bias"] == 30
     assert stats["workers"] == 3
 
@@ -46,14 +53,16 @@ def test_a_process_that_dies_has_the_whole_search_run_again_here():
     # which blocks it had taken is not known here, so everything is searched again
     # in one process (a lost process costs time, never a design)
     stats = {"pruned": {}}
-    found, _ = split_branch_and_bound(_fake_run("die"), 2, stats)
+    pool = MissPool()
+    found = split_branch_and_bound(_fake_run(pool, "die"), 2, stats, pool)
     assert sorted(found) == ["share 0 of 1", "share 0 of 2"]
     assert stats["heap_steps"] == 2
 
 
 def test_a_share_that_raises_is_reported_with_its_traceback():
     with pytest.raises(RuntimeError, match="share failed on purpose"):
-        split_branch_and_bound(_fake_run("raise"), 2, {"pruned": {}})
+        pool = MissPool()
+        split_branch_and_bound(_fake_run(pool, "raise"), 2, {"pruned": {}}, pool)
 
 
 def test_merge_stats_sums_ors_and_takes_the_least_open_bound():
