@@ -30,7 +30,6 @@ at 1 µF (:func:`mixed_drawer` with ``cap_max``) and the E96 drawer of 2.:
 * tight drift — bias drift ≤ 0.5–2 % over 0–70 °C;
 * THD — ``thd_max_pct`` set;
 * followers — common collector with and without a gain target;
-* wide band — ce with ``f_high_min_hz`` set;
 * cb from 50 Ω — common base driven from a 50 Ω source.
 
 Times are wall-clock seconds on this machine and, since timings on a shared
@@ -292,10 +291,6 @@ FAMILIES: dict[str, list[tuple[str, str, Request]]] = {
         ("cc 0.8 f_low 20 Hz", "mixed", _req("cc", gain=0.8, gain_tol_db=2.0, f_low_max_hz=20.0,
                                              load_ohm=1e3, source_ohm=10e3)),
         ("cc 0.9 from 10 k", "e96", _req("cc", gain=0.9, load_ohm=1e3, source_ohm=10e3)),
-    ],
-    "wide band": [
-        ("ce 20 dB f_high 3 MHz", "mixed", _req("ce", gain=10.0, f_high_min_hz=3e6, **_TYP)),
-        ("ce 20 dB f_high 3 MHz", "e96", _req("ce", gain=10.0, f_high_min_hz=3e6, **_TYP)),
     ],
     "cb from 50 Ω": [
         ("cb 20 dB", "mixed", _req("cb", gain=10.0, load_ohm=10e3, source_ohm=50.0)),

@@ -24,8 +24,6 @@ from optimiser.search.miss_pool import MissPool, miss_rank
 from optimiser.search.skeletons import Skeletons, cap_roles, resistor_roles
 from optimiser.search.stock import _alloc_caps, _ratings_best, _stresses
 from optimiser.stage import PartRatings, StageBatch
-from optimiser.stages import module as stage_module
-from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
 
 #: Skeletons confirmed by one call of the engine: more vectorise better, fewer
 #: confirm less beyond the score a design of the same batch would have set to beat.
@@ -175,7 +173,6 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
     accepted: dict[int, tuple] = {}
     first: dict[int, object] = {}
     pending = _top_screen(request, opts, part, croles, need, top_vec, stats)
-    pending = _f_high_screen(request, opts, part, croles, allowed, pending, stats)
     for rnd in range(4):
         if pending.size == 0:
             break
@@ -289,80 +286,6 @@ def f_low_missed(request: Request, batch: StageBatch, transistor) -> np.ndarray:
         f_low, _, _ = ac.band_edges(request, sub, model, op, h_mid, ss, want_high=False)
         missed[rest] = np.isfinite(f_low) & (f_low > lim)
     return missed
-
-
-#: The capacitors in series with the signal; the others (C_BYP, C_B) are shelves: a
-#: smaller one lowers the midband gain and so can widen the band.
-COUPLING_ROLES = ("C_IN", "C_OUT")
-#: Widening of the response with the largest coupling capacitors before
-#: :func:`f_high_missed` compares it with the gain window's −3.01 dB line (A4; against
-#: the engine on 11 374 valid random ce and cb designs the least ratio of that response
-#: to the design's own line, at grid points up to its f_high, was 1.00003).
-F_HIGH_SCREEN_MARGIN = 1.001
-#: Grid points (the highest at or below f_high_min_hz) :func:`f_high_missed` solves the
-#: network at: any of them below the line proves the miss; more cost a solve each and
-#: seldom add one (the response falls above the band).
-F_HIGH_SCREEN_POINTS = 2
-#: Gain laws A4 was tested for (output at the collector: ce and cb).
-F_HIGH_SCREEN_LAWS = (DEGENERATED, EMITTER_DRIVEN)
-
-
-def f_high_missed(request: Request, batch: StageBatch, transistor) -> np.ndarray:
-    """True where no valid design of these resistors, transistor and shelf
-    capacitors (C_BYP, C_B as in ``batch``), with coupling capacitors
-    (:data:`COUPLING_ROLES`) no larger than ``batch``'s, has a gain in the window and
-    f_high ≥ ``f_high_min_hz``; (n,) bool.  All False without an f_high target, a
-    gain target, or ft and cob, and for gain laws other than F_HIGH_SCREEN_LAWS.
-
-    The engine takes as f_high a root below the smallest grid point above mid_hz
-    where |H| is under |H(mid)|·10^(−EDGE_DB/20), so a design with f_high ≥
-    f_high_min_hz is at or above that line at every grid point p in
-    (mid_hz, f_high_min_hz]; in the window |H(mid)| ≥ G_lo, its least gain.  By A4
-    (docs/search.md) a valid design's |H(p)| there is at most that of the stage with
-    the larger coupling capacitors of ``batch``: where that response, widened by
-    F_HIGH_SCREEN_MARGIN, lies under G_lo·10^(−EDGE_DB/20) at such a p, no such
-    design exists.  The network is solved at the highest F_HIGH_SCREEN_POINTS of
-    those grid points only.
-    """
-    missed = np.zeros(batch.n, dtype=bool)
-    win = gain_window(request)
-    model = device_from_transistor(transistor)
-    if request.f_high_min_hz is None or win is None or not (model.has_ft and model.has_cob) \
-            or stage_module(batch.topology).SEARCH.gain_law not in F_HIGH_SCREEN_LAWS:
-        return missed
-    grid = ac.edge_grid(request.mid_hz)
-    pts = grid[(grid > request.mid_hz) & (grid <= request.f_high_min_hz)][-F_HIGH_SCREEN_POINTS:]
-    if pts.size == 0 or batch.n == 0:
-        return missed
-    op = operating_point(batch.topology, request.supply_v, batch, model)
-    h = np.abs(ac.frequency_response(request, batch, model, op, pts))
-    line = win[0] * 10.0 ** (-ac.EDGE_DB / 20.0)
-    return (h * F_HIGH_SCREEN_MARGIN < line).any(axis=0)
-
-
-def _f_high_screen(request, opts, part: Skeletons, croles, allowed, pending, stats):
-    """Of the skeletons ``pending``, those :func:`f_high_missed` leaves with some
-    allowed value of their shelf capacitor (each tried) and the coupling capacitors
-    at their largest allowed values (the rounds of capacitor choice and the
-    enumeration only ever take those or smaller ones)."""
-    if request.f_high_min_hz is None or len(pending) == 0 or gain_window(request) is None:
-        return pending
-    cv = opts.capacitor.values
-    rows, vecs = [], []
-    for a in pending:
-        per_role = [np.flatnonzero(allowed[a][k])[-1:] if r in COUPLING_ROLES
-                    else np.flatnonzero(allowed[a][k]) for k, r in enumerate(croles)]
-        for v in itertools.product(*per_role):
-            rows.append(a)
-            vecs.append(v)
-    vecs = np.array(vecs, dtype=int)
-    rows = np.array(rows, dtype=int)
-    caps = {r: cv[vecs[:, k]] for k, r in enumerate(croles)}
-    missed = f_high_missed(request, part.take(rows).batch(caps), part.transistor)
-    drop = {a for a in pending if missed[rows == a].all()}
-    stats["pruned"]["f_high_largest_caps"] = (stats["pruned"].get("f_high_largest_caps", 0)
-                                             + len(drop))
-    return np.array([a for a in pending if a not in drop], dtype=int)
 
 
 #: Skeletons the confirmation's screen (:func:`_top_screen`) must have dropped before

@@ -4,7 +4,6 @@ conductance, against the engine's upper band edge on random stages."""
 from __future__ import annotations
 
 import math
-from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -20,9 +19,8 @@ from optimiser.f_high_bounds import (
     f_high_ceiling,
 )
 from optimiser.request import Request
-from optimiser.search import confirm, search
+from optimiser.search import search
 from optimiser.search.collector import CollectorLevel
-from optimiser.search.confirm import COUPLING_ROLES, f_high_missed
 from optimiser.stage import StageBatch
 
 COB = 4e-12
@@ -109,122 +107,3 @@ def test_a_search_with_f_high_drops_candidates_and_ranks_the_same(monkeypatch, t
     for d in out.designs:
         ev = evaluate(req, StageBatch.from_values(topo, **d.values()), t, None)
         assert ev.meets[0]
-
-
-# --- the confirmation's screen (A4): the response with the largest coupling capacitors ---
-#
-# Checked against the engine (optimiser/evaluate.py, its band-edge search on the full
-# small-signal network) on random ce and cb stages: every valid design, its coupling
-# capacitors 1–300 times smaller than the screen's and its shelf capacitor (C_BYP, C_B)
-# the same.  Without the validity rules A4 would be false: a design whose passband is
-# not flat can rise above the larger capacitors' response (measured up to 1.17 times,
-# 100 Ω source and load); and with a smaller shelf capacitor, which lowers the gain and
-# widens the band, a valid design reached 1/0.70 of it — so the screen tries each shelf
-# value.
-
-_SCREEN_CASES = [(600.0, 1e4, 60.0, 1e3, 250e6), (50.0, 1e3, 100.0, 1e4, 100e6),
-                 (0.0, None, 15.0, 1e5, 1e9), (1e3, 1e5, None, 1e3, 30e6),
-                 (10e3, 1e3, 30.0, 1e6, 3e9), (100.0, 100.0, 80.0, 100.0, 5e6)]
-
-
-def _designs(form, rng, n, mid):
-    """Random stages of a form: resistors, the screen's capacitors and a design's
-    (its couplings 1–300 times smaller, its shelf capacitor the same)."""
-    vals = dict(R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
-                RC=np.exp(rng.uniform(math.log(200.0), math.log(1e5), n)))
-    re = np.exp(rng.uniform(math.log(10.0), math.log(3e3), n))
-    roles = ["C_IN", "C_OUT"]
-    if form == "unbypassed":
-        vals["RE"] = re
-    elif form == "fully bypassed":
-        vals["RE_BYP"] = re
-        roles.append("C_BYP")
-    elif form == "partly bypassed":
-        vals["RE"], vals["RE_BYP"] = re * rng.uniform(0.05, 0.5, n), re
-        roles.append("C_BYP")
-    else:                                   # cb
-        vals["RE"] = 3 * re
-        roles.append("C_B")
-    screen = {r: 10 ** rng.uniform(-6, -2, n) * 1e3 / mid for r in roles}
-    design = {r: screen[r] * 10 ** -rng.uniform(0, 2.5, n) if r in COUPLING_ROLES
-              else screen[r] for r in roles}
-    return vals, screen, design
-
-
-@pytest.mark.parametrize("form", ["unbypassed", "fully bypassed", "partly bypassed", "cb"])
-@pytest.mark.parametrize("rs, rl, vaf, mid, ft", _SCREEN_CASES)
-def test_the_f_high_screen_never_drops_a_valid_design_the_engine_accepts(form, rs, rl, vaf,
-                                                                         mid, ft):
-    # the designs in 20 groups of neighbouring gain, each group its own request: its
-    # gains as the window, its median f_high as f_high_min_hz.  Wherever the engine
-    # finds a design valid, in the window and at or above f_high_min_hz, the screen
-    # with the larger coupling capacitors lets it through.  Tightness: of the valid
-    # designs in the window short of f_high_min_hz, the share the screen drops (printed)
-    topo = "cb" if form == "cb" else "ce"
-    rng = np.random.default_rng(7 + _SCREEN_CASES.index((rs, rl, vaf, mid, ft)))
-    t = Transistor("GP-N1", 100, 300, ft=ft, cob=COB, vaf=vaf)
-    vals, screen, design = _designs(form, rng, 3000, mid)
-    b_design = StageBatch.from_values(topo, **vals, **design)
-    b_screen = StageBatch.from_values(topo, **vals, **screen)
-    probe = Request(topology=topo, supply_v=12.0, load_ohm=rl, source_ohm=rs, mid_hz=mid)
-    ev = evaluate(probe, b_design, t, None, large_signal=False)
-    gain = np.asarray(ev.metrics["gain"], dtype=float)
-    fh = np.asarray(ev.metrics["f_high_hz"], dtype=float)
-    live = np.flatnonzero(np.asarray(ev.valid) & np.isfinite(fh) & (gain > 2.0))
-    if live.size < 100:
-        pytest.skip(f"{live.size} valid designs with an upper edge (random capacitors)")
-    kept = short = dropped = 0
-    for group in np.array_split(live[np.argsort(gain[live])], 20):
-        g_lo, g_hi = gain[group].min(), gain[group].max()
-        f_min = float(np.median(fh[group]))
-        req = Request(topology=topo, supply_v=12.0, load_ohm=rl, source_ohm=rs, mid_hz=mid,
-                      gain=math.sqrt(g_lo * g_hi),
-                      gain_tol_db=10 * math.log10(g_hi / g_lo) + 1e-9, f_high_min_hz=f_min)
-        missed = f_high_missed(req, b_screen.take(group), t)
-        meets = fh[group] >= f_min
-        assert not missed[meets].any()
-        kept += int(meets.sum())
-        short += int((~meets).sum())
-        dropped += int(missed[~meets].sum())
-    print(f"{form}: {kept} meeting f_high_min_hz kept, "  # noqa: T201
-          f"{dropped}/{short} short of it dropped")
-
-
-def test_the_f_high_screen_leaves_what_it_cannot_judge_alone():
-    t = Transistor("GP-N1", 100, 300, ft=250e6, cob=COB, vaf=80.0)
-    b = StageBatch.from_values("ce", R1=[47e3], R2=[10e3], RC=[4.7e3], RE=[1e3], C_IN=[1e-6],
-                               C_OUT=[1e-6])
-    wide = Request(topology="ce", supply_v=12.0, gain=10.0, load_ohm=1e4, source_ohm=600.0,
-                   f_high_min_hz=1e9)
-    # a 1 GHz band from a 250 MHz transistor: dropped
-    assert f_high_missed(wide, b, t).all()
-    # no gain target (nothing bounds |H(mid)| from below), no f_high target, no ft/cob
-    for req in (Request(topology="ce", supply_v=12.0, f_high_min_hz=1e9),
-                Request(topology="ce", supply_v=12.0, gain=10.0)):
-        assert not f_high_missed(req, b, t).any()
-    assert not f_high_missed(wide, b, Transistor("GP-N2", 100, 300)).any()
-    # a follower (A4 not tested there): no claim
-    cc = StageBatch.from_values("cc", R1=[47e3], R2=[47e3], RE=[1e3], C_IN=[1e-6],
-                                C_OUT=[1e-6])
-    assert not f_high_missed(replace(wide, topology="cc", gain=0.9), cc, t).any()
-
-
-def test_a_search_with_the_f_high_screen_ranks_the_same(monkeypatch):
-    # the screen drops skeletons before the rounds of capacitor choice (the statistics
-    # count them) and the ranking is the one without it, design for design
-    t = Transistor("GP-N1", 100, 300, qty=4, ft=250e6, cob=COB, vaf=80.0, id=9, location="Q1")
-    res = [Resistor(m * 10 ** d, 10, id=i, location=f"R{i}") for i, (d, m) in
-           enumerate((d, m) for d in (1, 2, 3, 4, 5) for m in (1.0, 2.2, 4.7))]
-    caps = [Capacitor(v, 10, id=100 + i, location=f"C{i}") for i, v in
-            enumerate((10e-9, 1e-6, 10e-6, 100e-6))]
-    snap = StockSnapshot(tuple(res), tuple(caps), (t,))
-    req = Request(topology="ce", supply_v=12.0, load_ohm=1e4, source_ohm=600.0, gain=10.0,
-                  gain_tol_db=1.0, f_high_min_hz=4e6)
-    out = search(req, snap, top=5, misses=0)
-    assert out.stats["pruned"].get("f_high_largest_caps", 0) > 0
-    monkeypatch.setattr(confirm, "_f_high_screen",
-                        lambda request, opts, part, croles, allowed, pending, stats: pending)
-    plain = search(req, snap, top=5, misses=0)
-    assert "f_high_largest_caps" not in plain.stats["pruned"]
-    assert [(d.values(), round(d.score, 12)) for d in out.designs] == \
-        [(d.values(), round(d.score, 12)) for d in plain.designs]
