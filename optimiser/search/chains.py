@@ -30,6 +30,7 @@ import numpy as np
 
 from inventory.errors import InputError
 from inventory.parts import StockSnapshot
+from inventory.values import format_si
 from optimiser.request import Request
 from optimiser.search.answer import search
 from optimiser.search.chain_answer import ChainResult
@@ -155,7 +156,7 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
     if not followers:
         why.append(f"no {kind2} stage from the drawer meets the chain's targets into its load")
     elif not firsts:
-        at = ", ".join(f"{x:.4g} Ω" for x in sorted(loads))
+        at = ", ".join(format_si(x, "Ω") for x in sorted(loads))
         why.append(f"no {kind1} stage from the drawer meets the chain's gain less its "
                    f"follower's into the loads searched ({at})")
     if why:
