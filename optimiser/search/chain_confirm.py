@@ -18,7 +18,7 @@ from optimiser.score import STOCK_PENALTY
 from optimiser.search.chain_answer import ChainDesign
 from optimiser.search.chain_score import chain_score_terms
 from optimiser.stage import PartRatings
-from optimiser.stages import pair_form
+from optimiser.stages import form_of
 from optimiser.stages.pair import PairBatch
 
 __all__ = ["chain_parts", "stock_use", "confirm_chains", "largest_capacitors", "with_swing"]
@@ -154,7 +154,8 @@ def _designs(request, form, ev, items, labels, terms):
                        else p)
                    for r, p in parts.items()}
         out.append(ChainDesign(
-            topology=tuple(request.topology), coupling=form.coupling, transistors=labels,
+            topology=form.topology if isinstance(form.topology, str) else tuple(form.topology),
+            coupling=form.coupling, transistors=labels,
             parts=parts_i, metrics={k: float(v[i]) for k, v in ev.metrics.items()},
             stages=stages, meets_spec=bool(ev.meets[i]), score=float(total[i]),
             score_terms={k: float(v[i]) for k, v in terms.items()},
@@ -180,7 +181,7 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
     chain is evaluated with its band edges; otherwise the ones missing at DC or midband
     are left out of ``missing`` (no chain that misses only f_low is among them).
     """
-    form = pair_form(tuple(request.topology), request.coupling or "capacitor")
+    form = form_of(request.topology, request.coupling)
     groups: dict = defaultdict(list)
     refused = 0
     for parts, labels in candidates:
@@ -255,7 +256,7 @@ def _missed_whole(request, form, snapshot, unedged):
 def with_swing(request: Request, snapshot: StockSnapshot, designs: list[ChainDesign]):
     """The same chains evaluated whole, swing and its clipping warning included (the
     ranking's evaluation computes the THD only)."""
-    form = pair_form(tuple(request.topology), request.coupling or "capacitor")
+    form = form_of(request.topology, request.coupling)
     out = {}
     by: dict = defaultdict(list)
     for n, d in enumerate(designs):
