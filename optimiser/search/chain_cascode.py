@@ -8,9 +8,11 @@ collector sees the upper transistor's emitter; the divider R1/R2/R3 sets both ba
    V_B1 = V·R3/ΣR, the upper base at V_B2 = V·(R2 + R3)/ΣR.  Kept: V_B1 between
    V_BE + :data:`VE_MIN_V` and half the supply, V_B2 at least :data:`VCE_MIN_V` above
    V_B1 (the lower transistor's V_CE) and at least :data:`VCE_MIN_V` below the supply.
-   Triples alike in V_B1 (steps of :data:`VB_STEP_V`), V_B2 (the same steps) and the
-   lower base's source resistance R3‖(R1 + R2) (within :data:`RTH_RATIO`) are one
-   class; the one of least current is kept.
+   Triples alike in V_B1 (steps of :data:`VB_STEP_V`) and in the lower base's source
+   resistance R_TH = R3‖(R1 + R2) (within :data:`RTH_RATIO`) form a lower-bias class,
+   whose estimates below are made once, with its first triple's V_B1 and R_TH; within
+   a class, of the triples alike in V_B2 (steps of :data:`VB_STEP_V`) the one of least
+   current is kept.
 2. **Emitters**: with every pair (RE, RE_BYP) of resistor values in stock or absent
    (not both), the lower I_C ≈ (V_B1 − V_BE)/(RE + RE_BYP + R_TH/β); kept when it is
    at least ``ic_min_a`` and at most :data:`IC_MAX_A`.
@@ -20,7 +22,11 @@ collector sees the upper transistor's emitter; the divider R1/R2/R3 sets both ba
    without one, those either side of the RC that centres the upper collector between
    V_B2 and the supply.  Kept: the estimated gain within the target's tolerance
    widened by :data:`GAIN_MARGIN_DB`, both V_CE at least :data:`VCE_MIN_V`, Z_in at
-   least ``zin_min_ohm``.
+   least ``zin_min_ohm``; without a gain target, at least unity.  Of each lower
+   transistor's estimates the best :data:`LOWER_KEEP` by the score's terms known before
+   the upper base is chosen (gain, distortion, collector current) go on; each takes, of
+   its lower-bias class's triples, the one whose V_B2 shares the room between the two
+   V_CE most equally (:func:`_upper`).
 4. The survivors are ranked by the chain score's terms (:func:`optimiser.score.score_terms`)
    on the estimates (I_C at nominal and at the drift corners of the lower transistor
    by :func:`optimiser.dc.forward_active_ic`); the best :data:`CANDIDATES` of each
@@ -53,6 +59,7 @@ from optimiser.score import hd2_pct, score_terms
 from optimiser.search.tree import usable_transistors
 
 __all__ = ["search_cascode", "dividers", "capacitors_for", "allocate", "CANDIDATES",
+           "LOWER_KEEP", "PRE_RANK",
            "IC_MAX_A", "VCE_MIN_V", "VE_MIN_V", "GAIN_MARGIN_DB", "VB_STEP_V", "RTH_RATIO"]
 
 #: Candidates of each transistor pair handed to the engine.
@@ -60,6 +67,9 @@ CANDIDATES = 300
 #: The estimates ranked first without the drift, of which this many times
 #: :data:`CANDIDATES` get it.
 PRE_RANK = 8
+#: The estimates of each lower transistor kept, by the score's terms known before the
+#: upper base is chosen.
+LOWER_KEEP = 30000
 #: The largest lower collector current tried (A).
 IC_MAX_A = 10e-3
 #: The least V_CE of either transistor, and the least room between V_B2 and the supply,
@@ -129,12 +139,12 @@ def _lower(request: Request, div, values, t1):
     opts = np.concatenate([[0.0], values])
     re, byp = (a.ravel() for a in np.meshgrid(opts, opts, indexing="ij"))
     some = (re > 0) | (byp > 0)
-    if request.gain is not None:
-        # the gain k_in·(RC‖R_L)/(r_e + RE) is below (RC‖R_L)/RE: RE at most that over
-        # the least gain accepted
-        g_lo = 10.0 ** ((request.gain_db - request.gain_tol_db - GAIN_MARGIN_DB) / 20.0)
-        most = values[-1] if request.load_ohm is None else min(values[-1], request.load_ohm)
-        some &= re <= most / g_lo
+    # the gain k_in·(RC‖R_L)/(r_e + RE) is below (RC‖R_L)/RE: RE at most that over the
+    # least gain accepted (unity without a target)
+    g_lo = 1.0 if request.gain is None else 10.0 ** (
+        (request.gain_db - request.gain_tol_db - GAIN_MARGIN_DB) / 20.0)
+    most = values[-1] if request.load_ohm is None else min(values[-1], request.load_ohm)
+    some &= re <= most / g_lo
     re, byp = re[some], byp[some]
     tot = re + byp
     order = np.argsort(tot, kind="stable")
@@ -171,8 +181,10 @@ def _lower(request: Request, div, values, t1):
     c, re_, byp_, ic, r_e, zin, k_in, rc_want = (
         a_[near] for a_ in (c, re_, byp_, ic, r_e, zin, k_in, rc_want))
     pos = np.searchsorted(values, rc_want)
-    j = np.concatenate([np.clip(pos - 1, 0, len(values) - 1), np.clip(pos, 0, len(values) - 1)])
-    rows = np.concatenate([np.arange(len(ic))] * 2)
+    below, above = np.clip(pos - 1, 0, len(values) - 1), np.clip(pos, 0, len(values) - 1)
+    two = above != below                  # at either end of the values: one neighbour
+    j = np.concatenate([below, above[two]])
+    rows = np.concatenate([np.arange(len(ic)), np.flatnonzero(two)])
     rc = values[j]
     c, re_, byp_, ic, r_e, zin, k_in = (a_[rows] for a_ in (c, re_, byp_, ic, r_e, zin, k_in))
     load = rc if rl is None else _par(rc, rl)
@@ -180,14 +192,22 @@ def _lower(request: Request, div, values, t1):
     ok = ic * rc <= V - vb1[c] - 2.0 * VCE_MIN_V
     if request.gain is not None:
         ok &= np.abs(gain_db - request.gain_db) <= request.gain_tol_db + GAIN_MARGIN_DB
+    else:
+        ok &= gain_db >= 0.0              # a gain stage: at least unity without a target
     if request.zin_min_ohm is not None:
         ok &= zin >= request.zin_min_ohm
     out = {"c": c, "RE": re_, "RE_BYP": byp_, "RC": rc, "ic": ic, "gain_db": gain_db,
            "k_in": k_in, "vb1": vb1[c], "rth": rth[c]}
     out = {k: v[ok] for k, v in out.items()}
-    key = np.stack([out["c"], out["RE"], out["RE_BYP"], out["RC"]], axis=1)
-    _, first = np.unique(key, axis=0, return_index=True)
-    return {k: v[np.sort(first)] for k, v in out.items()}
+    # the best LOWER_KEEP by the score's terms known before the upper base is chosen
+    # (gain, distortion and the collector current; the others are ≥ 0)
+    part = sum(score_terms(gain_inf_db=out["gain_db"], target_db=request.gain_db,
+                           tol_db=request.gain_tol_db, drift_pct=0.0,
+                           hd2_pct=hd2_pct(request.input_vpk, out["k_in"],
+                                           out["ic"] * out["RE"] / vt),
+                           supply_a=out["ic"], emptied=0).values())
+    keep = _best(part, LOWER_KEEP)
+    return {k: v[keep] for k, v in out.items()} | {"estimated": len(part)}
 
 
 def _upper(request: Request, div, est, t1, t2):
@@ -231,7 +251,7 @@ def _ranked(request: Request, est, div, t1, top: int) -> np.ndarray:
                                            est["ic"] * est["RE"] / vt),
                            supply_a=est["ic"] + div_a, emptied=0,
                            vce_v=np.minimum(est["vce1"], est["vce2"]), supply_v=V).values())
-    pre = np.argsort(base, kind="stable")[:PRE_RANK * top]
+    pre = _best(base, PRE_RANK * top)
     est = {k: v[pre] for k, v in est.items()}
     re_tot = est["RE"] + est["RE_BYP"]
     ic0 = forward_active_ic(est["vb1"], est["rth"], re_tot, m)
@@ -247,7 +267,15 @@ def _ranked(request: Request, est, div, t1, top: int) -> np.ndarray:
                         supply_a=ic0 + div_a, emptied=0,
                         vce_v=np.minimum(est["vce1"], est["vce2"]), supply_v=V)
     total = sum(terms.values())
-    return pre[np.argsort(total, kind="stable")[:top]]
+    return pre[_best(total, top)]
+
+
+def _best(x: np.ndarray, k: int) -> np.ndarray:
+    """The indices of the ``k`` least of ``x``, in order."""
+    if len(x) > k:
+        part = np.argpartition(x, k)[:k]
+        return part[np.argsort(x[part], kind="stable")]
+    return np.argsort(x, kind="stable")
 
 
 def capacitors_for(request: Request, rows: dict[float, list], volts: dict[str, float],
@@ -338,7 +366,7 @@ def search_cascode(request: Request, snapshot: StockSnapshot, stats: dict) -> li
         n_div = max(n_div, len(div["R1"]))
         if t1.label not in lowers:
             lowers[t1.label] = _lower(request, div, values, t1)
-            n_est += len(lowers[t1.label]["ic"])
+            n_est += lowers[t1.label].pop("estimated")
         est = _upper(request, div, lowers[t1.label], t1, t2)
         for i in _ranked(request, est, div, t1, CANDIDATES):
             d = int(est["d"][i])
