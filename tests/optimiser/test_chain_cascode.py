@@ -152,3 +152,20 @@ def test_beyond_the_lower_transistor_limit_is_proven_infeasible(demo):
     # tests/optimiser/test_chain_search.py)
     res = search_chains(parse_request({**USER, "gain_db": 60}, pairs=True), demo)
     assert res.designs == [] and res.search["proven_infeasible"] is True
+
+
+def test_cascode_search_agrees_with_enumeration():
+    # every cascode of a four-value drawer (tests/optimiser/chain_enumeration.py: every
+    # value in every resistor role, each of the three emitter forms), ranked by the
+    # engine; random tiny drawers, which may disagree, are in docs/search.md
+    from .chain_enumeration import enumerate_chains
+    from .test_chain_search import _drawer
+
+    req = parse_request({"topology": "cascode", "supply_v": 12.0, "load_ohm": 1e4,
+                         "source_ohm": 600.0, "f_low_max_hz": 100, "thd_max_pct": "none",
+                         "gain_db": 20.0, "gain_tol_db": 3.0}, pairs=True)
+    snap = _drawer((1200.0, 5600.0, 8200.0, 56000.0), (3, 4, 3, 3))
+    best, meeting = enumerate_chains(req, snap)
+    res = search_chains(req, snap, top=3)
+    assert best is not None and meeting > 0
+    assert res.designs and res.designs[0].score == pytest.approx(best, rel=1e-9, abs=1e-9)
