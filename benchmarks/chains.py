@@ -5,8 +5,8 @@ Prints, for each chain request below, the wall-clock seconds of
 each also as a multiple of a
 baseline measured in the same run (the engine evaluating 2000 fixed ce stages,
 ``benchmarks/design.py``), the CPU seconds of the process, how many chains meet,
-the best score and what the search covered (capacitor- and direct-coupled;
-``--coupling`` runs one kind).  The drawers: the demo drawer (62
+the best score and what the search covered (capacitor- and direct-coupled chains
+and cascodes; ``--coupling`` runs one kind).  The drawers: the demo drawer (62
 resistor, 31 capacitor rows, three transistors) and the invented 57-row mixed drawer
 of ``benchmarks/design.py``.  The goal is a proven answer in ≤ 10 s on a
 40–60-row drawer.  Each search runs with the command's default time limit, so its
@@ -40,6 +40,8 @@ from optimiser.search import chains  # noqa: E402
 from optimiser.search.chain_exact import PROOF_TIME_S  # noqa: E402
 
 USER = dict(load_ohm="1k", source_ohm="10k", gain_db=40, f_low_max_hz=20)
+CASCODE = {"topology": "cascode", "load_ohm": "10k", "source_ohm": 600, "gain_db": 30,
+           "f_low_max_hz": 50, "f_high_min_hz": 1e6}
 #: (label, drawer, request mapping)
 REQUESTS = [
     ("ce→cc 40 dB into 1k from 10k, f_low ≤ 20 Hz (the new user's)", "demo",
@@ -63,6 +65,11 @@ REQUESTS = [
     ("ce→cc direct 26 dB into 600 Ω, Zout ≤ 50 Ω, THD ≤ 1 %", "mixed",
      {"topology": ["ce", "cc"], "coupling": "direct", "load_ohm": 600, "source_ohm": 600,
       "gain_db": 26, "zout_max_ohm": 50, "thd_max_pct": 1.0, "f_low_max_hz": 50}),
+    ("cascode 30 dB into 10k from 600 Ω, f_low ≤ 50 Hz, f_high ≥ 1 MHz", "demo", CASCODE),
+    ("the same", "mixed", CASCODE),
+    ("cascode 30 dB, Zout ≤ 50 Ω (nothing meets)", "demo", {**CASCODE, "zout_max_ohm": 50}),
+    ("cascode without a gain target", "demo",
+     {k: v for k, v in CASCODE.items() if k != "gain_db"}),
 ]
 
 
@@ -79,8 +86,8 @@ def demo_drawer():
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--runs", type=int, default=1, help="runs per request (median)")
-    ap.add_argument("--coupling", choices=("capacitor", "direct"),
-                    help="only the requests of this coupling")
+    ap.add_argument("--coupling", choices=("capacitor", "direct", "cascode"),
+                    help="only the requests of this coupling (or the cascodes)")
     ap.add_argument("--proof-s", type=float, default=PROOF_TIME_S,
                     help="the proof's budget in seconds (PROOF_TIME_S by default)")
     args = ap.parse_args()
@@ -89,7 +96,9 @@ def main() -> None:
     drawers = {"demo": demo_drawer(), "mixed": mixed_drawer()}
     walls, befores, proven = [], [], 0
     for label, drawer, mapping in REQUESTS:
-        if args.coupling and mapping.get("coupling", "capacitor") != args.coupling:
+        kind = ("cascode" if mapping["topology"] == "cascode"
+                else mapping.get("coupling", "capacitor"))
+        if args.coupling and kind != args.coupling:
             continue
         req = parse_request({"supply_v": 12.0, **mapping}, pairs=True)
         # before: the same search with no proof budget (PROOF_TIME_S 0 for this run)
@@ -102,10 +111,15 @@ def main() -> None:
         proven += bool(s.get("proven"))
         best = f"{res.designs[0].score:.3f}" if res.designs else "none meets"
         bound = "none" if p.get("bound") is None else f"{p['bound']:.3f}"
+        if kind == "cascode":
+            what = (f"{s.get('dividers')} divider triples, {s.get('estimated')} estimated, "
+                    f"{s.get('candidates')} candidates")
+        else:
+            what = f"{s.get('first_stages')} first stages × {s.get('followers')} followers"
         say(f"{label} [{drawer}]: without the proof {b_wall:.2f} s (× {b_wall / base:.2f}), "
             f"CPU {b_cpu:.2f} s; with it {wall:.2f} s (× {wall / base:.2f}), CPU {cpu:.2f} s; "
-            f"{len(res.designs)} chains, best {best}; {s.get('first_stages')} first stages × "
-            f"{s.get('followers')} followers, {s.get('chains_screened', 0)} screened, "
+            f"{len(res.designs)} designs, best {best}; {what}, "
+            f"{s.get('chains_screened', 0)} screened, "
             f"{s.get('chains_evaluated', 0)} with THD; proven: {'yes' if s.get('proven') else 'no'} "
             f"({s.get('proven_ranks', 0)} ranks; widened to {p.get('widened_to')}, stopped: "
             f"{p.get('stopped')}, bound {bound})")
@@ -129,6 +143,7 @@ def timed(req, snap, runs: int, proof_s: float):
     finally:
         chains.PROOF_TIME_S = kept
     return statistics.median(times), statistics.median(cpus), res
+
 
 if __name__ == "__main__":
     main()

@@ -22,7 +22,7 @@ from optimiser.circuit_file import PairCircuit
 from optimiser.design import RolePick
 from optimiser.request import Request
 from optimiser.stage import PartRatings
-from optimiser.stages import pair_form
+from optimiser.stages import form_of
 
 __all__ = ["chain_circuit", "picks_ratings"]
 
@@ -75,7 +75,7 @@ def chain_circuit(design, request: Request, snapshot: StockSnapshot) -> PairCirc
     snapshot's rows of the design's labels (InputError on ``transistor`` when one is
     gone).
     """
-    form = pair_form(tuple(design.topology), design.coupling)
+    form = form_of(design.topology, design.coupling)
     transistors = []
     for label in design.transistors:
         t = snapshot.transistor(label)

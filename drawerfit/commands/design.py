@@ -112,7 +112,8 @@ def command(app, request_file: str, top: int, as_json: bool, time_limit: float =
     code 0: that is an answer).  Targets the file leaves out get the defaults
     the output names (thd_max_pct, ic_min_a; "none" for no limit).
     Request keys and defaults: docs/requests.md; the figures: docs/model.md.
-    --sheet and --spice write the design (or chain) chosen with --rank (default 1).
+    --sheet and --spice write the design (or chain, or cascode) chosen with --rank
+    (default 1).
     """
     from inventory.errors import InputError
     from optimiser.request import load_request, read_toml

@@ -9,18 +9,36 @@ from rich.table import Table
 
 from drawerfit.render.designs import _num, _si
 from optimiser.search.chain_answer import ChainDesign, ChainResult
+from optimiser.stages import form_of
 
 __all__ = ["show_chain_result", "stage_cell", "searched_line", "proof_line"]
 
 
+def _owner(d: ChainDesign) -> dict[str, int]:
+    """role -> the transistor (0, 1) whose cell shows it: by its prefix, the coupling
+    capacitor with the first stage; a cascode's unprefixed roles with the upper
+    transistor when wired to one of its nodes, else with the lower."""
+    form = form_of(d.topology, d.coupling)
+    out = {}
+    for role, a, b in form.wiring:
+        if role.startswith(("S1.", "S2.")):
+            out[role] = int(role[1]) - 1
+        elif d.coupling is None:
+            out[role] = 1 if any(n.startswith("S2.") for n in (a, b)) else 0
+        else:
+            out[role] = 0
+    return out
+
+
 def stage_cell(d: ChainDesign, k: int) -> str:
-    """Stage ``k``'s roles (the coupling capacitor with the first stage), a role a
-    line, its bin location, then the transistor."""
+    """Stage ``k``'s roles (the coupling capacitor with the first stage; a cascode's
+    roles with the transistor they are wired to), a role a line, its bin location,
+    then the transistor."""
     prefix = f"S{k + 1}."
+    owner = _owner(d)
     lines = []
     for role, p in d.parts.items():
-        mine = role.startswith(prefix) or (k == 0 and not role.startswith("S"))
-        if not mine:
+        if owner.get(role, 0) != k:
             continue
         locs = ", ".join(x.location or "?" for x in p.pieces)
         plus = f" +{p.plus.split('.')[-1][:4]}" if p.plus else ""
@@ -50,6 +68,18 @@ def searched_line(result: ChainResult) -> str:
     """What the search covered, in words (never a claim of completeness it lacks)."""
     s = result.search
     loads = ", ".join(_si(x, "Ω") for x in s.get("first_stage_loads_ohm", []))
+    claim = "Not proven best" if result.designs else "Not proven that none exists"
+    if result.request.topology == "cascode":
+        return (f"Searched: {s.get('transistor_pairs', 0)} transistor pairs × "
+                f"{s.get('dividers', 0)} divider triples of "
+                f"{s.get('resistor_values', 0)} resistor values × every emitter pair and the "
+                f"RC values near the gain, {s.get('estimated', 0)} estimated, the best "
+                f"{s.get('candidates_per_pair')} of each pair evaluated "
+                f"({s.get('chains_screened', 0)} cascodes screened, "
+                f"{s.get('chains_evaluated', 0)} with THD, "
+                f"{_num(s.get('seconds'), '{:.1f}')} s). {claim}: roles of several pieces, "
+                "other capacitors and candidates beyond the estimates' best are not "
+                "examined.")
     if result.request.coupling == "direct":
         claim = "Not proven best" if result.designs else "Not proven that none exists"
         caps = ", ".join(_si(x, "F") for x in s.get("output_capacitors", [])) or "none"
@@ -98,20 +128,27 @@ def proof_line(result: ChainResult) -> str:
 
 def show_chain_result(console: Console, result: ChainResult) -> None:
     """The ranked chains, or the nearest misses, then what was searched."""
-    a, b = result.request.topology
-    name = f"{a}→{b}" + (" direct-coupled" if result.request.coupling == "direct" else "")
+    if result.request.topology == "cascode":
+        a, b = "ce, lower", "cb, upper"
+        name = "cascode"
+        what = "cascode"
+    else:
+        a, b = result.request.topology
+        name = f"{a}→{b}" + (" direct-coupled" if result.request.coupling == "direct" else "")
+        what = f"{name} chain"
     rows = result.designs or result.nearest_misses
     if result.search.get("proven_infeasible"):
-        console.print(f"No {name} chain can meet the request (proven):")
+        console.print(f"No {what} can meet the request (proven):")
         for line in result.search.get("why", []):
             console.print(f"  {escape(line)}")
         return
     if not result.designs:
-        console.print(f"No {name} chain found meets the request.")
+        console.print(f"No {what} found meets the request.")
         for line in result.search.get("why", []):
             console.print(f"  {escape(line)}")
     table = Table(show_lines=True, pad_edge=False, expand=False)
-    for name in ("#", f"S1 ({a})", f"S2 ({b})", "chain", "THD, I_C", "score"):
+    for name in ("#", f"S1 ({a})", f"S2 ({b})", "cascode" if what == "cascode" else "chain",
+                 "THD, I_C", "score"):
         table.add_column(name, overflow="fold")
     for i, d in enumerate(rows, 1):
         table.add_row(str(d.rank or f"m{i}"), stage_cell(d, 0), stage_cell(d, 1), _figures(d),

@@ -165,7 +165,8 @@ def _chosen_chain(result, rank: int, snapshot, option: str, what: str):
     from optimiser.chain_circuit import chain_circuit
 
     if not result.designs:
-        err.print(f"{option}: no chain meets the request, so no {what} was written.")
+        noun = "cascode" if result.request.topology == "cascode" else "chain"
+        err.print(f"{option}: no {noun} meets the request, so no {what} was written.")
         return None
     design = _ranked(list(result.designs), rank)
     return design, chain_circuit(design, result.request, snapshot)
@@ -197,7 +198,7 @@ def sheet_for_chain(directory, result, rank: int, snapshot, *, quiet: bool = Fal
     # the ranked chains' view shows no cautions: the sheet's are printed
     return sheet_for_pair(directory, ev, 0, circuit, picks=picks, yield_result=yres,
                           quiet=quiet, cautions_shown=False, rank=design.rank,
-                          title=f"Build sheet for chain #{design.rank} written:")
+                          title=f"Build sheet for {_noun(design)} #{design.rank} written:")
 
 
 def spice_for_chain(path, result, rank: int, snapshot, *, quiet: bool = False):
@@ -208,7 +209,11 @@ def spice_for_chain(path, result, rank: int, snapshot, *, quiet: bool = False):
         return None
     design, circuit = chosen
     return spice_for_pair(path, circuit, quiet=quiet,
-                          title=f"SPICE netlist of chain #{design.rank}")
+                          title=f"SPICE netlist of {_noun(design)} #{design.rank}")
+
+
+def _noun(design) -> str:
+    return "cascode" if design.topology == "cascode" else "chain"
 
 
 rank_option = click.option(

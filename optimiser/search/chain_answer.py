@@ -13,11 +13,12 @@ __all__ = ["ChainDesign", "ChainResult"]
 
 @dataclass
 class ChainDesign:
-    """One evaluated chain: both stages' parts (roles ``S1.*``, ``S2.*``, ``C_COUPLE``),
+    """One evaluated chain or cascode (``topology`` ``"cascode"``, ``coupling`` None, its
+    own roles): both stages' parts (roles ``S1.*``, ``S2.*``, ``C_COUPLE``),
     the whole chain's figures and each stage's operating point."""
 
-    topology: tuple[str, str]
-    coupling: str
+    topology: tuple[str, str] | str
+    coupling: str | None
     transistors: tuple[str, str]
     parts: dict[str, RolePick]
     metrics: dict[str, float | None]
@@ -35,7 +36,8 @@ class ChainDesign:
     def to_json(self) -> dict:
         d = {
             "rank": self.rank,
-            "topology": list(self.topology),
+            "topology": (self.topology if isinstance(self.topology, str)
+                         else list(self.topology)),
             "coupling": self.coupling,
             "transistors": list(self.transistors),
             "parts": {r: p.to_json() for r, p in self.parts.items()},

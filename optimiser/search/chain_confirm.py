@@ -18,7 +18,7 @@ from optimiser.score import STOCK_PENALTY
 from optimiser.search.chain_answer import ChainDesign
 from optimiser.search.chain_score import chain_score_terms
 from optimiser.search.stock import piece_ratings
-from optimiser.stages import pair_form
+from optimiser.stages import form_of
 from optimiser.stages.pair import PairBatch
 
 __all__ = ["chain_parts", "stock_use", "confirm_chains", "confirm_with_retry",
@@ -127,7 +127,8 @@ def _designs(request, form, ev, items, labels, terms):
                        else p)
                    for r, p in parts.items()}
         out.append(ChainDesign(
-            topology=tuple(request.topology), coupling=form.coupling, transistors=labels,
+            topology=form.topology if isinstance(form.topology, str) else tuple(form.topology),
+            coupling=form.coupling, transistors=labels,
             parts=parts_i, metrics={k: float(v[i]) for k, v in ev.metrics.items()},
             stages=stages, meets_spec=bool(ev.meets[i]), score=float(total[i]),
             score_terms={k: float(v[i]) for k, v in terms.items()},
@@ -153,7 +154,7 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
     chain is evaluated with its band edges; otherwise the ones missing at DC or midband
     are left out of ``missing`` (no chain that misses only f_low is among them).
     """
-    form = pair_form(tuple(request.topology), request.coupling or "capacitor")
+    form = form_of(request.topology, request.coupling)
     groups: dict = defaultdict(list)
     refused = 0
     for parts, labels in candidates:
@@ -249,7 +250,7 @@ def chain_key(d: ChainDesign) -> tuple:
 def with_swing(request: Request, snapshot: StockSnapshot, designs: list[ChainDesign]):
     """The same chains evaluated whole, swing and its clipping warning included (the
     ranking's evaluation computes the THD only)."""
-    form = pair_form(tuple(request.topology), request.coupling or "capacitor")
+    form = form_of(request.topology, request.coupling)
     out = {}
     by: dict = defaultdict(list)
     for n, d in enumerate(designs):

@@ -3,7 +3,8 @@
     gain        |G − G_target| / tol, G the whole chain's gain at mid_hz (dB)
     drift       the larger of the two stages' ic_drift_pct, over DRIFT_UNIT_PCT
     distortion  the whole chain's thd_pct at the request's input_vpk, over THD_UNIT_PCT
-    current     both dividers' and both collectors' current from the supply
+    current     both dividers' and both collectors' current from the supply (a cascode:
+                what its divider and its collector resistor draw)
     stock       each real resistor or transistor row the builds would empty
     headroom    the worse of the two stages' V_CE headroom terms
 
@@ -21,9 +22,19 @@ __all__ = ["chain_score_terms", "supply_current"]
 
 def supply_current(ev) -> np.ndarray:
     """Current drawn from the supply (A), arrays (n,): through each stage's R1 and
-    each transistor's collector."""
+    each transistor's collector; a cascode (no coupling: every branch from the supply
+    a resistor, one current through both transistors) through each resistor from the
+    supply."""
     V = float(ev.request.supply_v)
     total = np.zeros(ev.batch.n)
+    form = ev.batch.form
+    if form.coupling is None:
+        for role, a, b in form.wiring:
+            if form.kind(role) == "resistor" and a == "supply":
+                r = ev.batch.role(role)
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    total += np.where(r > 0, (V - ev.volts[b]) / np.where(r > 0, r, 1.0), 0.0)
+        return total
     for stage, st in zip(ev.batch.form.stages, ev.stages, strict=True):
         r1 = ev.batch.role(f"{stage}.R1")
         with np.errstate(divide="ignore", invalid="ignore"):

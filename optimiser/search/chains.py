@@ -20,6 +20,9 @@
    ``search["proven"]``: rank 1 is proven (under the assumptions of docs/search.md);
    ``search["complete"]``: every rank is.  Direct-coupled chains
    (:mod:`.chain_direct`) are ranked among the chains composed, not proven.
+
+A cascode (``topology = "cascode"``) is searched by :mod:`.chain_cascode` and confirmed
+and ranked the same way (step 3), not proven.
 """
 
 from __future__ import annotations
@@ -34,6 +37,7 @@ from inventory.values import format_si
 from optimiser.request import Request
 from optimiser.search.answer import search
 from optimiser.search.chain_answer import ChainResult
+from optimiser.search.chain_cascode import search_cascode
 from optimiser.search.chain_confirm import chain_parts, confirm_with_retry, with_swing
 from optimiser.search.chain_direct import search_direct
 from optimiser.search.chain_exact import PROOF_TIME_S, prove_chains
@@ -45,11 +49,13 @@ from optimiser.search.chain_followers import (
 )
 from optimiser.search.limits import physical_limits
 
-__all__ = ["SEARCHED_CHAINS", "SEARCHED_COUPLINGS", "check_chain_request", "search_chains",
-           "STAGE_TOP", "FOLLOWER_TOP"]
+__all__ = ["SEARCHED_CHAINS", "SEARCHED_COUPLINGS", "CASCODE", "check_chain_request",
+           "search_chains", "STAGE_TOP", "FOLLOWER_TOP"]
 
 #: The chains ``design`` searches (first stage, second stage), capacitor-coupled.
 SEARCHED_CHAINS = (("ce", "cc"), ("cb", "cc"))
+#: The cascode's ``topology`` (searched by :mod:`.chain_cascode`).
+CASCODE = "cascode"
 #: The couplings searched; "direct" only for ce→cc (the one direct form).
 SEARCHED_COUPLINGS = ("capacitor", "direct")
 #: How many designs of each first-stage search are composed into chains.
@@ -59,13 +65,15 @@ FOLLOWER_TOP = 30
 
 
 def _names() -> str:
-    return ", ".join(f'["{a}", "{b}"]' for a, b in SEARCHED_CHAINS)
+    return ", ".join(f'["{a}", "{b}"]' for a, b in SEARCHED_CHAINS) + f' and "{CASCODE}"'
 
 
 def check_chain_request(request: Request) -> None:
     """Refuse (InputError on ``topology`` or ``coupling``) a two-transistor request the
     search does not design."""
     topo = request.topology
+    if topo == CASCODE:
+        return
     if isinstance(topo, str) or tuple(topo) not in SEARCHED_CHAINS:
         named = f'"{topo}"' if isinstance(topo, str) else "[" + ", ".join(f'"{t}"' for t in topo) + "]"
         raise InputError(f"design searches the chains {_names()} (capacitor-coupled); "
@@ -84,6 +92,8 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
     docstring); ``time_limit_s`` None: no limit, the proof runs to its end."""
     check_chain_request(request)
     t0 = time.perf_counter()
+    if request.topology == CASCODE:
+        return _cascodes(request, snapshot, top, t0)
     kind1, kind2 = request.topology
     stats: dict = {"complete": False, "method": "composed from single-stage searches",
                    "stage_top": STAGE_TOP}
@@ -182,6 +192,26 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
     stats["proven"] = bool(proof["proven_ranks"] >= 1 if meeting else everything)
     if meeting:
         stats.pop("why", None)
+    return _ranked(request, snapshot, meeting, missing, stats, top, t0)
+
+
+def _cascodes(request, snapshot, top, t0) -> ChainResult:
+    """The cascodes of :mod:`.chain_cascode`, confirmed and ranked as the chains.  The
+    lower transistor's limits as a ce stage with an open load bound the cascode's
+    (its gain is g_m·(RC‖R_L) with I_C·RC below the supply, its input a divider
+    R2‖R3 and a base, as a ce stage's)."""
+    stats: dict = {"complete": False, "method": "divider, emitter and collector resistors "
+                   "from the drawer, ranked by closed-form estimates, confirmed by the engine"}
+    limits = physical_limits(stage_request(request, "ce", load_ohm=None), snapshot)
+    if limits:
+        stats.update(complete=True, proven=True, proven_infeasible=True, limits=limits,
+                     why=[f"{x['reason']} (the cascode's lower transistor is a ce stage, "
+                          "so no cascode can)" for x in limits],
+                     seconds=time.perf_counter() - t0)
+        return ChainResult(request, [], [], stats)
+    cands = search_cascode(request, snapshot, stats)
+    meeting, missing = confirm_with_retry(request, snapshot, cands, stats, top)
+    stats["proven"] = False
     return _ranked(request, snapshot, meeting, missing, stats, top, t0)
 
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 from importlib import import_module
 from types import ModuleType
 
-__all__ = ["NAMES", "module", "modules", "PAIR_COUPLINGS", "pair_form"]
+__all__ = ["NAMES", "module", "modules", "PAIR_COUPLINGS", "pair_form", "form_of"]
 
 #: The topologies, each a module of this package of the same name.
 NAMES: tuple[str, ...] = ("ce", "cb", "cc")
@@ -50,3 +50,12 @@ def pair_form(topology, coupling: str | None = None):
                              'on the first collector)')
         return import_module(f"{__name__}.direct").form()
     raise ValueError(f"unknown coupling {coupling!r}: use {' or '.join(PAIR_COUPLINGS)}")
+
+
+def form_of(topology, coupling: str | None = None):
+    """The form of a request's or a design's ``topology`` and ``coupling`` as they are
+    stored: ``"cascode"`` (no coupling), or two stage names with ``coupling`` (None:
+    capacitor-coupled)."""
+    if isinstance(topology, str):
+        return pair_form(topology)
+    return pair_form(tuple(topology), coupling or "capacitor")

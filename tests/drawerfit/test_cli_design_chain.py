@@ -98,7 +98,6 @@ def test_chain_table_fits_80_columns(store, tmp_path):
 
 
 @pytest.mark.parametrize("text,field", [
-    ('topology = "cascode"\nsupply_v = 12\n', "topology"),
     ('topology = ["cc", "ce"]\nsupply_v = 12\n', "topology"),
 ])
 def test_other_kinds_refused(store, tmp_path, text, field):

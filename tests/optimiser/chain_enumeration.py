@@ -1,6 +1,6 @@
 """Every chain a tiny drawer can build (capacitor-coupled, or direct-coupled ce→cc: the
-ce stage's roles, the follower's S2.RE and S2.C_OUT), evaluated by the pair engine and
-scored: the plain enumeration the chain search is compared with."""
+ce stage's roles, the follower's S2.RE and S2.C_OUT; or every cascode), evaluated by the
+pair engine and scored: the plain enumeration the chain search is compared with."""
 
 from __future__ import annotations
 
@@ -34,21 +34,41 @@ def _stage_rows(kind, rvals, cvals, prefix):
                 yield {f"{prefix}.{r}": v for r, v in zip(roles + caps, rv + cv, strict=True)}
 
 
+#: The cascode's roles (docs/requests.md), written out here rather than read from the
+#: search: the divider, RC, the lower emitter's three forms, the capacitors.
+CASCODE_RESISTORS = ("R1", "R2", "R3", "RC")
+CASCODE_CAPS = ("C_IN", "C_B", "C_OUT")
+
+
+def _cascode_rows(rvals, cvals):
+    for form in STAGE_FORMS["ce"]:
+        emitter = form[1:]
+        roles = CASCODE_RESISTORS + emitter
+        caps = CASCODE_CAPS + (("C_BYP",) if "RE_BYP" in emitter else ())
+        for rv in itertools.product(rvals, repeat=len(roles)):
+            for cv in itertools.product(cvals, repeat=len(caps)):
+                yield dict(zip(roles + caps, rv + cv, strict=True))
+
+
 def enumerate_chains(req, snap, chunk=4000, best_row=None, keep=None):
     """(best score, number meeting) over every buildable chain of ``req.topology``
     from ``snap`` (one transistor type, one row per value); best None if none meets.
     A dict ``best_row`` receives the best chain's role values; ``keep(row)``, when
     given, says which chains (role values) to count."""
     coupling = req.coupling or "capacitor"
-    form = pair_form(tuple(req.topology), coupling)
-    k1, k2 = req.topology
+    cascode = req.topology == "cascode"
+    form = pair_form("cascode") if cascode else pair_form(tuple(req.topology), coupling)
+    k1, k2 = ("ce", "cb") if cascode else req.topology
     rq = {r.value: r for r in snap.resistors}
     cq = {c.value: c for c in snap.capacitors}
     t = snap.transistors[0]
     if 2 * req.builds > t.qty:
         return None, 0
     rows = []
-    for s1 in _stage_rows(k1, sorted(rq), sorted(cq), "S1"):
+    if cascode:
+        rows = [row for row in _cascode_rows(sorted(rq), sorted(cq))
+                if keep is None or keep(row)]
+    for s1 in ([] if cascode else _stage_rows(k1, sorted(rq), sorted(cq), "S1")):
         if coupling == "direct":
             # the follower: its emitter resistor and output capacitor only
             for re in sorted(rq):

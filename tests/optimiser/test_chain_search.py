@@ -120,7 +120,6 @@ def test_pieces_of_both_stages_are_counted_together():
 
 
 @pytest.mark.parametrize("mapping,field", [
-    ({"topology": "cascode"}, "topology"),
     ({"topology": ["ce", "ce"]}, "topology"),
 ])
 def test_other_two_transistor_kinds_are_refused(mapping, field):
