@@ -10,6 +10,7 @@ import math
 from dataclasses import asdict, dataclass
 
 from . import stages as _stages
+from .stages import cascode as _cascode
 
 __all__ = ["TOPOLOGIES", "Request", "parse_request", "load_request", "REQUEST_KEYS",
            "DEFAULTS", "DEFAULT_GAIN_DB", "NO_LIMIT"]
@@ -106,10 +107,12 @@ CIRCUIT_KEYS = ("parts", "tolerances")
 #: it, or ``"none"`` to have no limit.
 DEFAULTS = {"thd_max_pct": 5.0, "ic_min_a": 100e-6}
 #: The gain target (dB) a request to design gets when it names none, per topology:
-#: each topology module's ``DEFAULT_GAIN_DB`` (ce and cb: 20 dB; cc: none).
+#: each topology module's ``DEFAULT_GAIN_DB`` (ce and cb: 20 dB; cc: none), and the
+#: cascode's (20 dB); a chain of two stages gets none.
 #: ``gain_db = "none"`` asks for no gain target.
-DEFAULT_GAIN_DB = {m.NAME: m.DEFAULT_GAIN_DB for m in _stages.modules()
-                   if m.DEFAULT_GAIN_DB is not None}
+DEFAULT_GAIN_DB = {**{m.NAME: m.DEFAULT_GAIN_DB for m in _stages.modules()
+                      if m.DEFAULT_GAIN_DB is not None},
+                   _cascode.NAME: _cascode.DEFAULT_GAIN_DB}
 #: What a key's value may be to mean "no limit" (TOML has no null).
 NO_LIMIT = ("none", "off")
 #: Largest supply the tool accepts, V (single-supply small-signal stages).

@@ -285,8 +285,11 @@ def capacitors_for(request: Request, rows: dict[float, list], volts: dict[str, f
     emitter's low impedance, usually the lowest); ``C_IN``, ``C_B`` and ``C_OUT`` the
     smallest value whose corner with the resistance ``corners[role]`` (Ω) is at or
     below half of ``f_low_max_hz`` (else the largest rated); without ``f_low_max_hz``
-    each the largest rated.  A value is rated when one of its rows, derated, holds the
+    the same for a band edge at ``mid_hz``/10.  A value is rated when one of its rows, derated, holds the
     role's DC voltage ``volts[role]`` plus 1 V.  None when a role has no rated value."""
+    # without a target, a band edge a decade below mid_hz (as the single-stage search's
+    # capacitor estimate, confirm._cap_targets), not the largest capacitors in stock
+    f_aim = request.f_low_max_hz if request.f_low_max_hz is not None else request.mid_hz / 10.0
     out = {}
     for role in CAP_ROLES:
         need = (volts[role] + 1.0) / DERATING["capacitor_voltage"]
@@ -294,8 +297,8 @@ def capacitors_for(request: Request, rows: dict[float, list], volts: dict[str, f
         if not rated:
             return None
         pick = rated[-1]
-        if role != "C_BYP" and request.f_low_max_hz is not None:
-            least = 1.0 / (2.0 * math.pi * 0.5 * request.f_low_max_hz * corners[role])
+        if role != "C_BYP":
+            least = 1.0 / (2.0 * math.pi * 0.5 * f_aim * corners[role])
             fit = [v for v in rated if v >= least]
             if fit:
                 pick = fit[0]
