@@ -3,7 +3,8 @@
 A build whose request names two stages (``topology = ["ce", "cc"]``) is offered the
 best designs of :func:`optimiser.search.chains.search_chains`, searched for the copies
 one column carries (:func:`~optimiser.planning.copies.carried`) over the drawer as it
-is.  Each becomes a :class:`ChainPlanDesign`: every piece of both stages under its
+is (and per transistor type, as :func:`~optimiser.planning.candidates.gather_candidates`
+does for single stages).  Each becomes a :class:`ChainPlanDesign`: every piece of both stages under its
 role (``S1.RC``, ``S2.RE``, ``C_COUPLE`` …) and one piece of each stage's transistor
 under ``S1.Q`` and ``S2.Q``, so that the programme counts both transistors and every
 piece against the same stock rows as the single-stage columns.
@@ -17,11 +18,13 @@ from __future__ import annotations
 import time
 from dataclasses import dataclass, field, replace
 
+from inventory.errors import InputError
 from inventory.parts import StockSnapshot
 from optimiser.design import Design, Piece, RolePick, _clean
-from optimiser.planning.candidates import CandidateSearches
+from optimiser.planning.candidates import PER_TYPE_DIVISOR, PER_TYPE_MIN, CandidateSearches
 from optimiser.request import Request
 from optimiser.search.chain_answer import ChainDesign
+from optimiser.search.chain_confirm import chain_key
 from optimiser.search.chains import search_chains
 
 __all__ = ["TRANSISTOR_ROLE", "ChainPlanDesign", "chain_design", "chain_candidates"]
@@ -84,22 +87,52 @@ def chain_design(c: ChainDesign, snapshot: StockSnapshot) -> ChainPlanDesign | N
 def chain_candidates(request: Request, snapshot: StockSnapshot, *, top: int,
                      search_time_s: float | None, copies: int = 1
                      ) -> tuple[list[ChainPlanDesign], str, CandidateSearches]:
-    """The chain search's best ``top`` designs for ``copies`` copies carried at once, as
-    plan columns; ``note`` says why there are none (the search's own reasons)."""
+    """The chain search's best ``top`` designs for ``copies`` copies carried at once, and
+    for a request open to any transistor the best few on each type those leave short
+    (both stages on it), as plan columns ranked by score; ``note`` says why there are
+    none (the search's own reasons)."""
     t0 = time.perf_counter()
-    res = search_chains(replace(request, builds=max(int(copies), 1)), snapshot, top=top,
-                        time_limit_s=search_time_s)
-    designs = [d for d in (chain_design(c, snapshot) for c in res.designs if c.meets_spec)
-               if d is not None]
+    one = replace(request, builds=max(int(copies), 1))
+    res = search_chains(one, snapshot, top=top, time_limit_s=search_time_s)
+    found = [c for c in res.designs if c.meets_spec]
+    runs, stopped = 1, int(not res.search.get("stage_searches_complete", True))
+    if request.transistor == "any":
+        # as for single stages: a type the best chains leave short gets its own
+        # search (both stages on it), so that a scarce type never leaves the
+        # programme without alternatives
+        per = max(PER_TYPE_MIN, top // PER_TYPE_DIVISOR)
+        for t in sorted({t.label for t in snapshot.transistors if t.qty > 0}):
+            if sum(t in c.transistors for c in found) >= per:
+                continue
+            try:
+                more = search_chains(replace(one, transistor=t), snapshot, top=per,
+                                     time_limit_s=search_time_s)
+            except InputError:
+                continue
+            runs += 1
+            stopped += int(not more.search.get("stage_searches_complete", True))
+            found += [c for c in more.designs if c.meets_spec]
+    seen: set[tuple] = set()
+    unique = []
+    for c in sorted(found, key=lambda c: c.score):
+        if chain_key(c) not in seen:
+            seen.add(chain_key(c))
+            unique.append(c)
+    designs = [d for d in (chain_design(c, snapshot) for c in unique) if d is not None]
+    for k, d in enumerate(designs, start=1):
+        d.rank = k                       # the rank among every chain offered
     note = ""
     if not designs:
         proven = bool(res.search.get("proven"))
         note = ("no chain meets the request from this drawer"
                 + ("" if proven else " among the chains the search composed"))
         why = res.search.get("why") or []
+        refused = int(res.search.get("stock_refused", 0) or 0)
+        if refused and copies > 1:
+            note += (f"; {refused} chains composed need more pieces of a row than it "
+                     f"holds for {copies} identical copies")
         if why:
             note += "; " + "; ".join(why[:2])
         elif res.nearest_misses and res.nearest_misses[0].violations:
             note += "; nearest miss: " + ", ".join(res.nearest_misses[0].violations[:3])
-    stopped = 0 if res.search.get("stage_searches_complete", True) else 1
-    return designs, note, CandidateSearches(1, time.perf_counter() - t0, stopped)
+    return designs, note, CandidateSearches(runs, time.perf_counter() - t0, stopped)
