@@ -8,6 +8,7 @@ The drawer is small and invented; the pieces are counted by hand from it.
 
 from __future__ import annotations
 
+import csv
 import json
 
 from click.testing import CliRunner
@@ -99,6 +100,14 @@ def test_chain_commit_is_one_build_and_undo_restores_the_export(store_url, tmp_p
     r = run("builds", "show", str(d["build_id"]))
     assert r.exit_code == 0, r.output
     assert "S1.Q" in r.stdout and "S2.Q" in r.stdout and "S1.RC" in r.stdout
+    # the chain line's sheet from what the build stores: both stages, both transistors
+    r = run("builds", "show", str(d["build_id"]), "--sheet", str(tmp_path / "sheets"))
+    assert r.exit_code == 0, r.output
+    with open(tmp_path / "sheets" / "1-chain" / "parts.csv", encoding="utf-8") as f:
+        rows = {row["role"]: row for row in csv.DictReader(f)}
+    assert rows["S1.Q"]["pieces"] == rows["S2.Q"]["pieces"] == "2"
+    assert set(design["parts"]) <= set(rows)
+    assert (tmp_path / "sheets" / "1-chain" / "sheet.html").is_file()
     r = run("builds", "undo", str(d["build_id"]))
     assert r.exit_code == 0, r.output
     assert export("after.csv") == before
