@@ -148,8 +148,9 @@ def print_plan(console: Console, plan: Plan, *, build_id: int | None = None,
                            style="bold red"))
         console.print("The programme chose among each request's best designs for one copy "
                       "(--candidates), not among every design the drawer allows: a design "
-                      "it was not offered may still fit. A build that has no design at all "
-                      "is proven so by the complete search.")
+                      "it was not offered may still fit. A single-stage build that has no "
+                      "design at all is proven so by the complete search; a chain build's "
+                      "reason says what its search covered.")
         for s in plan.infeasible:
             console.print(f"[bold]{escape(s.request)}[/bold]: {escape(s.reason)}")
             if s.shortage:

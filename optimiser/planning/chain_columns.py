@@ -123,14 +123,16 @@ def chain_candidates(request: Request, snapshot: StockSnapshot, *, top: int,
         d.rank = k                       # the rank among every chain offered
     note = ""
     if not designs:
-        proven = bool(res.search.get("proven"))
-        note = ("no chain meets the request from this drawer"
-                + ("" if proven else " among the chains the search composed"))
-        why = res.search.get("why") or []
+        note = "no chain meets the request from this drawer"
+        if copies > 1:
+            note += f" for {copies} identical copies (each piece from one row)"
+        if not res.search.get("proven"):
+            note += " among the chains the search composed"
         refused = int(res.search.get("stock_refused", 0) or 0)
         if refused and copies > 1:
             note += (f"; {refused} chains composed need more pieces of a row than it "
-                     f"holds for {copies} identical copies")
+                     f"holds for {copies} copies")
+        why = res.search.get("why") or []
         if why:
             note += "; " + "; ".join(why[:2])
         elif res.nearest_misses and res.nearest_misses[0].violations:

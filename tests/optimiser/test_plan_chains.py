@@ -140,3 +140,16 @@ def test_scarce_transistor_sends_the_chain_to_a_lower_ranked_design():
     best = min(score_map(a.score) + score_map(c.score) for a, c in pairs)
     got = score_map(aa.design.score) + score_map(ca.design.score)
     assert got == pytest.approx(best, rel=1e-9, abs=1e-12)
+
+
+def test_a_chain_build_without_designs_is_not_called_proven():
+    # one transistor in the drawer: no chain (two transistors a copy) can be built, and
+    # the plan says so for the chain build without claiming a proof over the drawer
+    drawer = StockSnapshot(RES, (CAP,), (replace(N1, qty=1),))
+    blist = BuildList((_spec("buffer", BUFFER, 1), _spec("chain", CHAIN, 1)))
+    plan = make_plan(blist, drawer, **KW)
+    assert not plan.feasible
+    (short,) = plan.infeasible
+    assert short.request == "chain" and not short.proven
+    assert short.reason.startswith("no chain meets the request from this drawer")
+    assert plan.to_json()["infeasible"][0]["proven"] is False
