@@ -153,3 +153,17 @@ def test_a_chain_build_without_designs_is_not_called_proven():
     assert short.request == "chain" and not short.proven
     assert short.reason.startswith("no chain meets the request from this drawer")
     assert plan.to_json()["infeasible"][0]["proven"] is False
+
+
+def test_no_plan_over_the_chains_offered_is_not_a_proof_of_the_drawer():
+    # the buffer is held to GP-N1 (3 copies) and every chain for two identical copies
+    # takes four GP-N1 (the one GP-N2 cannot serve two copies): 7 > 6 pieces, so no plan
+    # exists over what was offered; pricing saw that, and the verdict stays unproven
+    blist = BuildList((_spec("buffer", BUFFER, 3), _spec("chain", CHAIN, 2)))
+    plan = make_plan(blist, DRAWER, **KW)
+    assert not plan.feasible
+    d = plan.to_json()
+    assert d["bound"]["proven_infeasible"] is False
+    assert any(o.startswith("no plan exists over the chain designs offered")
+               for o in d["bound"]["open"])
+    assert d["infeasible"] and not any(s["proven"] for s in d["infeasible"])
