@@ -2,6 +2,7 @@
 
     [[build]]
     request = "preamp.toml"   # a request file relative to the list, or a [build.request] table
+                              # (a single stage, or a chain the chain search designs)
     count = 4                 # copies wanted (default: the request's `builds`)
     identical = true          # all copies on the same values (default)
     name = "preamp"           # optional: how the plan names this build
@@ -32,7 +33,8 @@ from typing import Any
 
 from inventory.errors import InputError, InputErrors
 from optimiser.purchase import PurchaseOptions
-from optimiser.request import Request
+from optimiser.request import PAIR_TOPOLOGY, Request
+from optimiser.search.chains import check_chain_request
 
 __all__ = ["BuildSpec", "BuildList", "load_buildlist", "parse_buildlist",
            "BUILD_KEYS", "PURCHASE_KEYS"]
@@ -174,10 +176,22 @@ def _parse_request_entry(v: Any, i: int, file: str | None, base: Path, loc: _Loc
         if not path.is_file():
             raise _err(f"no such request file {v!r} (looked at {path})", file, loc, "build", i,
                        "request", field)
-        return load_request(path), v, v
+        req = load_request(path, chains=True)
+        if req.is_pair:
+            try:
+                check_chain_request(req)
+            except InputError as exc:
+                raise _err(f"{v}: {exc.message}", file, loc, "build", i, "request",
+                           f"{field}.{exc.field}") from None
+        return req, v, v
     if isinstance(v, dict):
+        topo = v.get("topology")
+        pairs = isinstance(topo, list) or (isinstance(topo, str)
+                                           and topo.strip().lower() == PAIR_TOPOLOGY)
         try:
-            req = parse_request(v, file=file, extra_keys=())
+            req = parse_request(v, file=file, extra_keys=(), pairs=pairs)
+            if req.is_pair:
+                check_chain_request(req)
         except InputError as exc:
             def one(e: InputError) -> InputError:
                 sub = f"{field}.{e.field}" if e.field else field

@@ -93,10 +93,9 @@ REQUEST_KEYS = (
 )
 #: The two-transistor form named by a word (chains are named by a list of two stages).
 PAIR_TOPOLOGY = "cascode"
-#: Why a request read for single stages (a build list's, for ``plan``) refuses two
-#: transistors.
-_SEARCH_SINGLE = ("a build list plans single stages ({choice}); `drawerfit design` searches "
-                  "the chains [\"ce\", \"cc\"] and [\"cb\", \"cc\"], and a two-transistor "
+#: Why a request read for single stages refuses two transistors.
+_SEARCH_SINGLE = ("only a single stage ({choice}) is read here; `drawerfit design` and a "
+                  "build list search the chains [\"ce\", \"cc\"] and [\"cb\", \"cc\"], and a two-transistor "
                   "circuit with given values can be checked with `drawerfit analyse`")
 CIRCUIT_KEYS = ("parts", "tolerances")
 #: Targets a request file gets when it leaves them out, so that an unstated target

@@ -101,6 +101,8 @@ def command(app, buildlist: str, as_json: bool, solver: str, order_path: str | N
     BUILDLIST.toml lists [[build]] entries (a request file or table, a count,
     identical = true/false) and an optional [purchase] table saying which
     values may be bought and at what price (docs/requests.md, docs/plan.md).
+    A request may be a single stage or a chain (topology = ["ce", "cc"]); a
+    chain build is planned over the designs the chain search offers.
     """
     from optimiser.buildlist import load_buildlist
     from optimiser.planning import make_plan

@@ -15,6 +15,7 @@ from rich.text import Text
 from inventory.parts import POLARISED_DIELECTRICS
 from inventory.values import format_si, format_value
 from optimiser.planning import Allocation, Plan
+from optimiser.planning.chain_columns import TRANSISTOR_ROLE
 
 __all__ = ["print_plan", "bound_line", "part_lines", "plus_text"]
 
@@ -53,6 +54,24 @@ def part_lines(alloc: Allocation) -> list[str]:
     return lines
 
 
+def _transistor_text(alloc: Allocation, polarity: dict[str, str]) -> str:
+    """The transistor with its polarity; a chain's per stage with its bin
+    (``S1 LABEL (npn) ← Q1``)."""
+    def one(label: str) -> str:
+        pol = polarity.get(label)
+        return label + (f" ({pol})" if pol else "")
+
+    labels = getattr(alloc.design, "transistors", ())
+    if not labels:
+        return one(alloc.design.transistor)
+    lines = []
+    for k, label in enumerate(labels, start=1):
+        pick = alloc.design.parts.get(f"S{k}.{TRANSISTOR_ROLE}")
+        where = " + ".join(_piece_text(p, "", True) for p in pick.pieces) if pick else "?"
+        lines.append(f"S{k} {one(label)} ← {where}")
+    return "\n".join(lines)
+
+
 def _metric(m: dict, key: str, unit: str) -> str:
     v = m.get(key)
     return "—" if v is None else format_si(v, unit)
@@ -65,6 +84,10 @@ def _figures(alloc: Allocation) -> str:
              f"f_low {_metric(m, 'f_low_hz', 'Hz')}",
              f"f_high {_metric(m, 'f_high_hz', 'Hz')}",
              f"I_C {_metric(m, 'ic_a', 'A')}"]
+    stages = getattr(alloc.design, "stages", None)
+    if stages:           # a chain: each stage's own operating point
+        parts[-1] = "I_C " + ", ".join(f"S{k} {_metric(s, 'ic_a', 'A')}"
+                                       for k, s in enumerate(stages, start=1))
     if m.get("ic_drift_pct") is not None:
         parts.append(f"drift {m['ic_drift_pct']:.1f} %")
     if m.get("thd_pct") is not None:
@@ -81,16 +104,22 @@ def _money(x: float) -> str:
 def bound_line(bound) -> str:
     """What column generation proved of a plan, in one or two sentences."""
     b = bound
+    offered = list(getattr(b, "offered_only", None) or [])
+    over = "every design the drawer allows"
+    if offered:
+        over = ("every single-stage design the drawer allows and the designs the chain "
+                f"search offered for {', '.join(offered)}")
     if b.proven_optimal and b.closed_by == "enumeration":
-        return ("Optimal over every design the drawer allows (every design that could "
+        return (f"Optimal over {over} (every design that could "
                 f"beat the plan was enumerated and offered: {b.enumerated} added in "
                 f"{b.enumeration_passes} passes; LP bound {b.lp:.6g}, plan {b.cost:.6g}).")
     if b.proven_optimal:
-        return ("Optimal over every design the drawer allows (the LP bound meets the plan; "
+        return (f"Optimal over {over} (the LP bound meets the plan; "
                 f"{b.columns_generated} designs added in {b.pricing_rounds} pricing rounds).")
     parts = []
     if b.proven_cheapest:
-        parts.append("No cheaper order exists (proven by the LP bound).")
+        parts.append("No cheaper order exists over "
+                     + (over if offered else "any design") + " (proven by the LP bound).")
     if b.gap is not None:
         parts.append(f"Within {b.gap:.3g} of the best possible objective "
                      f"(LP bound {b.lp:.6g}, plan {b.cost:.6g}).")
@@ -119,8 +148,9 @@ def print_plan(console: Console, plan: Plan, *, build_id: int | None = None,
                            style="bold red"))
         console.print("The programme chose among each request's best designs for one copy "
                       "(--candidates), not among every design the drawer allows: a design "
-                      "it was not offered may still fit. A build that has no design at all "
-                      "is proven so by the complete search.")
+                      "it was not offered may still fit. A single-stage build that has no "
+                      "design at all is proven so by the complete search; a chain build's "
+                      "reason says what its search covered.")
         for s in plan.infeasible:
             console.print(f"[bold]{escape(s.request)}[/bold]: {escape(s.reason)}")
             if s.shortage:
@@ -141,9 +171,7 @@ def print_plan(console: Console, plan: Plan, *, build_id: int | None = None,
             t.add_column("roles: values ← bins")
             t.add_column("figures")
             for a in bp.allocations:
-                pol = polarity.get(a.design.transistor)
-                t.add_row(str(a.copies),
-                          escape(a.design.transistor + (f" ({pol})" if pol else "")),
+                t.add_row(str(a.copies), escape(_transistor_text(a, polarity)),
                           escape("\n".join(part_lines(a))), _figures(a))
             console.print(t)
             for a in bp.allocations:

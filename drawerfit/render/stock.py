@@ -203,11 +203,13 @@ def print_build(console: Console, build: dict, parts: dict[int, Part]) -> None:
             count = sum(int(pc.get("count", 1)) for pc in pick.get("pieces", []))
             t.add_row(role, value, _plus(pick, parts), ", ".join(where),
                       str(count * line["copies"]))
-        label = design.get("transistor")
-        q = next((p for p in parts.values() if isinstance(p, Transistor) and p.label == label),
-                 None)
-        if label:
-            t.add_row("Q", label, q.polarity if q is not None else "?",
+        # one transistor, or a chain's per stage (S1.Q, S2.Q)
+        labels = ([("Q", design["transistor"])] if design.get("transistor") else
+                  [(f"S{k}.Q", lab) for k, lab in enumerate(design.get("transistors") or [], 1)])
+        for role, label in labels:
+            q = next((p for p in parts.values()
+                      if isinstance(p, Transistor) and p.label == label), None)
+            t.add_row(role, label, q.polarity if q is not None else "?",
                       f"{q.location or '?'} (id {q.id})" if q is not None else "?",
                       str(line["copies"]))
         if not design.get("parts"):

@@ -54,7 +54,8 @@ def sheet_for_build(directory, build: dict, parts: list, request_file: str | Non
     from drawerfit.sheet.stored import design_from_json, request_from_json, transistor_named
 
     design_json = build.get("design") or {}
-    design = design_from_json(design_json, parts)
+    design = None if isinstance(design_json.get("transistors"), list) else \
+        design_from_json(design_json, parts)
     if request_file is not None:
         from optimiser.request import load_request
 
@@ -69,12 +70,37 @@ def sheet_for_build(directory, build: dict, parts: list, request_file: str | Non
         raise InputError(f"build {build.get('id')}: the request {build.get('request')!r} is "
                          "not stored with the build and no such file is here; give it with "
                          "--request FILE", field="--sheet")
+    if isinstance(design_json.get("transistors"), list):
+        return _chain_sheet_for_build(directory, design_json, request, build, parts,
+                                      quiet=quiet)
     if request.topology != design.topology:
         raise InputError(f"the request is for a {request.topology} stage but build "
                          f"{build.get('id')} is {design.topology}", field="--request")
     request = _with_copies(request, int(build.get("copies", request.builds) or 1))
     transistor = transistor_named(design.transistor, parts)
     return sheet_for_design(directory, design, request, transistor, quiet=quiet)
+
+
+def _chain_sheet_for_build(directory, design_json: dict, request, build: dict, parts: list,
+                           *, quiet: bool = False) -> WrittenSheet:
+    """The sheet of a stored chain line (a plan's chain build), drawn as ``design
+    CHAIN.toml --sheet`` draws it, from the rows the store holds now."""
+    from drawerfit.sheet.stored import chain_from_json
+    from inventory.parts import Capacitor, Resistor, StockSnapshot, Transistor
+    from optimiser.chain_circuit import chain_circuit
+
+    design = chain_from_json(design_json, parts)
+    if not isinstance(request.topology, tuple) or request.topology != design.topology:
+        raise InputError(f"the request is for {request.topology} but build "
+                         f"{build.get('id')} is the chain {list(design.topology)}",
+                         field="--request")
+    request = replace(_with_copies(request, int(build.get("copies", 1) or 1)),
+                      coupling=design.coupling)
+    snapshot = StockSnapshot(tuple(p for p in parts if isinstance(p, Resistor)),
+                             tuple(p for p in parts if isinstance(p, Capacitor)),
+                             tuple(p for p in parts if isinstance(p, Transistor)))
+    return _write_chain_sheet(directory, design, chain_circuit(design, request, snapshot),
+                              quiet=quiet, title="Build sheet written:")
 
 
 def _with_copies(request, copies: int):
@@ -178,12 +204,19 @@ def sheet_for_chain(directory, result, rank: int, snapshot, *, quiet: bool = Fal
 
     Returns the WrittenSheet, or None when no chain meets the request.
     """
-    from optimiser.pair_evaluate import evaluate_pair
-
     chosen = _chosen_chain(result, rank, snapshot, "--sheet", "build sheet")
     if chosen is None:
         return None
     design, circuit = chosen
+    return _write_chain_sheet(directory, design, circuit, quiet=quiet,
+                              title=f"Build sheet for {_noun(design)} #{design.rank} written:")
+
+
+def _write_chain_sheet(directory, design, circuit, *, quiet: bool, title: str):
+    """A chain's sheet: the circuit evaluated whole, the + side of each polarised
+    capacitor from it, the yield when the request asks."""
+    from optimiser.pair_evaluate import evaluate_pair
+
     ev = evaluate_pair(circuit.request, circuit.batch(), circuit.transistors, circuit.ratings)
     plus = ev.extra.get("plus", {})
     picks = {role: replace(pick, plus=str(plus[role][0])) if role in plus else pick
@@ -197,8 +230,7 @@ def sheet_for_chain(directory, result, rank: int, snapshot, *, quiet: bool = Fal
                                 samples=circuit.request.samples, seed=circuit.request.seed)
     # the ranked chains' view shows no cautions: the sheet's are printed
     return sheet_for_pair(directory, ev, 0, circuit, picks=picks, yield_result=yres,
-                          quiet=quiet, cautions_shown=False, rank=design.rank,
-                          title=f"Build sheet for {_noun(design)} #{design.rank} written:")
+                          quiet=quiet, cautions_shown=False, rank=design.rank, title=title)
 
 
 def spice_for_chain(path, result, rank: int, snapshot, *, quiet: bool = False):

@@ -8,13 +8,14 @@ row that no longer exists keeps the stock defaults.
 from __future__ import annotations
 
 from collections.abc import Iterable
+from types import SimpleNamespace
 
 from inventory.errors import InputError
 from inventory.parts import Capacitor, Resistor, Transistor
 from optimiser.design import Design, Piece, RolePick
 from optimiser.request import Request
 
-__all__ = ["design_from_json", "request_from_json", "transistor_named"]
+__all__ = ["design_from_json", "chain_from_json", "request_from_json", "transistor_named"]
 
 
 def design_from_json(data: dict, parts: Iterable = ()) -> Design:
@@ -24,7 +25,7 @@ def design_from_json(data: dict, parts: Iterable = ()) -> Design:
         raise InputError("the stored design has no parts or topology; it cannot be drawn")
     picks = {}
     for role, pj in data["parts"].items():
-        kind = "capacitor" if role.startswith("C_") else "resistor"
+        kind = "capacitor" if role.split(".")[-1].startswith("C_") else "resistor"
         pieces = []
         for pc in pj.get("pieces", []):
             row = rows.get(pc.get("id"))
@@ -46,12 +47,26 @@ def design_from_json(data: dict, parts: Iterable = ()) -> Design:
                   rank=data.get("rank"), form=data.get("form"))
 
 
+def chain_from_json(data: dict, parts: Iterable = ()) -> SimpleNamespace:
+    """A stored chain design (a plan's chain line) as
+    :func:`optimiser.chain_circuit.chain_circuit` reads it: ``topology``,
+    ``coupling``, ``transistors``, ``parts`` (pieces as :func:`design_from_json`
+    gives them) and ``rank``."""
+    d = design_from_json(data, parts)
+    return SimpleNamespace(topology=tuple(data["topology"]),
+                           coupling=data.get("coupling") or "capacitor",
+                           transistors=tuple(data.get("transistors") or ()), parts=d.parts,
+                           rank=data.get("rank"))
+
+
 def request_from_json(data: dict) -> Request:
     """A Request from ``request`` as ``--json`` prints it (SI values)."""
     known = set(Request.__dataclass_fields__)
     kw = {k: v for k, v in data.items() if k in known}
     if "temp_c" in kw:
         kw["temp_c"] = tuple(kw["temp_c"])
+    if isinstance(kw.get("topology"), list):         # a chain's two stages
+        kw["topology"] = tuple(kw["topology"])
     if "topology" not in kw or "supply_v" not in kw:
         raise InputError("the stored request lacks topology or supply_v")
     return Request(**kw)

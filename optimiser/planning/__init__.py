@@ -1,6 +1,7 @@
 """Planning several builds against one drawer.
 
 * :mod:`~optimiser.planning.candidates` — the designs offered per request;
+* :mod:`~optimiser.planning.chain_columns` — a chain request's designs as columns;
 * :mod:`~optimiser.planning.copies` — the copies one design carries, and what fits them;
 * :mod:`~optimiser.planning.rows` — stock rows, stand-ins, pieces per copy;
 * :mod:`~optimiser.planning.objective` — normalised scores and the cost step;

@@ -17,6 +17,9 @@ only designs of reduced cost below ``least_b + gap / carried_b`` can improve the
 plan.  The priced search (capacitors priced at 0, a lower bound of ``rc``) lists
 all of them when it runs to its end and returns fewer than :data:`ENUM_TOP`; the
 programme over them then finds the best plan there is, and the gap is closed.
+
+A chain build (``Bound.offered_only``) is not enumerated: every design offered to it
+is in the programme already, so the argument holds over those designs.
 """
 
 from __future__ import annotations
@@ -106,6 +109,9 @@ def close_gap(gen: Generated, plan, requests: Sequence, augmented: StockSnapshot
         added = 0
         new_items = []
         for b, (it, req) in enumerate(zip(items, requests, strict=True)):
+            if getattr(req, "is_pair", False):
+                new_items.append(it)       # a chain build: planned over its designs offered
+                continue
             k = ks[b]
             key = (repr(req), k)
             pricing = Pricing(1.0, score_map, score_map_inverse,

@@ -25,6 +25,12 @@ identical build), so the search prices designs for that many copies over the
 drawer pooled and cut for them, and a column that does not fit that many times
 (:func:`~optimiser.planning.copies.fits`) is never offered to the relaxation: no
 plan can use it, so leaving it out keeps every bound valid and tightens it.
+
+Chain builds (:mod:`~optimiser.planning.chain_columns`) are not priced: the search
+priced here designs single stages.  Their columns are the chain search's designs,
+each of reduced cost ≥ 0 at the relaxation's optimum, so the bound holds over every
+single-stage design and, for a chain build, over the designs offered to it
+(``Bound.offered_only``); a phase 1 that finds no plan proves nothing of the drawer.
 """
 
 from __future__ import annotations
@@ -87,6 +93,9 @@ class Bound:
     closed_by: str | None = None
     enumerated: int = 0                  # designs added by enumeration
     enumeration_passes: int = 0
+    #: Builds planned over the designs offered to them only (chain builds: pricing
+    #: searches single stages); every verdict above holds over those designs for them.
+    offered_only: list[str] = field(default_factory=list)
 
     def to_json(self) -> dict:
         def r(x):
@@ -99,7 +108,8 @@ class Bound:
                 "pricing_rounds": self.pricing_rounds, "seconds": round(self.seconds, 3),
                 "budget_s": self.budget_s, "closed_by": self.closed_by,
                 "enumerated": self.enumerated,
-                "enumeration_passes": self.enumeration_passes}
+                "enumeration_passes": self.enumeration_passes,
+                "offered_only": list(self.offered_only)}
 
 
 @dataclass(frozen=True)
@@ -285,6 +295,12 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             exact = False
             bound.open.append(f"{it.name}: a yield target is checked after the search, "
                               "so its pricing proves nothing")
+    chained = [b for b, req in enumerate(requests) if getattr(req, "is_pair", False)]
+    for b in chained:
+        bound.offered_only.append(items[b].name)
+        bound.open.append(f"{items[b].name}: a chain build, planned over the "
+                          f"{len(items[b].candidates)} designs the chain search offered "
+                          "(pricing searches single stages)")
     complete_round = False
     for rnd in range(rounds):
         sol = solve_master(columns, counts, pools, phase1=phase1)
@@ -321,6 +337,11 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 if f"the pricing time ({budget_s:g} s) ran out" not in bound.open:
                     bound.open.append(f"the pricing time ({budget_s:g} s) ran out")
                 break
+            if b in chained:
+                # not priced: its columns are the designs offered, each of reduced
+                # cost ≥ 0 at the relaxation's optimum, so the bound holds over them
+                least.append(-RC_TOL)
+                continue
             if progress is not None:
                 progress(f"pricing designs for {it.name} (round {rnd + 1})")
             mu = float(sol.mu[b])
@@ -384,6 +405,12 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 best_lagrange = lag
                 best_duals = Duals(tuple(float(m) for m in sol.mu), dict(sol.price),
                                    tuple(least))
+            if phase1 and best_lagrange > PHASE1_TOL and chained:
+                # over the chain designs offered only: no proof for the drawer
+                bound.open.append("no plan exists over the chain designs offered and every "
+                                  "single-stage design; a chain the search did not offer "
+                                  "may still fit")
+                break
             if phase1 and best_lagrange > PHASE1_TOL:
                 bound.proven_infeasible = True
                 bound.pricing_complete = added == 0

@@ -13,6 +13,7 @@ from optimiser.planning.candidates import (
     PlanItem,
     gather_candidates,
 )
+from optimiser.planning.chain_columns import chain_candidates
 from optimiser.planning.closing import close_gap
 from optimiser.planning.colgen import PRICING_TIME_S, finish_bound, generate_columns
 from optimiser.planning.copies import carried
@@ -83,7 +84,10 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
     time_limit : float, optional
         Seconds for the solver.
     search_fn : callable, optional
-        Stands in for :func:`optimiser.search.search` (tests).
+        Stands in for :func:`optimiser.search.search` (tests).  A chain build's
+        candidates come from :func:`optimiser.search.chains.search_chains`
+        (:mod:`~optimiser.planning.chain_columns`); column generation and gap
+        closing leave them as offered.
     search_time_s : float, optional
         Time limit of each candidate search.  A search stopped by it still
         gives valid designs; the plan is then optimal over the candidates found
@@ -104,9 +108,15 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
     for b in buildlist.builds:
         if progress is not None:
             progress(f"searching designs for {b.name}")
-        designs, note, st = gather_candidates(b.request, snapshot, augmented, top=candidates,
-                                              search_fn=search_fn, search_time_s=search_time_s,
-                                              copies=carried(b.count, b.identical))
+        if b.request.is_pair:
+            designs, note, st = chain_candidates(b.request, snapshot, top=candidates,
+                                                 search_time_s=search_time_s,
+                                                 copies=carried(b.count, b.identical))
+        else:
+            designs, note, st = gather_candidates(b.request, snapshot, augmented,
+                                                  top=candidates, search_fn=search_fn,
+                                                  search_time_s=search_time_s,
+                                                  copies=carried(b.count, b.identical))
         search_stats.append({"request": b.name, **st.to_json(), "candidates": len(designs)})
         items.append(PlanItem(b.name, b.count, b.identical, tuple(designs), note,
                               strict_tolerance=b.request.wants_yield))

@@ -163,3 +163,40 @@ def test_every_bad_key_of_an_inline_request_is_reported(folder):
         request = "reqs/preamp.toml"
         """, name="ok.toml")
     assert set(load_buildlist(ok).builds[0].request.assumed) == {"thd_max_pct", "ic_min_a"}
+
+
+def test_chain_requests_are_read_in_file_and_inline_form(folder):
+    (folder / "reqs" / "chain.toml").write_text(
+        'topology = ["ce", "cc"]\nsupply_v = 12.0\ngain_db = 40.0\nzout_max_ohm = "100"\n',
+        encoding="utf-8")
+    p = write(folder, """\
+        [[build]]
+        request = "reqs/chain.toml"
+        count = 2
+
+        [[build]]
+        name = "direct"
+        [build.request]
+        topology = ["CE", "cc"]
+        coupling = "direct"
+        supply_v = 12.0
+        gain_db = 40.0
+        """)
+    bl = load_buildlist(p)
+    a, b = bl.builds
+    assert a.request.topology == ("ce", "cc") and a.request.coupling == "capacitor"
+    assert a.request.zout_max_ohm == 100.0 and a.count == a.request.builds == 2
+    assert b.request.topology == ("ce", "cc") and b.request.coupling == "direct"
+
+
+def test_zout_target_in_a_single_stage_entry_names_its_line(folder):
+    p = write(folder, """\
+        [[build]]
+        [build.request]
+        topology = "cc"
+        supply_v = 12.0
+        zout_max_ohm = 50
+        """)
+    with pytest.raises(InputError) as e:
+        load_buildlist(p)
+    assert e.value.line == 5 and e.value.field == "build[1].request.zout_max_ohm"
