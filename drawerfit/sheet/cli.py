@@ -90,9 +90,12 @@ def _chain_sheet_for_build(directory, design_json: dict, request, build: dict, p
     from optimiser.chain_circuit import chain_circuit
 
     design = chain_from_json(design_json, parts)
-    if not isinstance(request.topology, tuple) or request.topology != design.topology:
-        raise InputError(f"the request is for {request.topology} but build "
-                         f"{build.get('id')} is the chain {list(design.topology)}",
+    if request.topology != design.topology:
+        what = (design.topology if isinstance(design.topology, str)
+                else "the chain " + " → ".join(design.topology))
+        got = (request.topology if isinstance(request.topology, str)
+               else " → ".join(request.topology))
+        raise InputError(f"the request is for {got} but build {build.get('id')} is {what}",
                          field="--request")
     request = replace(_with_copies(request, int(build.get("copies", 1) or 1)),
                       coupling=design.coupling)

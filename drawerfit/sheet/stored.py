@@ -53,8 +53,11 @@ def chain_from_json(data: dict, parts: Iterable = ()) -> SimpleNamespace:
     ``coupling``, ``transistors``, ``parts`` (pieces as :func:`design_from_json`
     gives them) and ``rank``."""
     d = design_from_json(data, parts)
-    return SimpleNamespace(topology=tuple(data["topology"]),
-                           coupling=data.get("coupling") or "capacitor",
+    topo = data["topology"]
+    single = isinstance(topo, str)                   # the cascode: one name, no coupling
+    return SimpleNamespace(topology=topo if single else tuple(topo),
+                           coupling=data.get("coupling") if single
+                           else (data.get("coupling") or "capacitor"),
                            transistors=tuple(data.get("transistors") or ()), parts=d.parts,
                            rank=data.get("rank"))
 

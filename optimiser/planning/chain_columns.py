@@ -49,7 +49,9 @@ class ChainPlanDesign(Design):
     def to_json(self) -> dict:
         """A chain design's JSON (docs/json.md, ``design`` of a chain request): the
         resistor and capacitor roles under ``parts``, the transistors by stage."""
-        d = {"rank": self.rank, "topology": list(self.stage_topology),
+        # a chain's two stage names; the cascode's one name (as ChainDesign.to_json)
+        topo = list(self.stage_topology) if "-" in self.topology else self.topology
+        d = {"rank": self.rank, "topology": topo,
              "coupling": self.coupling, "transistors": list(self.transistors),
              "parts": {r: p.to_json() for r, p in self.parts.items()
                        if not _is_transistor_role(r)},
@@ -77,7 +79,8 @@ def chain_design(c: ChainDesign, snapshot: StockSnapshot) -> ChainPlanDesign | N
             return None
         role = f"S{k}.{TRANSISTOR_ROLE}"
         parts[role] = RolePick(role, 0.0, label, (Piece(0.0, 1, t.id, t.location, t.kind),))
-    return ChainPlanDesign(topology="-".join(c.topology), transistor=c.transistors[0],
+    return ChainPlanDesign(topology=(c.topology if isinstance(c.topology, str)
+                                     else "-".join(c.topology)), transistor=c.transistors[0],
                            parts=parts, metrics=dict(c.metrics), meets_spec=c.meets_spec,
                            violations=list(c.violations), warnings=list(c.warnings),
                            score=c.score, rank=c.rank, coupling=c.coupling,

@@ -136,10 +136,45 @@ def test_a_chain_the_search_does_not_design_is_refused_on_one_line(store_url, tm
     write("cc-ce.toml", 'topology = ["cc", "ce"]\nsupply_v = 9.0\n')
     r = run("plan", write("list.toml", '[[build]]\nrequest = "cc-ce.toml"\n'))
     _one_line(r, "list.toml:2", "build[1].request.topology", '["cc", "ce"]')
-    r = run("plan", write("list2.toml", '[[build]]\n[build.request]\nsupply_v = 9.0\n'
-                                        'topology = "cascode"\n'))
-    _one_line(r, "list2.toml:4", "build[1].request.topology", "cascode")
     r = run("plan", write("list3.toml", '[[build]]\n[build.request]\nsupply_v = 9.0\n'
                                         'topology = ["ce", "cc"]\ncoupling = "wire"\n'))
     _one_line(r, "list3.toml:5", "build[1].request.coupling")
+    assert export("after.csv") == before
+
+
+CASCODE = """\
+[[build]]
+name = "cascode"
+count = 2
+[build.request]
+topology = "cascode"
+supply_v = 9.0
+load_ohm = "10k"
+source_ohm = "1k"
+gain_db = 20.0
+gain_tol_db = 3.0
+thd_max_pct = "none"
+"""
+
+
+def test_a_cascode_build_commits_shows_its_sheet_and_undoes(store_url, tmp_path):
+    """A cascode (one name, its own unprefixed roles) goes through the plan as a chain
+    column: both transistors counted, its topology stored as the one name (not as its
+    letters), the sheet drawn from the stored build, and undo giving the export back."""
+    run, write, export = _bench(store_url, tmp_path)
+    before = export("before.csv")
+    r = run("plan", write("list.toml", CASCODE), "--json", "--commit", *QUICK)
+    assert r.exit_code == 0, r.output
+    d = json.loads(r.stdout)
+    assert d["feasible"]
+    (alloc,) = d["builds"][0]["allocations"]
+    design = alloc["design"]
+    assert design["topology"] == "cascode" and {"R1", "R2", "R3", "RC"} <= set(design["parts"])
+    shown = json.loads(run("builds", "show", str(d["build_id"]), "--json").stdout)
+    assert sum(p["count"] for p in shown["pieces"] if p.get("kind") == "npn") == 2 * 2
+    r = run("builds", "show", str(d["build_id"]), "--sheet", str(tmp_path / "sheets"))
+    assert r.exit_code == 0, r.output
+    assert (tmp_path / "sheets" / "sheet.html").is_file()       # one line: no sub-folder
+    r = run("builds", "undo", str(d["build_id"]))
+    assert r.exit_code == 0, r.output
     assert export("after.csv") == before
