@@ -31,6 +31,7 @@ def design_chain(app, request, request_file: str, *, top: int, as_json: bool,
         from drawerfit.render.chains import show_chain_result
 
         show_chain_result(out, result)
+        _show_first_cautions(result, snapshot)
     if sheet_dir is None and spice_file is None:
         return
     from drawerfit.sheet.cli import sheet_for_chain, spice_for_chain
@@ -39,3 +40,24 @@ def design_chain(app, request, request_file: str, *, top: int, as_json: bool,
         sheet_for_chain(sheet_dir, result, rank, snapshot, quiet=as_json)
     if spice_file is not None:
         spice_for_chain(spice_file, result, rank, snapshot, quiet=as_json)
+
+
+def _show_first_cautions(result, snapshot) -> None:
+    """The usual cautions of the design ranked first (capacitor voltage and polarity,
+    dissipation, the bench note), as ``analyse`` prints them, and the assumed targets."""
+    from drawerfit.render.analysis import show_cautions
+    from drawerfit.render.designs import assumed_line
+    from optimiser.chain_circuit import chain_circuit
+    from optimiser.pair_evaluate import evaluate_pair
+    from optimiser.pair_report import pair_cautions
+
+    if result.designs:
+        design = result.designs[0]
+        circuit = chain_circuit(design, result.request, snapshot)
+        ev = evaluate_pair(circuit.request, circuit.batch(), circuit.transistors,
+                           circuit.ratings, large_signal=False)
+        out.print(f"#{design.rank} cautions:")
+        show_cautions(pair_cautions(ev, 0, circuit))
+    line = assumed_line(result.request)
+    if line:
+        out.print(line, markup=False, highlight=False)

@@ -83,6 +83,10 @@ def test_chain_table_fits_80_columns(store, tmp_path):
     assert "S1 (ce)" in text and "C_COUPLE" in text
     # one verdict, whichever the proof's budget allowed (docs/search.md)
     assert ("Not proven best" in text) != ("Proven best" in text)
+    # the first design's cautions, as analyse prints them, end with the bench note;
+    # the targets the request left out are named
+    assert "#1 cautions:" in text and "verify them on the bench with a meter" in text
+    assert "assumed: THD <= 5 %" in text
     # on an 80-column console no line is wider (the table folds its cells)
     req = tmp_path / "req.toml"
     result = search_chains(load_request(req, chains=True), open_store(str(store)).snapshot(),
