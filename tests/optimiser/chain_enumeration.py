@@ -126,3 +126,19 @@ def _ratings(form, part, idx, rq, cq):
             r.voltage_v[role] = np.array([cq[v].voltage_v if v else 50.0 for v in vals])
             r.polarised[role] = np.array([bool(v) and cq[v].polarised for v in vals])
     return r
+
+
+def assert_fits_stock(designs, snap) -> None:
+    """Every design's pieces of every role and both transistors, counted together from
+    the snapshot's rows, are in stock (a check apart from the search's own counting)."""
+    qty = {("resistor", r.id): r.qty for r in snap.resistors}
+    qty.update({("capacitor", c.id): c.qty for c in snap.capacitors})
+    for d in designs:
+        use = Counter()
+        for pick in d.parts.values():
+            for p in pick.pieces:
+                use[(p.kind, p.id)] += p.count
+        for key, n in use.items():
+            assert n <= qty[key], (d.rank, key)
+        for label, n in Counter(d.transistors).items():
+            assert n <= snap.transistor(label).qty, (d.rank, label)

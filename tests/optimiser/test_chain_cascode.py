@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import math
 import tempfile
-from collections import Counter
 from importlib import resources
 from pathlib import Path
 
@@ -19,6 +18,8 @@ from optimiser.request import parse_request
 from optimiser.search.chain_cascode import VCE_MIN_V, VE_MIN_V, dividers
 from optimiser.search.chains import check_chain_request, search_chains
 from optimiser.stages import pair_form
+
+from .chain_enumeration import assert_fits_stock, enumerate_chains
 
 #: 30 dB into 10k from 600 Ω, 12 V, f_low ≤ 50 Hz, f_high ≥ 1 MHz: checked first with
 #: `drawerfit analyse examples/bench/cascode-check.toml` (22.7 dB with RC 2k2, RE 100R;
@@ -86,18 +87,7 @@ def test_supply_current_is_the_divider_and_the_collector_resistor(found):
 
 def test_pieces_of_every_role_fit_stock_together(found, demo):
     # counted here from the snapshot's rows: every role and both transistors together
-    _, res = found
-    qty = {("resistor", r.id): r.qty for r in demo.resistors}
-    qty.update({("capacitor", c.id): c.qty for c in demo.capacitors})
-    for d in res.designs:
-        use = Counter()
-        for pick in d.parts.values():
-            for p in pick.pieces:
-                use[(p.kind, p.id)] += p.count
-        for key, n in use.items():
-            assert n <= qty[key], (d.rank, key)
-        for label, n in Counter(d.transistors).items():
-            assert n <= demo.transistor(label).qty, (d.rank, label)
+    assert_fits_stock(found[1].designs, demo)
 
 
 def test_capacitors_hold_their_voltages(found):
@@ -158,7 +148,7 @@ def test_cascode_search_agrees_with_enumeration():
     # every cascode of a four-value drawer (tests/optimiser/chain_enumeration.py: every
     # value in every resistor role, each of the three emitter forms), ranked by the
     # engine; random tiny drawers, which may disagree, are in docs/search.md
-    from .chain_enumeration import enumerate_chains
+
     from .test_chain_search import _drawer
 
     req = parse_request({"topology": "cascode", "supply_v": 12.0, "load_ohm": 1e4,

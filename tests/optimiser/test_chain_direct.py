@@ -9,7 +9,6 @@ from __future__ import annotations
 import math
 import os
 import tempfile
-from collections import Counter
 from importlib import resources
 from pathlib import Path
 
@@ -23,7 +22,7 @@ from optimiser.search.chain_direct import followers, output_capacitors
 from optimiser.search.chains import check_chain_request, search_chains
 from optimiser.stages import pair_form
 
-from .chain_enumeration import enumerate_chains
+from .chain_enumeration import assert_fits_stock, enumerate_chains
 from .test_chain_search import CAP, R_VALUES, T, _drawer, _request
 
 USER = {"topology": ["ce", "cc"], "coupling": "direct", "supply_v": 12, "load_ohm": "1k",
@@ -68,18 +67,7 @@ def test_ranked_direct_designs_meet_the_request(found):
 
 def test_pieces_of_both_stages_fit_stock_together(found, demo):
     # counted here from the snapshot's rows, both stages and both transistors together
-    _, res = found
-    qty = {("resistor", r.id): r.qty for r in demo.resistors}
-    qty.update({("capacitor", c.id): c.qty for c in demo.capacitors})
-    for d in res.designs:
-        use = Counter()
-        for pick in d.parts.values():
-            for p in pick.pieces:
-                use[(p.kind, p.id)] += p.count
-        for key, n in use.items():
-            assert n <= qty[key], (d.rank, key)
-        for label, n in Counter(d.transistors).items():
-            assert n <= demo.transistor(label).qty, (d.rank, label)
+    assert_fits_stock(found[1].designs, demo)
 
 
 def test_one_dc_network_kirchhoff_at_the_first_collector(found):
