@@ -12,8 +12,11 @@ from optimiser.device import thermal_voltage
 from optimiser.evaluate import corner_points
 from optimiser.prune import (
     bias_current,
+    ce_gain_at_swing,
+    ce_gain_per_drop,
     ce_gain_per_load,
     ce_input_divider_max,
+    ce_swing_needed,
     common_base_hd2_floor,
     emitter_hd2_floor,
     follower_gain_floor,
@@ -58,20 +61,28 @@ class EmitterSpans:
         target, tol = score_gain_target(r)
         if self.win is not None:
             per_z = self._ce_per_z(P, ic_lo, ic_hi, re_lo, re_hi)      # G ≤ per_z·Z'
+            # B24: G ≤ per_y·I_C·Z', I_C·Z' ≤ y_max‖(I_C,hi·R_L), y_max the largest drop
+            per_y = self._ce_per_drop(P, ic_lo, re_lo, re_hi)
+            y_top = self._drop_swing_max(ic_hi, np.maximum(self.V - ve_lo - self.model.vce_sat,
+                                                           0.0))
             with np.errstate(invalid="ignore"):
-                g_hi = per_z * z_max
+                g_hi = np.minimum(per_z * z_max, self._ce_gain_at(P, ic_lo, re_lo, re_hi, y_top))
             short = self._gain_shortfall(np.nan_to_num(g_hi, nan=0.0))
             # the rest only where this cheap part leaves the node under ``upper``
             out = np.full(short.shape, np.inf)
             li = np.flatnonzero(lb + short < upper)
             if li.size == 0:
                 return out
-            P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max, per_z, short, start = (
+            P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max, per_z, short, start, per_y = (
                 np.asarray(x)[li] for x in (P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max,
-                                            per_z, short, start))
-            # B15: the collector drop that gain needs, against the headroom
+                                            per_z, short, start, per_y))
+            # B15: the collector drop that gain needs, against the headroom; and B15
+            # with B24's need, I_C·Z' ≥ G/per_y: y‖(I_C,hi·R_L) ≥ G/per_y is B15's
+            # relation for the current I_C,hi and the load per gain 1/(per_y·I_C,hi)
             with np.errstate(divide="ignore", invalid="ignore"):
-                short = np.maximum(short, self._gain_headroom(1.0 / per_z, ic_lo, ve_lo))
+                short = np.maximum(short, np.maximum(
+                    self._gain_headroom(1.0 / per_z, ic_lo, ve_lo),
+                    self._gain_headroom(1.0 / (per_y * ic_hi), ic_hi, ve_lo)))
             # a split whose RE keeps the gain below what the window (or, with a score
             # to beat, the gain term) allows cannot be the design: the feedback, and
             # so the distortion bound, is that of the largest RE reaching it
@@ -105,6 +116,40 @@ class EmitterSpans:
         with np.errstate(invalid="ignore", over="ignore"):
             f = 1.0 + w * rsrc * (model.tf * gm + model.cjc * (1.0 + gm * z)) + w * z * model.cjc
         return np.nan_to_num(f, nan=np.inf, posinf=np.inf)
+
+    def _ce_per_drop(self, P, ic_lo, re_lo, re_hi):
+        """Largest ce gain per volt of I_C·Z', with B15's margin
+        (:func:`optimiser.prune.ce_gain_per_drop`, B24)."""
+        r = self.request
+        return ce_gain_per_drop(ic_lo=ic_lo, r_th=self.rth[P], re_lo=re_lo, re_hi=re_hi,
+                                source_ohm=r.source_ohm, model=self.model, q_hi=self.q_hi,
+                                mid_hz=r.mid_hz) * B15_MARGIN
+
+    def _ce_gain_at(self, P, ic_lo, re_lo, re_hi, swing):
+        """Largest ce gain with I_C·Z' ≤ ``swing``, with B15's margin
+        (:func:`optimiser.prune.ce_gain_at_swing`, B24)."""
+        r = self.request
+        return ce_gain_at_swing(swing=swing, ic_lo=ic_lo, r_th=self.rth[P], re_lo=re_lo,
+                                re_hi=re_hi, source_ohm=r.source_ohm, model=self.model,
+                                q_hi=self.q_hi, mid_hz=r.mid_hz, supply_v=self.V) * B15_MARGIN
+
+    def _ce_swing_for(self, P, ic_lo, re, gain):
+        """Least I_C·Z' a ce stage of unbypassed RE ``re`` needs for ``gain``, with
+        B15's margin (:func:`optimiser.prune.ce_swing_needed`, B24)."""
+        r = self.request
+        return ce_swing_needed(gain=gain / B15_MARGIN, ic_lo=ic_lo, r_th=self.rth[P], re_lo=re,
+                               re_hi=re, source_ohm=r.source_ohm, model=self.model,
+                               q_hi=self.q_hi, mid_hz=r.mid_hz, supply_v=self.V)
+
+    def _drop_swing_max(self, ic_hi, y):
+        """Largest I_C·Z' = y‖(I_C·R_L) for a collector drop up to ``y`` and I_C up to
+        ``ic_hi`` (y without a load)."""
+        rl = self.request.load_ohm
+        if not rl:
+            return y
+        a = ic_hi * rl
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.nan_to_num(y * a / (y + a), nan=0.0)
 
     def _ce_per_z(self, P, ic_lo, ic_hi, re_lo, re_hi):
         """Largest ce gain per ohm of collector load, with B15's margin
