@@ -12,7 +12,7 @@ from optimiser.dc import solve_bias
 from optimiser.device import thermal_voltage
 from optimiser.f_high_bounds import F_HIGH_VCE_MIN, collector_conductance_max, f_high_ceiling
 from optimiser.options import RESISTOR_DERATING
-from optimiser.prune import midband_estimate
+from optimiser.prune import ce_input_divider_max, midband_estimate
 from optimiser.score import degeneration, hd2_pct, score_gain_target, score_terms
 from optimiser.search.bounds import (
     GAIN_BOUND_MARGIN,
@@ -186,8 +186,12 @@ class CollectorLevel:
                     25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
                         1.0 + ic_hi[rs_] * rdeg / thermal_voltage(25.0)))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
+            # B12 at RC, the input divider that of the very RE (B6's k_up)
             floor = 0.0 if self.law != DEGENERATED else self._floor(
-                Pc[sel], ic_lo[rs_], ic_hi[rs_], ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel])
+                Pc[sel], ic_lo[rs_], ic_hi[rs_], ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel],
+                k_in=ce_input_divider_max(ic_lo=ic_lo[rs_], r_th=self.rth[Pc[sel]], re_hi=REc[sel],
+                                          source_ohm=request.source_ohm, model=model,
+                                          q_hi=self.q_hi))
             if self.law == EMITTER_DRIVEN:            # B16 with RE known
                 h = np.maximum(h, self._cb_hd2(ic_hi[rs_], REc[sel], REc[sel]))
             if self.law == DEGENERATED:            # B14 with RE and RC known

@@ -98,6 +98,15 @@ class EmitterSpans:
                 short = np.where(np.isnan(re_hi), np.inf, short)
                 re_hi = np.nan_to_num(re_hi, nan=0.0)
             out[li] = short + self._junction_hd2(P, ic_hi, re_hi, z_max)
+            # B12 with the input divider of an unbypassed RE up to re_hi (B6's k_up)
+            # in place of R_TH/(R_TH + R_S): the floor grows by the ratio of the two
+            k_up = ce_input_divider_max(ic_lo=ic_lo, r_th=self.rth[P], re_hi=re_hi,
+                                        source_ohm=r.source_ohm, model=self.model, q_hi=self.q_hi)
+            fin = np.isfinite(out[li])
+            if fin.any():
+                sub = li[fin]
+                out[sub] = np.maximum(out[sub], self._floor(
+                    P[fin], ic_lo[fin], ic_hi[fin], ve_lo[fin], k_in=k_up[fin]))
             return out
         return short + self._junction_hd2(P, ic_hi, re_hi, z_max)
 
@@ -369,10 +378,9 @@ class EmitterSpans:
             need[cand] = np.maximum(op.pq, cop.pq.max(axis=1)) > self.model.pd
         return need
 
-    def _floor(self, P, ic_lo, ic_hi, ve_lo, rc=None):
+    def _floor(self, P, ic_lo, ic_hi, ve_lo, rc=None, k_in=None):
         r = self.request
-        k_in = None
-        if self.law == DEGENERATED:     # R_in ≤ R_TH: the input divider is at most this
+        if k_in is None and self.law == DEGENERATED:     # R_in ≤ R_TH: the divider is at most this
             rth = self.rth[P]
             k_in = rth / (rth + float(r.source_ohm or 0.0))
         return junction_floor(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ve_lo, supply_v=self.V,

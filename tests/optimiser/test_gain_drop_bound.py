@@ -154,3 +154,57 @@ def test_swing_needed_inverts_the_gain_at_swing(rs, rl, vaf, mid):
     # where it is inf, no swing up to 10^6 V gives that gain
     far = _at_swing(b, m, rs, mid, ic_lo, np.full(b.RE.size, 1e6))
     assert np.all(far[~fin] < gain[~fin] * (1 + 1e-9))
+
+
+@pytest.mark.parametrize("rs, rl, vin, gdb, mid", [
+    (600.0, 1e4, 0.01, 20.0, 1e3), (600.0, 1e4, 0.01, 40.0, 1e3), (50.0, 2e3, 0.002, 26.0, 1e3),
+    (10e3, 1e4, 0.01, 20.0, 1e5), (600.0, 1e4, 0.01, 26.0, 1e6)])
+def test_junction_floor_with_the_divider_of_the_emitter_holds_against_the_engine(
+        rs, rl, vin, gdb, mid):
+    # B12 with k_in = B6's k_up at the stage's own unbypassed RE (R_in ≤
+    # R_TH‖(r_π,max + (β_hi + 1)·RE)) in place of R_TH/(R_TH + R_S): the engine's
+    # gain + distortion + headroom terms of a valid stage in the window never below
+    # it, over every RC (the bias nodes) nor at the stage's RC (the candidates)
+    from optimiser.prune import ce_input_divider_max, junction_floor
+
+    rng = np.random.default_rng(17)
+    n = 8000
+    t = Transistor("GP-N1", 100, 300, ft=250e6, cob=4e-12, vaf=60.0)
+    m = device_from_transistor(t)
+    lo, hi = early_bounds(12.0, m)
+    req = Request(topology="ce", supply_v=12.0, load_ohm=rl, source_ohm=rs, input_vpk=vin,
+                  mid_hz=mid, gain=10 ** (gdb / 20), gain_tol_db=2.0)
+    b = StageBatch.from_values(
+        "ce", R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
+        RC=np.exp(rng.uniform(np.log(200), np.log(3e4), n)), C_IN=1.0, C_OUT=1.0, C_BYP=1.0,
+        RE=rng.uniform(0, 2e3, n) * (rng.random(n) < 0.6) * rng.choice([1.0, 0.01], n),
+        RE_BYP=rng.uniform(0, 2e3, n))
+    ev = evaluate(req, b, t, None, band_edges=False, large_signal=False)
+    f = skeleton_figures(req, b, t)
+    win = gain_window(req)
+    ok = ev.valid & (f["gain_inf_db"] >= 20 * np.log10(win[0]) - GAIN_SLACK_DB)
+    assert ok.sum() > 100
+    terms = score_terms(gain_inf_db=f["gain_inf_db"], target_db=req.gain_db,
+                        tol_db=req.gain_tol_db, drift_pct=0.0, hd2_pct=f["hd2_pct"],
+                        supply_a=0.0, emptied=0, vce_v=f["vce_v"], supply_v=12.0)
+    actual = terms["gain"] + terms["distortion"] + terms["headroom"]
+    vth, rth = thevenin(12.0, b.R1, b.R2)
+    ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
+    ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
+    k_up = ce_input_divider_max(ic_lo=ic_lo, r_th=rth, re_hi=b.RE, source_ohm=rs, model=m,
+                                q_hi=hi)
+    kw = dict(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ic_lo * b.re_total, supply_v=12.0, load_ohm=rl,
+              input_vpk=vin, gain_lo_db=20 * np.log10(win[0]) - GAIN_SLACK_DB,
+              target_db=req.gain_db, tol_db=req.gain_tol_db, vce_sat=m.vce_sat, k_in=k_up)
+    free = junction_floor(**kw)
+    known = junction_floor(**kw, rc=b.RC)
+    assert np.all(free[ok] <= actual[ok]), np.max((free - actual)[ok])
+    assert np.all(known[ok] <= actual[ok]), np.max((known - actual)[ok])
+    # tighter than the floor with R_TH/(R_TH + R_S) on some stages, and not empty
+    plain = junction_floor(**{**kw, "k_in": rth / (rth + rs)}, rc=b.RC)
+    assert np.all(known[ok] >= plain[ok] - 1e-12)
+    if rs > 0:
+        pos = ok & (plain > 0)
+        assert np.median(known[pos] / plain[pos]) > 1.0
+    # tightness, reported: measured at most 0.98-0.999 of the engine's terms
+    assert np.max((known / actual)[ok & (actual > 0)]) < 1.0
