@@ -102,7 +102,7 @@ class EmitterSpans:
             # in place of R_TH/(R_TH + R_S): the floor grows by the ratio of the two
             k_up = ce_input_divider_max(ic_lo=ic_lo, r_th=self.rth[P], re_hi=re_hi,
                                         source_ohm=r.source_ohm, model=self.model, q_hi=self.q_hi)
-            fin = np.isfinite(out[li])
+            fin = lb + out[li] < upper          # (only where the node is still live)
             if fin.any():
                 sub = li[fin]
                 out[sub] = np.maximum(out[sub], self._floor(
