@@ -38,6 +38,19 @@ from optimiser.search.skeletons import SHORT_F
 from optimiser.stage import StageBatch
 from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
 
+#: B12 is taken a second time on a run, with the emitter's input divider, only where
+#: that divider is below the plain R_TH/(R_TH + R_S) by at least this factor: the
+#: floor's distortion part grows by their ratio, and below it the second junction
+#: floor costs more than it prunes (E96 drawer, minimal ce request).  Any value keeps
+#: the search complete (a bound left out only prunes less).
+DIVIDER_GAIN = 1.1
+#: B24 and B15 in its drop form are taken on a run only where B6's gain ceiling is
+#: below this multiple of the window's top: B24 is a few to about 20 % below B6 (the
+#: width of the current's bracket and the output conductance), so far above the
+#: window it rarely changes the gain term, and there it costs more than it prunes
+#: (E96 drawer, minimal ce request).  Any value keeps the search complete.
+SWING_SCREEN = 1.3
+
 
 class EmitterSpans:
     """Emitter-span bounds of :class:`~optimiser.search.job._Job`."""
@@ -61,28 +74,45 @@ class EmitterSpans:
         target, tol = score_gain_target(r)
         if self.win is not None:
             per_z = self._ce_per_z(P, ic_lo, ic_hi, re_lo, re_hi)      # G ≤ per_z·Z'
-            # B24: G ≤ per_y·I_C·Z', I_C·Z' ≤ y_max‖(I_C,hi·R_L), y_max the largest drop
-            per_y = self._ce_per_drop(P, ic_lo, re_lo, re_hi)
-            y_top = self._drop_swing_max(ic_hi, np.maximum(self.V - ve_lo - self.model.vce_sat,
-                                                           0.0))
             with np.errstate(invalid="ignore"):
-                g_hi = np.minimum(per_z * z_max, self._ce_gain_at(P, ic_lo, re_lo, re_hi, y_top))
-            short = self._gain_shortfall(np.nan_to_num(g_hi, nan=0.0))
-            # the rest only where this cheap part leaves the node under ``upper``
+                short = self._gain_shortfall(np.nan_to_num(per_z * z_max, nan=0.0))
+            # the rest only where each cheaper part leaves the node under ``upper``
             out = np.full(short.shape, np.inf)
             li = np.flatnonzero(lb + short < upper)
+            cols = [P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max, per_z, short, start]
+
+            def live(keep):
+                return [np.asarray(x)[keep] for x in cols]
+
+            cols = live(li)
+            # B24 (and B15 in its drop form) only where B6's ceiling is below
+            # SWING_SCREEN times the window's top
+            near = np.flatnonzero(cols[8] * cols[7] < SWING_SCREEN * self.win[1])
+            if near.size:
+                # B24: G ≤ the gain at the largest I_C·Z', y_max‖(I_C,hi·R_L) (y_max the
+                # largest collector drop)
+                P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo = (x[near] for x in cols[:7])
+                y_top = self._drop_swing_max(ic_hi, np.maximum(
+                    self.V - ve_lo - self.model.vce_sat, 0.0))
+                cols[9][near] = np.maximum(cols[9][near], self._gain_shortfall(
+                    self._ce_gain_at(P, ic_lo, re_lo, re_hi, y_top)))
+                keep = cols[5] + cols[9] < upper
+                li, cols = li[keep], live(keep)
             if li.size == 0:
                 return out
-            P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max, per_z, short, start, per_y = (
-                np.asarray(x)[li] for x in (P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max,
-                                            per_z, short, start, per_y))
-            # B15: the collector drop that gain needs, against the headroom; and B15
-            # with B24's need, I_C·Z' ≥ G/per_y: y‖(I_C,hi·R_L) ≥ G/per_y is B15's
-            # relation for the current I_C,hi and the load per gain 1/(per_y·I_C,hi)
+            P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max, per_z, short, start = cols
+            # B15: the collector drop that gain needs, against the headroom
             with np.errstate(divide="ignore", invalid="ignore"):
-                short = np.maximum(short, np.maximum(
-                    self._gain_headroom(1.0 / per_z, ic_lo, ve_lo),
-                    self._gain_headroom(1.0 / (per_y * ic_hi), ic_hi, ve_lo)))
+                short = np.maximum(short, self._gain_headroom(1.0 / per_z, ic_lo, ve_lo))
+                # and B15 with B24's need, I_C·Z' ≥ G/per_y: y‖(I_C,hi·R_L) ≥ G/per_y
+                # is B15's relation for the current I_C,hi and the load per gain
+                # 1/(per_y·I_C,hi)
+                s24 = np.flatnonzero((lb + short < upper)
+                                     & (per_z * z_max < SWING_SCREEN * self.win[1]))
+                if s24.size:
+                    per_y = self._ce_per_drop(P[s24], ic_lo[s24], re_lo[s24], re_hi[s24])
+                    short[s24] = np.maximum(short[s24], self._gain_headroom(
+                        1.0 / (per_y * ic_hi[s24]), ic_hi[s24], ve_lo[s24]))
             # a split whose RE keeps the gain below what the window (or, with a score
             # to beat, the gain term) allows cannot be the design: the feedback, and
             # so the distortion bound, is that of the largest RE reaching it
@@ -100,13 +130,19 @@ class EmitterSpans:
             out[li] = short + self._junction_hd2(P, ic_hi, re_hi, z_max)
             # B12 with the input divider of an unbypassed RE up to re_hi (B6's k_up)
             # in place of R_TH/(R_TH + R_S): the floor grows by the ratio of the two
-            k_up = ce_input_divider_max(ic_lo=ic_lo, r_th=self.rth[P], re_hi=re_hi,
-                                        source_ohm=r.source_ohm, model=self.model, q_hi=self.q_hi)
-            fin = lb + out[li] < upper          # (only where the node is still live)
-            if fin.any():
-                sub = li[fin]
-                out[sub] = np.maximum(out[sub], self._floor(
-                    P[fin], ic_lo[fin], ic_hi[fin], ve_lo[fin], k_in=k_up[fin]))
+            # (only where the node is still live and the divider is well below the
+            # plain one: elsewhere the floor could rise by less than DIVIDER_GAIN)
+            fin = np.flatnonzero(lb + out[li] < upper)
+            if fin.size:
+                rth = self.rth[P[fin]]
+                k_up = ce_input_divider_max(ic_lo=ic_lo[fin], r_th=rth, re_hi=re_hi[fin],
+                                            source_ohm=r.source_ohm, model=self.model,
+                                            q_hi=self.q_hi)
+                worth = k_up * DIVIDER_GAIN < rth / (rth + float(r.source_ohm or 0.0))
+                fin, k_up = fin[worth], k_up[worth]
+            if fin.size:
+                out[li[fin]] = np.maximum(out[li[fin]], self._floor(
+                    P[fin], ic_lo[fin], ic_hi[fin], ve_lo[fin], k_in=k_up))
             return out
         return short + self._junction_hd2(P, ic_hi, re_hi, z_max)
 
