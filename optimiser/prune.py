@@ -10,6 +10,8 @@ Units: volt, ampere, ohm, siemens; temperatures in °C.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from scipy.special import wrightomega
 
@@ -536,6 +538,98 @@ def ce_input_divider_max(*, ic_lo, r_th, re_hi, source_ohm, model: DeviceModel, 
         zb = b_hi * vt / ic_lo + (b_hi + 1.0) * re_hi
         rin = np.where(np.isfinite(zb), r_th * zb / (r_th + zb), r_th)
         return rin / (rin + float(source_ohm or 0.0))
+
+
+def ce_gain_per_drop(*, ic_lo, r_th, re_lo, re_hi, source_ohm, model: DeviceModel,
+                     q_hi: float, mid_hz: float):
+    """Upper bound of a ce stage's midband gain per volt of I_C·Z' (Z' = RC‖R_L).
+
+    Claim: over every stage with I_C ≥ ``ic_lo``, unbypassed RE in [``re_lo``,
+    ``re_hi``], G ≤ I_C·Z'·k_up·(1/(V_T + I_C,lo·RE_lo·(1 + 1/β_hi)) + ωC_μ/I_C,lo).
+    It is :func:`ce_gain_per_load`'s ceiling G ≤ k_up·Z'·(g_m/(1 + g_m·RE·c) + ωC_μ),
+    c = 1 + 1/β_hi, written per volt of I_C·Z' with g_m = I_C/V_T:
+    G ≤ k_up·I_C·Z'·(1/(V_T + I_C·RE·c) + ωC_μ/I_C), and both parts fall as I_C
+    grows, so they are largest at I_C,lo.  With I_C·Z' = y‖(I_C·R_L) ≤
+    y‖(I_C,hi·R_L), y = I_C·RC the collector drop, it bounds the gain by the drop the
+    headroom leaves, where the per-ohm form pays the whole width I_C,hi/I_C,lo of the
+    current's bracket (bound B24 of docs/search.md).  k_up is
+    :func:`ce_input_divider_max` at ``re_hi``.  No margin here.
+    """
+    k = ce_input_divider_max(ic_lo=ic_lo, r_th=r_th, re_hi=re_hi, source_ohm=source_ohm,
+                             model=model, q_hi=q_hi)
+    ic_lo = np.asarray(ic_lo, dtype=float)
+    c = 1.0 + 1.0 / (float(model.beta) * float(q_hi))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        per = k * (1.0 / (thermal_voltage(25.0) + ic_lo * np.asarray(re_lo, dtype=float) * c)
+                   + 2.0 * np.pi * float(mid_hz) * float(model.cjc) / ic_lo)
+    return np.nan_to_num(per, nan=0.0)
+
+
+def _swing_coefficients(*, ic_lo, r_th, re_lo, re_hi, source_ohm, model: DeviceModel,
+                        q_hi: float, mid_hz: float, supply_v: float):
+    """(k, A, b, e) of :func:`ce_gain_at_swing`: G ≤ k·(Y/(A + b·Y) + e·Y)."""
+    k = ce_input_divider_max(ic_lo=ic_lo, r_th=r_th, re_hi=re_hi, source_ohm=source_ohm,
+                             model=model, q_hi=q_hi)
+    ic_lo = np.asarray(ic_lo, dtype=float)
+    c = 1.0 + 1.0 / (float(model.beta) * float(q_hi))
+    vt = thermal_voltage(25.0)
+    A = vt + ic_lo * np.asarray(re_lo, dtype=float) * c
+    b = vt / (float(model.vaf) + float(supply_v)) if math.isfinite(model.vaf) else 0.0
+    with np.errstate(divide="ignore"):
+        e = 2.0 * np.pi * float(mid_hz) * float(model.cjc) / ic_lo
+    return np.nan_to_num(k, nan=0.0), A, b, e
+
+
+def ce_gain_at_swing(*, swing, ic_lo, r_th, re_lo, re_hi, source_ohm, model: DeviceModel,
+                     q_hi: float, mid_hz: float, supply_v: float):
+    """Upper bound of a ce stage's midband gain when I_C·Z' ≤ ``swing`` (Z' = RC‖R_L).
+
+    Claim: over every stage with I_C ≥ ``ic_lo``, unbypassed RE in [``re_lo``,
+    ``re_hi``] and its collector at most at the supply, with Y = I_C·Z',
+    G ≤ k_up·(Y/(V_T·(1 + Y/(V_AF + V)) + I_C,lo·RE_lo·c) + ωC_μ·Y/I_C,lo),
+    c = 1 + 1/β_hi, k_up :func:`ce_input_divider_max` at ``re_hi``; the right side
+    grows with Y, so ``swing`` ≥ Y bounds it.
+
+    Why: at low frequency the collector's current into the device is
+    i_c = α·v_be with α = (g_m − RE/(r_π·r_o))/(1 + (Z' + RE)/r_o) ≤
+    g_m/(1 + Z'/r_o) (nodal equations of the hybrid-π with r_o between collector and
+    emitter), and the source sees v_s' = v_be·(1 + (RE + R_b)/r_π + RE·α), so
+    G ≤ k·Z'·α/(1 + α·RE·c) — :func:`ce_gain_per_load`'s degenerated
+    transconductance with g_m replaced by α.  With g_m = I_C/V_T the degenerated
+    part is Y/(V_T + V_T·Z'/r_o + I_C·RE·c); the device law of docs/model.md gives
+    1/r_o ≥ (I_C − I_S)/(V_AF + V_CB) and V_CB ≤ V, so V_T·Z'/r_o ≥
+    V_T·Y/(V_AF + V) (less a part I_S/I_C, below 10⁻⁹ at the currents searched,
+    which the search's margin covers); the RE term is least at I_C,lo.  The
+    feed-forward through C_μ at ``mid_hz`` adds at most ωC_μ·Z' ≤ ωC_μ·Y/I_C,lo
+    (as in :func:`ce_gain_per_load`).  Against the per-ohm form at I_C,hi it no
+    longer pays the width I_C,hi/I_C,lo of the current's bracket nor the output
+    conductance (bound B24 of docs/search.md).  No margin here.
+    """
+    k, A, b, e = _swing_coefficients(ic_lo=ic_lo, r_th=r_th, re_lo=re_lo, re_hi=re_hi,
+                                     source_ohm=source_ohm, model=model, q_hi=q_hi,
+                                     mid_hz=mid_hz, supply_v=supply_v)
+    y = np.asarray(swing, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        g = k * (y / (A + b * y) + e * y)
+    return np.where(y > 0, np.nan_to_num(g, nan=np.inf), 0.0)
+
+
+def ce_swing_needed(*, gain, ic_lo, r_th, re_lo, re_hi, source_ohm, model: DeviceModel,
+                    q_hi: float, mid_hz: float, supply_v: float):
+    """Least I_C·Z' a ce stage needs for a midband gain ``gain``: the inverse of
+    :func:`ce_gain_at_swing` in its swing (which grows with it), so every stage of
+    that gain has I_C·Z' at least this (inf where no swing reaches it).  The
+    positive root of e·b·Y² + (1 + e·A − g·b)·Y − g·A = 0, g = gain/k_up."""
+    k, A, b, e = _swing_coefficients(ic_lo=ic_lo, r_th=r_th, re_lo=re_lo, re_hi=re_hi,
+                                     source_ohm=source_ohm, model=model, q_hi=q_hi,
+                                     mid_hz=mid_hz, supply_v=supply_v)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        g = np.asarray(gain, dtype=float) / k
+        qa, qb, qc = e * b, 1.0 + e * A - g * b, -g * A
+        disc = np.sqrt(qb * qb - 4.0 * qa * qc)
+        # the root −2c/(b + √disc) is the stable form of the positive root (a ≥ 0)
+        y = np.where(qb + disc > 0, -2.0 * qc / (qb + disc), np.inf)
+    return np.nan_to_num(y, nan=np.inf)
 
 
 def ce_gain_per_load(*, ic_lo, ic_hi, r_th, re_lo, re_hi, source_ohm, model: DeviceModel,

@@ -12,7 +12,7 @@ from optimiser.dc import solve_bias
 from optimiser.device import thermal_voltage
 from optimiser.f_high_bounds import F_HIGH_VCE_MIN, collector_conductance_max, f_high_ceiling
 from optimiser.options import RESISTOR_DERATING
-from optimiser.prune import midband_estimate
+from optimiser.prune import ce_input_divider_max, midband_estimate
 from optimiser.score import degeneration, hd2_pct, score_gain_target, score_terms
 from optimiser.search.bounds import (
     GAIN_BOUND_MARGIN,
@@ -104,6 +104,24 @@ class CollectorLevel:
                 rc_min = x if not rl else np.where(x < rl, x * rl / (rl - x), np.inf)
             rc_min = np.nan_to_num(rc_min, nan=np.inf)
             n0 = np.minimum(np.searchsorted(self.rc_vals, rc_min * (1 - 1e-9), side="left"), nrc)
+            if self.law == DEGENERATED and rl:
+                # B24 at the collector: the gain g_lo needs I_C·Z' ≥ Y_need, and
+                # I_C·RC ≤ y_max (V_CE ≥ vce_sat), so y_max·R_L/(RC + R_L) ≥ Y_need:
+                # RC ≤ R_L·(y_max/Y_need − 1); and I_C ≤ I_C,hi gives Z' ≥ Y_need/I_C,hi
+                g_need = g_lo * 10 ** (-GAIN_SLACK_DB / 20.0)
+                y_need = self._ce_swing_for(P, ic_lo, REv, g_need)
+                y_max = np.maximum(V - ve_lo - model.vce_sat, 0.0)
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    rc_b = np.nan_to_num(rl * (y_max / y_need - 1.0), nan=-1.0)
+                    x = y_need / ic_hi
+                    rc_a = np.where(x < rl, x * rl / (rl - x), np.inf)
+                rc_a = np.nan_to_num(rc_a, nan=np.inf)
+                n0 = np.minimum(np.maximum(n0, np.searchsorted(
+                    self.rc_vals, rc_a * (1 - 1e-9), side="left")), nrc)
+                nb = np.searchsorted(self.rc_vals, np.minimum(rc_b, 1e300) * (1 + 1e-9),
+                                     side="right")
+                self.count("gain_bound", np.maximum(nrc - np.maximum(nb, n0), 0).sum())
+                nrc = np.maximum(np.minimum(nrc, nb), n0)
             self.count("gain_bound", n0.sum())
             # smallest gain a given RC can give, every factor at its least favourable
             # end — ce: k_in·β·Z'/(r_π + (β+1)·RE); cb: g_m·Z'·x/(R_S + x) with
@@ -168,8 +186,12 @@ class CollectorLevel:
                     25.0 * self.win[0] * request.input_vpk / room / GAIN_BOUND_MARGIN / (
                         1.0 + ic_hi[rs_] * rdeg / thermal_voltage(25.0)))
             h = np.nan_to_num(h, nan=np.inf, posinf=np.inf)
+            # B12 at RC, the input divider that of the very RE (B6's k_up)
             floor = 0.0 if self.law != DEGENERATED else self._floor(
-                Pc[sel], ic_lo[rs_], ic_hi[rs_], ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel])
+                Pc[sel], ic_lo[rs_], ic_hi[rs_], ic_lo[rs_] * (REc[sel] + BYc[sel]), rc=RCc[sel],
+                k_in=ce_input_divider_max(ic_lo=ic_lo[rs_], r_th=self.rth[Pc[sel]], re_hi=REc[sel],
+                                          source_ohm=request.source_ohm, model=model,
+                                          q_hi=self.q_hi))
             if self.law == EMITTER_DRIVEN:            # B16 with RE known
                 h = np.maximum(h, self._cb_hd2(ic_hi[rs_], REc[sel], REc[sel]))
             if self.law == DEGENERATED:            # B14 with RE and RC known

@@ -12,8 +12,11 @@ from optimiser.device import thermal_voltage
 from optimiser.evaluate import corner_points
 from optimiser.prune import (
     bias_current,
+    ce_gain_at_swing,
+    ce_gain_per_drop,
     ce_gain_per_load,
     ce_input_divider_max,
+    ce_swing_needed,
     common_base_hd2_floor,
     emitter_hd2_floor,
     follower_gain_floor,
@@ -34,6 +37,19 @@ from optimiser.search.bounds import (
 from optimiser.search.skeletons import SHORT_F
 from optimiser.stage import StageBatch
 from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
+
+#: B12 is taken a second time on a run, with the emitter's input divider, only where
+#: that divider is below the plain R_TH/(R_TH + R_S) by at least this factor: the
+#: floor's distortion part grows by their ratio, and below it the second junction
+#: floor costs more than it prunes (E96 drawer, minimal ce request).  Any value keeps
+#: the search complete (a bound left out only prunes less).
+DIVIDER_GAIN = 1.1
+#: B24 and B15 in its drop form are taken on a run only where B6's gain ceiling is
+#: below this multiple of the window's top: B24 is a few to about 20 % below B6 (the
+#: width of the current's bracket and the output conductance), so far above the
+#: window it rarely changes the gain term, and there it costs more than it prunes
+#: (E96 drawer, minimal ce request).  Any value keeps the search complete.
+SWING_SCREEN = 1.3
 
 
 class EmitterSpans:
@@ -59,19 +75,44 @@ class EmitterSpans:
         if self.win is not None:
             per_z = self._ce_per_z(P, ic_lo, ic_hi, re_lo, re_hi)      # G ≤ per_z·Z'
             with np.errstate(invalid="ignore"):
-                g_hi = per_z * z_max
-            short = self._gain_shortfall(np.nan_to_num(g_hi, nan=0.0))
-            # the rest only where this cheap part leaves the node under ``upper``
+                short = self._gain_shortfall(np.nan_to_num(per_z * z_max, nan=0.0))
+            # the rest only where each cheaper part leaves the node under ``upper``
             out = np.full(short.shape, np.inf)
             li = np.flatnonzero(lb + short < upper)
+            cols = [P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max, per_z, short, start]
+
+            def live(keep):
+                return [np.asarray(x)[keep] for x in cols]
+
+            cols = live(li)
+            # B24 (and B15 in its drop form) only where B6's ceiling is below
+            # SWING_SCREEN times the window's top
+            near = np.flatnonzero(cols[8] * cols[7] < SWING_SCREEN * self.win[1])
+            if near.size:
+                # B24: G ≤ the gain at the largest I_C·Z', y_max‖(I_C,hi·R_L) (y_max the
+                # largest collector drop)
+                P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo = (x[near] for x in cols[:7])
+                y_top = self._drop_swing_max(ic_hi, np.maximum(
+                    self.V - ve_lo - self.model.vce_sat, 0.0))
+                cols[9][near] = np.maximum(cols[9][near], self._gain_shortfall(
+                    self._ce_gain_at(P, ic_lo, re_lo, re_hi, y_top)))
+                keep = cols[5] + cols[9] < upper
+                li, cols = li[keep], live(keep)
             if li.size == 0:
                 return out
-            P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max, per_z, short, start = (
-                np.asarray(x)[li] for x in (P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max,
-                                            per_z, short, start))
+            P, ic_lo, ic_hi, re_lo, re_hi, lb, ve_lo, z_max, per_z, short, start = cols
             # B15: the collector drop that gain needs, against the headroom
             with np.errstate(divide="ignore", invalid="ignore"):
                 short = np.maximum(short, self._gain_headroom(1.0 / per_z, ic_lo, ve_lo))
+                # and B15 with B24's need, I_C·Z' ≥ G/per_y: y‖(I_C,hi·R_L) ≥ G/per_y
+                # is B15's relation for the current I_C,hi and the load per gain
+                # 1/(per_y·I_C,hi)
+                s24 = np.flatnonzero((lb + short < upper)
+                                     & (per_z * z_max < SWING_SCREEN * self.win[1]))
+                if s24.size:
+                    per_y = self._ce_per_drop(P[s24], ic_lo[s24], re_lo[s24], re_hi[s24])
+                    short[s24] = np.maximum(short[s24], self._gain_headroom(
+                        1.0 / (per_y * ic_hi[s24]), ic_hi[s24], ve_lo[s24]))
             # a split whose RE keeps the gain below what the window (or, with a score
             # to beat, the gain term) allows cannot be the design: the feedback, and
             # so the distortion bound, is that of the largest RE reaching it
@@ -87,6 +128,21 @@ class EmitterSpans:
                 short = np.where(np.isnan(re_hi), np.inf, short)
                 re_hi = np.nan_to_num(re_hi, nan=0.0)
             out[li] = short + self._junction_hd2(P, ic_hi, re_hi, z_max)
+            # B12 with the input divider of an unbypassed RE up to re_hi (B6's k_up)
+            # in place of R_TH/(R_TH + R_S): the floor grows by the ratio of the two
+            # (only where the node is still live and the divider is well below the
+            # plain one: elsewhere the floor could rise by less than DIVIDER_GAIN)
+            fin = np.flatnonzero(lb + out[li] < upper)
+            if fin.size:
+                rth = self.rth[P[fin]]
+                k_up = ce_input_divider_max(ic_lo=ic_lo[fin], r_th=rth, re_hi=re_hi[fin],
+                                            source_ohm=r.source_ohm, model=self.model,
+                                            q_hi=self.q_hi)
+                worth = k_up * DIVIDER_GAIN < rth / (rth + float(r.source_ohm or 0.0))
+                fin, k_up = fin[worth], k_up[worth]
+            if fin.size:
+                out[li[fin]] = np.maximum(out[li[fin]], self._floor(
+                    P[fin], ic_lo[fin], ic_hi[fin], ve_lo[fin], k_in=k_up))
             return out
         return short + self._junction_hd2(P, ic_hi, re_hi, z_max)
 
@@ -105,6 +161,40 @@ class EmitterSpans:
         with np.errstate(invalid="ignore", over="ignore"):
             f = 1.0 + w * rsrc * (model.tf * gm + model.cjc * (1.0 + gm * z)) + w * z * model.cjc
         return np.nan_to_num(f, nan=np.inf, posinf=np.inf)
+
+    def _ce_per_drop(self, P, ic_lo, re_lo, re_hi):
+        """Largest ce gain per volt of I_C·Z', with B15's margin
+        (:func:`optimiser.prune.ce_gain_per_drop`, B24)."""
+        r = self.request
+        return ce_gain_per_drop(ic_lo=ic_lo, r_th=self.rth[P], re_lo=re_lo, re_hi=re_hi,
+                                source_ohm=r.source_ohm, model=self.model, q_hi=self.q_hi,
+                                mid_hz=r.mid_hz) * B15_MARGIN
+
+    def _ce_gain_at(self, P, ic_lo, re_lo, re_hi, swing):
+        """Largest ce gain with I_C·Z' ≤ ``swing``, with B15's margin
+        (:func:`optimiser.prune.ce_gain_at_swing`, B24)."""
+        r = self.request
+        return ce_gain_at_swing(swing=swing, ic_lo=ic_lo, r_th=self.rth[P], re_lo=re_lo,
+                                re_hi=re_hi, source_ohm=r.source_ohm, model=self.model,
+                                q_hi=self.q_hi, mid_hz=r.mid_hz, supply_v=self.V) * B15_MARGIN
+
+    def _ce_swing_for(self, P, ic_lo, re, gain):
+        """Least I_C·Z' a ce stage of unbypassed RE ``re`` needs for ``gain``, with
+        B15's margin (:func:`optimiser.prune.ce_swing_needed`, B24)."""
+        r = self.request
+        return ce_swing_needed(gain=gain / B15_MARGIN, ic_lo=ic_lo, r_th=self.rth[P], re_lo=re,
+                               re_hi=re, source_ohm=r.source_ohm, model=self.model,
+                               q_hi=self.q_hi, mid_hz=r.mid_hz, supply_v=self.V)
+
+    def _drop_swing_max(self, ic_hi, y):
+        """Largest I_C·Z' = y‖(I_C·R_L) for a collector drop up to ``y`` and I_C up to
+        ``ic_hi`` (y without a load)."""
+        rl = self.request.load_ohm
+        if not rl:
+            return y
+        a = ic_hi * rl
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.nan_to_num(y * a / (y + a), nan=0.0)
 
     def _ce_per_z(self, P, ic_lo, ic_hi, re_lo, re_hi):
         """Largest ce gain per ohm of collector load, with B15's margin
@@ -324,10 +414,9 @@ class EmitterSpans:
             need[cand] = np.maximum(op.pq, cop.pq.max(axis=1)) > self.model.pd
         return need
 
-    def _floor(self, P, ic_lo, ic_hi, ve_lo, rc=None):
+    def _floor(self, P, ic_lo, ic_hi, ve_lo, rc=None, k_in=None):
         r = self.request
-        k_in = None
-        if self.law == DEGENERATED:     # R_in ≤ R_TH: the input divider is at most this
+        if k_in is None and self.law == DEGENERATED:     # R_in ≤ R_TH: the divider is at most this
             rth = self.rth[P]
             k_in = rth / (rth + float(r.source_ohm or 0.0))
         return junction_floor(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ve_lo, supply_v=self.V,
