@@ -6,18 +6,15 @@ meets and one no cascode can."""
 from __future__ import annotations
 
 import math
-import tempfile
-from importlib import resources
-from pathlib import Path
 
 import numpy as np
 import pytest
 
-from inventory.store import open_store
 from optimiser.request import parse_request
 from optimiser.search.chain_cascode import VCE_MIN_V, VE_MIN_V, dividers
 from optimiser.search.chains import check_chain_request, search_chains
 from optimiser.stages import pair_form
+from tests.demo_drawer import demo_snapshot
 
 from .chain_enumeration import assert_fits_stock, enumerate_chains
 
@@ -30,10 +27,7 @@ USER = {"topology": "cascode", "supply_v": 12, "load_ohm": "10k", "source_ohm": 
 
 @pytest.fixture(scope="module")
 def demo():
-    store = open_store(str(Path(tempfile.mkdtemp()) / "demo.sqlite"))
-    with resources.as_file(resources.files("drawerfit") / "data" / "demo_stock.csv") as p:
-        store.import_csv(p)
-    return store.snapshot()
+    return demo_snapshot()
 
 
 @pytest.fixture(scope="module")

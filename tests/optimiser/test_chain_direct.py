@@ -8,19 +8,16 @@ from __future__ import annotations
 
 import math
 import os
-import tempfile
-from importlib import resources
-from pathlib import Path
 
 import numpy as np
 import pytest
 
 from inventory.parts import Resistor, StockSnapshot
-from inventory.store import open_store
 from optimiser.request import parse_request
 from optimiser.search.chain_direct import followers, output_capacitors
 from optimiser.search.chains import check_chain_request, search_chains
 from optimiser.stages import pair_form
+from tests.demo_drawer import demo_snapshot
 
 from .chain_enumeration import assert_fits_stock, enumerate_chains
 from .test_chain_search import CAP, R_VALUES, T, _drawer, _request
@@ -31,10 +28,7 @@ USER = {"topology": ["ce", "cc"], "coupling": "direct", "supply_v": 12, "load_oh
 
 @pytest.fixture(scope="module")
 def demo():
-    store = open_store(str(Path(tempfile.mkdtemp()) / "demo.sqlite"))
-    with resources.as_file(resources.files("drawerfit") / "data" / "demo_stock.csv") as p:
-        store.import_csv(p)
-    return store.snapshot()
+    return demo_snapshot()
 
 
 @pytest.fixture(scope="module")

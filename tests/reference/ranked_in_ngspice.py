@@ -4,25 +4,14 @@ and cascode search checks."""
 
 from __future__ import annotations
 
-import tempfile
 from collections import Counter
-from importlib import resources
 from pathlib import Path
 
-from inventory.store import open_store
 from optimiser.device import device_from_transistor
 
 from .pair_spice import op_ac_deck, parse_op_ac, read_sweep, zout_deck
 from .spice import _prints, run_ngspice
 from .test_ngspice_pairs import _sweeps
-
-
-def demo_snapshot():
-    """The demo drawer as shipped, in a throwaway store."""
-    store = open_store(str(Path(tempfile.mkdtemp()) / "demo.sqlite"))
-    with resources.as_file(resources.files("drawerfit") / "data" / "demo_stock.csv") as p:
-        store.import_csv(p)
-    return store.snapshot()
 
 
 def simulate_ranked(result, snap, form: str, wd: Path):

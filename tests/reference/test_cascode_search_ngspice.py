@@ -20,9 +20,10 @@ import pytest
 
 from optimiser.request import parse_request
 from optimiser.search.chains import search_chains
+from tests.demo_drawer import demo_snapshot
 from tests.optimiser.test_chain_cascode import USER
 
-from .ranked_in_ngspice import demo_snapshot, rel, simulate_ranked
+from .ranked_in_ngspice import rel, simulate_ranked
 from .spice import edge_from_sweep, require_ngspice, thd_from_curve
 
 pytestmark = [pytest.mark.reference]

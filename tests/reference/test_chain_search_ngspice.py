@@ -22,8 +22,9 @@ import drawerfit.cli  # noqa: F401  (the commands load in their order)
 from drawerfit.commands.design import DEFAULT_TIME_LIMIT_S
 from optimiser.request import parse_request
 from optimiser.search.chains import search_chains
+from tests.demo_drawer import demo_snapshot
 
-from .ranked_in_ngspice import demo_snapshot, rel, simulate_ranked
+from .ranked_in_ngspice import rel, simulate_ranked
 from .spice import edge_from_sweep, require_ngspice, thd_from_curve
 
 pytestmark = [pytest.mark.reference]
