@@ -16,6 +16,7 @@ from drawerfit.render.chains import show_chain_result
 from inventory.store import open_store
 from optimiser.request import load_request
 from optimiser.search.chains import search_chains
+from tests.drawerfit.test_cli_design_chain import run
 from tests.optimiser.test_chain_cascode import USER
 
 REQUEST = "".join(f"{k} = {json.dumps(v)}\n" for k, v in USER.items())
@@ -28,13 +29,6 @@ def store(tmp_path_factory):
         r = CliRunner().invoke(cli, ["--db", str(db), "stock", "import", str(p)])
     assert r.exit_code == 0, r.output
     return db
-
-
-def run(store, tmp_path, text, *args):
-    req = tmp_path / "req.toml"
-    req.write_text(text)
-    return CliRunner().invoke(cli, ["--db", str(store), "design", str(req), *args],
-                              terminal_width=80)
 
 
 def test_json_sheet_and_spice_of_the_chosen_cascode(store, tmp_path):
