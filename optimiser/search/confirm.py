@@ -191,6 +191,8 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
             if rnd == 0:
                 first[a] = ev.take(np.array([j]))
                 fk = set(ev.failed_keys(j))
+                if "thd_pct" in fk:         # (what starts the THD check of the skeletons)
+                    stats["pruned"]["thd_confirm"] = stats["pruned"].get("thd_confirm", 0) + 1
                 if fk - UP_KEYS - {"zin_ohm"}:
                     _pool_design(request, opts, sk, li[a], rows[a], allocs[a], vec[a], st_all[a],
                                  first[a], croles, t_empty, pool)

@@ -210,7 +210,8 @@ def _run(request: Request, snapshot: StockSnapshot, stats: dict, name: str, cloc
     if budget is None:
         return [], False
     s: dict = {"pruned": {}}
-    found, pool = search_designs(request, snapshot, RELAX_TOP, s, budget_s=budget)
+    found, pool = search_designs(request, snapshot, RELAX_TOP, s, budget_s=budget,
+                                 keep_rejects=True)
     rejected += pool.designs()
     stats.setdefault("relax_searches", {})[name] = len(found)
     return found, not s.get("stopped_at_budget", False)

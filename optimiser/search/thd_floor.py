@@ -16,10 +16,18 @@ import numpy as np
 from optimiser import distortion
 from optimiser.device import thermal_voltage
 from optimiser.stages import module
-from optimiser.stages.base import base_held
+from optimiser.stages.base import DEGENERATED, base_held
 from optimiser.thd_bounds import early_compression, emitter_driven_thd_floor, least_vce
 
-__all__ = ["applies", "floor_proven", "floor_proven_range", "thd_keep"]
+__all__ = ["applies", "floor_proven", "floor_proven_range", "thd_keep", "SCREEN_AFTER",
+           "screens", "screen_active", "engine_keep"]
+
+#: THD misses the confirmation must have met (skeletons failing the THD target at
+#: their first full evaluation, ``stats["pruned"]["thd_confirm"]``) before every later
+#: skeleton of a ce search is checked with the engine's THD ahead of its quick
+#: evaluation: where the THD ceiling is not what stops the skeletons, the check would
+#: only add its cost.  Either way it is exact (the engine's own verdict).
+SCREEN_AFTER = 10
 
 
 def applies(request) -> bool:
@@ -66,20 +74,44 @@ def floor_proven_range(request, rc, re_total, ic_lo, ic_hi, model, beta) -> np.n
     return floor > request.thd_max_pct
 
 
+def screens(request) -> bool:
+    """A THD ceiling is set on a stage of the degenerated gain law (ce): the skeletons
+    may be checked with the engine's THD before their quick evaluation
+    (:func:`engine_keep`, once :func:`screen_active`)."""
+    return (request.thd_max_pct is not None
+            and module(request.topology).SEARCH.gain_law == DEGENERATED)
+
+
+def screen_active(request, stats: dict) -> bool:
+    """Whether the engine's THD check of the skeletons is in effect (:func:`screens`
+    and :data:`SCREEN_AFTER` THD misses met by the confirmation)."""
+    return screens(request) and stats["pruned"].get("thd_confirm", 0) >= SCREEN_AFTER
+
+
+def engine_keep(request, batch, model, op, stats: dict) -> np.ndarray:
+    """True for the stages of ``batch`` (nominal operating point ``op``) whose THD at
+    input_vpk may meet ``thd_max_pct``: the engine's THD is at most the ceiling and the
+    period stays forward-active, as :func:`optimiser.evaluate.thd_rule` judges (the
+    quasi-static THD does not depend on the capacitors' values, so it is that of every
+    design built on the skeleton); the others are counted in
+    ``stats["pruned"]["thd_engine"]``."""
+    thd, active = distortion.thd_at_input(request, batch, model, op)
+    keep = (thd <= request.thd_max_pct) & active
+    pr = stats["pruned"]
+    pr["thd_engine"] = pr.get("thd_engine", 0) + int((~keep).sum())
+    return keep
+
+
 def thd_keep(request, sk, batch, model, op, stats: dict) -> np.ndarray:
     """True for the skeletons of ``sk`` (its ``batch`` and operating point ``op``)
     whose THD may meet ``thd_max_pct``: those the floor proves above it are dropped
     (``stats["pruned"]["thd_floor"]``), and of the rest those whose engine THD is
     above it or whose period leaves the forward-active region, as the THD target
     of :func:`optimiser.evaluate.thd_rule` judges (``stats["pruned"]["thd_engine"]``)."""
-    lim = request.thd_max_pct
     keep = ~floor_proven(request, sk.RC, op, model)
     pr = stats["pruned"]
     pr["thd_floor"] = pr.get("thd_floor", 0) + int((~keep).sum())
     rest = np.flatnonzero(keep)
     if rest.size:
-        thd, active = distortion.thd_at_input(request, batch.take(rest), model, op.take(rest))
-        over = ~(thd <= lim) | ~active
-        keep[rest[over]] = False
-        pr["thd_engine"] = pr.get("thd_engine", 0) + int(over.sum())
+        keep[rest] = engine_keep(request, batch.take(rest), model, op.take(rest), stats)
     return keep

@@ -42,7 +42,7 @@ from optimiser.search.seeding import _seed_designs
 from optimiser.search.skeletons import FORMS, Skeletons, _take_all
 from optimiser.search.stock import _ratings_best
 from optimiser.search.thd_floor import applies as thd_floor_applies
-from optimiser.search.thd_floor import thd_keep
+from optimiser.search.thd_floor import engine_keep, screen_active, screens, thd_keep
 from optimiser.search.workers import split_branch_and_bound, worker_count
 
 #: Skeletons per heap entry of the "cands" level (one operating-point and corner
@@ -77,9 +77,13 @@ def usable_transistors(request: Request, snapshot: StockSnapshot) -> list[Transi
 def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: dict,
                    progress=None, budget_s: float | None = None, given=None, workers=None,
                    finish: bool = True, pricing: Pricing | None = None,
-                   until_one: bool = False):
+                   until_one: bool = False, keep_rejects: bool = False):
     """Steps 2–5 as a best-first branch and bound; (designs, :class:`MissPool` of the
     stock designs it evaluated and rejected, over all its rounds and processes).
+
+    ``keep_rejects``: the caller uses that pool whatever the search finds (else only
+    when it finds nothing, and once a design is found the THD cuts of a ce search
+    may drop skeletons before they are evaluated and pooled: :func:`_thd_cut`).
 
     With ``until_one`` the budget stops the search only once it holds a design or a
     rejected stock design (the nearest-miss searches: an answer that nothing meets
@@ -120,7 +124,7 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
         def run(part, shared, st, cap=cap, left=left):
             return _branch_and_bound(request, opts, jobs, top, st,
                                      progress if part[0] == 0 else None, left, cap, seeds,
-                                     part, shared, pricing, pool, until_one)
+                                     part, shared, pricing, pool, until_one, keep_rejects)
 
         if workers > 1:
             found = _distinct(split_branch_and_bound(run, workers, stats, pool))
@@ -252,9 +256,38 @@ class Entry(NamedTuple):
     payload: PairBlock | NodeBlock | BiasNodes | Skeletons | SkeletonPick
 
 
+def _thd_cut(request, pricing, until_one: bool, keep_rejects: bool) -> bool:
+    """Whether the THD cuts of a ce search (:func:`optimiser.search.thd_floor.screens`)
+    may be taken once a design is found: the designs they drop fail the THD target, so
+    the ranking is the same, but they are then not offered to the pool of rejected
+    designs — which the answer reads only when nothing meets the request, unless the
+    caller keeps it (``keep_rejects``, ``until_one``), a price ranks the designs
+    (``pricing``: its cutoff may drop every design found) or the yield may drop them
+    all (``min_yield_pct``)."""
+    return (screens(request) and not until_one and not keep_rejects and pricing is None
+            and request.min_yield_pct is None)
+
+
+def _thd_backlog(request, picks, stats) -> np.ndarray:
+    """Mask of the queued skeletons ``picks`` ((Skeletons, index) pairs) to keep by the
+    engine's THD (:func:`optimiser.search.thd_floor.engine_keep`), one call per set."""
+    keep = np.ones(len(picks), dtype=bool)
+    by: dict[int, list[int]] = {}
+    for k, (sk, _) in enumerate(picks):
+        by.setdefault(id(sk), []).append(k)
+    for ks in by.values():
+        sk = picks[ks[0]][0]
+        part = sk.take(np.array([picks[k][1] for k in ks]))
+        b = part.batch()
+        model = device_from_transistor(part.transistor)
+        op = operating_point(b.topology, request.supply_v, b, model)
+        keep[ks] = engine_keep(request, b, model, op, stats)
+    return keep
+
+
 def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, seeds=(),
                       part=(0, 1), shared=None, pricing=None, pool: MissPool | None = None,
-                      until_one: bool = False):
+                      until_one: bool = False, keep_rejects: bool = False):
     """One run of the branch and bound, dropping nodes whose bound reaches ``cap``.
 
     ``seeds`` are designs of this drawer already known (they count towards the
@@ -300,6 +333,8 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
     steps = 0
     backlog_screened = False
     thd_direct = thd_floor_applies(request)
+    thd_cut = _thd_cut(request, pricing, until_one, keep_rejects)
+    thd_backlog = False
     t_start = time.perf_counter()
     while any(heaps.values()):
         if budget_s is not None and time.perf_counter() - t_start > budget_s \
@@ -388,6 +423,8 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             if thd_direct and live.size:
                 live = live[thd_keep(request, sk.take(live), b.take(live), model,
                                      op.take(live), stats)]
+            elif thd_cut and found and live.size and screen_active(request, stats):
+                live = live[engine_keep(request, b.take(live), model, op.take(live), stats)]
             for i in live:
                 push(Entry(float(lb15[i]), next(seq), "skel",
                            SkeletonPick(sk, int(i), {"drift_pct": float(drift[i]),
@@ -429,6 +466,13 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                         known.add(_design_key(d))
                         found.append(d)
             found.sort(key=_rank_key)
+            if thd_cut and found and not thd_backlog and screen_active(request, stats):
+                # the THD check took effect: the skeletons queued before it, at once
+                thd_backlog = True
+                keep = _thd_backlog(request, [(e.payload.skeletons, e.payload.index)
+                                              for e in heaps["skel"]], stats)
+                heaps["skel"] = [e for e, k in zip(heaps["skel"], keep, strict=True) if k]
+                heapq.heapify(heaps["skel"])
             if not backlog_screened and prescreen_active(request, stats):
                 # the f_low screen took effect: the skeletons queued before it, at once
                 backlog_screened = True
