@@ -8,6 +8,7 @@ import math
 import numpy as np
 
 from optimiser.ac import small_signal
+from optimiser.ce_thd_bounds import ce_thd_floor
 from optimiser.dc import solve_bias
 from optimiser.device import thermal_voltage
 from optimiser.f_high_bounds import F_HIGH_VCE_MIN, collector_conductance_max, f_high_ceiling
@@ -25,9 +26,10 @@ from optimiser.search.bounds import (
     stock_term,
 )
 from optimiser.search.levels import _expand
-from optimiser.search.skeletons import Skeletons
+from optimiser.search.skeletons import SHORT_F, Skeletons
 from optimiser.search.thd_floor import applies as thd_floor_applies
-from optimiser.search.thd_floor import floor_proven, floor_proven_range
+from optimiser.search.thd_floor import floor_proven, floor_proven_range, leaves_active_at_peaks
+from optimiser.stage import StageBatch
 from optimiser.stages.base import DEGENERATED, EMITTER_DRIVEN
 
 
@@ -41,6 +43,19 @@ class CollectorLevel:
         return (r.f_high_min_hz is not None and self.win is not None
                 and self.law in (DEGENERATED, EMITTER_DRIVEN) and m.has_ft and m.has_cob
                 and m.cjc > 0)
+
+    def _ce_thd_floor(self, P, re, rc, op) -> np.ndarray:
+        """B25 (:func:`optimiser.ce_thd_bounds.ce_thd_floor`) of ce collector candidates
+        (pairs ``P``, unbypassed RE ``re`` — the AC emitter resistance of every ce
+        form, RE_BYP being bypassed where present — collector resistors ``rc``) at
+        their exact nominal operating point ``op``."""
+        request, model = self.request, self.model
+        rs = float(request.source_ohm or 0.0)
+        rth = self.rth[P]
+        rl = rc if not request.load_ohm else rc * request.load_ohm / (rc + request.load_ohm)
+        return ce_thd_floor(request.input_vpk, op.vt, op.ic, op.ib, op.vce, op.vce - op.vbe,
+                            rth / (rth + rs), rth * rs / (rth + rs), re, rl, model.vaf,
+                            model.vce_sat)
 
     def expand_blocks(self, P, a, b, upper: float):
         """Bias nodes (pair × each total of its block), sorted by their bound.
@@ -236,7 +251,7 @@ class CollectorLevel:
         if Pc.size == 0:
             return None
         r1c, r2c = self.R1[Pc], self.R2[Pc]
-        op = solve_bias(self.vth[Pc], self.rth[Pc], REc + BYc, RCc, V, model)
+        op = solve_bias(self.vth[Pc], self.rth[Pc], REc + BYc, RCc, V, model, re_byp=BYc)
         good = op.converged & (op.vce >= model.vce_sat) & (op.ic <= model.ic_max) \
             & (op.pq <= model.pd) & ~op.cutoff
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -289,6 +304,19 @@ class CollectorLevel:
         under = lb < upper
         self.count("score_bound", (good & ~under).sum())
         good &= under
+        if self.thd_cut_on and good.any():
+            # B25: the ce THD floor at the exact operating point
+            g = np.flatnonzero(good)
+            b = StageBatch.from_values(topo, R1=r1c[g], R2=r2c[g], RC=RCc[g], RE=REc[g],
+                                       RE_BYP=BYc[g], C_BYP=np.where(BYc[g] > 0, SHORT_F, 0.0),
+                                       C_IN=SHORT_F, C_OUT=SHORT_F)
+            out = leaves_active_at_peaks(request, b, model, op.take(g))
+            self.count("thd_peaks", out.sum())
+            good[g[out]] = False
+            g = g[~out]
+            gone = g[self._ce_thd_floor(Pc[g], REc[g], RCc[g], op.take(g)) > request.thd_max_pct]
+            self.count("thd_floor_ce", gone.size)
+            good[gone] = False
         self.stats["collector_candidates"] = self.stats.get("collector_candidates", 0) + int(Pc.size)
         if not good.any():
             return None

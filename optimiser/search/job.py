@@ -86,6 +86,9 @@ class _Job(PairLevel, FLowFloors, EmitterSpans, CollectorLevel):
         # (``SEARCH.drift_first``) first, before even the top of the current bracket
         # (:meth:`_span_dc`), else last, after the topology's own cheaper bounds
         self.drift_first = self.rules.drift_first
+        # B25 (the ce THD floor) at the collector candidates: set by the branch and
+        # bound while it may drop designs unpooled (tree._thd_cut, a design found)
+        self.thd_cut_on = False
 
     @property
     def live(self) -> bool:

@@ -20,7 +20,14 @@ from optimiser.stages.base import DEGENERATED, base_held
 from optimiser.thd_bounds import early_compression, emitter_driven_thd_floor, least_vce
 
 __all__ = ["applies", "floor_proven", "floor_proven_range", "thd_keep", "SCREEN_AFTER",
-           "screens", "screen_active", "engine_keep"]
+           "screens", "screen_active", "engine_keep", "PEAK_MARGIN_V", "leaves_active_at_peaks"]
+
+#: Margin (V, and the same share of the quiescent I_C) by which a peak of the period
+#: must miss the forward-active edge before :func:`leaves_active_at_peaks` claims it:
+#: the collector level solves the operating point with :func:`optimiser.dc.solve_bias`,
+#: the engine with :func:`optimiser.dc.operating_point` (the same equations and
+#: solver, equal to far fewer digits than this).
+PEAK_MARGIN_V = 1e-6
 
 #: THD misses the confirmation must have met (skeletons failing the THD target at
 #: their first full evaluation, ``stats["pruned"]["thd_confirm"]``) before every later
@@ -100,6 +107,22 @@ def engine_keep(request, batch, model, op, stats: dict) -> np.ndarray:
     pr = stats["pruned"]
     pr["thd_engine"] = pr.get("thd_engine", 0) + int((~keep).sum())
     return keep
+
+
+def leaves_active_at_peaks(request, batch, model, op) -> np.ndarray:
+    """True where the period of input_vpk provably leaves the forward-active region, so
+    that the THD target fails (:func:`optimiser.evaluate.thd_rule`): the engine's own
+    transfer (:func:`optimiser.distortion.transfer`) at the two peaks of the EMF, ±v̂,
+    which are samples of the engine's period (θ = 90° and 270°), fails
+    :func:`optimiser.distortion.forward_active` by more than PEAK_MARGIN_V (V_CE below
+    vce_sat, or I_C below IC_FLOOR of the quiescent current)."""
+    v = float(request.input_vpk)
+    emf = np.broadcast_to(np.array([v, -v]), (batch.n, 2))
+    _, vce, ic = distortion.transfer(request, batch, model, op, emf)
+    ic0 = np.asarray(op.ic)[:, None]
+    low_v = vce < model.vce_sat - PEAK_MARGIN_V
+    low_i = ic < (distortion.IC_FLOOR - PEAK_MARGIN_V) * ic0
+    return (low_v | low_i).any(axis=1)
 
 
 def thd_keep(request, sk, batch, model, op, stats: dict) -> np.ndarray:

@@ -395,6 +395,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
         elif kind == "nodes":
             j, P, E, ic_lo, d_lb = (payload.job, payload.pairs, payload.totals, payload.ic_bracket,
                                     payload.drift_lb)
+            jobs[j].thd_cut_on = thd_cut and bool(found)
             sk = jobs[j].expand_nodes(P, E, ic_lo, d_lb, kth)
             if sk is not None:
                 for s in range(0, sk.n, QUICK_BATCH):
