@@ -161,6 +161,7 @@ EXAMPLES = int(os.environ.get("DRAWERFIT_COMPLETE_EXAMPLES", "16"))
 def test_search_agrees_with_exhaustive_enumeration(case, seeded, screened):
     import optimiser.search.confirm as C
     import optimiser.search.seeding as S
+    import optimiser.search.thd_floor as TF
 
     req, snap = case
     stats = {"pruned": {}}
@@ -169,16 +170,17 @@ def test_search_agrees_with_exhaustive_enumeration(case, seeded, screened):
     above, values = S.SEED_ABOVE, S.SEED_VALUES
     if seeded:
         S.SEED_ABOVE, S.SEED_VALUES = 2, 2
-    # half go through the f_low screen of every skeleton from the start (it takes
-    # effect by itself only once the confirmation has dropped a few on f_low)
-    after = C.PRESCREEN_AFTER
+    # half go through the f_low screen and the THD check of every skeleton from the
+    # start (they take effect by themselves only once the confirmation has dropped a
+    # few on f_low or on the THD ceiling)
+    after, thd_after = C.PRESCREEN_AFTER, TF.SCREEN_AFTER
     if screened:
-        C.PRESCREEN_AFTER = 0
+        C.PRESCREEN_AFTER = TF.SCREEN_AFTER = 0
     try:
         designs, _ = search_designs(req, snap, 3, stats)
     finally:
         S.SEED_ABOVE, S.SEED_VALUES = above, values
-        C.PRESCREEN_AFTER = after
+        C.PRESCREEN_AFTER, TF.SCREEN_AFTER = after, thd_after
     best = exhaustive(req, snap)
     assert (best is not None) == bool(designs), (req, snap, best, designs)
     if best is None:
