@@ -112,3 +112,26 @@ def test_peaks_claim_only_what_the_engine_finds(rs, rl, vaf, vpk, supply_v):
     out = leaves_active_at_peaks(req, b, m, op_c)
     assert not np.any(out & active)
     assert out.sum() >= 0.99 * (~active).sum()
+
+
+def test_search_with_the_thd_cuts_ranks_as_without(monkeypatch):
+    """The demo drawer's ce 44 dB request from 600 Ω into 10 kΩ (the default THD
+    ceiling, 5 % at 10 mV, as a request file gets it): the search with B25 and the
+    engine's THD check of the skeletons returns the same designs as the search
+    without them, and the cuts do act."""
+    import optimiser.search.tree as tree
+    from optimiser.request import parse_request
+    from optimiser.search import search_designs
+    from tests.demo_drawer import demo_snapshot
+
+    snap = demo_snapshot()
+    req = parse_request({"topology": "ce", "supply_v": 12.0, "gain": 158.0,
+                         "load_ohm": 10e3, "source_ohm": 600.0}, file="test")
+    stats = {"pruned": {}}
+    with_cuts, _ = search_designs(req, snap, 5, stats)
+    monkeypatch.setattr(tree, "_thd_cut", lambda *a, **k: False)
+    without, _ = search_designs(req, snap, 5, {"pruned": {}})
+    assert len(with_cuts) == 5
+    assert [(d.score, d.values()) for d in with_cuts] == [(d.score, d.values()) for d in without]
+    pr = stats["pruned"]
+    assert pr.get("thd_peaks", 0) > 0 and pr.get("thd_engine", 0) > 0
