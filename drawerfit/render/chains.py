@@ -126,6 +126,14 @@ def proof_line(result: ChainResult) -> str:
             f"each ({stop}){rest}.")
 
 
+def _unlocks(console: Console, result: ChainResult) -> None:
+    """What would unlock a request nothing meets (docs/answers.md), a line each."""
+    if result.unlock:
+        console.print("What would unlock it:")
+        for u in result.unlock:
+            console.print(f"  • {escape(u)}")
+
+
 def show_chain_result(console: Console, result: ChainResult) -> None:
     """The ranked chains, or the nearest misses, then what was searched."""
     if result.request.topology == "cascode":
@@ -141,6 +149,7 @@ def show_chain_result(console: Console, result: ChainResult) -> None:
         console.print(f"No {what} can meet the request (proven):")
         for line in result.search.get("why", []):
             console.print(f"  {escape(line)}")
+        _unlocks(console, result)
         return
     if not result.designs:
         console.print(f"No {what} found meets the request.")
@@ -157,4 +166,5 @@ def show_chain_result(console: Console, result: ChainResult) -> None:
         console.print(table)
     for i, d in enumerate(result.nearest_misses[:3], 1):
         console.print(f"m{i} misses: " + escape("; ".join(d.violations[:3])))
+    _unlocks(console, result)
     console.print(f"[dim]{escape(searched_line(result))}[/dim]")

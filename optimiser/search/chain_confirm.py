@@ -22,7 +22,7 @@ from optimiser.stages import form_of
 from optimiser.stages.pair import PairBatch
 
 __all__ = ["chain_parts", "stock_use", "confirm_chains", "confirm_with_retry",
-           "largest_capacitors", "with_swing", "chain_key"]
+           "largest_capacitors", "with_swing", "chain_key", "chain_verdict", "judge_chains"]
 
 #: What each stage's coupling capacitor becomes in the chain.
 COUPLED = {0: "C_OUT", 1: "C_IN"}
@@ -265,3 +265,36 @@ def with_swing(request: Request, snapshot: StockSnapshot, designs: list[ChainDes
             d.rank = old.rank
             out[n] = d
     return [out[n] for n in range(len(designs))]
+
+
+def chain_verdict(request: Request, snapshot: StockSnapshot, design: ChainDesign) -> bool:
+    """The pair engine's verdict on ``design`` as built (its pieces' ratings) against
+    ``request``: every target and validity rule met, THD and swing included."""
+    form = form_of(request.topology, request.coupling)
+    batch, transistors, ratings = _batch(form, [(design.parts, 0)], snapshot,
+                                         tuple(design.transistors))
+    return bool(evaluate_pair(request, batch, transistors, ratings).meets[0])
+
+
+def judge_chains(request: Request, snapshot: StockSnapshot, designs) -> list[ChainDesign]:
+    """The chains ``designs`` (found for other requests) evaluated whole against
+    ``request`` with their pieces' ratings: those that miss it, each with its
+    violations, sorted as :func:`confirm_chains` sorts its misses; repeats and chains
+    the stock cannot supply for ``request.builds`` copies are dropped."""
+    form = form_of(request.topology, request.coupling)
+    by: dict = defaultdict(list)
+    seen = set()
+    for d in designs:
+        k = chain_key(d)
+        ok, emptied = stock_use(d.parts, d.transistors, snapshot, request.builds)
+        if k in seen or not ok:
+            continue
+        seen.add(k)
+        by[tuple(d.transistors)].append((d.parts, emptied))
+    out = []
+    for labels, items in by.items():
+        batch, transistors, ratings = _batch(form, items, snapshot, labels)
+        ev = evaluate_pair(request, batch, transistors, ratings, large_signal="thd")
+        terms = chain_score_terms(ev, np.array([e for _, e in items], dtype=float))
+        out += [d for d in _designs(request, form, ev, items, labels, terms) if not d.meets_spec]
+    return sorted(out, key=lambda d: (len(d.violations), d.score))

@@ -62,7 +62,7 @@ from optimiser.search.tree import search_designs
 from optimiser.stage import StageBatch
 from optimiser.stages import module as stage_module
 
-__all__ = ["explain", "Relaxer", "stage_relaxer", "relax_targets", "unlock_text",
+__all__ = ["explain", "change_json", "Relaxer", "stage_relaxer", "relax_targets", "unlock_text",
            "advice", "miss_distance", "relaxed", "stock_shortfall", "miss_order", "TARGETS",
            "MISS_BUDGET_S", "BUY_BUDGET_S", "RELAX_BUDGET_S", "EXPLAIN_BUDGET_S", "GAIN_STEPS_DB", "f_low_floor_note",
            "relaxation_order"]
@@ -288,7 +288,8 @@ def _relax_gain(request: Request, relaxer: Relaxer, stats: dict, limits, clock: 
             return found, None
         change = {"target": "gain_db", "from": request.gain_db, "to": new_db, "unit": "dB",
                   "gain_tol_db_to": new_tol, "proof": proof,
-                  "none_within_db": empty_within if empty_within > tol else None}
+                  "none_within_db": empty_within if empty_within > tol else None,
+                  "design": best}
         return found, change
     return [], None
 
@@ -310,7 +311,7 @@ def _relax_limit(request: Request, key: str, relaxer: Relaxer, stats: dict,
         return found, None
     change = {"target": key, "from": getattr(request, key), "to": new, "unit": UNITS[key],
               "proof": f"{relaxer.what} meets every other target at this limit (found by "
-                       f"{relaxer.how} without the {key} target)"}
+                       f"{relaxer.how} without the {key} target)", "design": best}
     return found, change
 
 
@@ -357,6 +358,12 @@ def relaxation_order(request: Request, stats: dict, f_low_floor: bool = False,
     if pruned.get("ic_min", 0) > 0:
         binding.add("ic_min_a")
     return sorted(keys, key=lambda k: k not in binding)
+
+
+def change_json(c: dict) -> dict:
+    """An unlock change as JSON: its figures, and the design that proves it (``design``,
+    the one the engine's verdict was taken on, in the form of the answer's designs)."""
+    return {k: (v.to_json() if k == "design" else v) for k, v in c.items()}
 
 
 def unlock_text(request: Request, c: dict) -> str:
@@ -443,7 +450,7 @@ def advice(request: Request, relaxer: Relaxer, changes: list[dict], limits, cloc
                       f"searches' time budgets; {none_found}")
     if clock.skipped:
         stats["suggestions_skipped"] = list(clock.skipped)
-        unlock.append(f"not examined within the {clock.seconds:g} s given to suggestions: "
+        unlock.append(f"not examined within the {clock.seconds:.3g} s given to suggestions: "
                       + ", ".join(clock.skipped))
     return unlock
 
