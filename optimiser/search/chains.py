@@ -122,7 +122,7 @@ def _search(request: Request, snapshot: StockSnapshot, top: int, time_limit_s, t
             ) -> ChainResult:
     """:func:`search_chains` without the unlocks."""
     if request.topology == CASCODE:
-        return _cascodes(request, snapshot, top, t0)
+        return _cascodes(request, snapshot, top, t0, time_limit_s)
     kind1, kind2 = request.topology
     stats: dict = {"complete": False, "method": "composed from single-stage searches",
                    "stage_top": STAGE_TOP}
@@ -224,7 +224,7 @@ def _search(request: Request, snapshot: StockSnapshot, top: int, time_limit_s, t
     return _ranked(request, snapshot, meeting, missing, stats, top, t0)
 
 
-def _cascodes(request, snapshot, top, t0) -> ChainResult:
+def _cascodes(request, snapshot, top, t0, time_limit_s=None) -> ChainResult:
     """The cascodes of :mod:`.chain_cascode`, confirmed and ranked as the chains.  The
     lower transistor's limits as a ce stage with an open load bound the cascode's
     (its gain is g_m·(RC‖R_L) with I_C·RC below the supply, its input a divider
@@ -238,8 +238,11 @@ def _cascodes(request, snapshot, top, t0) -> ChainResult:
                           "so no cascode can)" for x in limits],
                      seconds=time.perf_counter() - t0)
         return ChainResult(request, [], [], stats)
-    cands = search_cascode(request, snapshot, stats)
-    meeting, missing = confirm_with_retry(request, snapshot, cands, stats, top)
+    # the time limit: no transistor pair begun, no group screened or chunk confirmed
+    # past it (what was left is in stats: pairs_left, chains_left_by_time)
+    deadline = None if time_limit_s is None else t0 + time_limit_s
+    cands = search_cascode(request, snapshot, stats, deadline)
+    meeting, missing = confirm_with_retry(request, snapshot, cands, stats, top, deadline)
     stats["proven"] = False
     return _ranked(request, snapshot, meeting, missing, stats, top, t0)
 
