@@ -11,7 +11,7 @@ from drawerfit.render.designs import _num, _si
 from optimiser.search.chain_answer import ChainDesign, ChainResult
 from optimiser.stages import form_of
 
-__all__ = ["show_chain_result", "stage_cell", "searched_line", "proof_line"]
+__all__ = ["show_chain_result", "stage_cell", "searched_line", "proof_line", "stopped_line"]
 
 
 def _owner(d: ChainDesign) -> dict[str, int]:
@@ -79,7 +79,7 @@ def searched_line(result: ChainResult) -> str:
                 f"{s.get('chains_evaluated', 0)} with THD, "
                 f"{_num(s.get('seconds'), '{:.1f}')} s). {claim}: roles of several pieces, "
                 "other capacitors and candidates beyond the estimates' best are not "
-                "examined.")
+                "examined." + stopped_line(result))
     if result.request.coupling == "direct":
         claim = "Not proven best" if result.designs else "Not proven that none exists"
         caps = ", ".join(_si(x, "F") for x in s.get("output_capacitors", [])) or "none"
@@ -97,6 +97,18 @@ def searched_line(result: ChainResult) -> str:
             f"chains screened, {s.get('chains_evaluated', 0)} with THD, "
             f"{_num(s.get('seconds'), '{:.1f}')} s). ")
     return line + proof_line(result)
+
+
+def stopped_line(result: ChainResult) -> str:
+    """What the time limit left open (empty when it stopped nothing)."""
+    s = result.search
+    if not s.get("stopped_at_limit"):
+        return ""
+    left = s.get("pairs_left", [])
+    pairs = (f"{s.get('pairs_searched', 0)} of {s.get('transistor_pairs', 0)} transistor "
+             f"pairs searched" + (f" (not begun: {', '.join(left)})" if left else ""))
+    return (f" Stopped at the time limit: {pairs}, {s.get('chains_left_by_time', 0)} "
+            "candidates not judged; a longer --time-limit (0: none) searches the rest.")
 
 
 def proof_line(result: ChainResult) -> str:
@@ -126,6 +138,14 @@ def proof_line(result: ChainResult) -> str:
             f"each ({stop}){rest}.")
 
 
+def _unlocks(console: Console, result: ChainResult) -> None:
+    """What would unlock a request nothing meets (docs/answers.md), a line each."""
+    if result.unlock:
+        console.print("What would unlock it:")
+        for u in result.unlock:
+            console.print(f"  • {escape(u)}")
+
+
 def show_chain_result(console: Console, result: ChainResult) -> None:
     """The ranked chains, or the nearest misses, then what was searched."""
     if result.request.topology == "cascode":
@@ -141,6 +161,7 @@ def show_chain_result(console: Console, result: ChainResult) -> None:
         console.print(f"No {what} can meet the request (proven):")
         for line in result.search.get("why", []):
             console.print(f"  {escape(line)}")
+        _unlocks(console, result)
         return
     if not result.designs:
         console.print(f"No {what} found meets the request.")
@@ -157,4 +178,5 @@ def show_chain_result(console: Console, result: ChainResult) -> None:
         console.print(table)
     for i, d in enumerate(result.nearest_misses[:3], 1):
         console.print(f"m{i} misses: " + escape("; ".join(d.violations[:3])))
+    _unlocks(console, result)
     console.print(f"[dim]{escape(searched_line(result))}[/dim]")

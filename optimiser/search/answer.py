@@ -11,7 +11,7 @@ from inventory.parts import StockSnapshot
 from optimiser.design import Design
 from optimiser.request import Request
 from optimiser.search.limits import check_request, physical_limits
-from optimiser.search.suggestions import explain
+from optimiser.search.suggestions import change_json, explain
 from optimiser.search.tree import search_designs
 from optimiser.yield_ import apply_yield, monte_carlo
 
@@ -39,7 +39,7 @@ class SearchResult:
             "nearest_misses": [d.to_json() for d in self.nearest_misses],
             "unlock": list(self.unlock),
             "limits": [dict(x) for x in self.limits],
-            "unlock_changes": [dict(x) for x in self.unlock_changes],
+            "unlock_changes": [change_json(x) for x in self.unlock_changes],
             "search": {
                 "complete": bool(self.stats.get("complete", True)),
                 "proven_ranks": int(self.stats.get("proven_ranks", len(self.designs))),

@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 
 from optimiser.design import RolePick, _clean
 from optimiser.request import Request
+from optimiser.search.suggestions import change_json
 
 __all__ = ["ChainDesign", "ChainResult"]
 
@@ -62,6 +63,11 @@ class ChainResult:
     designs: list[ChainDesign]
     nearest_misses: list[ChainDesign]
     search: dict
+    #: what would unlock a request nothing meets, as lines and as data (docs/answers.md)
+    unlock: list[str] = field(default_factory=list)
+    unlock_changes: list[dict] = field(default_factory=list)
+    #: targets beyond reach (:func:`optimiser.search.limits.physical_limits`)
+    limits: list[dict] = field(default_factory=list)
 
     @property
     def feasible(self) -> bool:
@@ -74,6 +80,9 @@ class ChainResult:
             "proven": bool(self.search.get("proven", False)),
             "designs": [d.to_json() for d in self.designs],
             "nearest_misses": [d.to_json() for d in self.nearest_misses],
+            "unlock": list(self.unlock),
+            "unlock_changes": [change_json(x) for x in self.unlock_changes],
+            "limits": [dict(x) for x in self.limits],
             "search": {k: _clean(v) if isinstance(v, float) else v
                        for k, v in self.search.items()},
         }

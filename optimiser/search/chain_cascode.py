@@ -43,6 +43,7 @@ beyond the estimate's best are not examined); ``search`` says what was searched.
 from __future__ import annotations
 
 import math
+import time
 from collections import defaultdict
 from itertools import product
 
@@ -340,10 +341,12 @@ def allocate(values: dict[str, float], kinds: dict[str, str], rows: dict[str, di
     return out
 
 
-def search_cascode(request: Request, snapshot: StockSnapshot, stats: dict) -> list:
+def search_cascode(request: Request, snapshot: StockSnapshot, stats: dict,
+                   deadline: float | None = None) -> list:
     """The candidate cascodes ``[(parts, (label1, label2))]`` for
     :func:`.chain_confirm.confirm_chains` (module docstring); ``stats`` gains what was
-    searched."""
+    searched.  ``deadline`` (``time.perf_counter()`` seconds): no transistor pair is
+    begun past it; those left are named in ``stats["pairs_left"]``."""
     V = float(request.supply_v)
     b = request.builds
     rrows = _rows_by_value(snapshot.resistors, b)
@@ -359,9 +362,13 @@ def search_cascode(request: Request, snapshot: StockSnapshot, stats: dict) -> li
     n_div, n_est, unfit = 0, 0, 0
     divs: dict = {}
     lowers: dict = {}
+    left: list = []
     for t1, t2 in pairs:
         if len(values) == 0:
             break
+        if deadline is not None and time.perf_counter() > deadline:
+            left.append(f"{t1.label}/{t2.label}")
+            continue
         vbe = float(t1.vbe)
         if vbe not in divs:
             divs[vbe] = dividers(V, values, vbe)
@@ -407,7 +414,10 @@ def search_cascode(request: Request, snapshot: StockSnapshot, stats: dict) -> li
                    "the closed-form estimates, the gain, Z_in and both V_CE searched")
     if why:
         stats["why"] = why
-    stats.update(transistor_pairs=len(pairs), dividers=n_div,
+    if left:
+        stats.update(stopped_at_limit=True, pairs_left=left)
+    stats.update(transistor_pairs=len(pairs), pairs_searched=len(pairs) - len(left),
+                 dividers=n_div,
                  estimated=n_est, candidates=len(out), stock_unfit=unfit,
                  resistor_values=len(values),
                  candidates_per_pair=CANDIDATES)

@@ -4,6 +4,7 @@ together against stock (docs/search.md, "Chains")."""
 
 from __future__ import annotations
 
+import time
 from collections import Counter, defaultdict
 from dataclasses import replace
 
@@ -22,7 +23,7 @@ from optimiser.stages import form_of
 from optimiser.stages.pair import PairBatch
 
 __all__ = ["chain_parts", "stock_use", "confirm_chains", "confirm_with_retry",
-           "largest_capacitors", "with_swing", "chain_key"]
+           "largest_capacitors", "with_swing", "chain_key", "chain_verdict", "judge_chains"]
 
 #: What each stage's coupling capacitor becomes in the chain.
 COUPLED = {0: "C_OUT", 1: "C_IN"}
@@ -137,7 +138,7 @@ def _designs(request, form, ev, items, labels, terms):
 
 
 def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats: dict,
-                   top: int):
+                   top: int, deadline: float | None = None):
     """The best ``top`` of candidate chains ``[(parts, (label1, label2))]`` by the pair
     engine, exactly ranked within the candidates.
 
@@ -153,6 +154,10 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
     missing (without THD) by how much they miss.  When none meets, every missing
     chain is evaluated with its band edges; otherwise the ones missing at DC or midband
     are left out of ``missing`` (no chain that misses only f_low is among them).
+
+    ``deadline`` (``time.perf_counter()`` seconds): no group of one transistor pair is
+    screened, and no chunk evaluated, past it; ``stats["stopped_at_limit"]`` is then set
+    and ``stats["chains_left_by_time"]`` counts the candidates left unjudged.
     """
     form = form_of(request.topology, request.coupling)
     groups: dict = defaultdict(list)
@@ -165,7 +170,15 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
         groups[labels].append((parts, emptied))
     stats["stock_refused"] = stats.get("stock_refused", 0) + refused
     missing, queue, unedged = [], [], []
+
+    def late() -> bool:
+        return deadline is not None and time.perf_counter() > deadline
+
+    unjudged = 0
     for labels, items in groups.items():
+        if late():
+            unjudged += len(items)
+            continue
         # DC and midband first: a chain missing a target there misses it whatever its
         # band edges (they only add targets), so only the others get them now
         batch, transistors, ratings = _batch(form, items, snapshot, labels)
@@ -192,6 +205,10 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
     while pos < len(queue):
         if len(meeting) >= top and meeting[top - 1].score <= queue[pos][0]:
             break
+        if late():
+            unjudged += len(queue) - pos
+            queue = queue[:pos]
+            break
         chunk, pos = queue[pos:pos + CHUNK], pos + CHUNK
         by: dict = defaultdict(list)
         for _, labels, item in chunk:
@@ -206,7 +223,10 @@ def confirm_chains(request: Request, snapshot: StockSnapshot, candidates, stats:
         meeting.sort(key=lambda d: (d.score, sorted(d.values().items())))
     stats["chains_left_by_bound"] = (stats.get("chains_left_by_bound", 0)
                                      + max(0, len(queue) - pos))
-    if not meeting:
+    if unjudged:
+        stats["stopped_at_limit"] = True
+        stats["chains_left_by_time"] = stats.get("chains_left_by_time", 0) + unjudged
+    if not meeting and not late():
         # the nearest misses are shown: the ones missing at DC or midband evaluated
         # whole too, so that every miss lists all its violations
         missing += _missed_whole(request, form, snapshot, unedged)
@@ -227,15 +247,16 @@ def _missed_whole(request, form, snapshot, unedged):
 
 
 def confirm_with_retry(request: Request, snapshot: StockSnapshot, candidates, stats: dict,
-                       top: int):
+                       top: int, deadline: float | None = None):
     """:func:`confirm_chains`, then the chains missing only f_low once more with the
-    largest capacitors in stock (``stats["largest_capacitor_retries"]``)."""
-    meeting, missing = confirm_chains(request, snapshot, candidates, stats, top)
+    largest capacitors in stock (``stats["largest_capacitor_retries"]``); ``deadline``
+    as :func:`confirm_chains`'s."""
+    meeting, missing = confirm_chains(request, snapshot, candidates, stats, top, deadline)
     retry = [d for d in missing if d.violations and all(v.startswith("f_low_hz")
                                                          for v in d.violations)]
     if retry:
         big = [(largest_capacitors(d.parts, snapshot), d.transistors) for d in retry]
-        m2, _ = confirm_chains(request, snapshot, big, stats, top)
+        m2, _ = confirm_chains(request, snapshot, big, stats, top, deadline)
         meeting = sorted(meeting + m2, key=lambda d: d.score)
         stats["largest_capacitor_retries"] = (stats.get("largest_capacitor_retries", 0)
                                               + len(retry))
@@ -265,3 +286,36 @@ def with_swing(request: Request, snapshot: StockSnapshot, designs: list[ChainDes
             d.rank = old.rank
             out[n] = d
     return [out[n] for n in range(len(designs))]
+
+
+def chain_verdict(request: Request, snapshot: StockSnapshot, design: ChainDesign) -> bool:
+    """The pair engine's verdict on ``design`` as built (its pieces' ratings) against
+    ``request``: every target and validity rule met, THD and swing included."""
+    form = form_of(request.topology, request.coupling)
+    batch, transistors, ratings = _batch(form, [(design.parts, 0)], snapshot,
+                                         tuple(design.transistors))
+    return bool(evaluate_pair(request, batch, transistors, ratings).meets[0])
+
+
+def judge_chains(request: Request, snapshot: StockSnapshot, designs) -> list[ChainDesign]:
+    """The chains ``designs`` (found for other requests) evaluated whole against
+    ``request`` with their pieces' ratings: those that miss it, each with its
+    violations, sorted as :func:`confirm_chains` sorts its misses; repeats and chains
+    the stock cannot supply for ``request.builds`` copies are dropped."""
+    form = form_of(request.topology, request.coupling)
+    by: dict = defaultdict(list)
+    seen = set()
+    for d in designs:
+        k = chain_key(d)
+        ok, emptied = stock_use(d.parts, d.transistors, snapshot, request.builds)
+        if k in seen or not ok:
+            continue
+        seen.add(k)
+        by[tuple(d.transistors)].append((d.parts, emptied))
+    out = []
+    for labels, items in by.items():
+        batch, transistors, ratings = _batch(form, items, snapshot, labels)
+        ev = evaluate_pair(request, batch, transistors, ratings, large_signal="thd")
+        terms = chain_score_terms(ev, np.array([e for _, e in items], dtype=float))
+        out += [d for d in _designs(request, form, ev, items, labels, terms) if not d.meets_spec]
+    return sorted(out, key=lambda d: (len(d.violations), d.score))

@@ -38,7 +38,13 @@ from optimiser.request import Request
 from optimiser.search.answer import search
 from optimiser.search.chain_answer import ChainResult
 from optimiser.search.chain_cascode import search_cascode
-from optimiser.search.chain_confirm import chain_parts, confirm_with_retry, with_swing
+from optimiser.search.chain_confirm import (
+    chain_key,
+    chain_parts,
+    confirm_with_retry,
+    judge_chains,
+    with_swing,
+)
 from optimiser.search.chain_direct import search_direct
 from optimiser.search.chain_exact import PROOF_TIME_S, prove_chains
 from optimiser.search.chain_followers import (
@@ -47,6 +53,7 @@ from optimiser.search.chain_followers import (
     load_bins,
     stage_request,
 )
+from optimiser.search.chain_unlocks import CHAIN_EXPLAIN_BUDGET_S, explain_chain
 from optimiser.search.limits import physical_limits
 
 __all__ = ["SEARCHED_CHAINS", "SEARCHED_COUPLINGS", "CASCODE", "check_chain_request",
@@ -87,13 +94,35 @@ def check_chain_request(request: Request) -> None:
 
 
 def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
-                  time_limit_s: float | None = None) -> ChainResult:
+                  time_limit_s: float | None = None, unlocks: bool = True) -> ChainResult:
     """The best chains composed from the single-stage searches, then the proof (module
-    docstring); ``time_limit_s`` None: no limit, the proof runs to its end."""
+    docstring); ``time_limit_s`` None: no limit, the proof runs to its end.  When none
+    meets the request and ``unlocks``, what would unlock it (:mod:`.chain_unlocks`,
+    within what the time limit leaves)."""
     check_chain_request(request)
     t0 = time.perf_counter()
+    result = _search(request, snapshot, top, time_limit_s, t0)
+    if unlocks and not result.designs:
+        seconds = CHAIN_EXPLAIN_BUDGET_S
+        if time_limit_s is not None:
+            seconds = min(seconds, max(0.0, time_limit_s - (time.perf_counter() - t0)))
+        result.limits = list(result.search.get("limits", []))
+        result.unlock, result.unlock_changes, found = explain_chain(
+            request, snapshot, result.search, search_chains, result.limits, seconds)
+        # the chains the relaxed searches found miss only the target relaxed: nearer
+        # misses than most the search itself rejected
+        misses = judge_chains(request, snapshot, found) + result.nearest_misses
+        result.nearest_misses = sorted(
+            {chain_key(d): d for d in reversed(misses)}.values(),
+            key=lambda d: (len(d.violations), d.score))[:top]
+    return result
+
+
+def _search(request: Request, snapshot: StockSnapshot, top: int, time_limit_s, t0
+            ) -> ChainResult:
+    """:func:`search_chains` without the unlocks."""
     if request.topology == CASCODE:
-        return _cascodes(request, snapshot, top, t0)
+        return _cascodes(request, snapshot, top, t0, time_limit_s)
     kind1, kind2 = request.topology
     stats: dict = {"complete": False, "method": "composed from single-stage searches",
                    "stage_top": STAGE_TOP}
@@ -195,7 +224,7 @@ def search_chains(request: Request, snapshot: StockSnapshot, *, top: int = 10,
     return _ranked(request, snapshot, meeting, missing, stats, top, t0)
 
 
-def _cascodes(request, snapshot, top, t0) -> ChainResult:
+def _cascodes(request, snapshot, top, t0, time_limit_s=None) -> ChainResult:
     """The cascodes of :mod:`.chain_cascode`, confirmed and ranked as the chains.  The
     lower transistor's limits as a ce stage with an open load bound the cascode's
     (its gain is g_m·(RC‖R_L) with I_C·RC below the supply, its input a divider
@@ -209,8 +238,11 @@ def _cascodes(request, snapshot, top, t0) -> ChainResult:
                           "so no cascode can)" for x in limits],
                      seconds=time.perf_counter() - t0)
         return ChainResult(request, [], [], stats)
-    cands = search_cascode(request, snapshot, stats)
-    meeting, missing = confirm_with_retry(request, snapshot, cands, stats, top)
+    # the time limit: no transistor pair begun, no group screened or chunk confirmed
+    # past it (what was left is in stats: pairs_left, chains_left_by_time)
+    deadline = None if time_limit_s is None else t0 + time_limit_s
+    cands = search_cascode(request, snapshot, stats, deadline)
+    meeting, missing = confirm_with_retry(request, snapshot, cands, stats, top, deadline)
     stats["proven"] = False
     return _ranked(request, snapshot, meeting, missing, stats, top, t0)
 

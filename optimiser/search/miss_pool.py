@@ -20,7 +20,7 @@ TARGETS = (("f_low_max_hz", "f_low_hz", "max"), ("f_high_min_hz", "f_high_hz", "
            ("zin_min_ohm", "zin_ohm", "min"), ("ic_drift_max_pct", "ic_drift_pct", "max"),
            ("thd_max_pct", "thd_pct", "max"), ("ic_min_a", "ic_a", "min"))
 UNITS = {"f_low_max_hz": "Hz", "f_high_min_hz": "Hz", "zin_min_ohm": "Ω",
-         "ic_drift_max_pct": "%", "thd_max_pct": "%", "ic_min_a": "A"}
+         "ic_drift_max_pct": "%", "thd_max_pct": "%", "ic_min_a": "A", "zout_max_ohm": "Ω"}
 #: Distance an invalid design (one failing a validity rule) adds to its shortfalls.
 INVALID_DISTANCE = 10.0
 #: Rejected stock designs one search keeps, the nearest by :func:`miss_rank` (a

@@ -40,7 +40,8 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import replace
+from collections.abc import Callable
+from dataclasses import dataclass, replace
 
 from inventory.parts import Capacitor, Resistor, StockSnapshot
 from inventory.values import format_si, format_value, series_values
@@ -61,7 +62,8 @@ from optimiser.search.tree import search_designs
 from optimiser.stage import StageBatch
 from optimiser.stages import module as stage_module
 
-__all__ = ["explain", "miss_distance", "relaxed", "stock_shortfall", "miss_order", "TARGETS",
+__all__ = ["explain", "change_json", "Relaxer", "stage_relaxer", "relax_targets", "unlock_text",
+           "advice", "miss_distance", "relaxed", "stock_shortfall", "miss_order", "TARGETS",
            "MISS_BUDGET_S", "BUY_BUDGET_S", "RELAX_BUDGET_S", "EXPLAIN_BUDGET_S", "GAIN_STEPS_DB", "f_low_floor_note",
            "relaxation_order"]
 
@@ -181,11 +183,50 @@ def _meets(request: Request, d: Design, snapshot: StockSnapshot) -> bool:
     return bool(ev.meets[0])
 
 
+@dataclass
+class Relaxer:
+    """What the relaxation searches run on: the single stage's exact search
+    (:func:`stage_relaxer`) or a chain search (:mod:`.chain_unlocks`).
+
+    ``search(request, snapshot, budget_s)`` returns (designs meeting ``request`` from
+    ``snapshot``, proven that none lies outside them, stopped by its budget, rejected
+    designs for the nearest misses); ``meets(request, design)`` is the engine's verdict
+    (the proof of an unlock); ``figure(design, metric)`` a design's figure for a
+    target's metric."""
+
+    snapshot: StockSnapshot
+    search: Callable[[Request, StockSnapshot, float], tuple[list, bool, bool, list]]
+    meets: Callable[[Request, object], bool]
+    figure: Callable[[object, str], float | None]
+    targets: tuple = TARGETS
+    #: what a found design is, and the search that finds them (the proof's words)
+    what: str = "a stock design"
+    how: str = "the exact search"
+    budget_s: float = RELAX_BUDGET_S
+    buy_budget_s: float = BUY_BUDGET_S
+
+
+def stage_relaxer(snapshot: StockSnapshot) -> Relaxer:
+    """The single stage's relaxations: the exact search (complete unless stopped by its
+    budget), the single-stage engine's verdict."""
+
+    def run(request: Request, snap: StockSnapshot, budget: float):
+        s: dict = {"pruned": {}}
+        found, pool = search_designs(request, snap, RELAX_TOP, s, budget_s=budget,
+                                     keep_rejects=True)
+        stopped = bool(s.get("stopped_at_budget", False))
+        return found, not stopped, stopped, pool.designs()
+
+    return Relaxer(snapshot, run, lambda request, d: _meets(request, d, snapshot),
+                   lambda d, metric: d.metrics.get(metric))
+
+
 class _Clock:
     """What is left of the time all the suggestions of one answer share, and which
     searches it left out."""
 
     def __init__(self, seconds: float) -> None:
+        self.seconds = seconds
         self.deadline = time.perf_counter() + seconds
         self.skipped: list[str] = []
 
@@ -202,25 +243,24 @@ class _Clock:
         return min(own, left)
 
 
-def _run(request: Request, snapshot: StockSnapshot, stats: dict, name: str, clock: _Clock,
-         rejected: list[Design]):
-    """(designs, complete) of the exact search of ``request`` within RELAX_BUDGET_S and
-    the answer's shared clock; the stock designs it rejected are added to ``rejected``."""
-    budget = clock.budget(RELAX_BUDGET_S, name)
+def _run(request: Request, relaxer: Relaxer, stats: dict, name: str, clock: _Clock,
+         rejected: list):
+    """(designs, proven none outside them, stopped) of the relaxer's search of
+    ``request`` within its budget and the answer's shared clock; the designs it
+    rejected are added to ``rejected``."""
+    budget = clock.budget(relaxer.budget_s, name)
     if budget is None:
-        return [], False
-    s: dict = {"pruned": {}}
-    found, pool = search_designs(request, snapshot, RELAX_TOP, s, budget_s=budget,
-                                 keep_rejects=True)
-    rejected += pool.designs()
+        return [], False, True
+    found, complete, stopped, rej = relaxer.search(request, relaxer.snapshot, budget)
+    rejected += rej
     stats.setdefault("relax_searches", {})[name] = len(found)
-    return found, not s.get("stopped_at_budget", False)
+    return found, complete, stopped
 
 
-def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits, clock: _Clock,
-                rejected: list[Design]):
-    """(designs found, change) for the gain target, or (designs, None); the stock
-    designs its searches rejected are added to ``rejected``."""
+def _relax_gain(request: Request, relaxer: Relaxer, stats: dict, limits, clock: _Clock,
+                rejected: list):
+    """(designs found, change) for the gain target, or (designs, None); the designs
+    its searches rejected are added to ``rejected``."""
     base = replace(request, min_yield_pct=None)
     tol = request.gain_tol_db
     # a physical limit already proves the window empty up to its bound
@@ -230,61 +270,88 @@ def _relax_gain(request: Request, snapshot: StockSnapshot, stats: dict, limits, 
     if reach is not None and (not steps or steps[0] > empty_within - tol + 3.0):
         steps = [empty_within - tol + 3.0] + steps
     for d in steps:
-        found, complete = _run(replace(base, gain_tol_db=tol + d), snapshot, stats,
-                               f"gain_tol_db {tol + d:g}", clock, rejected)
+        found, complete, stopped = _run(replace(base, gain_tol_db=tol + d), relaxer, stats,
+                                        f"gain_tol_db {tol + d:g}", clock, rejected)
         if not found:
             if complete:
                 empty_within = max(empty_within, tol + d)
-            else:
+            elif stopped:
                 break
             continue
-        best = min(found, key=lambda x: abs(x.metrics["gain_db"] - request.gain_db))
-        g = float(best.metrics["gain_db"])
+        best = min(found, key=lambda x: abs(relaxer.figure(x, "gain_db") - request.gain_db))
+        g = float(relaxer.figure(best, "gain_db"))
         new_db = round(g, 1)
         new_tol = math.ceil((abs(g - request.gain_db)) * 100 + 1e-9) / 100
-        proof = "a stock design meets every other target at this gain (found by the exact " \
-                "search with the gain window widened)"
-        if not (_meets(replace(base, gain=10 ** (new_db / 20)), best, snapshot)
-                and _meets(replace(base, gain_tol_db=new_tol), best, snapshot)):
+        proof = f"{relaxer.what} meets every other target at this gain (found by " \
+                f"{relaxer.how} with the gain window widened)"
+        if not (relaxer.meets(replace(base, gain=10 ** (new_db / 20)), best)
+                and relaxer.meets(replace(base, gain_tol_db=new_tol), best)):
             return found, None
         change = {"target": "gain_db", "from": request.gain_db, "to": new_db, "unit": "dB",
                   "gain_tol_db_to": new_tol, "proof": proof,
-                  "none_within_db": empty_within if empty_within > tol else None}
+                  "none_within_db": empty_within if empty_within > tol else None,
+                  "design": best}
         return found, change
     return [], None
 
 
-def _relax_limit(request: Request, key: str, snapshot: StockSnapshot, stats: dict,
-                 clock: _Clock, rejected: list[Design]):
+def _relax_limit(request: Request, key: str, relaxer: Relaxer, stats: dict,
+                 clock: _Clock, rejected: list):
     """(designs found, change) for one limit target relaxed (removed), or (designs, None);
-    the stock designs its search rejected are added to ``rejected``."""
-    metric, sense = {k: (mm, s) for k, mm, s in TARGETS}[key]
-    found, _ = _run(replace(request, **{key: None}, min_yield_pct=None), snapshot, stats,
-                    f"without {key}", clock, rejected)
-    vals = [(float(d.metrics[metric]), d) for d in found
-            if d.metrics.get(metric) is not None and math.isfinite(d.metrics[metric])]
+    the designs its search rejected are added to ``rejected``."""
+    metric, sense = {k: (mm, s) for k, mm, s in relaxer.targets}[key]
+    found, _, _ = _run(replace(request, **{key: None}, min_yield_pct=None), relaxer, stats,
+                       f"without {key}", clock, rejected)
+    vals = [(float(v), d) for d in found
+            if (v := relaxer.figure(d, metric)) is not None and math.isfinite(v)]
     if not vals:
         return found, None
     v, best = (max if sense == "min" else min)(vals, key=lambda x: x[0])
     new = _outward(v, sense)
-    if not _meets(replace(request, **{key: new}, min_yield_pct=None), best, snapshot):
+    if not relaxer.meets(replace(request, **{key: new}, min_yield_pct=None), best):
         return found, None
     change = {"target": key, "from": getattr(request, key), "to": new, "unit": UNITS[key],
-              "proof": f"a stock design meets every other target at this limit (found by the "
-                       f"exact search without the {key} target)"}
+              "proof": f"{relaxer.what} meets every other target at this limit (found by "
+                       f"{relaxer.how} without the {key} target)", "design": best}
     return found, change
 
 
-def relaxation_order(request: Request, stats: dict, f_low_floor: bool = False) -> list[str]:
+def relax_targets(request: Request, relaxer: Relaxer, stats: dict, limits, clock: _Clock,
+                  f_low_floor: bool = False) -> tuple[list, list[dict]]:
+    """(designs found or rejected, unlock changes): each target of ``request`` relaxed
+    alone (:func:`relaxation_order`), each change proven by ``relaxer.meets`` on the
+    design it names.  Past a physical limit (``limits``) only the limited targets."""
+    candidates: list = []
+    changes: list[dict] = []
+    # past a physical limit nothing unlocks the request but relaxing the limited
+    # targets: the other relaxations would search in vain
+    only = {x["target"] for x in limits} or None
+    for key in relaxation_order(request, stats, f_low_floor, relaxer.targets):
+        if only is not None and key not in only:
+            continue
+        rejected_by: list = []
+        if key == "gain_db":
+            found, change = _relax_gain(request, relaxer, stats, list(limits), clock,
+                                        rejected_by)
+        else:
+            found, change = _relax_limit(request, key, relaxer, stats, clock, rejected_by)
+        candidates += found + rejected_by
+        if change:
+            changes.append(change)
+    return candidates, changes
+
+
+def relaxation_order(request: Request, stats: dict, f_low_floor: bool = False,
+                     targets: tuple = TARGETS) -> list[str]:
     """The targets of ``request`` to relax one at a time, those the proof showed
     binding first (they share one clock: the first get their search).
 
     f_low is binding where the drawer's floor lies above the target (``f_low_floor``)
     or where the proof's f_low bounds (B20, B21) dropped anything (``stats["pruned"]``
     keys ``f_low_*``), the least current where its bound did (``ic_min``); the others
-    keep their order: the gain, then :data:`TARGETS`."""
+    keep their order: the gain, then ``targets`` (:data:`TARGETS`)."""
     keys = (["gain_db"] if request.gain is not None else []) + \
-        [k for k, _, _ in TARGETS if getattr(request, k) is not None]
+        [k for k, _, _ in targets if getattr(request, k) is not None]
     pruned = stats.get("pruned", {})
     binding = set()
     if f_low_floor or any(v > 0 for k, v in pruned.items() if k.startswith("f_low")):
@@ -292,6 +359,12 @@ def relaxation_order(request: Request, stats: dict, f_low_floor: bool = False) -
     if pruned.get("ic_min", 0) > 0:
         binding.add("ic_min_a")
     return sorted(keys, key=lambda k: k not in binding)
+
+
+def change_json(c: dict) -> dict:
+    """An unlock change as JSON: its figures, and the design that proves it (``design``,
+    the one the engine's verdict was taken on, in the form of the answer's designs)."""
+    return {k: (v.to_json() if k == "design" else v) for k, v in c.items()}
 
 
 def unlock_text(request: Request, c: dict) -> str:
@@ -328,7 +401,6 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
         return [], [f"no stocked transistor is rated for {request.supply_v:g} V (highest vceo "
                     f"{best:g} V): lower supply_v to {best:g} V or buy a higher-voltage type"], []
     candidates: list[Design] = []
-    changes: list[dict] = []
     first: list[str] = []
     note = f_low_floor_note(request, snapshot)
     if note is not None:
@@ -347,21 +419,9 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
             budget_s=min(MISS_BUDGET_S, MISS_SHARE * EXPLAIN_BUDGET_S), until_one=True)
         stats["misses_search"] = {k: v for k, v in s2.items() if k != "pruned"}
         candidates += found + rejected.designs()
-    # past a physical limit nothing unlocks the request but relaxing the limited
-    # targets: the other relaxations would search in vain
-    only = {x["target"] for x in limits} or None
-    for key in relaxation_order(request, stats, note is not None):
-        if only is not None and key not in only:
-            continue
-        rejected_by: list[Design] = []
-        if key == "gain_db":
-            found, change = _relax_gain(request, snapshot, stats, list(limits), clock,
-                                        rejected_by)
-        else:
-            found, change = _relax_limit(request, key, snapshot, stats, clock, rejected_by)
-        candidates += found + rejected_by
-        if change:
-            changes.append(change)
+    found, changes = relax_targets(request, stage_relaxer(snapshot), stats, list(limits),
+                                   clock, note is not None)
+    candidates += found
     judged = _judge(request, candidates, snapshot)
     if not judged:
         judged = _judge(request, _any_designs(request, snapshot, misses, stats, clock.left()),
@@ -369,23 +429,31 @@ def explain(request: Request, snapshot: StockSnapshot, pool, misses: int, stats:
     nearest = judged[:misses]
     for r, d in enumerate(nearest, 1):
         d.rank = r
-    unlock = first + [unlock_text(request, c) for c in changes]
-    # one value bought (a topology's gain limit no part can lift)
+    unlock = first + advice(request, stage_relaxer(snapshot), changes, limits, clock, stats)
+    return nearest, unlock, changes
+
+
+def advice(request: Request, relaxer: Relaxer, changes: list[dict], limits, clock: _Clock,
+           stats: dict, none_found: str = "see the nearest misses") -> list[str]:
+    """The unlock lines: each change, then one bought value (:func:`_buy_one`; not
+    against a gain limit, which no part lifts), then what the clock left out, or
+    that nothing was found (never presented as proof that nothing exists)."""
+    unlock = [unlock_text(request, c) for c in changes]
     if not any(x["target"] == "gain_db" for x in limits):
-        budget = clock.budget(BUY_BUDGET_S, "one bought value")
+        budget = clock.budget(relaxer.buy_budget_s, "one bought value")
         if budget is not None:
             try:
-                unlock += _buy_one(request, snapshot, budget)
+                unlock += _buy_one(request, relaxer, budget)
             except Exception as exc:  # a suggestion only; never fail the answer for it
                 stats["buy_one_error"] = str(exc)
-    if len(unlock) == len(first):
+    if not unlock:
         unlock.append("no single relaxed target or single bought value found within the "
-                      "searches' time budgets; see the nearest misses")
+                      f"searches' time budgets; {none_found}")
     if clock.skipped:
         stats["suggestions_skipped"] = list(clock.skipped)
-        unlock.append(f"not examined within the {EXPLAIN_BUDGET_S:g} s given to suggestions: "
+        unlock.append(f"not examined within the {clock.seconds:.3g} s given to suggestions: "
                       + ", ".join(clock.skipped))
-    return nearest, unlock, changes
+    return unlock
 
 
 def _any_designs(request: Request, snapshot: StockSnapshot, misses: int, stats: dict,
@@ -453,10 +521,9 @@ def _virtual(snapshot: StockSnapshot) -> StockSnapshot:
     return replace(snapshot, resistors=tuple(res), capacitors=tuple(caps))
 
 
-def _buy_one(request: Request, snapshot: StockSnapshot, budget_s: float = BUY_BUDGET_S
+def _buy_one(request: Request, relaxer: Relaxer, budget_s: float = BUY_BUDGET_S
              ) -> list[str]:
-    s3: dict = {"pruned": {}}
-    found, _ = search_designs(request, _virtual(snapshot), 20, s3, budget_s=budget_s)
+    found = relaxer.search(request, _virtual(relaxer.snapshot), budget_s)[0]
     out: list[str] = []
     for d in found:
         bought = {(p.kind, p.value) for rp in d.parts.values() for p in rp.pieces

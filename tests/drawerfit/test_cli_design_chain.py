@@ -4,6 +4,7 @@ the 80-column table, exit codes of the refusals."""
 import csv
 import io
 import json
+import tomllib
 
 import pytest
 from click.testing import CliRunner
@@ -235,3 +236,66 @@ def test_no_direct_chain_meets_says_what_was_searched(store, tmp_path):
     assert "No ce→cc direct-coupled chain found meets the request." in words
     assert "Searched:" in words and "S2.RE:" in words
     assert "Not proven that none exists" in words
+
+
+# --- a chain request nothing meets: what would unlock it (docs/answers.md) -------------
+
+#: Proven impossible on the demo drawer (tests/optimiser/test_chain_unlocks.py).
+IMPOSSIBLE = """topology = ["ce", "cc"]
+supply_v = 12.0
+load_ohm = "1k"
+source_ohm = "10k"
+gain_db = 50
+gain_tol_db = 1
+f_low_max_hz = 2
+ic_min_a = "4m"
+"""
+
+
+@pytest.fixture(scope="module")
+def demo_store(tmp_path_factory):
+    from importlib import resources
+
+    db = tmp_path_factory.mktemp("demo") / "d.sqlite"
+    with resources.as_file(resources.files("drawerfit") / "data" / "demo_stock.csv") as p:
+        r = CliRunner().invoke(cli, ["--db", str(db), "stock", "import", str(p)])
+    assert r.exit_code == 0, r.output
+    return db
+
+
+def test_unlocks_json_and_80_columns(demo_store, tmp_path):
+    from optimiser.pair_evaluate import evaluate_pair
+    from optimiser.request import parse_request
+    from optimiser.stages import form_of
+    from optimiser.stages.pair import PairBatch
+    from tests.demo_drawer import demo_snapshot
+
+    r = run(demo_store, tmp_path, IMPOSSIBLE, "--json", "--time-limit", "40")
+    assert r.exit_code == 0, r.output
+    out = json.loads(r.stdout)
+    assert out["feasible"] is False and out["designs"] == []
+    assert out["unlock"] and out["unlock_changes"], out["unlock"]
+    # each change names its chain; the pair engine, given that chain's values, meets
+    # the request with the change applied (the ratings left out: the values alone)
+    snap = demo_snapshot()
+    for c in out["unlock_changes"]:
+        assert {"target", "from", "to", "unit", "proof", "design"} <= set(c)
+        d = c["design"]
+        assert d["topology"] == ["ce", "cc"] and d["meets_spec"] is True
+        key = "gain_tol_db" if c["target"] == "gain_db" else c["target"]
+        to = c["gain_tol_db_to"] if c["target"] == "gain_db" else c["to"]
+        req = parse_request({**tomllib.loads(IMPOSSIBLE), key: to}, pairs=True)
+        form = form_of(req.topology, req.coupling)
+        vals = {role: [d["parts"][role]["value"] if role in d["parts"] else 0.0]
+                for role in form.role_names}
+        ev = evaluate_pair(req, PairBatch.from_values(form, **vals),
+                           tuple(snap.transistor(t) for t in d["transistors"]), None)
+        assert bool(ev.meets[0]), c
+    text = " ".join(out["unlock"])
+    assert "relax gain_db from 50.0" in text
+    # the terminal at 80 columns: the same advice, no line wider
+    r = run(demo_store, tmp_path, IMPOSSIBLE, "--time-limit", "40")
+    assert r.exit_code == 0, r.output
+    assert max(cell_len(s) for s in r.output.splitlines()) <= 80
+    flat = " ".join(r.output.split())
+    assert "What would unlock it:" in flat and "relax gain_db from 50.0" in flat

@@ -153,3 +153,24 @@ def test_cascode_search_agrees_with_enumeration():
     res = search_chains(req, snap, top=3)
     assert best is not None and meeting > 0
     assert res.designs and res.designs[0].score == pytest.approx(best, rel=1e-9, abs=1e-9)
+
+
+def test_a_tiny_time_limit_stops_the_search_and_says_what_is_left(demo, found):
+    # the search stops at the limit (no transistor pair begun, no candidate judged past
+    # it) and names what it left; the full search (``found``, no limit) left nothing
+    from drawerfit.render.chains import searched_line
+
+    req, full = found
+    assert not full.search.get("stopped_at_limit") and full.search["pairs_searched"] == 9
+    res = search_chains(req, demo, top=5, time_limit_s=1e-3, unlocks=False)
+    s = res.search
+    assert s["stopped_at_limit"] is True and s["complete"] is False and not s["proven"]
+    # the first pair is begun before the clock is read again: every other is left
+    assert s["pairs_searched"] + len(s["pairs_left"]) == s["transistor_pairs"] == 9
+    assert 1 <= s["pairs_searched"] < 9
+    assert s["chains_left_by_time"] > 0
+    assert all(d.meets_spec for d in res.designs)
+    words = " ".join(searched_line(res).split())
+    assert "Stopped at the time limit" in words and "Not proven" in words
+    assert f"{s['pairs_searched']} of 9 transistor pairs searched" in words
+    assert ", ".join(s["pairs_left"]) in words
