@@ -23,7 +23,9 @@ from drawerfit.render.chains import show_chain_result
 from inventory.parts import Resistor, StockSnapshot
 from optimiser.search.chain_confirm import chain_parts, confirm_chains
 from optimiser.search.chain_proof import (
+    first_gain_floor,
     floor,
+    gain_floor_term,
     outside_bound,
     pair_floor,
     proof_requests,
@@ -110,7 +112,7 @@ def test_the_bound_lies_below_every_chain_outside_the_lists():
         # the floor lies below the stage's own score by at most its slack
         for d in found.designs:
             assert d.score - slack(r) <= floor(d) <= d.score + 1e-12
-    bound = outside_bound(*lists)
+    bound = outside_bound(*lists, req)
     outside_best = _best_outside(req, snap, keys)
     assert outside_best is None or outside_best >= bound - 1e-9
 
@@ -132,9 +134,64 @@ def test_a_chain_scores_at_least_its_stages_floors(case):
                                                            (a.transistor, b.transistor))],
                                               stats, 1)
             for d in meeting + missing:
-                assert d.score >= pair_floor(a, b) - 1e-9, (d.score, pair_floor(a, b))
+                assert d.score >= pair_floor(a, b, req) - 1e-9, (d.score, pair_floor(a, b, req))
                 checked += 1
     assert checked >= 20
+
+
+def _random_chains(seed: int, topo, n: int):
+    """Up to ``n`` chains of a seeded tiny drawer (see :func:`_seeded`) with a gain
+    target: random pairs of the first 40 stages of each relaxed request, composed and
+    evaluated by the pair engine, with the first-stage design each was built from."""
+    from optimiser.search.answer import search
+
+    rng = np.random.default_rng(seed)
+    req, snap = _seeded(seed, topo)
+    if req.gain_db is None:
+        return req, []
+    firsts, followers = (search(r, snap, top=40, misses=0).designs for r in proof_requests(req))
+    out = []
+    for _ in range(n):
+        if not firsts or not followers:
+            break
+        a = firsts[int(rng.integers(len(firsts)))]
+        b = followers[int(rng.integers(len(followers)))]
+        meeting, missing = confirm_chains(req, snap, [(chain_parts(a, b),
+                                                       (a.transistor, b.transistor))], {}, 1)
+        out += [(a, b, d) for d in meeting + missing]
+    return req, out
+
+
+def test_the_gain_floor_lies_below_every_chains_gain_term():
+    """:func:`first_gain_floor` (assumption 3: a chain's gain is at most its first stage's
+    open-load gain) against the pair engine on random chains of seeded tiny drawers with
+    a gain target (ce→cc and cb→cc): the chain's gain term never lies below it, nor its
+    score below :func:`pair_floor` with the gain floor; and the floor is not empty (it is
+    positive on some of them)."""
+    checked, positive = 0, 0
+    for topo, seed in [(("ce", "cc"), s) for s in (3, 11, 19, 29, 31)] + \
+            [(("cb", "cc"), s) for s in (5, 8, 13, 21, 34)]:
+        req, chains = _random_chains(seed, topo, 60)
+        for a, b, d in chains:
+            g = first_gain_floor(a, req)
+            assert d.score_terms["gain"] >= g - 1e-9, (seed, d.metrics["gain_db"],
+                                                       a.metrics["gain_db"])
+            assert d.score >= pair_floor(a, b, req) - 1e-9
+            checked += 1
+            positive += g > 0
+    assert checked >= 100 and positive >= 5, (checked, positive)
+
+
+def test_gain_floor_term_follows_the_score_gain_term():
+    """:func:`gain_floor_term` is the score's gain term (optimiser.score.gain_term) of a
+    gain at the first stage's own, below the target; 0 above it or without a target."""
+    from optimiser.score import gain_term
+
+    g = np.array([30.0, 37.0, 40.0, 45.0])
+    got = gain_floor_term(g, 40.0, 3.0)
+    want = np.where(g < 40.0, gain_term(g, 40.0, 3.0), 0.0)
+    assert np.allclose(got, want) and got[0] > 3.0 and got[3] == 0.0
+    assert np.all(gain_floor_term(g, None, 3.0) == 0.0)
 
 
 def _best_outside(req, snap, keys):
