@@ -121,8 +121,10 @@ def first_gain_floor(design, chain: Request) -> float:
     the chain's source): its gain the larger of its mid_hz and shorted-capacitor
     figures, so that either one the chain's gain is taken at lies below it."""
     m = design.metrics
-    g = max(float(m["gain_db"]), float(m.get("gain_inf_db") or -math.inf))
-    return float(gain_floor_term(g, chain.gain_db, chain.gain_tol_db))
+    gains = [float(x) for x in (m.get("gain_db"), m.get("gain_inf_db")) if x is not None]
+    if not gains or not all(math.isfinite(x) for x in gains):
+        return 0.0                      # a figure not known: no floor
+    return float(gain_floor_term(max(gains), chain.gain_db, chain.gain_tol_db))
 
 
 @dataclass

@@ -192,6 +192,15 @@ def test_gain_floor_term_follows_the_score_gain_term():
     want = np.where(g < 40.0, gain_term(g, 40.0, 3.0), 0.0)
     assert np.allclose(got, want) and got[0] > 3.0 and got[3] == 0.0
     assert np.all(gain_floor_term(g, None, 3.0) == 0.0)
+    # a first stage whose gain is not known (NaN) bounds nothing
+    from types import SimpleNamespace
+
+    req, _ = _seeded(3, ("ce", "cc"))
+    unknown = SimpleNamespace(metrics={"gain_db": float("nan"), "gain_inf_db": None})
+    known = SimpleNamespace(metrics={"gain_db": -100.0, "gain_inf_db": -120.0})
+    assert first_gain_floor(unknown, req) == 0.0
+    assert first_gain_floor(known, req) == (0.0 if req.gain_db is None else
+                                            (req.gain_db + 100.0) / req.gain_tol_db)
 
 
 def _best_outside(req, snap, keys):
