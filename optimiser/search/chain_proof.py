@@ -8,7 +8,10 @@ term.  The single-stage search ranks the stages of a relaxed request (:func:`pro
 only what each stage of a meeting chain must meet alone, assumption 3) by their own
 score s, which is f plus a gain term of at most :func:`slack` and a distortion term
 made negligible; a stage outside the search's best k has s no lower than the k-th
-(or than the search's open bound when it stopped early), so f ≥ s_k − slack.
+(or than the search's open bound when it stopped early), so f ≥ s_k − slack.  The
+chain's gain term, in no floor, is bounded below by its first stage's open-load gain
+(:func:`gain_floor_term`: the chain's gain is at most that); its distortion term is
+not bounded (the two stages' distortion partly cancels; docs/search.md).
 
 Pure functions of designs and requests; no I/O.
 """
