@@ -57,15 +57,15 @@ def proof_requests(chain: Request) -> tuple[Request, Request]:
 
     Both keep what a stage of a meeting chain meets alone (supply, temperatures, drift
     ceiling, least I_C, builds, transistor, combinations: DC figures, the same in the
-    chain, where capacitors decouple the stages) and drop the rest (band edges, Z_in,
-    THD, Z_out), at an input of :data:`PROOF_INPUT_VPK`.  The first stage, into an open
+    chain, where capacitors decouple the stages) and drop the rest (band edges and the
+    flat passband, Z_in, THD, Z_out), at an input of :data:`PROOF_INPUT_VPK`.  The first stage, into an open
     load (its largest gain), is held to gain ≥ target − tol when the chain has a gain
     target (the follower's gain is below 1); the follower, into the chain's load, to a
     gain in [−WINDOW_DB, FOLLOWER_CEILING_DB] dB, a window that lets every follower
     through and replaces its own unity-gain score term by one of at most 1."""
     kind1, kind2 = chain.topology
     common = dict(thd_max_pct=None, f_low_max_hz=None, f_high_min_hz=None, zin_min_ohm=None,
-                  input_vpk=PROOF_INPUT_VPK)
+                  input_vpk=PROOF_INPUT_VPK, flat_passband=False)
     first = dict(common, load_ohm=None, gain=None)
     if chain.gain is not None:
         lo = chain.gain_db - chain.gain_tol_db
