@@ -30,7 +30,11 @@ at 1 µF (:func:`mixed_drawer` with ``cap_max``) and the E96 drawer of 2.:
 * tight drift — bias drift ≤ 0.5–2 % over 0–70 °C;
 * THD — ``thd_max_pct`` set;
 * followers — common collector with and without a gain target;
-* cb from 50 Ω — common base driven from a 50 Ω source.
+* cb from 50 Ω — common base driven from a 50 Ω source;
+* chains — two transistors on the E96 drawer: capacitor-coupled ce→cc and cb→cc,
+  direct-coupled ce→cc and the cascode (:func:`optimiser.search.chains.search_chains`,
+  top 10; proven when its ``search.complete`` is, the chains' proof step within the
+  time limit's PROOF_TIME_S).
 
 Times are wall-clock seconds on this machine and, since timings on a shared
 machine are noisy, also multiples of a baseline measured in the same run (the
@@ -57,6 +61,7 @@ from inventory.values import series_values  # noqa: E402
 from optimiser.evaluate import evaluate  # noqa: E402
 from optimiser.request import Request, load_request, parse_request  # noqa: E402
 from optimiser.search import FORMS, cap_roles, search  # noqa: E402
+from optimiser.search.chains import search_chains  # noqa: E402
 from optimiser.stage import StageBatch  # noqa: E402
 
 TRANSISTORS = (
@@ -202,10 +207,16 @@ def mixed_drawer(cap_max: float | None = None, seed: int = 7) -> StockSnapshot:
 def _req(topo, **kw) -> Request:
     """The request as a user's file gives it: read by parse_request, so the documented
     defaults (a THD ceiling, a least I_C, a ce gain target) apply as they would."""
-    mapping = {"topology": topo, "supply_v": kw.pop("supply_v", 12.0)}
+    mapping = {"topology": list(topo) if isinstance(topo, tuple) else topo,
+               "supply_v": kw.pop("supply_v", 12.0)}
     mapping.update({k: list(v) if isinstance(v, tuple) else v
                     for k, v in kw.items() if v is not None})
-    return parse_request(mapping, file="benchmark family")
+    return parse_request(mapping, file="benchmark family", pairs=_two(topo))
+
+
+def _two(topo) -> bool:
+    """A two-transistor request: a chain (two stage kinds) or the cascode."""
+    return isinstance(topo, tuple | list) or topo == "cascode"
 
 
 _TYP = dict(load_ohm=10e3, source_ohm=600.0)
@@ -298,6 +309,20 @@ FAMILIES: dict[str, list[tuple[str, str, Request]]] = {
         ("cb no gain", "mixed", _req("cb", load_ohm=10e3, source_ohm=50.0)),
         ("cb 26 dB", "e96", _req("cb", gain=20.0, load_ohm=10e3, source_ohm=50.0)),
     ],
+    # two transistors (docs/search.md, "Chains"), searched by search_chains with the
+    # proof step its time limit allows; "proven" is its search.complete
+    "chains": [
+        ("ce→cc 40 dB 1 k from 10 k 20 Hz", "e96",
+         _req(("ce", "cc"), gain_db=40.0, load_ohm=1e3, source_ohm=10e3, f_low_max_hz=20.0)),
+        ("cb→cc 20 dB 1 k from 50 Ω", "e96",
+         _req(("cb", "cc"), gain_db=20.0, load_ohm=1e3, source_ohm=50.0, f_low_max_hz=100.0)),
+        ("ce→cc direct 40 dB 1 k from 10 k", "e96",
+         _req(("ce", "cc"), coupling="direct", gain_db=40.0, load_ohm=1e3, source_ohm=10e3,
+              f_low_max_hz=20.0)),
+        ("cascode 30 dB 10 k 1 MHz", "e96",
+         _req("cascode", gain_db=30.0, load_ohm=10e3, source_ohm=600.0, f_low_max_hz=50.0,
+              f_high_min_hz=1e6)),
+    ],
 }
 
 #: ``--quick``: six requests of five families on the mixed drawers (about a minute on
@@ -340,18 +365,25 @@ def families(base: float, limit: float, quick: bool, only: str | None = None) ->
         snap = drawers.get(dname) or drawers.setdefault(dname, _drawer(dname))
         cpu0 = _cpu()
         t = time.perf_counter()
-        res = search(req, snap, top=10, time_limit_s=limit)
+        if _two(req.topology):
+            res = search_chains(req, snap, top=10, time_limit_s=limit)
+        else:
+            res = search(req, snap, top=10, time_limit_s=limit)
         dt = time.perf_counter() - t
         cpu = _cpu() - cpu0
-        done = bool(res.stats.get("complete", True))
         per.setdefault(fam, []).append(dt)
+        if _two(req.topology):
+            done, feasible = bool(res.search.get("complete")), bool(res.designs)
+            tail = _chain_tail(res.search)
+        else:
+            done, feasible = bool(res.stats.get("complete", True)), res.feasible
+            pr = res.stats["pruned"]
+            tail = f"f_low prunes {sum(v for k, v in pr.items() if k.startswith('f_low'))}"
         if not done:
             unproven.append(f"{fam}: {label} ({dname})")
-        pr = res.stats["pruned"]
-        fl = sum(v for k, v in pr.items() if k.startswith("f_low"))
         say(f"  {fam:17s} {label:28s} {dname:9s} {dt:7.2f} s  × {dt / base:6.2f}  "
-            f"CPU {cpu:6.2f} s  {'feasible' if res.feasible else 'none meets it'}"
-            f"{'' if done else '  NOT PROVEN (time limit)'}  f_low prunes {fl}")
+            f"CPU {cpu:6.2f} s  {'feasible' if feasible else 'none meets it'}"
+            f"{'' if done else '  NOT PROVEN (time limit)'}  {tail}")
     allt = [x for v in per.values() for x in v]
     say("per family: median / worst, seconds and × baseline")
     for fam, ts in per.items():
@@ -364,6 +396,17 @@ def families(base: float, limit: float, quick: bool, only: str | None = None) ->
         f"{sum(x > 3.0 for x in allt)}; goal: every request ≤ 3 s, median ≤ 0.5 s")
     if unproven:
         say("  not proven within the limit: " + "; ".join(unproven))
+
+
+def _chain_tail(srch: dict) -> str:
+    """What a chain search proved: its proven ranks, and the proof's widening, stop and
+    bound (capacitor-coupled chains; the direct and cascode searches have none)."""
+    p = srch.get("proof") or {}
+    if not p:
+        return f"proven ranks {srch.get('proven_ranks', 0)}"
+    b = "none" if p.get("bound") is None else f"{p['bound']:.3f}"
+    return (f"proven ranks {srch.get('proven_ranks', 0)}; widened to {p.get('widened_to')}, "
+            f"stopped: {p.get('stopped')}, bound {b}")
 
 
 def say(text: str) -> None:

@@ -405,7 +405,7 @@ def evaluate(request: Request, batch: StageBatch, transistor: Transistor,
                         f"polarity; use a non-polarised capacitor")
 
             rules.append(_Rule("warning", f"polarity_{role}", low, _ptext))
-    if band_edges:
+    if band_edges and request.flat_passband:
         peak = np.where(np.isfinite(peak_db), peak_db, -np.inf)
         rules.append(_Rule("validity", "flat_passband", peak > FLAT_PASSBAND_DB,
                            lambda i: f"the gain rises {_g(peak_db[i], 2)} dB above its mid_hz "

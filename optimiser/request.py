@@ -49,6 +49,10 @@ class Request:
     coupling: str | None = None            # a chain's coupling: "capacitor" or "direct"
     #: keys the file left out whose default (:data:`DEFAULTS`) was filled in
     assumed: tuple[str, ...] = ()
+    #: judge the flat-passband validity (no file sets it: False only in the chain
+    #: proof's relaxed stage requests, where a stage alone, into an open load, may peak
+    #: where its chain does not; docs/search.md, "What is proven")
+    flat_passband: bool = True
 
     @property
     def gain_db(self) -> float | None:
@@ -76,6 +80,8 @@ class Request:
             d["topology"] = list(self.topology)
         if not self.is_pair:
             del d["coupling"]
+        if self.flat_passband:
+            del d["flat_passband"]
         return d
 
 

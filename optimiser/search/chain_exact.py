@@ -100,7 +100,7 @@ def prove_chains(request: Request, snapshot: StockSnapshot, meeting: list, missi
                 if key in composed:
                     continue
                 composed.add(key)
-                if pair_floor(a, b) > tau:
+                if pair_floor(a, b, request) > tau:
                     pruned += 1
                     continue
                 cands.append((chain_parts(a, b), (a.transistor, b.transistor)))
@@ -114,7 +114,7 @@ def prove_chains(request: Request, snapshot: StockSnapshot, meeting: list, missi
             rate = (time.perf_counter() - c0) / len(cands)
         meeting = _merge(meeting, m, _score_key)
         missing = _merge(missing, miss, _miss_key)
-        bound = outside_bound(*lists)
+        bound = outside_bound(*lists, request)
         rounds.append({"k": k, "first_stages": len(lists[0].designs),
                        "followers": len(lists[1].designs),
                        "exhausted": [x.exhausted for x in lists],

@@ -8,7 +8,10 @@ term.  The single-stage search ranks the stages of a relaxed request (:func:`pro
 only what each stage of a meeting chain must meet alone, assumption 3) by their own
 score s, which is f plus a gain term of at most :func:`slack` and a distortion term
 made negligible; a stage outside the search's best k has s no lower than the k-th
-(or than the search's open bound when it stopped early), so f ≥ s_k − slack.
+(or than the search's open bound when it stopped early), so f ≥ s_k − slack.  The
+chain's gain term, in no floor, is bounded below by its first stage's open-load gain
+(:func:`gain_floor_term`: the chain's gain is at most that); its distortion term is
+not bounded (the two stages' distortion partly cancels; docs/search.md).
 
 Pure functions of designs and requests; no I/O.
 """
@@ -18,19 +21,24 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
+
 from optimiser.request import Request
-from optimiser.score import THD_UNIT_PCT, hd2_pct, score_gain_target
+from optimiser.score import THD_UNIT_PCT, gain_term, hd2_pct, score_gain_target
 from optimiser.search.chain_followers import stage_request
 
 __all__ = ["WINDOW_DB", "PROOF_INPUT_VPK", "FOLLOWER_CEILING_DB", "proof_requests", "slack",
-           "floor", "current", "StageList", "stage_list", "pair_floor", "outside_bound",
-           "proven_ranks"]
+           "floor", "current", "gain_floor_term", "first_gain_floor", "StageList",
+           "stage_list", "pair_floor", "outside_bound", "proven_ranks"]
 
 #: Width (dB) of the one-sided gain windows of the relaxed stage requests: wide enough
 #: that their gain term (|G − middle|/half-width, at most 1 inside the window) barely
-#: reorders the stages (by at most the stage's gain above the window's floor over half
-#: of this), narrow enough that the target in V/V stays a finite float.
-WINDOW_DB = 400.0
+#: reorders the stages (by at most the stage's distance in gain from the window's edge
+#: over half of this: a follower's 30 dB of source loss costs 0.015 here, where 400 dB
+#: cost 0.15 and held every floor bound near 0), narrow enough that the middle stays a
+#: finite float in V/V and its square in power (10^(middle/10), the junction floor's
+#: divider) below 1e308: middle < 3000 dB.
+WINDOW_DB = 4000.0
 #: The input level (V peak) of the relaxed stage requests: their distortion term
 #: (HD2 ∝ input level) is then below 1e-6 and bounded by :func:`slack`.
 PROOF_INPUT_VPK = 1e-9
@@ -49,15 +57,15 @@ def proof_requests(chain: Request) -> tuple[Request, Request]:
 
     Both keep what a stage of a meeting chain meets alone (supply, temperatures, drift
     ceiling, least I_C, builds, transistor, combinations: DC figures, the same in the
-    chain, where capacitors decouple the stages) and drop the rest (band edges, Z_in,
-    THD, Z_out), at an input of :data:`PROOF_INPUT_VPK`.  The first stage, into an open
+    chain, where capacitors decouple the stages) and drop the rest (band edges and the
+    flat passband, Z_in, THD, Z_out), at an input of :data:`PROOF_INPUT_VPK`.  The first stage, into an open
     load (its largest gain), is held to gain ≥ target − tol when the chain has a gain
     target (the follower's gain is below 1); the follower, into the chain's load, to a
     gain in [−WINDOW_DB, FOLLOWER_CEILING_DB] dB, a window that lets every follower
     through and replaces its own unity-gain score term by one of at most 1."""
     kind1, kind2 = chain.topology
     common = dict(thd_max_pct=None, f_low_max_hz=None, f_high_min_hz=None, zin_min_ohm=None,
-                  input_vpk=PROOF_INPUT_VPK)
+                  input_vpk=PROOF_INPUT_VPK, flat_passband=False)
     first = dict(common, load_ohm=None, gain=None)
     if chain.gain is not None:
         lo = chain.gain_db - chain.gain_tol_db
@@ -94,6 +102,34 @@ def current(design) -> float:
     return float(_terms(design)["current"])
 
 
+def gain_floor_term(first_gain_db, target_db, tol_db):
+    """The least gain term of a chain whose first stage, alone from the chain's source
+    into an open load, has a gain of at most ``first_gain_db`` (dB; arrays broadcast):
+    max(0, target − first_gain_db) over the tolerance, as :func:`optimiser.score.
+    gain_term` weighs it; 0 without a target.
+
+    The claim (assumption 3 of docs/search.md): the chain's gain at mid_hz is at most
+    the first stage's open-load gain — the follower's input loads the first stage (a
+    load only lowers its gain), the follower's gain is below 0 dB and the coupling
+    capacitor only loses — so |G − target| ≥ target − G ≥ target − first_gain_db.
+    Checked on the pair engine (tests/optimiser/test_chain_proof.py)."""
+    g = np.asarray(first_gain_db, dtype=float)
+    if target_db is None:
+        return np.zeros_like(g)
+    return gain_term(np.minimum(g, float(target_db)), float(target_db), float(tol_db))
+
+
+def first_gain_floor(design, chain: Request) -> float:
+    """:func:`gain_floor_term` of a first-stage design of a relaxed request (open load,
+    the chain's source): its gain the larger of its mid_hz and shorted-capacitor
+    figures, so that either one the chain's gain is taken at lies below it."""
+    m = design.metrics
+    gains = [float(x) for x in (m.get("gain_db"), m.get("gain_inf_db")) if x is not None]
+    if not gains or not all(math.isfinite(x) for x in gains):
+        return 0.0                      # a figure not known: no floor
+    return float(gain_floor_term(max(gains), chain.gain_db, chain.gain_tol_db))
+
+
 @dataclass
 class StageList:
     """The best ``k`` stages of a relaxed request and what they prove of the rest.
@@ -128,21 +164,26 @@ def stage_list(designs, k: int, complete: bool, open_bound: float, req: Request)
     return StageList(list(designs), k, complete, exhausted, nxt, least)
 
 
-def pair_floor(a, b) -> float:
-    """The least score a chain of stage designs ``a`` and ``b`` can have."""
-    return max(floor(a) + current(b), floor(b) + current(a))
+def pair_floor(a, b, chain: Request | None = None) -> float:
+    """The least score a chain of stage designs ``a`` (first) and ``b`` can have: the
+    larger of f(a) + I(b) and f(b) + I(a) (assumptions 1–2), plus, given the ``chain``
+    request, the first stage's :func:`first_gain_floor` (the gain term, in neither
+    floor)."""
+    g = 0.0 if chain is None else first_gain_floor(a, chain)
+    return max(floor(a) + current(b), floor(b) + current(a)) + g
 
 
-def outside_bound(first: StageList, second: StageList) -> float:
+def outside_bound(first: StageList, second: StageList, chain: Request | None = None) -> float:
     """The least score of a chain with a stage outside either list (≥ 0: every term of a
-    chain's score is), by :func:`pair_floor`: its first stage outside and its follower
-    listed, f ≥ the first list's next floor and I ≥ the follower list's least current;
-    the other way round; or both outside, the larger of the two next floors."""
+    chain's score is), by :func:`pair_floor` with a stage outside its list having a
+    floor of at least its list's next floor and a current term ≥ 0: its first stage
+    outside and its follower b listed, max(f₁ + I(b), f(b)); its follower outside and
+    its first stage a listed, max(f(a), f₂ + I(a)) + a's gain floor (given ``chain``);
+    or both outside, the larger of the two next floors."""
     cases = [max(first.next_floor, second.next_floor)]
-    if second.designs:
-        cases.append(first.next_floor + second.least_current)
-    if first.designs:
-        cases.append(second.next_floor + first.least_current)
+    cases += [max(first.next_floor + current(b), floor(b)) for b in second.designs]
+    cases += [max(floor(a), second.next_floor + current(a))
+              + (0.0 if chain is None else first_gain_floor(a, chain)) for a in first.designs]
     return max(0.0, min(cases))
 
 

@@ -142,8 +142,9 @@ class CollectorLevel:
                     + self._distortion_lb(P, ic_lo, ic_hi, REv)
                 span = np.maximum(upper - other, 0.0) * request.gain_tol_db / 20.0 \
                     + GAIN_SLACK_DB / 20.0
-                g_lo = np.maximum(g_lo, request.gain / 10 ** span)
-                g_hi = np.minimum(g_hi, request.gain * 10 ** span)
+                with np.errstate(over="ignore"):    # a span past 10^308: no limit
+                    g_lo = np.maximum(g_lo, request.gain / 10 ** span)
+                    g_hi = np.minimum(g_hi, request.gain * 10 ** span)
             rl = request.load_ohm
             # the gain per ohm of collector load is at most that of _gain_head_at (B6;
             # ce: with the input divider and the feed-forward through C_μ at mid_hz,
