@@ -26,7 +26,7 @@ from inventory.errors import InputError
 from inventory.parts import StockSnapshot
 from optimiser.design import Design
 from optimiser.request import Request
-from optimiser.search.pricing import Pricing
+from optimiser.search.pricing import PiecePrices, Pricing
 from optimiser.search.tree import search_designs
 
 __all__ = ["MAX_LEVELS", "priced_search"]
@@ -58,7 +58,10 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
     """The ``top`` designs of least priced value below the cutoff; and whether
     the searches behind them ran to their end (the ranking is then exact).
 
-    ``row_price(id)`` is the price of one piece of a row (≥ 0).
+    ``row_price(id)`` is the price of one piece of a row (≥ 0); ``pricing.price``
+    must charge each piece of a design at least its row's price (capacitors may
+    count 0), since the search prunes skeletons by the sum of their pieces'
+    prices (:class:`~optimiser.search.pricing.PiecePrices`).
     """
     search_fn = search_fn or search_designs
     t0 = time.perf_counter()
@@ -83,7 +86,9 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
                        capacitors=tuple(c for c in snapshot.capacitors if keep(c)),
                        transistors=tuple(t for t in snapshot.transistors if keep(t)))
         stats: dict = {"pruned": {}}
-        level = replace(pricing, floor=floor, _values={})
+        pieces = PiecePrices.of([(r.value, price.get(r.id, 0.0)) for r in snap.resistors],
+                                [(t.label, price.get(t.id, 0.0)) for t in snap.transistors])
+        level = replace(pricing, floor=floor, pieces=pieces, _values={})
         try:
             designs, _ = search_fn(request, snap, top, stats, budget_s=left, given=[],
                                    workers=1, pricing=level)
