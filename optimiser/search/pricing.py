@@ -139,11 +139,7 @@ def _target(pricing: Pricing, found: Sequence[Design], top: int) -> float:
     """The value to beat: the cutoff, or the ``top``-th least value found if lower."""
     target = pricing.cutoff
     if len(found) >= top:
-        key = (id(found), len(found))
-        hit = pricing._values.get(key)
-        if hit is None:         # (found only grows: its top-th value is kept per length)
-            hit = pricing._values[key] = sorted(pricing.value(d) for d in found)[top - 1]
-        target = min(target, hit)
+        target = min(target, sorted(pricing.value(d) for d in found)[top - 1])
     return target
 
 

@@ -450,6 +450,10 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                     if _design_key(d) not in known:
                         known.add(_design_key(d))
                         found.append(d)
+            if pricing is not None:
+                # only the top values count (the value to beat, the answer): the
+                # rest would only be sorted again and again
+                found[:] = pricing.rank(found)[:top]
             found.sort(key=_rank_key)
             if not backlog_screened and prescreen_active(request, stats):
                 # the f_low screen took effect: the skeletons queued before it, at once
