@@ -61,8 +61,12 @@ __all__ = ["PRICING_TIME_S", "MAX_ROUNDS", "RC_TOL", "Bound", "Duals", "Generate
 #: Seconds for all pricing searches together unless the caller gives its own
 #: (0: no pricing, the candidates alone).  Longer proves more on large drawers.
 PRICING_TIME_S = 60.0
-#: Pricing rounds at most (each: one relaxation, one search per build).
-MAX_ROUNDS = 25
+#: Pricing rounds at most (each: one relaxation, one search per build).  Most
+#: are quick rounds (each search stops at its first designs of negative reduced
+#: cost, :attr:`~optimiser.search.pricing.Pricing.quick`); a round whose quick
+#: searches add nothing is followed by one of complete searches, which alone
+#: give a bound and end pricing.
+MAX_ROUNDS = 60
 #: Designs each pricing search returns at most (the least reduced costs): more
 #: columns per round means fewer rounds, each relaxation a little larger.
 COLUMNS_PER_SEARCH = 5
@@ -303,6 +307,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                           f"{len(items[b].candidates)} designs the chain search offered "
                           "(pricing searches single stages)")
     complete_round = False
+    quick = True            # quick rounds first: any negative columns, nothing proven
     for rnd in range(rounds):
         sol = solve_master(columns, counts, pools, phase1=phase1)
         if sol.status != "Optimal":
@@ -351,7 +356,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             pricing = Pricing(0.0 if phase1 else 1.0, score_map, score_map_inverse,
                               lambda d, sol=sol, k=k: _search_price(sol.price, rows, catalogue,
                                                                     pools, d, k),
-                              top_mu[key] - RC_TOL)
+                              top_mu[key] - RC_TOL, quick=quick)
             if key not in searched:     # builds of one request share one search per round
                 if k not in drawers:
                     drawers[k] = copies_drawer(augmented, k)
@@ -421,7 +426,11 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 complete_round = not stalled
                 break
         elif added == 0:
+            if quick:
+                quick = False   # nothing found quickly: the next round searches exactly
+                continue
             break
+        quick = True
     else:
         bound.open.append(f"the rounds ran out ({rounds})")
     bound.pricing_complete = bound.pricing_complete or complete_round

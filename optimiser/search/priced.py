@@ -34,6 +34,10 @@ __all__ = ["MAX_LEVELS", "priced_search"]
 #: Price levels at most: more cut the drawer finer (smaller searches, each with
 #: a higher floor) at the price of more searches.
 MAX_LEVELS = 12
+#: Seconds each level's search may take in a quick search (``Pricing.quick``),
+#: which proves nothing: long enough to find designs where they are easy to
+#: find, short enough that one level without any does not hold up the round.
+QUICK_LEVEL_S = 1.0
 
 
 def _levels(prices: list[float]) -> list[float]:
@@ -79,6 +83,8 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
         if left is not None and left <= 0:
             complete = False
             break
+        if pricing.quick:
+            left = QUICK_LEVEL_S if left is None else min(left, QUICK_LEVEL_S)
         def keep(r, upper=upper):
             return r.id is None or price.get(r.id, 0.0) <= upper
 
@@ -94,11 +100,14 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
                                    workers=1, pricing=level)
         except InputError:
             designs = []            # the request's transistor is priced above this level
-        if stats.get("stopped_at_budget"):
+        if stats.get("stopped_at_budget") or stats.get("stopped_quick"):
             complete = False
         found.extend(designs)
         ranked = pricing.rank(found)
         prev = upper
+        if pricing.quick and len(ranked) >= top:
+            complete = False        # enough found, none ranked against the rest
+            break
         # every design outside this level takes a row priced at least `beyond`
         beyond = min((p for p in price.values() if p > upper), default=math.inf)
         if len(ranked) >= top and pricing.value(ranked[top - 1]) <= beyond:

@@ -119,6 +119,10 @@ class Pricing:
     #: Per-piece price lower bounds of the drawer searched (None: not known, and
     #: the skeleton level prunes by ``floor`` alone).
     pieces: PiecePrices | None = None
+    #: Stop as soon as ``top`` designs below the cutoff are found, ranked or not
+    #: (column generation's quick rounds: any negative reduced cost will do; such a
+    #: search proves nothing and is reported as not complete).
+    quick: bool = False
     _values: dict = field(default_factory=dict, compare=False, repr=False)
 
     def value(self, design: Design) -> float:

@@ -336,6 +336,9 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                 shared.best[k_part] = found[0].score
         if low >= kth:
             break
+        if pricing is not None and pricing.quick and len(pricing.rank(found)) >= top:
+            stats["stopped_quick"] = True       # enough below the cutoff; not ranked
+            break
         steps += 1
         if progress and steps % 5 == 0:
             progress(_status(found, top, low, cap, heaps, shared))
