@@ -14,7 +14,8 @@ for each column ``j`` it uses (every other copy of build ``b`` costs at least
 ``rc_j < least_b + gap / x_j``, ``gap = UB − LB``; a column carries at least
 :func:`~optimiser.planning.copies.carried` copies (all of an identical build), so
 only designs of reduced cost below ``least_b + gap / carried_b`` can improve the
-plan.  The priced search (capacitors priced at 0, a lower bound of ``rc``) lists
+plan.  The priced search (its value of a design is ``rc``, its bounds below a
+node lower bounds of it) lists
 all of them when it runs to its end and returns fewer than :data:`ENUM_TOP`; the
 programme over them then finds the best plan there is, and the gap is closed.
 

@@ -16,8 +16,10 @@ every copy of a build needs pieces of the priced pools worth at least μ_b, and 
 drawer holds less).
 
 Capacitors: the search chooses each network's capacitors by its own rule, not by
-price, so it prices capacitor pieces at 0 — a lower bound.  A design it finds that
-is not negative once its capacitors are priced leaves that build open.
+price; a design's value counts them at their prices all the same (its pieces are
+known once it is complete).  The search's bounds below a node, which know no
+capacitor yet, count them at 0: prices are ≥ 0, so those bounds stay lower
+bounds of the value, and the value of a complete design is its reduced cost.
 
 Copies carried together (:mod:`~optimiser.planning.copies`): a column of a build
 carries :func:`~optimiser.planning.copies.carried` copies at once (all of an
@@ -59,8 +61,12 @@ __all__ = ["PRICING_TIME_S", "MAX_ROUNDS", "RC_TOL", "Bound", "Duals", "Generate
 #: Seconds for all pricing searches together unless the caller gives its own
 #: (0: no pricing, the candidates alone).  Longer proves more on large drawers.
 PRICING_TIME_S = 60.0
-#: Pricing rounds at most (each: one relaxation, one search per build).
-MAX_ROUNDS = 25
+#: Pricing rounds at most (each: one relaxation, one search per build).  Most
+#: are quick rounds (each search stops at its first designs of negative reduced
+#: cost, :attr:`~optimiser.search.pricing.Pricing.quick`); a round whose quick
+#: searches add nothing is followed by one of complete searches, which alone
+#: give a bound and end pricing.
+MAX_ROUNDS = 60
 #: Designs each pricing search returns at most (the least reduced costs): more
 #: columns per round means fewer rounds, each relaxation a little larger.
 COLUMNS_PER_SEARCH = 5
@@ -122,7 +128,7 @@ class Duals:
     least: tuple[float, ...]
 
     def piece_price(self, pools: Pools, rows, catalogue, d: Design, k: int = 1) -> float:
-        """Σ price × pieces of one copy, capacitors at 0 (see the module notes)."""
+        """Σ price × pieces of one copy and the purchases ``k`` copies force."""
         return _search_price(self.price, rows, catalogue, pools, d, k)
 
     def row_price(self, pools: Pools, rid: int, k: int = 1) -> float:
@@ -201,8 +207,8 @@ def _forced(price: dict, pools: Pools, p: tuple, n: int, k: int) -> float:
 
 
 def _search_price(price: dict, rows, catalogue, pools, d: Design, k: int = 1) -> float:
-    """Σ price × pieces of one copy and the purchases ``k`` copies force, capacitors
-    at 0 (a lower bound, see the module notes)."""
+    """Σ price × pieces of one copy and the purchases ``k`` copies force: with the
+    design's score term, its reduced cost (:func:`_with_forced`)."""
     try:
         need = design_demand(d, rows, catalogue)
     except Unusable:
@@ -210,8 +216,7 @@ def _search_price(price: dict, rows, catalogue, pools, d: Design, k: int = 1) ->
     per: dict[tuple, int] = {}
     for rid, n in need.items():
         p = pools.of_row[rid]
-        if p[0] != "capacitor":
-            per[p] = per.get(p, 0) + n
+        per[p] = per.get(p, 0) + n
     return sum(price.get(p, 0.0) * n + _forced(price, pools, p, n, k) for p, n in per.items())
 
 
@@ -302,6 +307,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                           f"{len(items[b].candidates)} designs the chain search offered "
                           "(pricing searches single stages)")
     complete_round = False
+    quick = True            # quick rounds first: any negative columns, nothing proven
     for rnd in range(rounds):
         sol = solve_master(columns, counts, pools, phase1=phase1)
         if sol.status != "Optimal":
@@ -350,7 +356,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
             pricing = Pricing(0.0 if phase1 else 1.0, score_map, score_map_inverse,
                               lambda d, sol=sol, k=k: _search_price(sol.price, rows, catalogue,
                                                                     pools, d, k),
-                              top_mu[key] - RC_TOL)
+                              top_mu[key] - RC_TOL, quick=quick)
             if key not in searched:     # builds of one request share one search per round
                 if k not in drawers:
                     drawers[k] = copies_drawer(augmented, k)
@@ -367,7 +373,7 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 round_exact = False
             found = [d for d in found if pricing.value(d) < mu - RC_TOL]
             found = [d for d in found if d.meets_spec]
-            # the least reduced cost of this build (a lower bound: capacitors at 0)
+            # the least reduced cost of this build
             least.append(min([pricing.value(d) - mu for d in found] + [-RC_TOL]))
             new_here = 0
             overdrawn = 0
@@ -388,13 +394,13 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 col_design.append((b, d))
                 new_here += 1
             if found and not new_here:
-                # only what the search's value leaves out keeps them from counting:
-                # the least value still bounds (a lower bound), but pricing is not done
+                # what the search's value leaves out (rows overdrawn by two roles of
+                # one value) keeps them from counting: the least value still bounds
+                # (a lower bound), but pricing is not done
                 stalled = True
                 msg = (f"{it.name}: designs that take more of a value than its rows hold "
                        f"for {k} copies" if overdrawn else
-                       f"{it.name}: designs whose capacitors' prices or forced purchases "
-                       "the search does not weigh")
+                       f"{it.name}: designs the search values below their reduced cost")
                 if msg not in bound.open:
                     bound.open.append(msg)
             added += new_here
@@ -420,7 +426,11 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
                 complete_round = not stalled
                 break
         elif added == 0:
+            if quick:
+                quick = False   # nothing found quickly: the next round searches exactly
+                continue
             break
+        quick = True
     else:
         bound.open.append(f"the rounds ran out ({rounds})")
     bound.pricing_complete = bound.pricing_complete or complete_round

@@ -26,7 +26,7 @@ from inventory.errors import InputError
 from inventory.parts import StockSnapshot
 from optimiser.design import Design
 from optimiser.request import Request
-from optimiser.search.pricing import Pricing
+from optimiser.search.pricing import PiecePrices, Pricing
 from optimiser.search.tree import search_designs
 
 __all__ = ["MAX_LEVELS", "priced_search"]
@@ -34,6 +34,10 @@ __all__ = ["MAX_LEVELS", "priced_search"]
 #: Price levels at most: more cut the drawer finer (smaller searches, each with
 #: a higher floor) at the price of more searches.
 MAX_LEVELS = 12
+#: Seconds each level's search may take in a quick search (``Pricing.quick``),
+#: which proves nothing: long enough to find designs where they are easy to
+#: find, short enough that one level without any does not hold up the round.
+QUICK_LEVEL_S = 1.0
 
 
 def _levels(prices: list[float]) -> list[float]:
@@ -58,7 +62,10 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
     """The ``top`` designs of least priced value below the cutoff; and whether
     the searches behind them ran to their end (the ranking is then exact).
 
-    ``row_price(id)`` is the price of one piece of a row (≥ 0).
+    ``row_price(id)`` is the price of one piece of a row (≥ 0); ``pricing.price``
+    must charge each piece of a design at least its row's price (capacitors may
+    count 0), since the search prunes skeletons by the sum of their pieces'
+    prices (:class:`~optimiser.search.pricing.PiecePrices`).
     """
     search_fn = search_fn or search_designs
     t0 = time.perf_counter()
@@ -76,6 +83,8 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
         if left is not None and left <= 0:
             complete = False
             break
+        if pricing.quick:
+            left = QUICK_LEVEL_S if left is None else min(left, QUICK_LEVEL_S)
         def keep(r, upper=upper):
             return r.id is None or price.get(r.id, 0.0) <= upper
 
@@ -83,17 +92,22 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
                        capacitors=tuple(c for c in snapshot.capacitors if keep(c)),
                        transistors=tuple(t for t in snapshot.transistors if keep(t)))
         stats: dict = {"pruned": {}}
-        level = replace(pricing, floor=floor, _values={})
+        pieces = PiecePrices.of([(r.value, price.get(r.id, 0.0)) for r in snap.resistors],
+                                [(t.label, price.get(t.id, 0.0)) for t in snap.transistors])
+        level = replace(pricing, floor=floor, pieces=pieces, _values={})
         try:
             designs, _ = search_fn(request, snap, top, stats, budget_s=left, given=[],
                                    workers=1, pricing=level)
         except InputError:
             designs = []            # the request's transistor is priced above this level
-        if stats.get("stopped_at_budget"):
+        if stats.get("stopped_at_budget") or stats.get("stopped_quick"):
             complete = False
         found.extend(designs)
         ranked = pricing.rank(found)
         prev = upper
+        if pricing.quick and len(ranked) >= top:
+            complete = False        # enough found, none ranked against the rest
+            break
         # every design outside this level takes a row priced at least `beyond`
         beyond = min((p for p in price.values() if p > upper), default=math.inf)
         if len(ranked) >= top and pricing.value(ranked[top - 1]) <= beyond:

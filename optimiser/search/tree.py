@@ -37,7 +37,12 @@ from optimiser.search.confirm import (
 from optimiser.search.job import _Job
 from optimiser.search.limits import gain_window
 from optimiser.search.miss_pool import MissPool
-from optimiser.search.pricing import Pricing, score_to_beat
+from optimiser.search.pricing import (
+    Pricing,
+    score_to_beat,
+    skeleton_price,
+    skeleton_score_to_beat,
+)
 from optimiser.search.seeding import _seed_designs
 from optimiser.search.skeletons import FORMS, Skeletons, _take_all
 from optimiser.search.stock import _ratings_best
@@ -139,6 +144,15 @@ def search_designs(request: Request, snapshot: StockSnapshot, top: int, stats: d
     for r, d in enumerate(found, 1):
         d.rank = r
     return found, pool
+
+
+def _priced_kth(pricing, found, top, sk, kth):
+    """The score to beat per skeleton of ``sk``: ``kth``, lowered by what its
+    pieces' prices already take of the value to beat (:mod:`.pricing`)."""
+    if pricing is None or pricing.pieces is None:
+        return kth
+    price_lb = skeleton_price(pricing, sk, sk.transistor.label)
+    return np.minimum(kth, skeleton_score_to_beat(pricing, found, top, price_lb))
 
 
 def _distinct(designs: list[Design]) -> list[Design]:
@@ -357,6 +371,9 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                 shared.best[k_part] = found[0].score
         if low >= kth:
             break
+        if pricing is not None and pricing.quick and len(pricing.rank(found)) >= top:
+            stats["stopped_quick"] = True       # enough below the cutoff; not ranked
+            break
         steps += 1
         if progress and steps % 5 == 0:
             progress(_status(found, top, low, cap, heaps, shared))
@@ -419,7 +436,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             if request.ic_drift_max_pct is not None:
                 ok &= drift <= request.ic_drift_max_pct
             lb15 = skeleton_bound(request, sk.gdb, drift, sk.hd2, sk.supply, op.vce, sk.stock_lb)
-            live = np.flatnonzero(ok & (lb15 < kth))
+            live = np.flatnonzero(ok & (lb15 < _priced_kth(pricing, found, top, sk, kth)))
             live = live[f_low_prescreen(request, opts, sk.take(live), stats)]
             if thd_direct and live.size:
                 live = live[thd_keep(request, sk.take(live), b.take(live), model,
@@ -444,6 +461,14 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             for entries in groups.values():
                 sk = entries[0][1]
                 li = np.array([e[2] for e in entries])
+                if pricing is not None and pricing.pieces is not None:
+                    # the value to beat may have fallen since the skeleton was queued
+                    kv = _priced_kth(pricing, found, top, sk.take(li), kth)
+                    keep = np.array([e[0] for e in entries]) < kv
+                    if not keep.any():
+                        continue
+                    entries = [e for e, k in zip(entries, keep, strict=True) if k]
+                    li = li[keep]
                 part = sk.take(li)
                 ev = _evaluate(request, part.batch(), sk.transistor, _ratings_best(part, opts),
                                band_edges=False, large_signal=False)
@@ -466,6 +491,10 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                     if _design_key(d) not in known:
                         known.add(_design_key(d))
                         found.append(d)
+            if pricing is not None:
+                # only the top values count (the value to beat, the answer): the
+                # rest would only be sorted again and again
+                found[:] = pricing.rank(found)[:top]
             found.sort(key=_rank_key)
             if thd_cut and found and not thd_backlog and screen_active(request, stats):
                 # the THD check took effect: the skeletons queued before it, at once
