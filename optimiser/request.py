@@ -53,6 +53,10 @@ class Request:
     #: proof's relaxed stage requests, where a stage alone, into an open load, may peak
     #: where its chain does not; docs/search.md, "What is proven")
     flat_passband: bool = True
+    #: capacitor roles whose voltage rating is not judged (no file sets it: in the
+    #: chain proof's relaxed stage requests the role that becomes the chain's C_COUPLE,
+    #: which sees another voltage there than it does alone)
+    unrated_caps: tuple[str, ...] = ()
 
     @property
     def gain_db(self) -> float | None:
@@ -82,6 +86,10 @@ class Request:
             del d["coupling"]
         if self.flat_passband:
             del d["flat_passband"]
+        if not self.unrated_caps:
+            del d["unrated_caps"]
+        else:
+            d["unrated_caps"] = list(self.unrated_caps)
         return d
 
 

@@ -25,6 +25,7 @@ import numpy as np
 
 from optimiser.request import Request
 from optimiser.score import THD_UNIT_PCT, gain_term, hd2_pct, score_gain_target
+from optimiser.search.chain_confirm import COUPLED
 from optimiser.search.chain_followers import stage_request
 
 __all__ = ["WINDOW_DB", "PROOF_INPUT_VPK", "FOLLOWER_CEILING_DB", "proof_requests", "slack",
@@ -71,6 +72,9 @@ def proof_requests(chain: Request) -> tuple[Request, Request]:
         lo = chain.gain_db - chain.gain_tol_db
         first.update(_window(lo, lo + WINDOW_DB))
     second = dict(common, **_window(-WINDOW_DB, FOLLOWER_CEILING_DB))
+    # the first stage's C_OUT and the follower's C_IN become the chain's C_COUPLE, which
+    # sees V_C1 − V_B2 there, not what either sees alone: their ratings are not judged
+    first["unrated_caps"], second["unrated_caps"] = (COUPLED[0],), (COUPLED[1],)
     return stage_request(chain, kind1, **first), stage_request(chain, kind2, **second)
 
 

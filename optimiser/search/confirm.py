@@ -143,7 +143,7 @@ def _confirm_group(request, opts: StockOptions, sk: Skeletons, entries, stats, p
     t_empty = int(t.qty - request.builds <= 0 and (t.id is None or t.id >= 0))
     li_all, rows, allocs, allowed, st_all = [], [], [], [], []
     for _lb2, _, _, i, row in entries:
-        st = _stresses(sk, i, {k: [v] for k, v in row.items()}, 0, V)
+        st = _stresses(sk, i, {k: [v] for k, v in row.items()}, 0, V, request.unrated_caps)
         rroles = resistor_roles(sk.topology, sk.form, float(sk.RC[i]))
         alloc = opts.allocate({r: ("resistor", float(getattr(sk, r)[i]), st[r]) for r in rroles})
         if alloc is None:
@@ -388,7 +388,7 @@ def pool_quick_rejects(request, opts: StockOptions, sk: Skeletons, li, rows, ev,
         if not pool.admits(rank) or not all(np.isfinite(ev.metrics[k][j])
                                             for k in ("vb_v", "ve_v", "vc_v")):
             continue
-        st = _stresses(sk, int(i), ev.metrics, j, V)
+        st = _stresses(sk, int(i), ev.metrics, j, V, request.unrated_caps)
         alloc = opts.allocate({r: ("resistor", float(getattr(sk, r)[i]), st[r])
                                for r in resistor_roles(sk.topology, sk.form, float(sk.RC[i]))})
         if alloc is None:

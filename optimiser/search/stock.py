@@ -38,8 +38,10 @@ def _ratings_best(sk: Skeletons, opts: StockOptions, caps_voltage: dict | None =
     return PartRatings(power_w=pw, power_share=share, voltage_v=volt)
 
 
-def _stresses(sk: Skeletons, i: int, m: dict, j: int, V: float) -> dict[str, float]:
-    """DC dissipation (W) of each resistor role, |DC voltage| (V) of each capacitor role."""
+def _stresses(sk: Skeletons, i: int, m: dict, j: int, V: float,
+              unrated=()) -> dict[str, float]:
+    """DC dissipation (W) of each resistor role, |DC voltage| (V) of each capacitor role
+    (0 for the roles ``unrated``: the request's ``unrated_caps``)."""
     vb, ve, vc = float(m["vb_v"][j]), float(m["ve_v"][j]), float(m["vc_v"][j])
     r1, r2, rc, re, byp = (float(getattr(sk, k)[i]) for k in ("R1", "R2", "RC", "RE", "RE_BYP"))
     ie = ve / (re + byp) if re + byp > 0 else 0.0
@@ -49,7 +51,7 @@ def _stresses(sk: Skeletons, i: int, m: dict, j: int, V: float) -> dict[str, flo
     # the junction of RE and RE_BYP sits at I_E·RE_BYP
     node = SimpleNamespace(vb=vb, ve=ve, vc=vc, vx=ie * byp)
     for role, (v, _, _) in module(sk.topology).capacitors(sk, node).items():
-        s[role] = abs(v)
+        s[role] = 0.0 if role in unrated else abs(v)
     return s
 
 
