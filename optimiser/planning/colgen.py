@@ -300,7 +300,8 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         bound.offered_only.append(items[b].name)
         bound.open.append(f"{items[b].name}: a chain build, planned over the "
                           f"{len(items[b].candidates)} designs the chain search offered "
-                          "(pricing searches single stages)")
+                          "(those needing values to order among them; pricing "
+                          "searches single stages)")
     complete_round = False
     for rnd in range(rounds):
         sol = solve_master(columns, counts, pools, phase1=phase1)
