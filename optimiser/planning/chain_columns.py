@@ -3,14 +3,16 @@
 A build whose request names two stages (``topology = ["ce", "cc"]``) is offered the
 best designs of :func:`optimiser.search.chains.search_chains`, searched for the copies
 one column carries (:func:`~optimiser.planning.copies.carried`) over the drawer as it
-is (and per transistor type, as :func:`~optimiser.planning.candidates.gather_candidates`
-does for single stages).  Each becomes a :class:`ChainPlanDesign`: every piece of both stages under its
+is and, with a ``[purchase]`` table, over the drawer plus the values it offers (and per
+transistor type, as :func:`~optimiser.planning.candidates.gather_candidates` does for
+single stages).  Each becomes a :class:`ChainPlanDesign`: every piece of both stages under its
 role (``S1.RC``, ``S2.RE``, ``C_COUPLE`` …) and one piece of each stage's transistor
 under ``S1.Q`` and ``S2.Q``, so that the programme counts both transistors and every
 piece against the same stock rows as the single-stage columns.
 
 Column generation does not price chains: a chain build is planned over the designs
-offered here, and the plan's bound says so (``offered_only``, docs/plan.md).
+offered here (those needing a value to order among them, bought as any column's), and
+the plan's bound says so (``offered_only``, docs/plan.md).
 """
 
 from __future__ import annotations
@@ -21,10 +23,14 @@ from dataclasses import dataclass, field, replace
 from inventory.errors import InputError
 from inventory.parts import StockSnapshot
 from optimiser.design import Design, Piece, RolePick, _clean
-from optimiser.planning.candidates import PER_TYPE_DIVISOR, PER_TYPE_MIN, CandidateSearches
+from optimiser.planning.candidates import (
+    PER_TYPE_DIVISOR,
+    PER_TYPE_MIN,
+    CandidateSearches,
+    design_key,
+)
 from optimiser.request import Request
 from optimiser.search.chain_answer import ChainDesign
-from optimiser.search.chain_confirm import chain_key
 from optimiser.search.chains import search_chains
 
 __all__ = ["TRANSISTOR_ROLE", "ChainPlanDesign", "chain_design", "chain_candidates"]
@@ -88,17 +94,30 @@ def chain_design(c: ChainDesign, snapshot: StockSnapshot) -> ChainPlanDesign | N
 
 
 def chain_candidates(request: Request, snapshot: StockSnapshot, *, top: int,
-                     search_time_s: float | None, copies: int = 1
+                     search_time_s: float | None, copies: int = 1,
+                     augmented: StockSnapshot | None = None
                      ) -> tuple[list[ChainPlanDesign], str, CandidateSearches]:
     """The chain search's best ``top`` designs for ``copies`` copies carried at once, and
     for a request open to any transistor the best few on each type those leave short
     (both stages on it), as plan columns ranked by score; ``note`` says why there are
-    none (the search's own reasons)."""
+    none (the search's own reasons).
+
+    ``augmented``: the drawer plus the values the ``[purchase]`` table offers
+    (:func:`optimiser.purchase.augment`); when given, the best ``top`` over it too, and
+    the per-type searches over it (as :func:`~optimiser.planning.candidates.gather_candidates`
+    does for single stages).  Their pieces of values to order name the virtual rows,
+    which the programme prices as any column's purchases."""
     t0 = time.perf_counter()
     one = replace(request, builds=max(int(copies), 1))
-    res = search_chains(one, snapshot, top=top, time_limit_s=search_time_s)
+    wider = augmented if augmented is not None else snapshot
+    res = search_chains(one, snapshot, top=top, time_limit_s=search_time_s, unlocks=False)
     found = [c for c in res.designs if c.meets_spec]
     runs, stopped = 1, int(not res.search.get("stage_searches_complete", True))
+    if wider is not snapshot:
+        more = search_chains(one, wider, top=top, time_limit_s=search_time_s, unlocks=False)
+        runs += 1
+        stopped += int(not more.search.get("stage_searches_complete", True))
+        found += [c for c in more.designs if c.meets_spec]
     if request.transistor == "any":
         # as for single stages: a type the best chains leave short gets its own
         # search (both stages on it), so that a scarce type never leaves the
@@ -108,20 +127,22 @@ def chain_candidates(request: Request, snapshot: StockSnapshot, *, top: int,
             if sum(t in c.transistors for c in found) >= per:
                 continue
             try:
-                more = search_chains(replace(one, transistor=t), snapshot, top=per,
-                                     time_limit_s=search_time_s)
+                more = search_chains(replace(one, transistor=t), wider, top=per,
+                                     time_limit_s=search_time_s, unlocks=False)
             except InputError:
                 continue
             runs += 1
             stopped += int(not more.search.get("stage_searches_complete", True))
             found += [c for c in more.designs if c.meets_spec]
     seen: set[tuple] = set()
-    unique = []
+    designs = []
+    # (the same values from stock rows and from rows to order are two columns, as for
+    # single stages: design_key names the rows)
     for c in sorted(found, key=lambda c: c.score):
-        if chain_key(c) not in seen:
-            seen.add(chain_key(c))
-            unique.append(c)
-    designs = [d for d in (chain_design(c, snapshot) for c in unique) if d is not None]
+        d = chain_design(c, snapshot)
+        if d is not None and design_key(d) not in seen:
+            seen.add(design_key(d))
+            designs.append(d)
     for k, d in enumerate(designs, start=1):
         d.rank = k                       # the rank among every chain offered
     note = ""

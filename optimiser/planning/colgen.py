@@ -305,7 +305,8 @@ def generate_columns(items: Sequence[PlanItem], requests: Sequence, augmented: S
         bound.offered_only.append(items[b].name)
         bound.open.append(f"{items[b].name}: a chain build, planned over the "
                           f"{len(items[b].candidates)} designs the chain search offered "
-                          "(pricing searches single stages)")
+                          "(those needing values to order among them; pricing "
+                          "searches single stages)")
     complete_round = False
     quick = True            # quick rounds first: any negative columns, nothing proven
     for rnd in range(rounds):

@@ -111,7 +111,8 @@ def make_plan(buildlist, snapshot: StockSnapshot, *, solver: str = "cbc", candid
         if b.request.is_pair:
             designs, note, st = chain_candidates(b.request, snapshot, top=candidates,
                                                  search_time_s=search_time_s,
-                                                 copies=carried(b.count, b.identical))
+                                                 copies=carried(b.count, b.identical),
+                                                 augmented=augmented)
         else:
             designs, note, st = gather_candidates(b.request, snapshot, augmented,
                                                   top=candidates, search_fn=search_fn,

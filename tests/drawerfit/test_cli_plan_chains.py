@@ -178,3 +178,59 @@ def test_a_cascode_build_commits_shows_its_sheet_and_undoes(store_url, tmp_path)
     r = run("builds", "undo", str(d["build_id"]))
     assert r.exit_code == 0, r.output
     assert export("after.csv") == before
+
+
+#: The drawer without its capacitor: a chain can be built only with capacitors bought.
+NO_CAPS = "\n".join(line for line in DRAWER.splitlines() if not line.startswith("capacitor"))
+BUY_LIST = """\
+[[build]]
+request = "chain.toml"
+count = 2
+
+[purchase]
+series = "E12"
+cap_series = "E6"
+pack = 10
+"""
+
+
+def test_chain_build_with_purchases_commits_and_undoes(store_url, tmp_path):
+    runner = CliRunner()
+
+    def run(*args):
+        return runner.invoke(cli, ["--db", store_url, *args])
+
+    (tmp_path / "drawer.csv").write_text(NO_CAPS + "\n")
+    assert run("stock", "import", str(tmp_path / "drawer.csv")).exit_code == 0
+    (tmp_path / "chain.toml").write_text(CHAIN)
+    (tmp_path / "list.toml").write_text(BUY_LIST)
+
+    def export(name):
+        r = run("stock", "export", str(tmp_path / name))
+        assert r.exit_code == 0, r.output
+        return (tmp_path / name).read_bytes()
+
+    def held():
+        with open(tmp_path / "now.csv", newline="", encoding="utf-8") as f:
+            return sum(int(r["qty"]) for r in csv.DictReader(f))
+
+    before = export("before.csv")
+    export("now.csv")
+    n0 = held()
+    r = run("plan", str(tmp_path / "list.toml"), "--json", "--commit", *QUICK)
+    assert r.exit_code == 0, r.output
+    d = json.loads(r.stdout)
+    assert d["feasible"] and d["purchases"] and d["cost"] > 0
+    (alloc,) = d["builds"][0]["allocations"]
+    assert alloc["copies"] == 2 and alloc["design"]["topology"] == ["ce", "cc"]
+    # pieces by hand: every role's pieces and both transistors per copy; those the order
+    # supplies ("used") do not leave the drawer, the rest do
+    per_copy = sum(p["count"] for pick in alloc["design"]["parts"].values()
+                   for p in pick["pieces"]) + 2
+    used = sum(p["used"] for p in d["purchases"])
+    assert 0 < used <= 2 * per_copy
+    export("now.csv")
+    assert n0 - held() == 2 * per_copy - used
+    r = run("builds", "undo", str(d["build_id"]))
+    assert r.exit_code == 0, r.output
+    assert export("after.csv") == before

@@ -20,6 +20,7 @@ from optimiser.buildlist import BuildList, BuildSpec
 from optimiser.planning import gather_candidates, make_plan
 from optimiser.planning.chain_columns import chain_candidates
 from optimiser.planning.objective import score_map
+from optimiser.purchase import PurchaseOptions, augment
 from optimiser.request import parse_request
 
 # invented parts; figures of a small-signal NPN from memory
@@ -167,3 +168,71 @@ def test_no_plan_over_the_chains_offered_is_not_a_proof_of_the_drawer():
     assert any(o.startswith("no plan exists over the chain designs offered")
                for o in d["bound"]["open"])
     assert d["infeasible"] and not any(s["proven"] for s in d["infeasible"])
+
+
+# --- a chain build the drawer cannot supply but purchases can ---------------------------
+
+#: The same drawer without its capacitor: no chain can be built from it alone.
+NO_CAPS = StockSnapshot(RES, (), (N1, N2))
+#: E12 resistors and E6 capacitors to order, 10 a pack, 0.50 a line (invented prices).
+BUY = PurchaseOptions(series="E12", cap_series="E6", pack=10, resistor_price=0.02,
+                      capacitor_price=0.10, line_cost=0.50)
+
+
+def _order_cost_by_hand(design, copies: int) -> float:
+    """What one build of ``copies`` copies of ``design`` must order: per value of a
+    piece to order, what the drawer's rows of that value (kind and value alike) do not
+    hold, in whole packs, plus one line each (the [purchase] prices above)."""
+    need: Counter = Counter()
+    for pick in design.parts.values():
+        for p in pick.pieces:
+            if p.id is not None and p.id < 0:
+                need[(p.kind, p.value)] += p.count * copies
+    held = Counter()
+    for r in RES:
+        held[("resistor", r.value)] += r.qty
+    cost = 0.0
+    for (kind, value), n in need.items():
+        short = max(n - held[(kind, value)], 0)
+        if short:
+            packs = -(-short // BUY.pack)
+            cost += packs * BUY.pack * BUY.price(kind) + BUY.line_cost
+    return cost
+
+
+def test_a_chain_build_the_drawer_cannot_supply_buys_the_least_it_needs():
+    # the precondition: from the drawer alone the chain search offers nothing
+    alone, note, _ = chain_candidates(CHAIN, NO_CAPS, top=KW["candidates"],
+                                      search_time_s=KW["search_time_s"])
+    assert alone == [] and note.startswith("no chain meets the request from this drawer")
+    blist = BuildList((_spec("chain", CHAIN, 1),), purchase=BUY)
+    # the programme over the candidates alone (no pricing), so that the reference
+    # below sees exactly the designs it was offered
+    plan = make_plan(blist, NO_CAPS, **{**KW, "pricing_time_s": 0})
+    assert plan.feasible and plan.purchases
+    (bp,) = plan.builds
+    (a,) = bp.allocations
+    assert a.copies == 1 and a.design.topology == "ce-cc"
+    # reference: every design offered, its order counted by hand; the plan orders the
+    # least of them, and exactly what its own design needs
+    augmented, _ = augment(NO_CAPS, BUY)
+    offered, _, _ = chain_candidates(CHAIN, NO_CAPS, top=KW["candidates"],
+                                     search_time_s=KW["search_time_s"], augmented=augmented)
+    assert offered and all(any(p.id < 0 for pick in d.parts.values() for p in pick.pieces)
+                           for d in offered)
+    least = min(_order_cost_by_hand(d, 1) for d in offered)
+    assert plan.cost == pytest.approx(least, abs=1e-9)
+    assert sum(p.cost for p in plan.purchases) == pytest.approx(plan.cost, abs=1e-9)
+    # every piece of the copy comes from a stock row or from the order: the pieces
+    # counted by hand (both transistors included) are those the allocation takes from
+    # stock plus those of the order it uses
+    per_copy = sum(_pieces_by_hand(a.design).values())
+    assert sum(a.pieces.values()) + sum(p.used for p in plan.purchases) == per_copy
+    for rid, used in a.pieces.items():
+        assert rid > 0 and used <= QTY[rid]
+    # what is proven is said: the chain build is planned over the designs offered
+    from drawerfit.render.plan import bound_line
+
+    assert plan.bound is None or "chain" in plan.bound.offered_only
+    if plan.bound is not None:
+        assert "designs the chain search offered for chain" in bound_line(plan.bound)
