@@ -290,7 +290,7 @@ def with_swing(request: Request, snapshot: StockSnapshot, designs: list[ChainDes
 
 def chain_verdict(request: Request, snapshot: StockSnapshot, design: ChainDesign) -> bool:
     """The pair engine's verdict on ``design`` as built (its pieces' ratings) against
-    ``request``: every target and validity rule met, THD and swing included."""
+    ``request``: every target and validity rule satisfied, THD and swing included."""
     form = form_of(request.topology, request.coupling)
     batch, transistors, ratings = _batch(form, [(design.parts, 0)], snapshot,
                                          tuple(design.transistors))
