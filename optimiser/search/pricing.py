@@ -54,7 +54,8 @@ class PiecePrices:
         Least price of one piece per transistor label.
     joined : float
         A lower bound of any value made of two joined pieces: twice the least
-        resistor price.
+        resistor price; inf where no role may be a joined pair (a role's value is
+        then always one piece of a row of that value).
     """
 
     values: np.ndarray
@@ -64,8 +65,10 @@ class PiecePrices:
 
     @classmethod
     def of(cls, resistors: Sequence[tuple[float, float]],
-           transistors: Sequence[tuple[str, float]]) -> "PiecePrices":
-        """From (value, price) per resistor row and (label, price) per transistor row."""
+           transistors: Sequence[tuple[str, float]], combos: bool = True) -> "PiecePrices":
+        """From (value, price) per resistor row and (label, price) per transistor row;
+        ``combos``: whether a role may be two joined pieces (the request's
+        ``allow_combos``; without them one free row no longer bounds every role by 0)."""
         least: dict[float, float] = {}
         for v, pr in resistors:
             least[float(v)] = min(least.get(float(v), math.inf), float(pr))
@@ -74,7 +77,7 @@ class PiecePrices:
         tp: dict[str, float] = {}
         for label, pr in transistors:
             tp[label] = min(tp.get(label, math.inf), float(pr))
-        joined = 2.0 * float(prices.min()) if prices.size else math.inf
+        joined = 2.0 * float(prices.min()) if prices.size and combos else math.inf
         return cls(vals, prices, tp, joined)
 
     def value_price(self, v: np.ndarray) -> np.ndarray:

@@ -205,7 +205,8 @@ def test_priced_search_agrees_with_enumeration(case, prices, t_price, weight):
     # with each piece's price known (the skeleton level prunes by their sum) the
     # least value is still the enumeration's
     pieces = PiecePrices.of([(r.value, by_id[r.id]) for r in snap.resistors],
-                            [(t.label, t_price) for t in snap.transistors])
+                            [(t.label, t_price) for t in snap.transistors],
+                            combos=req.allow_combos)
     priced = replace(pricing, pieces=pieces, _values={})
     found2, _ = search_designs(req, snap, 3, {"pruned": {}}, given=[], workers=1,
                                pricing=priced)
@@ -231,7 +232,8 @@ def test_node_price_never_exceeds_a_priced_value_below_the_node(case, prices, t_
     req, snap = case
     price = dict(zip(sorted(r.value for r in snap.resistors), prices, strict=False))
     pieces = PiecePrices.of([(r.value, price[r.value]) for r in snap.resistors],
-                            [(t.label, t_price) for t in snap.transistors])
+                            [(t.label, t_price) for t in snap.transistors],
+                            combos=req.allow_combos)
     pricing = Pricing(weight, score_map, score_map_inverse, lambda d: 0.0, math.inf,
                       pieces=pieces)
     label = snap.transistors[0].label
@@ -253,7 +255,7 @@ def test_node_price_never_exceeds_a_priced_value_below_the_node(case, prices, t_
     fixed = {"R1": np.array([max(price)]), "R2": np.array([min(price)])}
     open_ = {r: np.array(sorted(price)) for r in ("RC", "RE")}
     lb = node_price(pricing, label, fixed, open_)[0]
-    least = min(price.values())
+    least = min(price.values()) if req.allow_combos else math.inf
     want = (t_price + min(price[max(price)], 2 * least) + min(price[min(price)], 2 * least)
-            + 2 * least)
+            + min(price.values()) * 2)
     assert math.isclose(lb, want, abs_tol=1e-12)
