@@ -93,7 +93,8 @@ def priced_search(request: Request, snapshot: StockSnapshot, pricing: Pricing,
                        transistors=tuple(t for t in snapshot.transistors if keep(t)))
         stats: dict = {"pruned": {}}
         pieces = PiecePrices.of([(r.value, price.get(r.id, 0.0)) for r in snap.resistors],
-                                [(t.label, price.get(t.id, 0.0)) for t in snap.transistors])
+                                [(t.label, price.get(t.id, 0.0)) for t in snap.transistors],
+                                combos=request.allow_combos)
         level = replace(pricing, floor=floor, pieces=pieces, _values={})
         try:
             designs, _ = search_fn(request, snap, top, stats, budget_s=left, given=[],

@@ -35,7 +35,8 @@ import numpy as np
 
 from optimiser.design import Design
 
-__all__ = ["PiecePrices", "Pricing", "score_to_beat", "skeleton_price", "skeleton_score_to_beat"]
+__all__ = ["PiecePrices", "Pricing", "node_price", "score_to_beat", "skeleton_price",
+           "skeleton_score_to_beat"]
 
 #: The resistor roles of a skeleton (a value of 0: the role is absent).
 _ROLES = ("R1", "R2", "RC", "RE", "RE_BYP")
@@ -53,7 +54,8 @@ class PiecePrices:
         Least price of one piece per transistor label.
     joined : float
         A lower bound of any value made of two joined pieces: twice the least
-        resistor price.
+        resistor price; inf where no role may be a joined pair (a role's value is
+        then always one piece of a row of that value).
     """
 
     values: np.ndarray
@@ -63,8 +65,10 @@ class PiecePrices:
 
     @classmethod
     def of(cls, resistors: Sequence[tuple[float, float]],
-           transistors: Sequence[tuple[str, float]]) -> "PiecePrices":
-        """From (value, price) per resistor row and (label, price) per transistor row."""
+           transistors: Sequence[tuple[str, float]], combos: bool = True) -> "PiecePrices":
+        """From (value, price) per resistor row and (label, price) per transistor row;
+        ``combos``: whether a role may be two joined pieces (the request's
+        ``allow_combos``; without them one free row no longer bounds every role by 0)."""
         least: dict[float, float] = {}
         for v, pr in resistors:
             least[float(v)] = min(least.get(float(v), math.inf), float(pr))
@@ -73,7 +77,7 @@ class PiecePrices:
         tp: dict[str, float] = {}
         for label, pr in transistors:
             tp[label] = min(tp.get(label, math.inf), float(pr))
-        joined = 2.0 * float(prices.min()) if prices.size else math.inf
+        joined = 2.0 * float(prices.min()) if prices.size and combos else math.inf
         return cls(vals, prices, tp, joined)
 
     def value_price(self, v: np.ndarray) -> np.ndarray:
@@ -168,6 +172,38 @@ def skeleton_price(pricing: Pricing, sk, transistor: str) -> np.ndarray | None:
     total = np.full(np.asarray(sk.R1).shape, pp.transistor.get(transistor, 0.0), dtype=float)
     for role in _ROLES:
         total = total + pp.value_price(getattr(sk, role))
+    return total
+
+
+def node_price(pricing: Pricing, transistor: str, fixed: dict, open_values: dict
+               ) -> np.ndarray | None:
+    """Per node, a lower bound of the pieces' price of every skeleton below it
+    (None: no piece prices known).
+
+    ``fixed`` maps each role already fixed at the node to an array of its values
+    (one per node; 0: the role is absent); ``open_values`` maps each role not yet
+    fixed to the values it may still take below any node (0 among them where it
+    may be absent; a superset will do).  The bound is one piece of ``transistor``,
+    plus each fixed role's least price (:meth:`PiecePrices.value_price`), plus for
+    each open role the least price over its possible values.
+
+    Claim: for every skeleton whose fixed roles have the node's values and whose
+    open roles take values among ``open_values``, the bound is at most its
+    :func:`skeleton_price` — each term is at most that skeleton's term for the same
+    role, the open ones being minima over a set holding its value.  With every
+    role fixed it is :func:`skeleton_price` itself.
+    """
+    pp = pricing.pieces
+    if pp is None:
+        return None
+    shape = np.asarray(next(iter(fixed.values()))).shape if fixed else ()
+    total = np.full(shape, pp.transistor.get(transistor, 0.0), dtype=float)
+    for role in _ROLES:
+        if role in fixed:
+            total = total + pp.value_price(fixed[role])
+        elif role in open_values:
+            vals = np.asarray(open_values[role], dtype=float)
+            total = total + (float(pp.value_price(vals).min()) if vals.size else 0.0)
     return total
 
 

@@ -39,6 +39,7 @@ from optimiser.search.limits import gain_window
 from optimiser.search.miss_pool import MissPool
 from optimiser.search.pricing import (
     Pricing,
+    node_price,
     score_to_beat,
     skeleton_price,
     skeleton_score_to_beat,
@@ -153,6 +154,27 @@ def _priced_kth(pricing, found, top, sk, kth):
         return kth
     price_lb = skeleton_price(pricing, sk, sk.transistor.label)
     return np.minimum(kth, skeleton_score_to_beat(pricing, found, top, price_lb))
+
+
+def _node_keep(pricing, found, top, job, P, lb, kth, E=None, cache=None):
+    """Mask of the nodes (pairs ``P``, with emitter options ``E`` once fixed) of
+    ``job`` whose score bound ``lb`` lies below the score to beat lowered by what
+    their pieces' least prices already take of the value to beat
+    (:func:`optimiser.search.pricing.node_price`); None without piece prices."""
+    if pricing is None or pricing.pieces is None:
+        return None
+    cache = {} if cache is None else cache
+    key = (id(job), "open")
+    if key not in cache:        # the values each open role may take, once per job
+        cache[key] = {"RC": np.unique(job.rc_vals), "RE": np.unique(job.re_a),
+                      "RE_BYP": np.unique(job.byp_a)}
+    fixed = {"R1": job.R1[P], "R2": job.R2[P]}
+    open_ = dict(cache[key])
+    if E is not None:
+        fixed.update(RE=job.re_a[E], RE_BYP=job.byp_a[E])
+        del open_["RE"], open_["RE_BYP"]
+    price = node_price(pricing, job.t.label, fixed, open_)
+    return np.asarray(lb) < np.minimum(kth, skeleton_score_to_beat(pricing, found, top, price))
 
 
 def _distinct(designs: list[Design]) -> list[Design]:
@@ -349,6 +371,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
     thd_direct = thd_floor_applies(request)
     thd_cut = _thd_cut(request, pricing, until_one, keep_rejects)
     thd_backlog = False
+    price_cache: dict = {}      # per job, the values its open roles may take
     t_start = time.perf_counter()
     while any(heaps.values()):
         if budget_s is not None and time.perf_counter() - t_start > budget_s \
@@ -393,18 +416,42 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
             js, p, blk = payload.jobs, payload.pairs, payload.block
             if shared is not None and not shared.claim(blk, k_part):
                 continue                # another process searches this block
+            if pricing is not None and pricing.pieces is not None:
+                # a pair stays while some form of it may hold a design worth keeping
+                alive = np.zeros(p.size, dtype=bool)
+                for j in js:
+                    alive |= _node_keep(pricing, found, top, jobs[j], p, jobs[j].plb[p], kth,
+                                        cache=price_cache)
+                stats["pruned"]["price_pairs"] = (stats["pruned"].get("price_pairs", 0)
+                                                  + int((~alive).sum()))
+                p = p[alive]
+                if p.size == 0:
+                    continue
             dc = None
             if len(js) > 1 and len(FORMS[request.topology]) > 1:
                 dc = jobs[js[0]].span_dc_of(p, kth, [jobs[j] for j in js])
             for j in js:
                 P, a, b, blb = jobs[j].expand_pairs(p, kth, dc)
+                keep = _node_keep(pricing, found, top, jobs[j], P, blb, kth, cache=price_cache)
+                if keep is not None:
+                    P, a, b, blb = P[keep], a[keep], b[keep], blb[keep]
                 for s0 in range(0, P.size, NODE_BLOCK):
                     sl = slice(s0, s0 + NODE_BLOCK)
                     push(Entry(float(blb[s0]), next(seq), "blocks",
                                NodeBlock(j, P[sl], a[sl], b[sl])))
         elif kind == "blocks":
             j, P, a, b = payload.job, payload.pairs, payload.first, payload.last
+            keep = _node_keep(pricing, found, top, jobs[j], P, lb, kth, cache=price_cache)
+            if keep is not None:
+                P, a, b = P[keep], a[keep], b[keep]
+                if P.size == 0:
+                    continue
             P, E, ic_lo, d_lb, nlb = jobs[j].expand_blocks(P, a, b, kth)
+            keep = _node_keep(pricing, found, top, jobs[j], P, nlb, kth, E, cache=price_cache)
+            if keep is not None:
+                stats["pruned"]["price_nodes"] = (stats["pruned"].get("price_nodes", 0)
+                                                  + int((~keep).sum()))
+                P, E, ic_lo, d_lb, nlb = P[keep], E[keep], ic_lo[:, keep], d_lb[keep], nlb[keep]
             for s0 in range(0, P.size, NODE_BLOCK):
                 sl = slice(s0, s0 + NODE_BLOCK)
                 push(Entry(float(nlb[s0]), next(seq), "nodes",
@@ -412,6 +459,11 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
         elif kind == "nodes":
             j, P, E, ic_lo, d_lb = (payload.job, payload.pairs, payload.totals, payload.ic_bracket,
                                     payload.drift_lb)
+            keep = _node_keep(pricing, found, top, jobs[j], P, lb, kth, E, cache=price_cache)
+            if keep is not None:
+                P, E, ic_lo, d_lb = P[keep], E[keep], ic_lo[:, keep], d_lb[keep]
+                if P.size == 0:
+                    continue
             jobs[j].thd_cut_on = thd_cut and bool(found)
             sk = jobs[j].expand_nodes(P, E, ic_lo, d_lb, kth)
             if sk is not None:
@@ -420,7 +472,7 @@ def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, 
                     push(Entry(float(sub.lb[0]), next(seq), "cands", sub))
         elif kind == "cands":
             sk = payload
-            keep = sk.lb < kth
+            keep = sk.lb < _priced_kth(pricing, found, top, sk, kth)
             if not keep.all():
                 sk = _take_all(sk, np.flatnonzero(keep))
             if sk.n == 0:

@@ -8,6 +8,8 @@ References (outside the planner):
   stage priced by hand);
 * the programme over a far larger fixed list of designs (the bound must hold
   for its plan too);
+* the price bound of a node of the search tree (some roles fixed) against the
+  priced value of every stage of that enumeration below the node;
 * counting: a single-transistor stage takes one transistor per copy, so copies
   beyond the transistors held cannot be built by any design.
 """
@@ -17,7 +19,9 @@ from __future__ import annotations
 import math
 from collections import defaultdict
 from dataclasses import replace
+from types import SimpleNamespace
 
+import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -31,7 +35,7 @@ from optimiser.planning.objective import cost_quantum, score_map, score_map_inve
 from optimiser.purchase import PurchaseOptions, augment
 from optimiser.request import Request
 from optimiser.search import search_designs
-from optimiser.search.pricing import PiecePrices, Pricing
+from optimiser.search.pricing import PiecePrices, Pricing, node_price, skeleton_price
 from tests.optimiser.test_search_complete import buildable_meeting, cases, piece_counts
 
 T = Transistor("GP-N1", 100, 300, qty=10, ft=250e6, cob=4e-12, vceo=40, ic_max=0.1, pd=0.5,
@@ -201,8 +205,57 @@ def test_priced_search_agrees_with_enumeration(case, prices, t_price, weight):
     # with each piece's price known (the skeleton level prunes by their sum) the
     # least value is still the enumeration's
     pieces = PiecePrices.of([(r.value, by_id[r.id]) for r in snap.resistors],
-                            [(t.label, t_price) for t in snap.transistors])
+                            [(t.label, t_price) for t in snap.transistors],
+                            combos=req.allow_combos)
     priced = replace(pricing, pieces=pieces, _values={})
     found2, _ = search_designs(req, snap, 3, {"pruned": {}}, given=[], workers=1,
                                pricing=priced)
     assert math.isclose(priced.value(found2[0]), best, rel_tol=1e-9, abs_tol=1e-12)
+
+
+#: The roles fixed at each level of the search tree (pairs, bias nodes with their
+#: emitter option, the collector candidates, the skeleton), as a check of
+#: node_price's claim at every level.
+NODE_LEVELS = (("R1", "R2"), ("R1", "R2", "RE", "RE_BYP"), ("R1", "R2", "RC"),
+               ("R1", "R2", "RC", "RE", "RE_BYP"))
+ROLES = ("R1", "R2", "RC", "RE", "RE_BYP")
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=list(HealthCheck))
+@given(cases(), st.lists(st.sampled_from([0.0, 0.05, 0.2, 0.6, 2.5]), min_size=4, max_size=4),
+       st.sampled_from([0.0, 0.3]), st.sampled_from([1.0, 0.2]))
+def test_node_price_never_exceeds_a_priced_value_below_the_node(case, prices, t_price, weight):
+    """Every stage the enumeration finds lies below the node fixing its own values
+    in the fixed roles (the others open over the drawer's values and absence): the
+    node's price bound plus the stage's mapped score never exceeds the stage's
+    priced value, and with every role fixed it is the skeleton bound."""
+    req, snap = case
+    price = dict(zip(sorted(r.value for r in snap.resistors), prices, strict=False))
+    pieces = PiecePrices.of([(r.value, price[r.value]) for r in snap.resistors],
+                            [(t.label, t_price) for t in snap.transistors],
+                            combos=req.allow_combos)
+    pricing = Pricing(weight, score_map, score_map_inverse, lambda d: 0.0, math.inf,
+                      pieces=pieces)
+    label = snap.transistors[0].label
+    open_all = np.array([0.0, *sorted(price)])
+    for v, sc in buildable_meeting(req, snap):
+        rc, _ = piece_counts(v)
+        value = weight * score_map(sc) + t_price + sum(price[x] * n for x, n in rc.items())
+        for fixed_roles in NODE_LEVELS:
+            fixed = {r: np.array([v.get(r, 0.0)]) for r in fixed_roles}
+            open_ = {r: open_all for r in ROLES if r not in fixed_roles}
+            lb = node_price(pricing, label, fixed, open_)
+            assert weight * score_map(sc) + lb[0] <= value + 1e-12, (v, fixed_roles, lb, value)
+        sk = SimpleNamespace(**{r: np.array([v.get(r, 0.0)]) for r in ROLES})
+        full = node_price(pricing, label, {r: getattr(sk, r) for r in ROLES}, {})
+        assert full[0] == skeleton_price(pricing, sk, label)[0]
+    # the open roles' least price is reached: the pair level's bound is exactly the
+    # transistor's, the fixed pair's (each value at most two joined pieces of the
+    # cheapest row) and the drawer's cheapest value for each open role
+    fixed = {"R1": np.array([max(price)]), "R2": np.array([min(price)])}
+    open_ = {r: np.array(sorted(price)) for r in ("RC", "RE")}
+    lb = node_price(pricing, label, fixed, open_)[0]
+    least = min(price.values()) if req.allow_combos else math.inf
+    want = (t_price + min(price[max(price)], 2 * least) + min(price[min(price)], 2 * least)
+            + min(price.values()) * 2)
+    assert math.isclose(lb, want, abs_tol=1e-12)
