@@ -124,16 +124,22 @@ def chain_candidates(request: Request, snapshot: StockSnapshot, *, top: int,
         # programme without alternatives
         per = max(PER_TYPE_MIN, top // PER_TYPE_DIVISOR)
         for t in sorted({t.label for t in snapshot.transistors if t.qty > 0}):
-            if sum(t in c.transistors for c in found) >= per:
+            # (a chain counts for a type only when both its stages are on it: a chain
+            # with one stage on a scarce type still draws on that type)
+            if sum(all(x == t for x in c.transistors) for c in found) >= per:
                 continue
-            try:
-                more = search_chains(replace(one, transistor=t), wider, top=per,
-                                     time_limit_s=search_time_s, unlocks=False)
-            except InputError:
-                continue
-            runs += 1
-            stopped += int(not more.search.get("stage_searches_complete", True))
-            found += [c for c in more.designs if c.meets_spec]
+            # over the drawer and over the drawer plus values to order, as the best
+            # ones above: the composed search is not complete, and over the wider
+            # drawer its stage lists can leave out every chain the drawer alone holds
+            for drawer in dict.fromkeys((snapshot, wider)):
+                try:
+                    more = search_chains(replace(one, transistor=t), drawer, top=per,
+                                         time_limit_s=search_time_s, unlocks=False)
+                except InputError:
+                    break
+                runs += 1
+                stopped += int(not more.search.get("stage_searches_complete", True))
+                found += [c for c in more.designs if c.meets_spec]
     seen: set[tuple] = set()
     designs = []
     # (the same values from stock rows and from rows to order are two columns, as for

@@ -22,6 +22,7 @@ from optimiser.planning.chain_columns import chain_candidates
 from optimiser.planning.objective import score_map
 from optimiser.purchase import PurchaseOptions, augment
 from optimiser.request import parse_request
+from optimiser.search.chains import search_chains
 
 # invented parts; figures of a small-signal NPN from memory
 N1 = Transistor("GP-N1", 100, 300, qty=6, ft=250e6, cob=4e-12, vceo=40, ic_max=0.1, pd=0.5,
@@ -236,3 +237,24 @@ def test_a_chain_build_the_drawer_cannot_supply_buys_the_least_it_needs():
     assert plan.bound is None or "chain" in plan.bound.offered_only
     if plan.bound is not None:
         assert "designs the chain search offered for chain" in bound_line(plan.bound)
+
+
+def test_a_plentiful_type_is_offered_though_the_wider_drawer_hides_it():
+    # The demo drawer holds 3 LN-N3 and 25 GP-N1; the best ce→cc chains of the
+    # request all take two LN-N3. The chains offered must include chains on GP-N1
+    # alone whenever the chain search over the drawer finds some (the reference: that
+    # search itself), also when a [purchase] table widens the drawer: over the wider
+    # drawer the composed search found none on GP-N1, so 6 copies could not be planned.
+    from tests.demo_drawer import demo_snapshot
+
+    snap = demo_snapshot()
+    req = parse_request({"topology": ["ce", "cc"], "supply_v": 12, "load_ohm": "1k",
+                         "source_ohm": "10k", "gain_db": 40, "f_low_max_hz": 20},
+                        pairs=True)
+    ref = search_chains(replace(req, transistor="GP-N1"), snap, top=3, time_limit_s=30,
+                        unlocks=False)
+    assert any(c.meets_spec for c in ref.designs)
+    wider, _ = augment(snap, PurchaseOptions(series="E24", cap_series="E6"))
+    designs, _, _ = chain_candidates(req, snap, top=10, search_time_s=30, copies=1,
+                                     augmented=wider)
+    assert any(set(d.transistors) == {"GP-N1"} for d in designs)
