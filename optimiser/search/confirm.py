@@ -320,18 +320,24 @@ def f_low_prescreen(request, opts, part: Skeletons, stats) -> np.ndarray:
     return ~missed
 
 
-def prescreen_backlog(request, opts, picks, stats) -> np.ndarray:
-    """Mask of the queued skeletons ``picks`` ((Skeletons, index) pairs, queued
-    before :func:`f_low_prescreen` took effect) to keep, one call per skeleton set."""
+def backlog_mask(picks, keep_of) -> np.ndarray:
+    """Mask of the queued skeletons ``picks`` ((Skeletons, index) pairs) to keep:
+    ``keep_of(part)`` (a mask) on each skeleton set's picks taken together, one call
+    per set."""
     keep = np.ones(len(picks), dtype=bool)
     by: dict[int, list[int]] = {}
     for k, (sk, _) in enumerate(picks):
         by.setdefault(id(sk), []).append(k)
     for ks in by.values():
         sk = picks[ks[0]][0]
-        keep[ks] = f_low_prescreen(request, opts, sk.take(np.array([picks[k][1] for k in ks])),
-                                   stats)
+        keep[ks] = keep_of(sk.take(np.array([picks[k][1] for k in ks])))
     return keep
+
+
+def prescreen_backlog(request, opts, picks, stats) -> np.ndarray:
+    """Mask of the queued skeletons ``picks`` (queued before :func:`f_low_prescreen`
+    took effect) to keep."""
+    return backlog_mask(picks, lambda part: f_low_prescreen(request, opts, part, stats))
 
 
 def _top_screen(request, opts, part: Skeletons, croles, need, top_vec, stats):

@@ -29,6 +29,7 @@ from optimiser.search.confirm import (
     _confirm_group,
     _evaluate,
     _large_signal,
+    backlog_mask,
     f_low_prescreen,
     pool_quick_rejects,
     prescreen_active,
@@ -307,18 +308,14 @@ def _thd_cut(request, pricing, until_one: bool, keep_rejects: bool) -> bool:
 def _thd_backlog(request, picks, stats) -> np.ndarray:
     """Mask of the queued skeletons ``picks`` ((Skeletons, index) pairs) to keep by the
     engine's THD (:func:`optimiser.search.thd_floor.engine_keep`), one call per set."""
-    keep = np.ones(len(picks), dtype=bool)
-    by: dict[int, list[int]] = {}
-    for k, (sk, _) in enumerate(picks):
-        by.setdefault(id(sk), []).append(k)
-    for ks in by.values():
-        sk = picks[ks[0]][0]
-        part = sk.take(np.array([picks[k][1] for k in ks]))
+
+    def keep_of(part):
         b = part.batch()
         model = device_from_transistor(part.transistor)
         op = operating_point(b.topology, request.supply_v, b, model)
-        keep[ks] = engine_keep(request, b, model, op, stats)
-    return keep
+        return engine_keep(request, b, model, op, stats)
+
+    return backlog_mask(picks, keep_of)
 
 
 def _branch_and_bound(request, opts, jobs, top, stats, progress, budget_s, cap, seeds=(),
