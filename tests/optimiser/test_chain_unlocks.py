@@ -23,9 +23,11 @@ IMPOSSIBLE = {"topology": ["ce", "cc"], "supply_v": 12, "load_ohm": "1k",
 
 
 #: The suggestions' clocks are wall time: on a loaded test machine (two workers and
-#: other jobs) their default budgets can run out before the gain's relaxed search ends,
-#: and these checks are of what the suggestions say, not of how fast: four times more.
-SLACK = 4.0
+#: other jobs) their default budgets can run out before the gain's relaxed search ends
+#: (four times the defaults still did once), and these checks are of what the
+#: suggestions say, not of how fast: twenty times more.  A run that finishes takes
+#: only what its searches need (about 30 s here on a quiet machine).
+SLACK = 20.0
 
 
 def generous_budgets(mp: pytest.MonkeyPatch) -> None:
@@ -34,8 +36,9 @@ def generous_budgets(mp: pytest.MonkeyPatch) -> None:
     import optimiser.search.chain_unlocks as cu
     import optimiser.search.chains as ch
 
-    for mod, name in ((ch, "CHAIN_EXPLAIN_BUDGET_S"), (cu, "CHAIN_RELAX_S"),
-                      (cu, "CHAIN_BUY_S")):
+    # (the search over the drawer plus one bought value keeps its own budget: it runs
+    # to its limit, and none of these checks reads it)
+    for mod, name in ((ch, "CHAIN_EXPLAIN_BUDGET_S"), (cu, "CHAIN_RELAX_S")):
         mp.setattr(mod, name, SLACK * getattr(mod, name))
 
 
@@ -49,7 +52,7 @@ def answered(demo):
     req = parse_request(IMPOSSIBLE, pairs=True)
     with pytest.MonkeyPatch.context() as mp:
         generous_budgets(mp)
-        return req, search_chains(req, demo, top=3, time_limit_s=240)
+        return req, search_chains(req, demo, top=3, time_limit_s=900)
 
 
 def _met_by_the_named_chain(req, d, demo) -> bool:
@@ -125,7 +128,7 @@ def test_beyond_reach_only_the_limited_target_is_relaxed(demo, monkeypatch):
     # (the least I_C at its default: with 4 mA, f_low ≤ 2 Hz holds at no gain)
     req = parse_request({k: v for k, v in IMPOSSIBLE.items() if k != "ic_min_a"}
                         | {"gain_db": 60}, pairs=True)
-    res = search_chains(req, demo, top=3, time_limit_s=240)
+    res = search_chains(req, demo, top=3, time_limit_s=900)
     assert res.search["proven_infeasible"] and res.limits
     assert [c["target"] for c in res.unlock_changes] == ["gain_db"], res.unlock
     reach = res.limits[0]["reachable"]
