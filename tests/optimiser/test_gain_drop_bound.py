@@ -23,6 +23,7 @@ from optimiser.score import score_terms
 from optimiser.search import gain_window, skeleton_figures
 from optimiser.search.bounds import B15_MARGIN, GAIN_SLACK_DB
 from optimiser.stage import StageBatch
+from tests.optimiser.junction_case import engine_terms_and_floor_args
 
 CASES = [(600.0, 1e4, 60.0, 1e3), (0.0, None, 30.0, 1e3), (10e3, 2e3, 100.0, 1e5),
          (600.0, 1e4, 100.0, 1e6), (50.0, 1e3, 20.0, 1e3)]
@@ -179,23 +180,9 @@ def test_junction_floor_with_the_divider_of_the_emitter_holds_against_the_engine
         RC=np.exp(rng.uniform(np.log(200), np.log(3e4), n)), C_IN=1.0, C_OUT=1.0, C_BYP=1.0,
         RE=rng.uniform(0, 2e3, n) * (rng.random(n) < 0.6) * rng.choice([1.0, 0.01], n),
         RE_BYP=rng.uniform(0, 2e3, n))
-    ev = evaluate(req, b, t, None, band_edges=False, large_signal=False)
-    f = skeleton_figures(req, b, t)
-    win = gain_window(req)
-    ok = ev.valid & (f["gain_inf_db"] >= 20 * np.log10(win[0]) - GAIN_SLACK_DB)
-    assert ok.sum() > 100
-    terms = score_terms(gain_inf_db=f["gain_inf_db"], target_db=req.gain_db,
-                        tol_db=req.gain_tol_db, drift_pct=0.0, hd2_pct=f["hd2_pct"],
-                        supply_a=0.0, emptied=0, vce_v=f["vce_v"], supply_v=12.0)
-    actual = terms["gain"] + terms["distortion"] + terms["headroom"]
-    vth, rth = thevenin(12.0, b.R1, b.R2)
-    ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
-    ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
-    k_up = ce_input_divider_max(ic_lo=ic_lo, r_th=rth, re_hi=b.RE, source_ohm=rs, model=m,
-                                q_hi=hi)
-    kw = dict(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ic_lo * b.re_total, supply_v=12.0, load_ohm=rl,
-              input_vpk=vin, gain_lo_db=20 * np.log10(win[0]) - GAIN_SLACK_DB,
-              target_db=req.gain_db, tol_db=req.gain_tol_db, vce_sat=m.vce_sat, k_in=k_up)
+    ok, _, actual, kw, rth = engine_terms_and_floor_args(req, b, t, m, lo, hi, 100)
+    kw["k_in"] = ce_input_divider_max(ic_lo=kw["ic_lo"], r_th=rth, re_hi=b.RE,
+                                      source_ohm=rs, model=m, q_hi=hi)
     free = junction_floor(**kw)
     known = junction_floor(**kw, rc=b.RC)
     assert np.all(free[ok] <= actual[ok]), np.max((free - actual)[ok])

@@ -20,6 +20,7 @@ from optimiser.search import check_request, search
 from optimiser.search.job import _Job
 from optimiser.search.skeletons import FORMS
 from optimiser.stage import StageBatch
+from tests.optimiser.junction_case import engine_terms_and_floor_args
 
 T = Transistor("GP-N1", 100, 300, qty=10, ft=250e6, cob=4e-12, vceo=40, ic_max=0.1, pd=0.5,
                id=900, location="Q1")
@@ -233,9 +234,6 @@ def test_junction_floor_is_below_the_engine_score_terms(topo, rs, rl, vin, gdb):
     # computed by the engine (skeleton_figures), never below the floor — neither the
     # floor over every RC (bias level) nor the one with RC known (collector level)
     from optimiser.prune import junction_floor
-    from optimiser.score import score_terms
-    from optimiser.search import gain_window, skeleton_figures
-    from optimiser.search.bounds import GAIN_SLACK_DB
 
     rng = np.random.default_rng(7)
     n = 4000
@@ -252,21 +250,7 @@ def test_junction_floor_is_below_the_engine_score_terms(topo, rs, rl, vin, gdb):
         caps = dict(C_IN=1.0, C_OUT=1.0, C_B=1.0, RE=rng.uniform(100, 2e4, n))
     b = StageBatch.from_values(topo, R1=rng.uniform(5e3, 2e5, n), R2=rng.uniform(1e3, 5e4, n),
                                RC=rng.uniform(200, 3e4, n), **caps)
-    ev = evaluate(req, b, t, None, band_edges=False, large_signal=False)
-    f = skeleton_figures(req, b, t)
-    win = gain_window(req)
-    ok = ev.valid & (f["gain_inf_db"] >= 20 * np.log10(win[0]) - GAIN_SLACK_DB)
-    assert ok.sum() > 150
-    terms = score_terms(gain_inf_db=f["gain_inf_db"], target_db=req.gain_db,
-                        tol_db=req.gain_tol_db, drift_pct=0.0, hd2_pct=f["hd2_pct"],
-                        supply_a=0.0, emptied=0, vce_v=f["vce_v"], supply_v=12.0)
-    actual = terms["gain"] + terms["distortion"] + terms["headroom"]
-    vth, rth = thevenin(12.0, b.R1, b.R2)
-    ic_lo = bias_current(vth, rth, b.re_total, m, 25.0, None, lo)
-    ic_hi = bias_current(vth, rth, b.re_total, m, 25.0, None, hi)
-    kw = dict(ic_lo=ic_lo, ic_hi=ic_hi, ve_lo=ic_lo * b.re_total, supply_v=12.0, load_ohm=rl,
-              input_vpk=vin, gain_lo_db=20 * np.log10(win[0]) - GAIN_SLACK_DB,
-              target_db=req.gain_db, tol_db=req.gain_tol_db, vce_sat=m.vce_sat)
+    ok, terms, actual, kw, rth = engine_terms_and_floor_args(req, b, t, m, lo, hi, 150)
     if topo == "ce":      # the search's input-divider bound, R_in ≤ R_TH
         kw["k_in"] = rth / (rth + rs)
     free = junction_floor(**kw)
